@@ -1,0 +1,160 @@
+"""Command line: a thin click layer over the Python API.
+
+Every command turns `ZeckenumError`s (bad input, memory refusals, failed checks) into one
+line on stderr and the error's exit status; click's own usage errors exit with status 2.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+
+import click
+
+from . import __version__
+from .count import count
+from .errors import ZeckenumError
+from .memory import parse_size
+from .results import CountResult
+
+
+class PositiveInt(click.ParamType):
+    """A whole number >= 1 (rejects 2.5, abc, 0 and negatives with one line)."""
+
+    name = "N"
+
+    def convert(self, value, param, ctx):  # noqa: ANN001 - click's signature
+        if isinstance(value, int) and not isinstance(value, bool):
+            n = value
+        else:
+            text = str(value).strip()
+            if not text.lstrip("+-").isdigit():
+                self.fail(f"{value!r} is not a whole number", param, ctx)
+            n = int(text)
+        if n < 1:
+            self.fail(f"n must be at least 1, got {n}", param, ctx)
+        return n
+
+
+POSITIVE = PositiveInt()
+
+
+class MemorySize(click.ParamType):
+    name = "SIZE"
+
+    def convert(self, value, param, ctx):  # noqa: ANN001
+        try:
+            return parse_size(str(value))
+        except ZeckenumError as exc:
+            self.fail(str(exc), param, ctx)
+
+
+def fail(exc: ZeckenumError) -> None:
+    """Print a ZeckenumError as one line and exit with its status."""
+    click.echo(f"zeckenum: error: {exc}", err=True)
+    sys.exit(exc.exit_code)
+
+
+class OneLineGroup(click.Group):
+    """Group whose usage errors print a single line (no usage block) and exit 2."""
+
+    def main(self, *args, **kwargs):  # noqa: ANN002, ANN003
+        kwargs.setdefault("standalone_mode", True)
+        try:
+            return super().main(*args, standalone_mode=False, **{
+                k: v for k, v in kwargs.items() if k != "standalone_mode"
+            })
+        except click.exceptions.NoArgsIsHelpError as exc:
+            click.echo(exc.ctx.get_help())
+            sys.exit(0)
+        except click.UsageError as exc:
+            click.echo(f"zeckenum: error: {exc.format_message()}", err=True)
+            sys.exit(2)
+        except click.exceptions.Abort:
+            click.echo("zeckenum: aborted", err=True)
+            sys.exit(130)
+        except click.exceptions.Exit as exc:
+            sys.exit(exc.exit_code)
+        except ZeckenumError as exc:
+            fail(exc)
+
+
+@click.group(cls=OneLineGroup, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, "--version", prog_name="zeckenum")
+def main() -> None:
+    """Exact enumeration of the Zeckendorf game and its relatives.
+
+    \b
+    Examples:
+      zeckenum count 100             all games at n = 100, by length
+      zeckenum count 60 --json       the same as one JSON object
+    """
+
+
+def format_count(res: CountResult) -> str:
+    """Readable census table for the terminal."""
+    s = res.stats
+    lines = [
+        f"zeckenum count  rules={res.rules}  n={res.n}",
+        "",
+        f"  reachable states     {res.states:,}",
+        f"  transitions (moves)  {res.transitions:,}",
+        f"  games                {res.games}",
+        f"  shortest game        {res.shortest} moves ({res.shortest_games} games)",
+        f"  longest game         {res.longest} moves ({res.longest_games} games)",
+        "",
+        "  length  games",
+    ]
+    width = len(str(res.longest))
+    for length, c in res.length_counts.items():
+        lines.append(f"  {length:>{max(6, width)}}  {c}")
+    lines += [
+        "",
+        f"  exact via {len(res.primes)} primes < 2^62 + 1 check prime, CRT; "
+        f"{s.get('word_updates', 0):,} word updates in {s.get('seconds_total', 0):.2f} s",
+    ]
+    return "\n".join(lines)
+
+
+@main.command("count")
+@click.argument("n", type=POSITIVE)
+@click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of a table.")
+@click.option(
+    "--out", type=click.Path(dir_okay=False), default=None,
+    help="Also write the spectrum to FILE: .csv (n,length,count) or .json.",
+)
+@click.option("--threads", type=click.IntRange(min=1), default=None,
+              help="Threads for the exact sweep (default: all cores).")
+@click.option("--prime-offset", type=click.IntRange(min=0), default=0, show_default=True,
+              help="Skip this many primes below 2^62 (use another prime set to re-check).")
+@click.option("--max-memory", type=MemorySize(), default=None,
+              help="Memory limit, e.g. 4G (default: what the machine has available).")
+@click.option("--progress/--no-progress", default=False, help="Show a progress bar on stderr.")
+def count_command(n, as_json, out, threads, prime_offset, max_memory, progress) -> None:  # noqa: ANN001
+    """Count every game of the standard game started from N tokens in F1, by length.
+
+    Prints reachable states, transitions, the exact number of games, the shortest and
+    longest lengths and the number of games of each length.
+
+    \b
+    Examples:
+      zeckenum count 30
+      zeckenum count 200 --json --out spectrum200.csv
+    """
+    try:
+        res = count(
+            n, threads=threads, prime_offset=prime_offset, max_memory=max_memory,
+            progress=progress,
+        )
+        if out:
+            res.write(out)
+    except ZeckenumError as exc:
+        fail(exc)
+    if as_json:
+        click.echo(json.dumps(res.to_dict()))
+    else:
+        click.echo(format_count(res))
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

@@ -1,0 +1,184 @@
+"""`count`: the exact census of all games of a rule set at one n (the main job).
+
+The path of one number, from the command line to the kernel and back:
+
+1. `cli.count_command` parses N and calls `count(n)`.
+2. `count` instantiates the rule set (`rules.RuleSet.instantiate`) and ranks its states
+   (`statespace.build_space`).
+3. `windows.sweep_windows` walks the layers once: reachable states, moves, each state's
+   window of path lengths, and a float estimate of the number of games that fixes how many
+   primes the exact sweep needs (`modular.primes_for_bits`, plus one check prime).
+4. The primes are cut into blocks (`plan_blocks`) that fit in memory; each block is one
+   independent shard, `spectrum.spectrum_residues`, run in threads here or on a cluster.
+   Its kernel `spectrum.push_residues` adds rows of residues along every move.
+5. `modular.reconstruct` rebuilds each length's count by the CRT and checks it against the
+   check prime; the `results.CountResult` goes back to the CLI or the notebook.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import time
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import InputError
+from .memory import available_bytes, refuse_if_over
+from .modular import primes_for_bits, reconstruct
+from .results import CountResult
+from .rules import RuleSet, get_rules
+from .spectrum import peak_words, spectrum_residues
+from .statespace import StateSpace, build_space
+from .windows import Windows, sweep_windows
+
+
+def check_n(n: object) -> int:
+    """n as a positive int, or InputError."""
+    if isinstance(n, bool) or not isinstance(n, (int, np.integer)):
+        raise InputError(f"n must be a positive integer, got {n!r}")
+    if n < 1:
+        raise InputError(f"n must be a positive integer, got {n}")
+    return int(n)
+
+
+def windows_pass_bytes(space: StateSpace) -> int:
+    """Estimated peak bytes of the first sweep: per-state windows plus the largest layers."""
+    per_state_kept = 8  # lmin and win, int32 each, for every state
+    largest = max(space.layer_size(lv) for lv in space.levels)
+    moves = space.spec.mv_bins.shape[0]
+    in_flight = (space.max_drop + 1) * largest * 16 + largest * (moves * 24 + 8 * space.spec.nbins)
+    return per_state_kept * space.total_states() + in_flight
+
+
+@dataclass(frozen=True)
+class BlockPlan:
+    """How the primes of one exact sweep are cut into shards and run."""
+
+    blocks: tuple[tuple[int, ...], ...]
+    threads: int
+    bytes_per_block: tuple[int, ...]
+
+    @property
+    def peak_bytes(self) -> int:
+        return sum(sorted(self.bytes_per_block, reverse=True)[: self.threads])
+
+
+def plan_blocks(
+    space: StateSpace, windows: Windows, primes: list[int], threads: int, limit: int
+) -> BlockPlan:
+    """Cut `primes` into blocks so that `threads` blocks in flight fit under `limit` bytes.
+
+    A block of b primes holds b words per (state, length) of the layers in flight and
+    re-derives each layer's moves; more, smaller blocks cost memory-free extra move passes.
+    """
+    words_one = peak_words(space, windows, 1)
+    largest = max(space.layer_size(lv) for lv in space.levels)
+    fixed = largest * (space.spec.mv_bins.shape[0] * 24 + 8 * space.spec.nbins)
+    threads = max(1, min(threads, len(primes)))
+    per_thread = limit // threads
+    max_b = (per_thread - fixed) // max(1, words_one * 8)
+    if max_b < 1:
+        refuse_if_over(words_one * 8 + fixed, limit, "the exact sweep with one prime per block")
+        max_b = 1
+    nblocks = max(threads, math.ceil(len(primes) / max_b))
+    nblocks = min(nblocks, len(primes))
+    blocks = tuple(tuple(int(p) for p in b) for b in np.array_split(primes, nblocks))
+    sizes = tuple(words_one * 8 * len(b) + fixed for b in blocks)
+    return BlockPlan(blocks=blocks, threads=threads, bytes_per_block=sizes)
+
+
+def count(
+    n: int,
+    rules: str | RuleSet = "standard",
+    *,
+    threads: int | None = None,
+    prime_offset: int = 0,
+    max_memory: int | None = None,
+    progress: bool = False,
+) -> CountResult:
+    """Exact number of games of every length for the game `rules` started from n.
+
+    threads       worker threads for prime blocks (default: all cores)
+    prime_offset  skip that many primes below 2**62 (two offsets far enough apart give
+                  disjoint prime sets: an independent recomputation)
+    max_memory    byte limit for the run (default: what the machine has available); a run
+                  whose estimate exceeds it is refused before the heavy work starts
+    """
+    n = check_n(n)
+    if prime_offset < 0:
+        raise InputError(f"prime offset must be >= 0, got {prime_offset}")
+    ruleset = get_rules(rules)
+    limit = available_bytes() if max_memory is None else int(max_memory)
+    nthreads = threads if threads is not None else (os.cpu_count() or 1)
+    if nthreads < 1:
+        raise InputError(f"threads must be >= 1, got {nthreads}")
+
+    t0 = time.perf_counter()
+    spec = ruleset.instantiate(n)
+    space = build_space(spec)
+    refuse_if_over(windows_pass_bytes(space), limit, f"counting n={n} (first sweep)")
+    windows = sweep_windows(space)
+    t1 = time.perf_counter()
+
+    primes, check_prime = primes_for_bits(windows.count_bits, prime_offset)
+    all_primes = [*primes, check_prime]
+    plan = plan_blocks(space, windows, all_primes, nthreads, limit)
+
+    bar = None
+    if progress:
+        from tqdm import tqdm
+
+        bar = tqdm(
+            total=windows.states * len(plan.blocks), unit="state", desc=f"count n={n}",
+            unit_scale=True,
+        )
+
+    def run(block: tuple[int, ...]) -> tuple[np.ndarray, int]:
+        return spectrum_residues(space, windows, list(block), bar.update if bar else None)
+
+    with ThreadPoolExecutor(max_workers=plan.threads) as pool:
+        parts = list(pool.map(run, plan.blocks))
+    if bar is not None:
+        bar.close()
+    t2 = time.perf_counter()
+
+    residues = np.concatenate([p[0] for p in parts], axis=0)
+    updates = sum(p[1] for p in parts)
+    nrec = len(primes)
+    lengths = range(windows.shortest, windows.longest + 1)
+    values = reconstruct(
+        [[int(x) for x in residues[:nrec, length]] for length in lengths],
+        primes,
+        check_prime,
+        [int(residues[nrec, length]) for length in lengths],
+        what="count of games of one length",
+    )
+    length_counts = {L: v for L, v in zip(lengths, values, strict=True) if v}
+    t3 = time.perf_counter()
+    return CountResult(
+        rules=ruleset.name,
+        rules_hash=ruleset.content_hash(),
+        n=n,
+        states=windows.states,
+        transitions=windows.transitions,
+        games=sum(length_counts.values()),
+        shortest=min(length_counts),
+        longest=max(length_counts),
+        length_counts=length_counts,
+        primes=tuple(primes),
+        check_prime=check_prime,
+        stats={
+            "seconds_total": round(t3 - t0, 3),
+            "seconds_windows": round(t1 - t0, 3),
+            "seconds_exact": round(t2 - t1, 3),
+            "word_updates": int(updates),
+            "threads": plan.threads,
+            "prime_blocks": len(plan.blocks),
+            "planned_peak_bytes": int(plan.peak_bytes),
+            "count_bits": windows.count_bits,
+            "terminal_states": windows.terminals,
+        },
+    )

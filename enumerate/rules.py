@@ -1,0 +1,203 @@
+"""Rule sets: bins, move templates and start positions, and their instantiation for one n.
+
+A rule set describes a chip game on bins with positive integer values.  A *state* is the
+vector of token counts per bin; a *move template* takes tokens from bins at fixed offsets
+from an index k and gives tokens to bins at fixed offsets, for every k in its range.  A
+move is a template applied to one index ("a move type applied to a bin").  Every move
+preserves the value sum(count[k] * value[k]).
+
+`RuleSet.instantiate(n)` turns a rule set into a `GameSpec`: plain arrays over the bins
+whose value is at most n, ready for the numba kernels.  Bins are numbered from 1 in
+everything a user sees (F1 = 1, F2 = 2, ...) and from 0 inside arrays.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import InputError
+
+
+@dataclass(frozen=True)
+class MoveTemplate:
+    """A family of moves indexed by a bin k (1-based) with first <= k <= last.
+
+    `takes` and `gives` are (offset, count) pairs: the move removes `count` tokens from bin
+    k + offset for each pair in `takes` and adds `count` tokens to bin k + offset for each
+    pair in `gives`.  `last` None means: as far as the bins go.
+    """
+
+    name: str
+    takes: tuple[tuple[int, int], ...]
+    gives: tuple[tuple[int, int], ...]
+    first: int
+    last: int | None = None
+
+    def effect(self, k: int) -> dict[int, int]:
+        """Net change per 1-based bin when the template is applied at index k."""
+        change: dict[int, int] = {}
+        for off, c in self.takes:
+            change[k + off] = change.get(k + off, 0) - c
+        for off, c in self.gives:
+            change[k + off] = change.get(k + off, 0) + c
+        return {b: d for b, d in change.items() if d != 0}
+
+
+@dataclass(frozen=True)
+class RuleSet:
+    """A game: bin values from a linear recurrence, move templates, and a start position.
+
+    Bin values: `initial` followed by value[k] = sum(coeff[i] * value[k - 1 - i]).
+    Start: `start == "ones"` puts n tokens in bin 1.
+    Layering: `level_weights == "tokens"` orders the sweep by token count, which no move of
+    the standard game increases (combines lower it by one, splits keep it).
+    """
+
+    name: str
+    description: str
+    initial: tuple[int, ...]
+    recurrence: tuple[int, ...]
+    templates: tuple[MoveTemplate, ...]
+    start: str = "ones"
+    level_weights: str = "tokens"
+    extra: dict = field(default_factory=dict, compare=False, hash=False)
+
+    def bin_values(self, n: int) -> list[int]:
+        """Values of all bins whose value is at most n, smallest first."""
+        vals = list(self.initial)
+        while True:
+            nxt = sum(c * vals[-1 - i] for i, c in enumerate(self.recurrence))
+            if nxt > n or nxt <= vals[-1]:
+                break
+            vals.append(nxt)
+        return [v for v in vals if v <= n]
+
+    def content_hash(self) -> str:
+        """SHA-256 (first 16 hex digits) of the rule set's defining content."""
+        body = {
+            "initial": self.initial,
+            "recurrence": self.recurrence,
+            "templates": [
+                [t.name, t.takes, t.gives, t.first, t.last] for t in self.templates
+            ],
+            "start": self.start,
+            "level_weights": self.level_weights,
+        }
+        text = json.dumps(body, sort_keys=True, separators=(",", ":"))
+        return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+    def instantiate(self, n: int) -> GameSpec:
+        """The concrete game for n: bins with value <= n and every move that fits in them."""
+        if n < 1:
+            raise InputError(f"n must be a positive integer, got {n}")
+        values = self.bin_values(n)
+        nbins = len(values)
+        names: list[str] = []
+        effects: list[dict[int, int]] = []
+        for tpl in self.templates:
+            last = nbins if tpl.last is None else min(tpl.last, nbins)
+            for k in range(tpl.first, last + 1):
+                eff = tpl.effect(k)
+                if any(b < 1 or b > nbins for b in eff):
+                    continue
+                names.append(f"{tpl.name}@{k}")
+                effects.append(eff)
+        width = max((len(e) for e in effects), default=1)
+        mv_bins = np.zeros((len(effects), width), dtype=np.int64)
+        mv_delta = np.zeros((len(effects), width), dtype=np.int64)
+        for m, eff in enumerate(effects):
+            for j, (b, d) in enumerate(sorted(eff.items())):
+                mv_bins[m, j] = b - 1
+                mv_delta[m, j] = d
+        vals = np.array(values, dtype=np.int64)
+        if self.level_weights == "tokens":
+            weights = np.ones(nbins, dtype=np.int64)
+        else:  # pragma: no cover - only "tokens" is defined so far
+            raise InputError(f"unknown level weights {self.level_weights!r}")
+        if self.start == "ones":
+            start = np.zeros(nbins, dtype=np.int64)
+            start[0] = n // values[0]
+            if values[0] * start[0] != n:
+                raise InputError(f"start 'ones' needs bin 1 to divide n={n}")
+        else:  # pragma: no cover
+            raise InputError(f"unknown start {self.start!r}")
+        for m, eff in enumerate(effects):
+            if sum(d * values[b - 1] for b, d in eff.items()) != 0:
+                raise InputError(f"move {names[m]} changes the value")
+        mv_drop = -(mv_delta * weights[mv_bins]).sum(axis=1)
+        return GameSpec(
+            rules=self,
+            n=n,
+            values=vals,
+            weights=weights,
+            mv_bins=mv_bins,
+            mv_delta=mv_delta,
+            mv_drop=mv_drop.astype(np.int64),
+            move_names=tuple(names),
+            start=start,
+        )
+
+
+@dataclass(frozen=True, eq=False)
+class GameSpec:
+    """One rule set instantiated for one n: plain arrays for the kernels.
+
+    values[k]      value of bin k (0-based), strictly increasing
+    weights[k]     level weight of bin k; the level of a state is sum(weights * counts)
+    mv_bins[m, j]  0-based bins touched by move m (padded with bin 0 and delta 0)
+    mv_delta[m, j] change of the count in mv_bins[m, j]
+    mv_drop[m]     how much move m lowers the level (>= 0 for a valid layering)
+    start          the start state's count vector
+    """
+
+    rules: RuleSet
+    n: int
+    values: np.ndarray
+    weights: np.ndarray
+    mv_bins: np.ndarray
+    mv_delta: np.ndarray
+    mv_drop: np.ndarray
+    move_names: tuple[str, ...]
+    start: np.ndarray
+
+    @property
+    def nbins(self) -> int:
+        return int(self.values.size)
+
+    @property
+    def start_level(self) -> int:
+        return int((self.weights * self.start).sum())
+
+
+STANDARD = RuleSet(
+    name="standard",
+    description=(
+        "The Zeckendorf game: n tokens in F1, bins 1, 2, 3, 5, 8, ...; combine 2F1->F2 and "
+        "F(k-1)+F(k)->F(k+1); split 2F2->F1+F3 and 2F(k)->F(k-2)+F(k+1) for k>=3."
+    ),
+    initial=(1, 2),
+    recurrence=(1, 1),
+    templates=(
+        MoveTemplate("combine-ones", takes=((0, 2),), gives=((1, 1),), first=1, last=1),
+        MoveTemplate("combine", takes=((-1, 1), (0, 1)), gives=((1, 1),), first=2),
+        MoveTemplate("split-twos", takes=((0, 2),), gives=((-1, 1), (1, 1)), first=2, last=2),
+        MoveTemplate("split", takes=((0, 2),), gives=((-2, 1), (1, 1)), first=3),
+    ),
+)
+
+BUILTIN: dict[str, RuleSet] = {STANDARD.name: STANDARD}
+
+
+def get_rules(name_or_rules: str | RuleSet) -> RuleSet:
+    """Look a built-in rule set up by name (or pass a RuleSet through)."""
+    if isinstance(name_or_rules, RuleSet):
+        return name_or_rules
+    try:
+        return BUILTIN[name_or_rules]
+    except KeyError:
+        known = ", ".join(sorted(BUILTIN))
+        raise InputError(f"unknown rule set {name_or_rules!r} (built-in: {known})") from None

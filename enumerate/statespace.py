@@ -1,0 +1,259 @@
+"""The packed state space: dense ranks of states, layers by level, and per-layer move lists.
+
+States of a game for n are the count vectors a with sum(a[k] * values[k]) == n.  They are
+grouped into *layers* by their level sum(a[k] * weights[k]); for the standard game the
+level is the token count, which no move raises.  Inside a layer, states are ordered
+co-lexicographically (the count in the largest bin is the most significant digit) and
+ranked densely 0, 1, 2, ... in that order.  Every move of the standard game raises the
+count of a bin above every bin it lowers, so it goes to a state of higher co-lexicographic
+rank: inside a layer, ascending rank is a topological order.  `layer_moves` checks this for
+every move it lists, so a rule set that breaks it is refused instead of miscounted.
+
+No state is ever hashed: a vector's rank is computed from the table `tab` in O(bins).
+
+    tab[k, v, t] = number of count vectors over bins 0..k-1 with value v and level t
+
+The same arrays serve counting, random play and solving; kernels take plain arrays only.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numba as nb
+import numpy as np
+
+from .errors import InputError
+from .rules import GameSpec
+
+
+@nb.njit(cache=True, nogil=True)
+def rank_table(values: np.ndarray, weights: np.ndarray, n: int, max_level: int) -> np.ndarray:
+    """tab[k, v, t]: count vectors over bins 0..k-1 of value v and level t (int64)."""
+    nbins = values.size
+    tab = np.zeros((nbins + 1, n + 1, max_level + 1), dtype=np.int64)
+    tab[0, 0, 0] = 1
+    for k in range(nbins):
+        vk = values[k]
+        wk = weights[k]
+        for v in range(n + 1):
+            for t in range(max_level + 1):
+                x = tab[k, v, t]
+                if v >= vk and t >= wk:
+                    x += tab[k + 1, v - vk, t - wk]
+                tab[k + 1, v, t] = x
+    return tab
+
+
+@nb.njit(cache=True, nogil=True, inline="always")
+def rank_of(
+    counts: np.ndarray, tab: np.ndarray, values: np.ndarray, weights: np.ndarray, n: int,
+    level: int,
+) -> int:
+    """Co-lexicographic rank of `counts` among the states of value n and the given level."""
+    r = 0
+    v = n
+    t = level
+    for k in range(values.size - 1, -1, -1):
+        c = counts[k]
+        if c > 0:
+            r += tab[k + 1, v, t] - tab[k + 1, v - c * values[k], t - c * weights[k]]
+            v -= c * values[k]
+            t -= c * weights[k]
+    return r
+
+
+@nb.njit(cache=True, nogil=True)
+def layer_states(
+    tab: np.ndarray, values: np.ndarray, weights: np.ndarray, n: int, level: int
+) -> np.ndarray:
+    """All states of value n at `level`, as rows of int64 counts, in ascending rank order."""
+    nbins = values.size
+    size = tab[nbins, n, level]
+    out = np.zeros((size, nbins), dtype=np.int64)
+    if size == 0:
+        return out
+    a = np.zeros(nbins, dtype=np.int64)
+    rem_v = np.zeros(nbins + 1, dtype=np.int64)
+    rem_t = np.zeros(nbins + 1, dtype=np.int64)
+    rem_v[nbins] = n
+    rem_t[nbins] = level
+    row = 0
+    k = nbins - 1
+    a[k] = 0
+    while True:
+        v = rem_v[k + 1] - a[k] * values[k]
+        t = rem_t[k + 1] - a[k] * weights[k]
+        if v < 0 or t < 0:
+            # this bin is exhausted: back up to the next larger bin and advance it
+            k += 1
+            if k == nbins:
+                break
+            a[k] += 1
+            continue
+        if k == 0:
+            if v % values[0] == 0:
+                c = v // values[0]
+                if c * weights[0] == t:
+                    a[0] = c
+                    out[row, :] = a
+                    row += 1
+            k = 1
+            if k == nbins:
+                break
+            a[k] += 1
+            continue
+        if tab[k, v, t] == 0:
+            a[k] += 1
+            continue
+        rem_v[k] = v
+        rem_t[k] = t
+        k -= 1
+        a[k] = 0
+    return out
+
+
+@nb.njit(cache=True, nogil=True)
+def layer_moves(
+    states: np.ndarray,
+    level: int,
+    tab: np.ndarray,
+    values: np.ndarray,
+    weights: np.ndarray,
+    n: int,
+    mv_bins: np.ndarray,
+    mv_delta: np.ndarray,
+    mv_drop: np.ndarray,
+):
+    """Every legal move from every state of one layer, as a compressed list.
+
+    Returns (ptr, drop, dest, move, bad): the moves of state i are ptr[i]..ptr[i+1]-1; move e
+    leads to the state of rank dest[e] in layer level - drop[e]; move[e] is the move's index
+    in the rule set.  `bad` is -1, or the rank of a state with a move inside the layer that
+    does not raise the rank (the layering is then not topological).
+    """
+    size = states.shape[0]
+    nmoves = mv_bins.shape[0]
+    width = mv_bins.shape[1]
+    ptr = np.zeros(size + 1, dtype=np.int64)
+    for i in range(size):
+        deg = 0
+        for m in range(nmoves):
+            ok = True
+            for j in range(width):
+                if states[i, mv_bins[m, j]] + mv_delta[m, j] < 0:
+                    ok = False
+                    break
+            if ok:
+                deg += 1
+        ptr[i + 1] = ptr[i] + deg
+    total = ptr[size]
+    drop = np.zeros(total, dtype=np.int64)
+    dest = np.zeros(total, dtype=np.int64)
+    move = np.zeros(total, dtype=np.int32)
+    bad = -1
+    work = np.zeros(values.size, dtype=np.int64)
+    for i in range(size):
+        e = ptr[i]
+        for m in range(nmoves):
+            ok = True
+            for j in range(width):
+                if states[i, mv_bins[m, j]] + mv_delta[m, j] < 0:
+                    ok = False
+                    break
+            if not ok:
+                continue
+            work[:] = states[i, :]
+            for j in range(width):
+                work[mv_bins[m, j]] += mv_delta[m, j]
+            d = mv_drop[m]
+            r = rank_of(work, tab, values, weights, n, level - d)
+            if d == 0 and r <= i and bad < 0:
+                bad = i
+            drop[e] = d
+            dest[e] = r
+            move[e] = m
+            e += 1
+    return ptr, drop, dest, move, bad
+
+
+@dataclass(frozen=True, eq=False)
+class StateSpace:
+    """The ranked state space of one game: layer sizes and the ranking table.
+
+    Layers are visited from `top` (the start's level) down to 0; only layers with at least
+    one state of value n exist.  Layer sizes count every state of value n at that level; the
+    reachable ones are found by the first sweep (see `windows`).
+    """
+
+    spec: GameSpec
+    tab: np.ndarray
+    top: int
+
+    @property
+    def levels(self) -> list[int]:
+        """Levels that hold states, from the start's level downward (sweep order)."""
+        return [t for t in range(self.top, -1, -1) if self.layer_size(t) > 0]
+
+    @property
+    def max_drop(self) -> int:
+        return int(self.spec.mv_drop.max()) if self.spec.mv_drop.size else 0
+
+    def layer_size(self, level: int) -> int:
+        return int(self.tab[self.spec.nbins, self.spec.n, level])
+
+    def total_states(self) -> int:
+        """Number of count vectors of value n at levels 0..top (an upper bound on reachable)."""
+        return int(self.tab[self.spec.nbins, self.spec.n, : self.top + 1].sum())
+
+    def states(self, level: int) -> np.ndarray:
+        s = self.spec
+        return layer_states(self.tab, s.values, s.weights, s.n, level)
+
+    def moves(self, level: int, states: np.ndarray | None = None) -> LayerMoves:
+        """The compressed move list of one layer (see `layer_moves`)."""
+        s = self.spec
+        if states is None:
+            states = self.states(level)
+        ptr, drop, dest, move, bad = layer_moves(
+            states, level, self.tab, s.values, s.weights, s.n, s.mv_bins, s.mv_delta, s.mv_drop
+        )
+        if bad >= 0:
+            raise InputError(
+                f"rule set {s.rules.name!r}: a move inside level {level} does not raise the "
+                "state's rank, so the layers are not in topological order"
+            )
+        return LayerMoves(level, states, ptr, drop, dest, move)
+
+    def rank(self, counts: np.ndarray) -> tuple[int, int]:
+        """(level, rank) of a count vector."""
+        s = self.spec
+        counts = np.asarray(counts, dtype=np.int64)
+        level = int((counts * s.weights).sum())
+        return level, int(rank_of(counts, self.tab, s.values, s.weights, s.n, level))
+
+
+@dataclass(frozen=True, eq=False)
+class LayerMoves:
+    """The states of one layer and all their moves (compressed rows; see `layer_moves`)."""
+
+    level: int
+    states: np.ndarray
+    ptr: np.ndarray
+    drop: np.ndarray
+    dest: np.ndarray
+    move: np.ndarray
+
+    @property
+    def size(self) -> int:
+        return int(self.states.shape[0])
+
+
+def build_space(spec: GameSpec) -> StateSpace:
+    """Rank table and layer bookkeeping for one instantiated game."""
+    if (spec.mv_drop < 0).any():
+        bad = spec.move_names[int(np.argmax(spec.mv_drop < 0))]
+        raise InputError(f"move {bad} raises the level; the layering needs non-raising moves")
+    top = spec.start_level
+    tab = rank_table(spec.values, spec.weights, spec.n, top)
+    return StateSpace(spec=spec, tab=tab, top=top)
