@@ -32,7 +32,7 @@ from .results import CountResult
 from .rules import RuleSet, get_rules
 from .spectrum import peak_words, spectrum_residues
 from .statespace import StateSpace, build_space
-from .windows import Windows, sweep_windows
+from .windows import Windows, incoming_bytes_estimate, sweep_windows
 
 
 def check_n(n: object) -> int:
@@ -60,10 +60,17 @@ class BlockPlan:
     blocks: tuple[tuple[int, ...], ...]
     threads: int
     bytes_per_block: tuple[int, ...]
+    shared_bytes: int = 0
 
     @property
     def peak_bytes(self) -> int:
-        return sum(sorted(self.bytes_per_block, reverse=True)[: self.threads])
+        """Bytes of the blocks running at once plus the move lists they share."""
+        return self.shared_bytes + sum(sorted(self.bytes_per_block, reverse=True)[: self.threads])
+
+
+PRIMES_PER_BLOCK = 4
+"""Target primes per block: long enough rows to amortise each move's bookkeeping, small
+enough that the layers in flight of `threads` blocks stay a fraction of the memory."""
 
 
 def plan_blocks(
@@ -71,23 +78,30 @@ def plan_blocks(
 ) -> BlockPlan:
     """Cut `primes` into blocks so that `threads` blocks in flight fit under `limit` bytes.
 
-    A block of b primes holds b words per (state, length) of the layers in flight and
-    re-derives each layer's moves; more, smaller blocks cost memory-free extra move passes.
+    A block of b primes holds b words per (state, length) of the layers in flight.  Blocks
+    aim at PRIMES_PER_BLOCK primes, come in a multiple of `threads` so the threads finish
+    together, and shrink (down to one prime) until `threads` of them fit the limit; the
+    moves kept by the first sweep are shared by all blocks.
     """
     words_one = peak_words(space, windows, 1)
+    shared = sum(inc.nbytes for inc in (windows.incoming or {}).values())
     largest = max(space.layer_size(lv) for lv in space.levels)
-    fixed = largest * (space.spec.mv_bins.shape[0] * 24 + 8 * space.spec.nbins)
+    per_block_fixed = largest * (space.spec.mv_bins.shape[0] * 24 + 8 * space.spec.nbins)
+    if windows.incoming is not None:
+        per_block_fixed = largest * 16
     threads = max(1, min(threads, len(primes)))
-    per_thread = limit // threads
-    max_b = (per_thread - fixed) // max(1, words_one * 8)
-    if max_b < 1:
-        refuse_if_over(words_one * 8 + fixed, limit, "the exact sweep with one prime per block")
-        max_b = 1
-    nblocks = max(threads, math.ceil(len(primes) / max_b))
-    nblocks = min(nblocks, len(primes))
+    nblocks = max(threads, math.ceil(len(primes) / PRIMES_PER_BLOCK))
+    nblocks = min(len(primes), threads * math.ceil(nblocks / threads))
+    while True:
+        size = math.ceil(len(primes) / nblocks)
+        need = shared + threads * (words_one * 8 * size + per_block_fixed)
+        if need <= limit or nblocks >= len(primes):
+            break
+        nblocks = min(len(primes), nblocks + threads)
+    refuse_if_over(need, limit, f"the exact sweep ({nblocks} prime blocks, {threads} threads)")
     blocks = tuple(tuple(int(p) for p in b) for b in np.array_split(primes, nblocks))
-    sizes = tuple(words_one * 8 * len(b) + fixed for b in blocks)
-    return BlockPlan(blocks=blocks, threads=threads, bytes_per_block=sizes)
+    sizes = tuple(words_one * 8 * len(b) + per_block_fixed for b in blocks)
+    return BlockPlan(blocks=blocks, threads=threads, bytes_per_block=sizes, shared_bytes=shared)
 
 
 def count(
@@ -119,8 +133,10 @@ def count(
     t0 = time.perf_counter()
     spec = ruleset.instantiate(n)
     space = build_space(spec)
-    refuse_if_over(windows_pass_bytes(space), limit, f"counting n={n} (first sweep)")
-    windows = sweep_windows(space)
+    first = windows_pass_bytes(space)
+    refuse_if_over(first, limit, f"counting n={n} (first sweep)")
+    keep = first + incoming_bytes_estimate(space) <= limit // 4
+    windows = sweep_windows(space, keep_incoming=keep, threads=nthreads)
     t1 = time.perf_counter()
 
     primes, check_prime = primes_for_bits(windows.count_bits, prime_offset)

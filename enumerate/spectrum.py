@@ -2,12 +2,13 @@
 
 Each reachable state s holds, for each prime q of the block and each length L in its
 window [lmin(s), lmin(s) + win(s) - 1], the number of paths start -> s with L moves,
-modulo q.  A move s -> t adds s's rows, shifted by one length, into t's rows.  At the end
+modulo q.  Each state gathers its predecessors' rows, shifted by one length.  At the end
 the terminal states' rows are summed into the spectrum: spectrum[q, L] = (number of games
 of length L) mod primes[q].
 
 Storage of one layer is a flat int64 array; state i owns words off[i] .. off[i+1]-1 laid out
-as [prime][length].  Only the layers a move can still reach are allocated.  A block is
+as [prime][length].  Only the layers a move can still reach are held, in a ring of reused
+buffers.  A block is
 independent of every other block, so blocks run in threads here (kernels release the GIL)
 or as separate tasks on a cluster (`zeckenum.cluster`).
 """
@@ -20,52 +21,57 @@ import numba as nb
 import numpy as np
 
 from .statespace import StateSpace
-from .windows import Windows
+from .windows import Windows, gather_order
 
 
 @nb.njit(cache=True, nogil=True)
-def push_residues(
-    src: np.ndarray,
-    src_off: np.ndarray,
-    src_lmin: np.ndarray,
-    src_win: np.ndarray,
-    ptr: np.ndarray,
-    drop: np.ndarray,
-    dest: np.ndarray,
-    which_drop: int,
+def pull_residues(
     dst: np.ndarray,
     dst_off: np.ndarray,
     dst_lmin: np.ndarray,
     dst_win: np.ndarray,
+    ptr: np.ndarray,
+    drop: np.ndarray,
+    src_rank: np.ndarray,
+    which_drop: int,
+    src: np.ndarray,
+    src_off: np.ndarray,
+    src_lmin: np.ndarray,
+    src_win: np.ndarray,
     primes: np.ndarray,
 ) -> int:
-    """Add every source state's rows into its successors' rows (moves dropping `which_drop`).
+    """Add into every state's rows the rows of its predecessors `which_drop` levels up.
 
-    All residues are in [0, q) with q < 2**62, so x + y < 2**63 never overflows int64.
-    Returns the number of word updates done.  With which_drop == 0, src and dst are the same
-    layer and ascending rank order finishes each state before it is read.
+    A predecessor's row for length L lands on the state's row for length L + 1.  All
+    residues are in [0, q) with q < 2**62, so x + y < 2**63 never overflows int64.  Returns
+    the number of word updates done.  With which_drop == 0, src is dst and ascending rank
+    finishes each predecessor before it is read.  Gathering (rather than scattering) keeps
+    the rows being summed in cache while the predecessors stream past.
     """
     nprimes = primes.size
     updates = 0
-    for i in range(src_win.size):
-        w = src_win[i]
-        if w == 0:
+    for j in range(dst_win.size):
+        dw = dst_win[j]
+        if dw == 0:
             continue
-        for e in range(ptr[i], ptr[i + 1]):
+        for e in range(ptr[j], ptr[j + 1]):
             if drop[e] != which_drop:
                 continue
-            j = dest[e]
-            dw = dst_win[j]
+            i = src_rank[e]
+            w = src_win[i]
+            if w == 0:
+                continue
             shift = src_lmin[i] + 1 - dst_lmin[j]
             for q in range(nprimes):
                 p = primes[q]
                 s0 = src_off[i] + q * w
                 d0 = dst_off[j] + q * dw + shift
+                # slices give LLVM non-negative indices, so the loop vectorises
+                sv = src[s0 : s0 + w]
+                dv = dst[d0 : d0 + w]
                 for t in range(w):
-                    x = dst[d0 + t] + src[s0 + t]
-                    if x >= p:
-                        x -= p
-                    dst[d0 + t] = x
+                    x = dv[t] + sv[t]
+                    dv[t] = x - p if x >= p else x
             updates += w * nprimes
     return updates
 
@@ -76,15 +82,13 @@ def collect_terminals(
     off: np.ndarray,
     lmin: np.ndarray,
     win: np.ndarray,
-    ptr: np.ndarray,
+    ends: np.ndarray,
     primes: np.ndarray,
     spectrum: np.ndarray,
 ) -> None:
-    """Add the rows of every reachable state without moves into spectrum[q, length]."""
-    for i in range(win.size):
+    """Add the rows of the terminal states `ends` (ranks) into spectrum[q, length]."""
+    for i in ends:
         w = win[i]
-        if w == 0 or ptr[i + 1] != ptr[i]:
-            continue
         for q in range(primes.size):
             p = primes[q]
             s0 = off[i] + q * w
@@ -103,14 +107,12 @@ def layer_offsets(win: np.ndarray, nprimes: int) -> np.ndarray:
 
 
 def peak_words(space: StateSpace, windows: Windows, nprimes: int) -> int:
-    """Largest number of int64 words the sweep holds at once for a block of `nprimes`."""
-    levels = sorted(windows.win, reverse=True)
-    words = {lv: int(windows.win[lv].sum()) * nprimes for lv in levels}
-    span = max(space.max_drop, 1)
-    peak = 0
-    for lv in levels:
-        peak = max(peak, sum(words.get(lv - d, 0) for d in range(span + 1)))
-    return peak
+    """int64 words of the sweep's buffer ring for a block of `nprimes`.
+
+    The ring holds max_drop + 1 buffers, each as large as the largest layer.
+    """
+    largest = max(int(w.sum()) for w in windows.win.values())
+    return (space.max_drop + 1) * largest * nprimes
 
 
 def spectrum_residues(
@@ -121,8 +123,9 @@ def spectrum_residues(
 ) -> tuple[np.ndarray, int]:
     """(spectrum, word updates): spectrum[q, L] = games of length L mod primes[q].
 
-    The local form of one shard of the exact count: pure function of the game, its windows
-    and a block of primes; the cluster twin is `zeckenum.cluster.tasks.spectrum_task`.
+    The local form of one shard of the exact count: a pure function of the game, its
+    windows and a block of primes.  Moves into each layer come from `windows.incoming`
+    when the first sweep kept them, else they are derived again here.
     `on_layer(states_done)` is called after each layer (for progress bars).
     """
     p = np.asarray(primes, dtype=np.int64)
@@ -130,34 +133,39 @@ def spectrum_residues(
     spectrum = np.zeros((nprimes, windows.longest + 1), dtype=np.int64)
     start_level, start_rank = space.rank(space.spec.start)
     live: dict[int, tuple[np.ndarray, np.ndarray]] = {}
-
-    def working(level: int) -> tuple[np.ndarray, np.ndarray]:
-        if level not in live:
-            off = layer_offsets(windows.win[level], nprimes)
-            live[level] = (np.zeros(int(off[-1]), dtype=np.int64), off)
-        return live[level]
-
-    vals, off = working(start_level)
-    vals[off[start_rank] : off[start_rank + 1]] = 1  # one game of length 0 so far, every prime
+    levels = [lv for lv in space.levels if lv <= start_level]
+    # A ring of reused buffers, one per layer in flight: layer L lives in ring[L % span],
+    # which no layer L+1 .. L+max_drop still being read can share.  Reuse avoids a fresh
+    # allocation (and its page faults) per layer.
+    span = space.max_drop + 1
+    cap = max(int(windows.win[lv].sum()) for lv in levels) * nprimes
+    ring = [np.empty(cap, dtype=np.int64) for _ in range(min(span, len(levels)))]
     updates = 0
-    for level in space.levels:
-        if level > start_level:
-            continue
-        vals, off = working(level)
+    for level in levels:
         lmin, win = windows.lmin[level], windows.win[level]
-        lm = space.moves(level)
-        for d in np.unique(lm.drop):
-            d = int(d)
-            if d == 0:
-                tv, toff, tmin, twin = vals, off, lmin, win
-            else:
-                tv, toff = working(level - d)
-                tmin, twin = windows.lmin[level - d], windows.win[level - d]
-            updates += push_residues(
-                vals, off, lmin, win, lm.ptr, lm.drop, lm.dest, d, tv, toff, tmin, twin, p
+        off = layer_offsets(win, nprimes)
+        vals = ring[level % len(ring)][: int(off[-1])]
+        vals[:] = 0
+        if level == start_level:
+            vals[off[start_rank] : off[start_rank + 1]] = 1  # the empty game, every prime
+        live[level] = (vals, off)
+        if windows.incoming is not None:
+            inc = windows.incoming[level]
+            ptr, drop, src = inc.ptr, inc.drop, inc.src
+        else:
+            lm = space.predecessors(level)
+            ptr, drop, src = lm.ptr, lm.drop, lm.dest
+        for d in gather_order(drop):
+            if level + d not in live:
+                continue
+            svals, soff = live[level + d]
+            updates += pull_residues(
+                vals, off, lmin, win, ptr, drop, src, d,
+                svals, soff, windows.lmin[level + d], windows.win[level + d], p,
             )
-        collect_terminals(vals, off, lmin, win, lm.ptr, p, spectrum)
-        del live[level]
+        collect_terminals(vals, off, lmin, win, windows.terminal_ranks[level], p, spectrum)
+        for stale in [lv for lv in live if lv > level + space.max_drop - 1]:
+            del live[stale]
         if on_layer is not None:
-            on_layer(lm.size)
+            on_layer(int(np.count_nonzero(win)))
     return spectrum, updates

@@ -113,6 +113,24 @@ def layer_states(
     return out
 
 
+@nb.njit(cache=True, nogil=True, inline="always")
+def move_applies(
+    states: np.ndarray, i: int, m: int, sign: int, level: int, max_level: int,
+    mv_bins: np.ndarray, mv_delta: np.ndarray, mv_drop: np.ndarray,
+) -> bool:
+    """Whether move m (sign +1) or its reverse (sign -1) applies to state i of `states`.
+
+    A reverse move that would lead above `max_level` leaves the ranked space and is skipped.
+    """
+    target = level - sign * mv_drop[m]
+    if target < 0 or target > max_level:
+        return False
+    for j in range(mv_bins.shape[1]):
+        if states[i, mv_bins[m, j]] + sign * mv_delta[m, j] < 0:
+            return False
+    return True
+
+
 @nb.njit(cache=True, nogil=True)
 def layer_moves(
     states: np.ndarray,
@@ -124,27 +142,27 @@ def layer_moves(
     mv_bins: np.ndarray,
     mv_delta: np.ndarray,
     mv_drop: np.ndarray,
+    sign: int,
 ):
-    """Every legal move from every state of one layer, as a compressed list.
+    """Every legal move into or out of every state of one layer, as a compressed list.
 
-    Returns (ptr, drop, dest, move, bad): the moves of state i are ptr[i]..ptr[i+1]-1; move e
-    leads to the state of rank dest[e] in layer level - drop[e]; move[e] is the move's index
-    in the rule set.  `bad` is -1, or the rank of a state with a move inside the layer that
-    does not raise the rank (the layering is then not topological).
+    sign = +1 lists moves out of each state: move e leads to the state of rank dest[e] in
+    layer level - drop[e].  sign = -1 lists moves into each state: move e comes from the
+    state of rank dest[e] in layer level + drop[e] (every count vector of value n is a
+    state; whether it is reachable is the sweeps' business).  Either way the rows of state i
+    are ptr[i]..ptr[i+1]-1 and move[e] is the move's index in the rule set.  `bad` is -1, or
+    the rank of a state with a move inside the layer that breaks ascending-rank order (out
+    of a state to a lower or equal rank, or into it from a higher or equal rank).
     """
     size = states.shape[0]
     nmoves = mv_bins.shape[0]
     width = mv_bins.shape[1]
+    max_level = tab.shape[2] - 1
     ptr = np.zeros(size + 1, dtype=np.int64)
     for i in range(size):
         deg = 0
         for m in range(nmoves):
-            ok = True
-            for j in range(width):
-                if states[i, mv_bins[m, j]] + mv_delta[m, j] < 0:
-                    ok = False
-                    break
-            if ok:
+            if move_applies(states, i, m, sign, level, max_level, mv_bins, mv_delta, mv_drop):
                 deg += 1
         ptr[i + 1] = ptr[i] + deg
     total = ptr[size]
@@ -156,25 +174,40 @@ def layer_moves(
     for i in range(size):
         e = ptr[i]
         for m in range(nmoves):
-            ok = True
-            for j in range(width):
-                if states[i, mv_bins[m, j]] + mv_delta[m, j] < 0:
-                    ok = False
-                    break
-            if not ok:
+            if not move_applies(states, i, m, sign, level, max_level, mv_bins, mv_delta, mv_drop):
                 continue
             work[:] = states[i, :]
             for j in range(width):
-                work[mv_bins[m, j]] += mv_delta[m, j]
+                work[mv_bins[m, j]] += sign * mv_delta[m, j]
             d = mv_drop[m]
-            r = rank_of(work, tab, values, weights, n, level - d)
-            if d == 0 and r <= i and bad < 0:
+            r = rank_of(work, tab, values, weights, n, level - sign * d)
+            if d == 0 and sign * (r - i) <= 0 and bad < 0:
                 bad = i
             drop[e] = d
             dest[e] = r
             move[e] = m
             e += 1
     return ptr, drop, dest, move, bad
+
+
+@nb.njit(cache=True, nogil=True)
+def layer_terminals(
+    states: np.ndarray, level: int, max_level: int, mv_bins: np.ndarray, mv_delta: np.ndarray,
+    mv_drop: np.ndarray,
+) -> np.ndarray:
+    """Ranks of the states of one layer where no move applies (the games' end positions)."""
+    out = np.empty(states.shape[0], dtype=np.int64)
+    count = 0
+    for i in range(states.shape[0]):
+        stuck = True
+        for m in range(mv_bins.shape[0]):
+            if move_applies(states, i, m, 1, level, max_level, mv_bins, mv_delta, mv_drop):
+                stuck = False
+                break
+        if stuck:
+            out[count] = i
+            count += 1
+    return out[:count]
 
 
 @dataclass(frozen=True, eq=False)
@@ -211,12 +244,27 @@ class StateSpace:
         return layer_states(self.tab, s.values, s.weights, s.n, level)
 
     def moves(self, level: int, states: np.ndarray | None = None) -> LayerMoves:
-        """The compressed move list of one layer (see `layer_moves`)."""
+        """Moves out of every state of one layer (see `layer_moves`, sign +1)."""
+        return self._listing(level, states, +1)
+
+    def predecessors(self, level: int, states: np.ndarray | None = None) -> LayerMoves:
+        """Moves into every state of one layer; dest[e] is then the source's rank."""
+        return self._listing(level, states, -1)
+
+    def terminals(self, level: int, states: np.ndarray | None = None) -> np.ndarray:
+        """Ranks of the states of a layer without any legal move."""
+        s = self.spec
+        if states is None:
+            states = self.states(level)
+        return layer_terminals(states, level, self.top, s.mv_bins, s.mv_delta, s.mv_drop)
+
+    def _listing(self, level: int, states: np.ndarray | None, sign: int) -> LayerMoves:
         s = self.spec
         if states is None:
             states = self.states(level)
         ptr, drop, dest, move, bad = layer_moves(
-            states, level, self.tab, s.values, s.weights, s.n, s.mv_bins, s.mv_delta, s.mv_drop
+            states, level, self.tab, s.values, s.weights, s.n, s.mv_bins, s.mv_delta, s.mv_drop,
+            sign,
         )
         if bad >= 0:
             raise InputError(
@@ -235,7 +283,11 @@ class StateSpace:
 
 @dataclass(frozen=True, eq=False)
 class LayerMoves:
-    """The states of one layer and all their moves (compressed rows; see `layer_moves`)."""
+    """The states of one layer and all their moves out (or in), compressed rows.
+
+    See `layer_moves`: for moves in, `dest` holds the source's rank and `drop` how far the
+    source's level lies above this one.
+    """
 
     level: int
     states: np.ndarray

@@ -6,57 +6,65 @@ upper estimate of log2(number of such paths).  The windows size the exact sweep 
 stores one residue per length in its window and per prime); the path-count estimate at the
 terminal states bounds every length count and so fixes how many primes are needed.
 
-Layers are visited from the start's level downward; inside a layer in ascending rank, which
-is topological (see `statespace`).  Only the layers a move can still reach are held as
-working arrays; each finished layer keeps two int32 arrays (lmin, win).
+The sweep *pulls*: layers are visited from the start's level downward, and each state
+gathers from its predecessors (moves into it), inside a layer in ascending rank, which is
+topological (see `statespace`).  The moves into each layer, restricted to reachable
+sources, are kept (`Incoming`) when they fit the memory budget, so that the exact sweep's
+prime blocks re-read them instead of re-deriving them.  Each finished layer keeps two int32
+arrays (lmin, win); only the layers a move can still reach are held as working arrays.
 """
 
 from __future__ import annotations
 
 import math
+from collections import deque
+from collections.abc import Iterator
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numba as nb
 import numpy as np
 
-from .statespace import StateSpace
+from .statespace import LayerMoves, StateSpace
 
 UNREACHED = np.iinfo(np.int32).max
 
 
 @nb.njit(cache=True, nogil=True)
-def relax_windows(
-    src_lmin: np.ndarray,
-    src_lmax: np.ndarray,
-    src_lp: np.ndarray,
-    ptr: np.ndarray,
-    drop: np.ndarray,
-    dest: np.ndarray,
-    which_drop: int,
+def pull_windows(
     dst_lmin: np.ndarray,
     dst_lmax: np.ndarray,
     dst_lp: np.ndarray,
+    ptr: np.ndarray,
+    drop: np.ndarray,
+    src: np.ndarray,
+    which_drop: int,
+    src_lmin: np.ndarray,
+    src_lmax: np.ndarray,
+    src_lp: np.ndarray,
+    keep: np.ndarray,
 ) -> None:
-    """Push windows and log2 path counts along the moves of one layer that drop `which_drop`.
+    """Gather windows and log2 path counts along the moves into one layer from `which_drop` up.
 
     lmin/lmax are path lengths in moves; lp is log2 of the number of paths (-inf: none).
-    With which_drop == 0 the destination arrays are the source arrays and states are
-    finished in ascending rank, which the layering guarantees is topological.
+    keep[e] is set for every move whose source is reachable.  With which_drop == 0 the
+    source arrays are the destination arrays, finished in ascending rank.
     """
-    for i in range(src_lmin.size):
-        if src_lmin[i] == UNREACHED:
-            continue
-        a = src_lmin[i] + 1
-        b = src_lmax[i] + 1
-        x = src_lp[i]
-        for e in range(ptr[i], ptr[i + 1]):
+    for j in range(dst_lmin.size):
+        for e in range(ptr[j], ptr[j + 1]):
             if drop[e] != which_drop:
                 continue
-            j = dest[e]
+            i = src[e]
+            if src_lmin[i] == UNREACHED:
+                continue
+            keep[e] = True
+            a = src_lmin[i] + 1
+            b = src_lmax[i] + 1
             if a < dst_lmin[j]:
                 dst_lmin[j] = a
             if b > dst_lmax[j]:
                 dst_lmax[j] = b
+            x = src_lp[i]
             y = dst_lp[j]
             if y == -np.inf:
                 dst_lp[j] = x
@@ -67,16 +75,37 @@ def relax_windows(
 
 
 @dataclass(frozen=True, eq=False)
+class Incoming:
+    """Moves into the states of one layer whose source is reachable (compressed rows).
+
+    Rows of state j: ptr[j]..ptr[j+1]-1; move e comes from rank src[e] of the layer
+    drop[e] levels above.
+    """
+
+    ptr: np.ndarray
+    drop: np.ndarray
+    src: np.ndarray
+
+    @property
+    def nbytes(self) -> int:
+        return self.ptr.nbytes + self.drop.nbytes + self.src.nbytes
+
+
+@dataclass(frozen=True, eq=False)
 class Windows:
     """Result of the first sweep.
 
     lmin[level], win[level]: int32 arrays over the layer's ranks; win 0 marks an unreachable
-    state.  `terminal_paths_log2` is the estimate of log2(total number of games) and
-    `count_bits` a rigorous bit bound on every count of games of one length (see `bits_bound`).
+    state.  terminal_ranks[level]: reachable states without moves.  `incoming` holds every
+    layer's `Incoming` moves, or is None when they did not fit the budget.
+    `terminal_paths_log2` estimates log2(total number of games); `count_bits` is a bit bound
+    on every count of games of one length (see `bits_bound`).
     """
 
     lmin: dict[int, np.ndarray]
     win: dict[int, np.ndarray]
+    terminal_ranks: dict[int, np.ndarray]
+    incoming: dict[int, Incoming] | None
     states: int
     transitions: int
     terminals: int
@@ -93,7 +122,7 @@ class Windows:
 def bits_bound(paths_log2: float, depth: int) -> int:
     """Bits that surely hold the total number of games, from its float log2 estimate.
 
-    Every log-add in `relax_windows` is off by a few units in the last place of its result,
+    Every log-add in `pull_windows` is off by a few units in the last place of its result,
     i.e. by less than 8 * 2**-52 * (|log2 count| + 1) in log2; a count is built by at most
     `depth` of them along any chain.  For counts below 2**2**20 and depth below 2**20 the
     total drift stays far below one bit, so floor(estimate) + 2 bits always suffice; the
@@ -104,53 +133,79 @@ def bits_bound(paths_log2: float, depth: int) -> int:
     return max(1, math.floor(paths_log2) + 2)
 
 
-def sweep_windows(space: StateSpace) -> Windows:
+def incoming_bytes_estimate(space: StateSpace) -> int:
+    """Rough bytes of all layers' `Incoming` lists: about half the moves apply per state."""
+    per_state = 8 + 5 * max(1, space.spec.mv_bins.shape[0] // 2)
+    return per_state * space.total_states()
+
+
+def prefetch_listings(
+    space: StateSpace, levels: list[int], threads: int
+) -> Iterator[tuple[np.ndarray, LayerMoves, np.ndarray]]:
+    """(states, moves into them, terminal ranks) of each level in turn, derived ahead.
+
+    Deriving a layer's moves needs no values, so up to `threads` layers are derived in
+    parallel (the kernels release the GIL) while the caller sweeps the current one.
+    """
+
+    def derive(level: int) -> tuple[np.ndarray, LayerMoves, np.ndarray]:
+        states = space.states(level)
+        return states, space.predecessors(level, states), space.terminals(level, states)
+
+    with ThreadPoolExecutor(max_workers=max(1, threads)) as pool:
+        pending: deque[Future] = deque()
+        queue = iter(levels)
+        for level in queue:
+            pending.append(pool.submit(derive, level))
+            if len(pending) > threads:
+                break
+        while pending:
+            yield pending.popleft().result()
+            nxt = next(queue, None)
+            if nxt is not None:
+                pending.append(pool.submit(derive, nxt))
+
+
+def sweep_windows(
+    space: StateSpace, keep_incoming: bool = True, threads: int = 1
+) -> Windows:
     """Reachable states, transitions, length windows and the size bound of one game."""
     spec = space.spec
     start_level, start_rank = space.rank(spec.start)
     live: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
-
-    def working(level: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        if level not in live:
-            size = space.layer_size(level)
-            live[level] = (
-                np.full(size, UNREACHED, dtype=np.int32),
-                np.full(size, -1, dtype=np.int32),
-                np.full(size, -np.inf, dtype=np.float64),
-            )
-        return live[level]
-
-    lmin0, lmax0, lp0 = working(start_level)
-    lmin0[start_rank] = 0
-    lmax0[start_rank] = 0
-    lp0[start_rank] = 0.0
+    incoming: dict[int, Incoming] | None = {} if keep_incoming else None
 
     out_lmin: dict[int, np.ndarray] = {}
     out_win: dict[int, np.ndarray] = {}
+    out_term: dict[int, np.ndarray] = {}
     states = transitions = terminals = 0
     shortest, longest = UNREACHED, -1
     term_lp = -np.inf
     max_window = 0
-    for level in space.levels:
-        if level > start_level:
-            continue
-        lmin, lmax, lp = working(level)
-        lm = space.moves(level)
-        drops = np.unique(lm.drop)
-        for d in drops:
-            d = int(d)
-            if d == 0:
-                relax_windows(lmin, lmax, lp, lm.ptr, lm.drop, lm.dest, 0, lmin, lmax, lp)
-            else:
-                tmin, tmax, tlp = working(level - d)
-                relax_windows(lmin, lmax, lp, lm.ptr, lm.drop, lm.dest, d, tmin, tmax, tlp)
+    levels = [lv for lv in space.levels if lv <= start_level]
+    listings = prefetch_listings(space, levels, threads)
+    for level in levels:
+        size = space.layer_size(level)
+        lmin = np.full(size, UNREACHED, dtype=np.int32)
+        lmax = np.full(size, -1, dtype=np.int32)
+        lp = np.full(size, -np.inf, dtype=np.float64)
+        if level == start_level:
+            lmin[start_rank] = lmax[start_rank] = 0
+            lp[start_rank] = 0.0
+        live[level] = (lmin, lmax, lp)
+        layer, inc, ends = next(listings)
+        keep = np.zeros(inc.dest.size, dtype=np.bool_)
+        for d in gather_order(inc.drop):
+            if level + d in live:
+                pull_windows(lmin, lmax, lp, inc.ptr, inc.drop, inc.dest, d, *live[level + d],
+                             keep)
         reached = lmin != UNREACHED
-        deg = np.diff(lm.ptr)
         states += int(reached.sum())
-        transitions += int(deg[reached].sum())
-        ends = reached & (deg == 0)
-        if ends.any():
-            terminals += int(ends.sum())
+        transitions += int(keep.sum())
+        ends = ends[reached[ends]]
+        out_term[level] = ends
+        if ends.size:
+            terminals += int(ends.size)
             shortest = min(shortest, int(lmin[ends].min()))
             longest = max(longest, int(lmax[ends].max()))
             lps = lp[ends]
@@ -160,10 +215,15 @@ def sweep_windows(space: StateSpace) -> Windows:
         max_window = max(max_window, int(win.max(initial=0)))
         out_lmin[level] = np.where(reached, lmin, 0).astype(np.int32)
         out_win[level] = win
-        del live[level]
+        if incoming is not None:
+            incoming[level] = compress_incoming(inc.ptr, inc.drop, inc.dest, keep)
+        for stale in [lv for lv in live if lv > level + space.max_drop - 1]:
+            del live[stale]
     return Windows(
         lmin=out_lmin,
         win=out_win,
+        terminal_ranks=out_term,
+        incoming=incoming,
         states=states,
         transitions=transitions,
         terminals=terminals,
@@ -171,4 +231,29 @@ def sweep_windows(space: StateSpace) -> Windows:
         longest=int(longest),
         terminal_paths_log2=float(term_lp),
         max_window=max_window,
+    )
+
+
+def gather_order(drop: np.ndarray) -> list[int]:
+    """The distinct drops of a layer's incoming moves, 0 last.
+
+    Layers above are final before a layer starts; the moves inside it (drop 0) must come
+    after, in ascending rank, so each state is complete before another state reads it.
+    """
+    return sorted((int(x) for x in np.unique(drop)), key=lambda d: (d == 0, d))
+
+
+def compress_incoming(
+    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, keep: np.ndarray
+) -> Incoming:
+    """The rows restricted to kept moves, in compact dtypes (int32 ranks, int8 drops)."""
+    size = ptr.size - 1
+    rows = np.repeat(np.arange(size), np.diff(ptr))
+    counts = np.bincount(rows[keep], minlength=size)
+    new_ptr = np.zeros(size + 1, dtype=np.int64)
+    np.cumsum(counts, out=new_ptr[1:])
+    return Incoming(
+        ptr=new_ptr,
+        drop=drop[keep].astype(np.int8),
+        src=src[keep].astype(np.int32),
     )
