@@ -110,7 +110,8 @@ def format_count(res: CountResult) -> str:
         lines.append(f"  {length:>{max(6, width)}}  {c}")
     lines += [
         "",
-        f"  exact via {len(res.primes)} primes < 2^62 + 1 check prime, CRT; "
+        f"  exact via {len(res.primes)} prime{'s' if len(res.primes) > 1 else ''} < 2^62 "
+        f"+ 1 check prime, CRT; "
         f"{s.get('word_updates', 0):,} word updates in {s.get('seconds_total', 0):.2f} s",
     ]
     return "\n".join(lines)
