@@ -240,20 +240,38 @@ def gather_order(drop: np.ndarray) -> list[int]:
     Layers above are final before a layer starts; the moves inside it (drop 0) must come
     after, in ascending rank, so each state is complete before another state reads it.
     """
-    return sorted((int(x) for x in np.unique(drop)), key=lambda d: (d == 0, d))
+    present = np.flatnonzero(np.bincount(drop)) if drop.size else np.zeros(0, dtype=np.int64)
+    return sorted((int(x) for x in present), key=lambda d: (d == 0, d))
+
+
+@nb.njit(cache=True, nogil=True)
+def compact_rows(
+    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, keep: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Compressed rows restricted to the kept entries, with int8 drops and int32 ranks."""
+    size = ptr.size - 1
+    total = 0
+    for e in range(keep.size):
+        if keep[e]:
+            total += 1
+    new_ptr = np.zeros(size + 1, dtype=np.int64)
+    new_drop = np.empty(total, dtype=np.int8)
+    new_src = np.empty(total, dtype=np.int32)
+    k = 0
+    for j in range(size):
+        for e in range(ptr[j], ptr[j + 1]):
+            if keep[e]:
+                new_drop[k] = drop[e]
+                new_src[k] = src[e]
+                k += 1
+        new_ptr[j + 1] = k
+    return new_ptr, new_drop, new_src
 
 
 def compress_incoming(
     ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, keep: np.ndarray
 ) -> Incoming:
     """The rows restricted to kept moves, in compact dtypes (int32 ranks, int8 drops)."""
-    size = ptr.size - 1
-    rows = np.repeat(np.arange(size), np.diff(ptr))
-    counts = np.bincount(rows[keep], minlength=size)
-    new_ptr = np.zeros(size + 1, dtype=np.int64)
-    np.cumsum(counts, out=new_ptr[1:])
-    return Incoming(
-        ptr=new_ptr,
-        drop=drop[keep].astype(np.int8),
-        src=src[keep].astype(np.int32),
-    )
+    if src.size and int(src.max()) >= 2**31:
+        raise ValueError("a layer with 2**31 states or more does not fit int32 ranks")
+    return Incoming(*compact_rows(ptr, drop, src, keep))
