@@ -12,6 +12,7 @@ import sys
 import click
 
 from . import __version__
+from .cli_rules import rules_group
 from .count import count
 from .errors import ZeckenumError
 from .memory import parse_size
@@ -47,6 +48,12 @@ class MemorySize(click.ParamType):
             return parse_size(str(value))
         except ZeckenumError as exc:
             self.fail(str(exc), param, ctx)
+
+
+RULES_OPTION = click.option(
+    "--rules", default="standard", show_default=True, metavar="NAME|FILE",
+    help="Rule set: a built-in name (see `zeckenum rules list`) or a .toml rule file.",
+)
 
 
 def fail(exc: ZeckenumError) -> None:
@@ -131,8 +138,9 @@ def format_count(res: CountResult) -> str:
 @click.option("--max-memory", type=MemorySize(), default=None,
               help="Memory limit, e.g. 4G (default: what the machine has available).")
 @click.option("--progress/--no-progress", default=False, help="Show a progress bar on stderr.")
-def count_command(n, as_json, out, threads, prime_offset, max_memory, progress) -> None:  # noqa: ANN001
-    """Count every game of the standard game started from N tokens in F1, by length.
+@RULES_OPTION
+def count_command(n, as_json, out, threads, prime_offset, max_memory, progress, rules) -> None:  # noqa: ANN001, E501
+    """Count every game started from N (by default: the standard game, N tokens in F1).
 
     Prints reachable states, transitions, the exact number of games, the shortest and
     longest lengths and the number of games of each length.
@@ -141,10 +149,11 @@ def count_command(n, as_json, out, threads, prime_offset, max_memory, progress) 
     Examples:
       zeckenum count 30
       zeckenum count 200 --json --out spectrum200.csv
+      zeckenum count 40 --rules reversed
     """
     try:
         res = count(
-            n, threads=threads, prime_offset=prime_offset, max_memory=max_memory,
+            n, rules, threads=threads, prime_offset=prime_offset, max_memory=max_memory,
             progress=progress,
         )
         if out:
@@ -155,6 +164,9 @@ def count_command(n, as_json, out, threads, prime_offset, max_memory, progress) 
         click.echo(json.dumps(res.to_dict()))
     else:
         click.echo(format_count(res))
+
+
+main.add_command(rules_group)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -7,8 +7,20 @@ move is a template applied to one index ("a move type applied to a bin").  Every
 preserves the value sum(count[k] * value[k]).
 
 `RuleSet.instantiate(n)` turns a rule set into a `GameSpec`: plain arrays over the bins
-whose value is at most n, ready for the numba kernels.  Bins are numbered from 1 in
-everything a user sees (F1 = 1, F2 = 2, ...) and from 0 inside arrays.
+whose value is at most the game's value, ready for the numba kernels.  Bins are numbered
+from 1 in everything a user sees (F1 = 1, F2 = 2, ...) and from 0 inside arrays.
+
+What n means: for the starts "ones" and "greedy" the game's value is n (n tokens in bin 1,
+or the greedy decomposition of n); for an explicit start vector v the start holds n * v[k]
+tokens in bin k, so the game's value is n * value(v).  `GameSpec.n` is always the game's
+value (what the state space is built over).
+
+Level weights (the engine's layering, see `statespace`): "tokens" uses the token count
+(weights all 1) and refuses a rule set that breaks it; "auto" uses the token count when
+every move keeps or lowers it and a move keeping it raises its largest changed bin, and
+otherwise a strict potential found by integer linear programming (`validate`); "potential"
+always uses the potential.  Rule files are read by `rulefile`; the shipped rule sets live
+in `rulesets/*.toml`.
 """
 
 from __future__ import annotations
@@ -16,6 +28,7 @@ from __future__ import annotations
 import hashlib
 import json
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 
@@ -51,10 +64,13 @@ class MoveTemplate:
 class RuleSet:
     """A game: bin values from a linear recurrence, move templates, and a start position.
 
-    Bin values: `initial` followed by value[k] = sum(coeff[i] * value[k - 1 - i]).
-    Start: `start == "ones"` puts n tokens in bin 1.
-    Layering: `level_weights == "tokens"` orders the sweep by token count, which no move of
-    the standard game increases (combines lower it by one, splits keep it).
+    Bin values: `initial` followed by value[k] = sum(coeff[i] * value[k - 1 - i]); an empty
+    `recurrence` means the bins are exactly `initial` (a listed, finite set of bins).
+    Start: "ones" puts n tokens in bin 1, "greedy" the greedy decomposition of n (largest
+    bin first), a tuple v of counts puts n * v[k] tokens in bin k + 1 (value n * value(v)).
+    Layering: `level_weights` is "tokens" (level = token count, which no move of the
+    standard game increases: combines lower it by one, splits keep it), "auto" or
+    "potential" (see the module docstring).
     """
 
     name: str
@@ -62,7 +78,7 @@ class RuleSet:
     initial: tuple[int, ...]
     recurrence: tuple[int, ...]
     templates: tuple[MoveTemplate, ...]
-    start: str = "ones"
+    start: str | tuple[int, ...] = "ones"
     level_weights: str = "tokens"
     extra: dict = field(default_factory=dict, compare=False, hash=False)
 
@@ -75,6 +91,13 @@ class RuleSet:
                 break
             vals.append(nxt)
         return [v for v in vals if v <= n]
+
+    def bins_by_count(self, count: int) -> list[int]:
+        """The first `count` bin values (fewer if the bins are listed and run out)."""
+        vals = list(self.initial[:count])
+        while len(vals) < count and self.recurrence:
+            vals.append(sum(c * vals[-1 - i] for i, c in enumerate(self.recurrence)))
+        return vals
 
     def content_hash(self) -> str:
         """SHA-256 (first 16 hex digits) of the rule set's defining content."""
@@ -90,12 +113,54 @@ class RuleSet:
         text = json.dumps(body, sort_keys=True, separators=(",", ":"))
         return hashlib.sha256(text.encode()).hexdigest()[:16]
 
-    def instantiate(self, n: int) -> GameSpec:
-        """The concrete game for n: bins with value <= n and every move that fits in them."""
-        if n < 1:
-            raise InputError(f"n must be a positive integer, got {n}")
-        values = self.bin_values(n)
+    def game_value(self, n: int) -> int:
+        """The value of the game for n: n, or n * value(v) for an explicit start vector v."""
+        if isinstance(self.start, tuple):
+            vals = self.bin_values(2**62)
+            if len(self.start) > len(vals):
+                raise InputError(
+                    f"rule set {self.name!r}: the start vector has {len(self.start)} entries "
+                    f"but only {len(vals)} bins exist"
+                )
+            return n * sum(c * v for c, v in zip(self.start, vals, strict=False))
+        return n
+
+    def start_vector(self, n: int, values: list[int]) -> np.ndarray:
+        """The start state's counts over `values` (the bins of the game for n)."""
         nbins = len(values)
+        start = np.zeros(nbins, dtype=np.int64)
+        if self.start == "ones":
+            start[0] = n // values[0]
+            if values[0] * start[0] != n:
+                raise InputError(f"start 'ones' needs bin 1 to divide n={n}")
+        elif self.start == "greedy":
+            rest = n
+            for k in range(nbins - 1, -1, -1):
+                start[k], rest = divmod(rest, values[k])
+            if rest:
+                raise InputError(f"start 'greedy' leaves {rest} of n={n} over (bin 1 is not 1)")
+        elif isinstance(self.start, tuple):
+            for k, c in enumerate(self.start):
+                start[k] = n * c
+        else:
+            raise InputError(f"unknown start {self.start!r}")
+        return start
+
+    def instantiate(self, n: int) -> GameSpec:
+        """The concrete game for n: bins with value <= the game's value, and its moves.
+
+        Every template is applied at every index of its range whose bins exist.  When a
+        potential is needed for the layering, moves that take more value than the game has
+        (they can never apply) are left out.
+        """
+        if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 1:
+            raise InputError(f"n must be a positive integer, got {n}")
+        n = int(n)
+        value = self.game_value(n)
+        values = self.bin_values(value)
+        nbins = len(values)
+        if nbins == 0:
+            raise InputError(f"rule set {self.name!r}: no bin has a value <= {value}")
         names: list[str] = []
         effects: list[dict[int, int]] = []
         for tpl in self.templates:
@@ -106,6 +171,16 @@ class RuleSet:
                     continue
                 names.append(f"{tpl.name}@{k}")
                 effects.append(eff)
+        for m, eff in enumerate(effects):
+            if sum(d * values[b - 1] for b, d in eff.items()) != 0:
+                raise InputError(f"move {names[m]} changes the value")
+        start = self.start_vector(n, values)
+        from .validate import layering_weights
+
+        weights, keep = layering_weights(self, values, effects, names, start)
+        if keep is not None:
+            names = [names[m] for m in keep]
+            effects = [effects[m] for m in keep]
         width = max((len(e) for e in effects), default=1)
         mv_bins = np.zeros((len(effects), width), dtype=np.int64)
         mv_delta = np.zeros((len(effects), width), dtype=np.int64)
@@ -114,24 +189,10 @@ class RuleSet:
                 mv_bins[m, j] = b - 1
                 mv_delta[m, j] = d
         vals = np.array(values, dtype=np.int64)
-        if self.level_weights == "tokens":
-            weights = np.ones(nbins, dtype=np.int64)
-        else:  # pragma: no cover - only "tokens" is defined so far
-            raise InputError(f"unknown level weights {self.level_weights!r}")
-        if self.start == "ones":
-            start = np.zeros(nbins, dtype=np.int64)
-            start[0] = n // values[0]
-            if values[0] * start[0] != n:
-                raise InputError(f"start 'ones' needs bin 1 to divide n={n}")
-        else:  # pragma: no cover
-            raise InputError(f"unknown start {self.start!r}")
-        for m, eff in enumerate(effects):
-            if sum(d * values[b - 1] for b, d in eff.items()) != 0:
-                raise InputError(f"move {names[m]} changes the value")
         mv_drop = -(mv_delta * weights[mv_bins]).sum(axis=1)
         return GameSpec(
             rules=self,
-            n=n,
+            n=value,
             values=vals,
             weights=weights,
             mv_bins=mv_bins,
@@ -155,7 +216,7 @@ class GameSpec:
     """
 
     rules: RuleSet
-    n: int
+    n: int  # the game's value (see the module docstring)
     values: np.ndarray
     weights: np.ndarray
     mv_bins: np.ndarray
@@ -189,15 +250,45 @@ STANDARD = RuleSet(
     ),
 )
 
-BUILTIN: dict[str, RuleSet] = {STANDARD.name: STANDARD}
+RULESETS_DIR = Path(__file__).with_name("rulesets")
+"""Where the shipped rule files live (package data)."""
 
 
-def get_rules(name_or_rules: str | RuleSet) -> RuleSet:
-    """Look a built-in rule set up by name (or pass a RuleSet through)."""
+def _load_builtin() -> dict[str, RuleSet]:
+    """The shipped rule sets by name; "standard" is `STANDARD` itself (same content)."""
+    from .rulefile import read_rule_file
+
+    out: dict[str, RuleSet] = {STANDARD.name: STANDARD}
+    for path in sorted(RULESETS_DIR.glob("*.toml")):
+        rs = read_rule_file(path)
+        if rs.name == STANDARD.name:
+            if rs.content_hash() != STANDARD.content_hash():
+                raise RuntimeError(f"{path} does not describe the standard game")
+            continue
+        out[rs.name] = rs
+    return out
+
+
+BUILTIN: dict[str, RuleSet] = _load_builtin()
+
+
+def get_rules(name_or_rules: str | Path | RuleSet) -> RuleSet:
+    """A RuleSet passed through, a built-in rule set by name, or a rule file (*.toml) read
+    and validated (`rulefile.read_rule_file`)."""
     if isinstance(name_or_rules, RuleSet):
         return name_or_rules
+    if isinstance(name_or_rules, Path) or (
+        isinstance(name_or_rules, str) and name_or_rules.endswith(".toml")
+    ):
+        from .rulefile import read_rule_file
+
+        return read_rule_file(Path(name_or_rules))
+    if not isinstance(name_or_rules, str):
+        raise InputError(f"rules must be a name, a .toml path or a RuleSet, got {name_or_rules!r}")
     try:
         return BUILTIN[name_or_rules]
     except KeyError:
         known = ", ".join(sorted(BUILTIN))
-        raise InputError(f"unknown rule set {name_or_rules!r} (built-in: {known})") from None
+        raise InputError(
+            f"unknown rule set {name_or_rules!r} (built-in: {known}; or give a .toml file)"
+        ) from None

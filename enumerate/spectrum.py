@@ -134,17 +134,18 @@ def spectrum_residues(
     start_level, start_rank = space.rank(space.spec.start)
     live: dict[int, tuple[np.ndarray, np.ndarray]] = {}
     levels = [lv for lv in space.levels if lv <= start_level]
-    # A ring of reused buffers, one per layer in flight: layer L lives in ring[L % span],
-    # which no layer L+1 .. L+max_drop still being read can share.  Reuse avoids a fresh
-    # allocation (and its page faults) per layer.
-    span = space.max_drop + 1
+    # A ring of reused buffers, one per layer in flight: the k-th layer swept lives in
+    # ring[k % span]; the layers still read are among the max_drop layers swept just before
+    # it, so none shares its slot.  Reuse avoids a fresh allocation (and its page faults)
+    # per layer.
+    span = min(space.max_drop + 1, len(levels))
     cap = max(int(windows.win[lv].sum()) for lv in levels) * nprimes
-    ring = [np.empty(cap, dtype=np.int64) for _ in range(min(span, len(levels)))]
+    ring = [np.empty(cap, dtype=np.int64) for _ in range(span)]
     updates = 0
-    for level in levels:
+    for k, level in enumerate(levels):
         lmin, win = windows.lmin[level], windows.win[level]
         off = layer_offsets(win, nprimes)
-        vals = ring[level % len(ring)][: int(off[-1])]
+        vals = ring[k % span][: int(off[-1])]
         vals[:] = 0
         if level == start_level:
             vals[off[start_rank] : off[start_rank + 1]] = 1  # the empty game, every prime
