@@ -12,6 +12,7 @@ import sys
 import click
 
 from . import __version__
+from .cli_random import random_command
 from .cli_rules import rules_group
 from .count import count
 from .errors import ZeckenumError
@@ -167,6 +168,7 @@ def count_command(n, as_json, out, threads, prime_offset, max_memory, progress, 
 
 
 main.add_command(rules_group)
+main.add_command(random_command)
 
 
 if __name__ == "__main__":  # pragma: no cover

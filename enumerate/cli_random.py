@@ -1,0 +1,147 @@
+"""The `random` command: exact, float and Monte Carlo random play, and Gaussian diagnostics."""
+
+from __future__ import annotations
+
+import json
+import sys
+from fractions import Fraction
+
+import click
+
+from .errors import InputError, ZeckenumError
+from .randomplay import MODELS, frac_str
+
+CONVENTION = "a game with no move (n = 1) counts as a win for player P (the last player)"
+
+
+def _dec(x: Fraction | float | None, digits: int = 15) -> str:
+    return "-" if x is None else f"{float(x):.{digits}g}"
+
+
+def _print_exact(res, winners_only: bool) -> None:
+    click.echo(f"random play, rules {res.rules}, n = {res.n}, model {res.model}, "
+               f"{res.players} players (exact)")
+    click.echo(f"convention: {CONVENTION}")
+    for i, p in res.win_probability.items():
+        click.echo(f"P(player {i} wins) = {_dec(p)}    {frac_str(p)}")
+    if winners_only:
+        return
+    m = res.moments
+    click.echo(f"mean length = {_dec(m['mean'])}    {frac_str(m['mean'])}")
+    click.echo(f"variance    = {_dec(m['variance'])}    {frac_str(m['variance'])}")
+    click.echo(f"skewness    = {_dec(m['skewness'])}")
+    if m.get("excess_kurtosis") is not None:
+        click.echo(f"excess kurtosis = {_dec(m['excess_kurtosis'])}    "
+                   f"{frac_str(m['excess_kurtosis'])}")
+    click.echo("length  probability")
+    for L, p in res.length_probability.items():
+        click.echo(f"{L:6d}  {_dec(p)}    {frac_str(p)}")
+
+
+def _print_float(res) -> None:
+    click.echo(f"random play, rules {res.rules}, n = {res.n}, model {res.model}, "
+               f"{res.players} players (float64)")
+    click.echo(f"convention: {CONVENTION}")
+    click.echo(f"rounding error bound: every length probability within {res.max_error:.3e}; "
+               f"all together within {res.total_error:.3e}")
+    for i, p in res.win_probability.items():
+        click.echo(f"P(player {i} wins) = {p:.17g} +- {res.win_error[i]:.3e}")
+    m = res.moments
+    click.echo(f"mean length = {m['mean']:.15g}  variance = {m['variance']:.15g}  "
+               f"skewness = {m['skewness']:.6g}  excess kurtosis = {m['excess_kurtosis']:.6g}")
+    click.echo("length  probability  error-bound")
+    for L, p in res.length_probability.items():
+        click.echo(f"{L:6d}  {p:.17g}  {res.length_error[L]:.3e}")
+
+
+def _print_sim(res) -> None:
+    click.echo(f"random play, rules {res.rules}, n = {res.n}, model {res.model}, "
+               f"{res.players} players (Monte Carlo, {res.games} games, seed {res.seed})")
+    click.echo(f"convention: {CONVENTION}; intervals are 95% (normal approximation)")
+    for i, (p, lo, hi) in res.win_probability.items():
+        click.echo(f"P(player {i} wins) ~ {p:.6f}  [{lo:.6f}, {hi:.6f}]")
+    click.echo(f"mean length ~ {res.mean[0]:.6f}  [{res.mean[1]:.6f}, {res.mean[2]:.6f}]")
+    click.echo(f"variance    ~ {res.variance[0]:.6f}  [{res.variance[1]:.6f}, "
+               f"{res.variance[2]:.6f}]")
+
+
+def gaussian_table(lo: int, hi: int, rules: str, model: str, use_float: bool) -> list[dict]:
+    """One row of Gaussian diagnostics per n in lo..hi (exact or float distribution)."""
+    from .floatplay import float_play
+    from .randomplay import random_play
+
+    rows = []
+    for n in range(lo, hi + 1):
+        if use_float:
+            g = float_play(n, rules, 2, model).gaussian
+        else:
+            g = random_play(n, rules, 2, model).gaussian
+        rows.append({"n": n, **g})
+    return rows
+
+
+@click.command("random")
+@click.argument("n", type=int, required=False)
+@click.option("--players", "-p", type=int, default=2, show_default=True,
+              help="Number of players P (>= 2).")
+@click.option("--model", type=click.Choice(MODELS), default="moves", show_default=True,
+              help="moves: uniform over legal moves; pairs: uniform over movable token pairs.")
+@click.option("--rules", default="standard", show_default=True, help="Rule set name.")
+@click.option("--winners-only", is_flag=True,
+              help="Exact win probabilities only (residues of the length mod P; much faster).")
+@click.option("--float", "use_float", is_flag=True,
+              help="float64 sweep with a rigorous rounding-error bound.")
+@click.option("--simulate", "games", type=int, default=None, metavar="K",
+              help="Monte Carlo: play K random games.")
+@click.option("--seed", type=int, default=0, show_default=True, help="Seed for --simulate.")
+@click.option("--range", "nrange", type=int, nargs=2, default=None, metavar="A B",
+              help="Gaussian diagnostics table for n = A..B.")
+@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+def random_command(n, players, model, rules, winners_only, use_float, games, seed, nrange,
+                   as_json) -> None:
+    """Random play at N: exact probability of every length and of each player winning."""
+    try:
+        _run(n, players, model, rules, winners_only, use_float, games, seed, nrange, as_json)
+    except ZeckenumError as exc:
+        click.echo(f"error: {exc}", err=True)
+        sys.exit(exc.exit_code)
+
+
+def _run(n, players, model, rules, winners_only, use_float, games, seed, nrange,
+         as_json) -> None:
+    if nrange is not None:
+        lo, hi = nrange
+        if lo < 1 or hi < lo:
+            raise InputError(f"--range needs 1 <= A <= B, got {lo} {hi}")
+        rows = gaussian_table(lo, hi, rules, model, use_float)
+        if as_json:
+            click.echo(json.dumps({"rules": rules, "model": model,
+                                   "mode": "float" if use_float else "exact",
+                                   "gaussian": rows}))
+            return
+        click.echo(f"{'n':>5} {'mean':>12} {'variance':>12} {'skewness':>10} "
+                   f"{'ex.kurt':>10} {'Kolmogorov':>11} {'TV':>11}")
+        for r in rows:
+            click.echo(f"{r['n']:5d} {r['mean']:12.5f} {r['variance']:12.5f} "
+                       f"{r['skewness']:10.5f} {r['excess_kurtosis']:10.5f} "
+                       f"{r['kolmogorov']:11.3e} {r['total_variation']:11.3e}")
+        return
+    if n is None:
+        raise InputError("give N (or --range A B)")
+    if sum([use_float, games is not None, winners_only]) > 1:
+        raise InputError("choose at most one of --float, --simulate, --winners-only")
+    if games is not None:
+        from .simulate import simulate
+
+        res = simulate(n, games, seed, rules, players, model)
+        click.echo(json.dumps(res.to_dict())) if as_json else _print_sim(res)
+    elif use_float:
+        from .floatplay import float_play
+
+        res = float_play(n, rules, players, model)
+        click.echo(json.dumps(res.to_dict())) if as_json else _print_float(res)
+    else:
+        from .randomplay import random_play
+
+        res = random_play(n, rules, players, model, winners_only=winners_only)
+        click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only)

@@ -1,0 +1,189 @@
+"""Random play: exact, float and Monte Carlo modes against references outside the engine.
+
+References: tests/fraction_bruteforce.py (plain Python, fractions.Fraction, no engine code);
+scipy.stats for moments and goodness-of-fit; a published limit for the winner.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+from fractions import Fraction
+from pathlib import Path
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+from scipy import stats
+
+sys.path.insert(0, str(Path(__file__).parent))
+from fraction_bruteforce import all_games, length_law, win_law  # noqa: E402
+from zeckenum.cli_random import random_command  # noqa: E402
+from zeckenum.errors import InputError  # noqa: E402
+from zeckenum.floatplay import float_play  # noqa: E402
+from zeckenum.moments import gaussian_diagnostics  # noqa: E402
+from zeckenum.randomplay import random_play  # noqa: E402
+from zeckenum.simulate import simulate_lengths  # noqa: E402
+
+MODELS = ("moves", "pairs")
+
+
+# Source: fractions.Fraction brute force (tests/fraction_bruteforce.py), every game walked.
+@pytest.mark.parametrize("model", MODELS)
+@pytest.mark.parametrize("n", [1, 2, 3, 4, 6, 9])
+def test_exact_law_matches_walk_of_every_game(n: int, model: str) -> None:
+    res = random_play(n, model=model)
+    assert res.length_probability == all_games(n, model)
+
+
+# Source: fractions.Fraction brute force (memoised over states), n <= 14, P = 2, 3, 4.
+@pytest.mark.parametrize("model", MODELS)
+@pytest.mark.parametrize("players", [2, 3, 4])
+@pytest.mark.parametrize("n", [5, 10, 13, 14])
+def test_exact_law_and_winners_match_fraction_reference(n: int, model: str,
+                                                        players: int) -> None:
+    ref = length_law(n, model)
+    res = random_play(n, model=model, players=players)
+    assert res.length_probability == ref
+    assert res.win_probability == win_law(ref, players)
+    fast = random_play(n, model=model, players=players, winners_only=True)
+    assert fast.win_probability == win_law(ref, players)
+
+
+# Source: common practice (a probability law sums to exactly 1).
+@pytest.mark.parametrize("model", MODELS)
+def test_probabilities_sum_to_exactly_one(model: str) -> None:
+    res = random_play(25, model=model, players=3)
+    assert sum(res.length_probability.values()) == 1
+    assert sum(res.win_probability.values()) == 1
+    fast = random_play(25, model=model, players=4, winners_only=True)
+    assert sum(fast.win_probability.values()) == 1
+
+
+# Source: scipy.stats.rv_discrete moments of the same distribution.
+@pytest.mark.parametrize("model", MODELS)
+def test_moments_match_scipy(model: str) -> None:
+    res = random_play(30, model=model)
+    ks = np.array(sorted(res.length_probability))
+    ps = np.array([float(res.length_probability[k]) for k in ks])
+    law = stats.rv_discrete(values=(ks, ps / ps.sum()))
+    mean, var, skew, kurt = law.stats(moments="mvsk")
+    m = res.moments
+    assert float(m["mean"]) == pytest.approx(float(mean), rel=1e-12)
+    assert float(m["variance"]) == pytest.approx(float(var), rel=1e-10)
+    assert m["skewness"] == pytest.approx(float(skew), rel=1e-8, abs=1e-10)
+    assert float(m["excess_kurtosis"]) == pytest.approx(float(kurt), rel=1e-8, abs=1e-10)
+
+
+# Source: scipy.stats.norm (the Kolmogorov distance is evaluated independently here on a
+# fine grid; the sup over a grid is a lower bound that must come close to the reported one).
+def test_kolmogorov_distance_against_grid() -> None:
+    res = random_play(20)
+    dist = {k: float(v) for k, v in res.length_probability.items()}
+    g = gaussian_diagnostics(dist)
+    ks = np.array(sorted(dist))
+    ps = np.array([dist[k] for k in ks])
+    xs = np.linspace(ks[0] - 3, ks[-1] + 3, 200001)
+    cdf = np.array([ps[ks <= x].sum() for x in xs[::50]])
+    phi = stats.norm.cdf((xs[::50] - g["mean"]) / np.sqrt(g["variance"]))
+    grid_sup = np.abs(cdf - phi).max()
+    assert grid_sup <= g["kolmogorov"] + 1e-12
+    assert g["kolmogorov"] - grid_sup < 0.02
+    assert 0 < g["total_variation"] < 1
+
+
+# Source: the rigorous bound itself (floatplay docstring) checked against exact Fractions.
+@pytest.mark.parametrize("n,model", [(14, "pairs"), (40, "moves"), (40, "pairs"),
+                                     (70, "moves")])
+def test_float_within_its_error_bound(n: int, model: str) -> None:
+    f = float_play(n, model=model, players=3)
+    r = random_play(n, model=model, players=3)
+    assert set(f.length_probability) == set(r.length_probability)
+    for L, p in r.length_probability.items():
+        assert abs(Fraction(f.length_probability[L]) - p) <= Fraction(f.length_error[L])
+    for i, p in r.win_probability.items():
+        assert abs(Fraction(f.win_probability[i]) - p) <= Fraction(f.win_error[i])
+
+
+@pytest.mark.slow
+def test_float_within_its_error_bound_n100() -> None:
+    f = float_play(100)
+    r = random_play(100, winners_only=True)
+    for i, p in r.win_probability.items():
+        assert abs(Fraction(f.win_probability[i]) - p) <= Fraction(f.win_error[i])
+
+
+def _chi_square_pvalue(n: int, games: int, seed: int, model: str = "moves") -> float:
+    res = random_play(n, model=model)
+    lengths = simulate_lengths(n, games, seed, model=model)
+    ks = sorted(res.length_probability)
+    exp = np.array([float(res.length_probability[k]) for k in ks]) * games
+    obs = np.array([(lengths == k).sum() for k in ks], dtype=float)
+    assert obs.sum() == games  # every simulated length has positive exact probability
+    # pool the tails so every cell expects at least 5 games (common practice)
+    cells_o, cells_e, acc_o, acc_e = [], [], 0.0, 0.0
+    for o, e in zip(obs, exp, strict=True):
+        acc_o += o
+        acc_e += e
+        if acc_e >= 5:
+            cells_o.append(acc_o)
+            cells_e.append(acc_e)
+            acc_o = acc_e = 0.0
+    cells_o[-1] += acc_o
+    cells_e[-1] += acc_e
+    e = np.array(cells_e)
+    return float(stats.chisquare(cells_o, e * sum(cells_o) / e.sum()).pvalue)
+
+
+# Source: scipy.stats.chisquare goodness of fit at level 0.001, fixed seeds (deterministic).
+@pytest.mark.parametrize("model", MODELS)
+def test_simulation_agrees_with_exact_n40(model: str) -> None:
+    assert _chi_square_pvalue(40, 20000, seed=12345, model=model) > 1e-3
+
+
+@pytest.mark.slow
+def test_simulation_agrees_with_exact_n80() -> None:
+    assert _chi_square_pvalue(80, 20000, seed=2024) > 1e-3
+
+
+# Source: common practice (Monte Carlo with a fixed seed is reproducible).
+def test_simulation_is_reproducible() -> None:
+    a = simulate_lengths(30, 500, 9)
+    b = simulate_lengths(30, 500, 9)
+    c = simulate_lengths(30, 500, 10)
+    assert (a == b).all() and not (a == c).all()
+
+
+# Source: published work on random Zeckendorf games: player 1's win probability under random
+# play tends to 1/2 ("The Zeckendorf Game", arXiv:1809.04881, 2018, and its follow-ups on
+# random play; cited from memory).
+@pytest.mark.slow
+def test_first_player_tends_to_half() -> None:
+    p20 = random_play(20, winners_only=True).win_probability[1]
+    p120 = random_play(120, winners_only=True).win_probability[1]
+    assert abs(p120 - Fraction(1, 2)) < abs(p20 - Fraction(1, 2))
+
+
+# Source: common practice (CLI contract of the issue).
+def test_cli_json_and_errors() -> None:
+    runner = CliRunner()
+    out = runner.invoke(random_command, ["9", "--players", "3", "--json"])
+    assert out.exit_code == 0
+    d = json.loads(out.output)
+    ref = length_law(9, "moves")
+    assert {int(k): Fraction(v) for k, v in d["length_probability"].items()} == ref
+    assert {int(k): Fraction(v) for k, v in d["win_probability"].items()} == win_law(ref, 3)
+    assert Fraction(d["mean_length"]) == sum(k * p for k, p in ref.items())
+    for key in ("rules", "n", "players", "variance"):
+        assert key in d
+    bad = runner.invoke(random_command, ["5", "--players", "1"])
+    assert bad.exit_code == 2 and "Traceback" not in bad.output
+    assert runner.invoke(random_command, ["0"]).exit_code == 2
+    assert runner.invoke(random_command, ["--range", "10", "12"]).exit_code == 0
+    assert runner.invoke(random_command, ["12", "--float"]).exit_code == 0
+    assert runner.invoke(random_command, ["12", "--simulate", "100"]).exit_code == 0
+
+
+def test_bad_model_is_input_error() -> None:
+    with pytest.raises(InputError):
+        random_play(5, model="tokens")
