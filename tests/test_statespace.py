@@ -6,7 +6,6 @@ import itertools
 
 import numpy as np
 import pytest
-
 from zeckenum.rules import STANDARD
 from zeckenum.statespace import build_space
 
@@ -23,12 +22,18 @@ def all_vectors(n: int) -> list[tuple[int, ...]]:
     """Every count vector of value n over the bins, by exhaustive product (small n only)."""
     vals = fib_bins(n)
     ranges = [range(n // v + 1) for v in vals]
-    return [a for a in itertools.product(*ranges) if sum(c * v for c, v in zip(a, vals)) == n]
+    return [
+        a for a in itertools.product(*ranges)
+        if sum(c * v for c, v in zip(a, vals, strict=True)) == n
+    ]
 
 
 @pytest.mark.parametrize("n", [1, 2, 5, 9, 13, 17])
 def test_layers_hold_every_vector_once_in_colex_order(n: int) -> None:
-    """Layers partition the exhaustive set; ranks are 0..size-1 in co-lex order (common practice)."""
+    """Layers partition the exhaustive set; ranks run 0..size-1 in co-lex order.
+
+    Common practice: the exhaustive product is the definition of the state set.
+    """
     space = build_space(STANDARD.instantiate(n))
     expected = sorted(all_vectors(n), key=lambda a: (sum(a), tuple(reversed(a))))
     seen = []
