@@ -14,6 +14,7 @@ import click
 from . import __version__
 from .cli_random import random_command
 from .cli_rules import rules_group
+from .cli_solve import check_strategy_command, solve_command
 from .count import count
 from .errors import ZeckenumError
 from .memory import parse_size
@@ -169,6 +170,8 @@ def count_command(n, as_json, out, threads, prime_offset, max_memory, progress, 
 
 main.add_command(rules_group)
 main.add_command(random_command)
+main.add_command(solve_command)
+main.add_command(check_strategy_command)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -1,0 +1,131 @@
+"""Command-line front ends of optimal play: `solve` and `check-strategy` (click commands).
+
+Both print a readable table on the terminal, or one JSON object with --json.  Errors a user
+can cause come out as one line on stderr with the error's exit code (2 for bad input, 1 for
+a strategy that does not win), never as a traceback.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+from collections.abc import Callable
+from functools import wraps
+from typing import Any
+
+import click
+
+from .errors import InputError, ZeckenumError
+from .rules import get_rules
+from .solve import MAX_PLAYERS, SolveResult, solve, winning_strategy
+from .strategy import check_strategy, read_strategy, write_strategy
+
+
+def _one_line_errors(func: Callable[..., Any]) -> Callable[..., Any]:
+    """Turn ZeckenumError into 'error: <message>' on stderr and the error's exit code."""
+
+    @wraps(func)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        try:
+            return func(*args, **kwargs)
+        except ZeckenumError as exc:
+            click.echo(f"error: {exc}", err=True)
+            sys.exit(exc.exit_code)
+
+    return wrapper
+
+
+def _table(rows: list[tuple[str, str]]) -> str:
+    width = max(len(k) for k, _ in rows)
+    return "\n".join(f"{k.ljust(width)}  {v}" for k, v in rows)
+
+
+def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
+    """Human-readable summary of a SolveResult."""
+    rows = [
+        ("rules", res.rules),
+        ("n", str(res.n)),
+        ("players", str(res.players)),
+        ("states", f"{res.states:,}"),
+    ]
+    if res.players == 2:
+        rows.append(("winner", f"player {res.winner}"))
+        rows.append(("P-positions", f"{res.p_positions:,}"))
+        rows.append(("N-positions", f"{res.states - res.p_positions:,}"))
+        if res.winning_moves:
+            rows.append(("start", "N-position: player 1 wins by " + ", ".join(res.winning_moves)))
+        elif res.start_moves:
+            rows.append(("start", "P-position: every move loses ("
+                         + ", ".join(res.start_moves) + ")"))
+        else:
+            rows.append(("start", "no move: player 1 cannot move and loses"))
+    else:
+        for x, w in res.forced_win.items():
+            rows.append((f"player {x}", "can force the last move" if w else "cannot force a win"))
+        rows.append(("winner", f"player {res.winner}" if res.winner else "nobody can force a win"))
+    rows.append(("time", f"{res.seconds:.3f} s ({res.states_per_second:,.0f} states/s)"))
+    rows.append(("bit arrays", f"{res.peak_bits_bytes:,} bytes at peak"))
+    if strategy_info:
+        rows.append(("strategy", f"{strategy_info['file']}: {strategy_info['positions']:,} "
+                     f"positions, {strategy_info['bytes']:,} bytes"))
+    return _table(rows)
+
+
+@click.command("solve")
+@click.argument("n", type=int)
+@click.option("--rules", "rules_name", default="standard", show_default=True,
+              help="Rule set: a built-in name or a .toml rule file.")
+@click.option("--players", type=int, default=2, show_default=True,
+              help=f"Number of players (2..{MAX_PLAYERS}); with 3 or more, each player against "
+                   "the coalition of all others.")
+@click.option("--strategy", "strategy_path", type=click.Path(dir_okay=False), default=None,
+              help="Write a winning strategy for the winner to this file (two players; "
+                   "gzip-compressed when the name ends in .gz).")
+@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+@_one_line_errors
+def solve_command(n: int, rules_name: str, players: int, strategy_path: str | None,
+                  as_json: bool) -> None:
+    """Who wins the game for N under optimal play (the last player to move wins)."""
+    rules = get_rules(rules_name)
+    info = None
+    if strategy_path is not None:
+        if players != 2:
+            raise InputError("--strategy is defined for two players only")
+        strat, res = winning_strategy(n, rules)
+        nbytes = write_strategy(strategy_path, strat, rules.bin_values(n))
+        info = {"file": strategy_path, "positions": strat.size, "bytes": nbytes}
+    else:
+        res = solve(n, rules, players)
+    if as_json:
+        out = res.to_dict()
+        if info is not None:
+            out["strategy"] = info
+        click.echo(json.dumps(out, indent=2))
+    else:
+        click.echo(solve_table(res, info))
+
+
+@click.command("check-strategy")
+@click.argument("file", type=click.Path(dir_okay=False))
+@click.option("--rules", "rules_name", default=None,
+              help="Rule set name or .toml rule file (default: the name in FILE's header).")
+@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+@_one_line_errors
+def check_strategy_command(file: str, rules_name: str | None, as_json: bool) -> None:
+    """Confirm that the strategy in FILE wins against every answer of the loser.
+
+    The check rebuilds the game's bins and moves from the rule set's definition and
+    replays every game; it does not use the solver.
+    """
+    rep = check_strategy(read_strategy(file), rules_name)
+    if as_json:
+        click.echo(json.dumps({"file": file, "ok": True, **rep.__dict__}, indent=2))
+        return
+    click.echo(_table([
+        ("file", file),
+        ("result", f"OK: player {rep.winner} wins at n={rep.n} by following the strategy"),
+        ("winner positions", f"{rep.winner_positions:,}"),
+        ("loser positions", f"{rep.loser_positions:,}"),
+        ("longest game", f"{rep.longest_game} moves"),
+        ("unused lines", str(rep.unused_lines)),
+    ]))

@@ -1,0 +1,418 @@
+"""Rule sets: rule files, validation, the shipped variants, and the engine on them.
+
+References: `rules_bruteforce` (independent plain-Python enumerators, no zeckenum code),
+OEIS A000073 (Tribonacci numbers, from memory), the uniqueness of representations by
+distinct Tribonacci numbers without three consecutive terms ("Fibonacci representations of
+higher order", Fibonacci Quarterly, 1972, from memory), scipy/fractions as named below.
+"""
+
+from __future__ import annotations
+
+import textwrap
+from pathlib import Path
+
+import numpy as np
+import pytest
+import rules_bruteforce as bf
+import zeckenum
+from click.testing import CliRunner
+from zeckenum.cli_rules import rules_group
+from zeckenum.errors import InputError
+from zeckenum.rulefile import parse_rules, read_rule_file
+from zeckenum.rules import BUILTIN, RULESETS_DIR, STANDARD, get_rules
+from zeckenum.validate import terminal_positions
+
+SHIPPED = sorted(BUILTIN)
+SMALL_N = range(1, 11)
+
+
+def write(tmp_path: Path, name: str, text: str) -> Path:
+    path = tmp_path / f"{name}.toml"
+    path.write_text(textwrap.dedent(text))
+    return path
+
+
+FIB_BINS = """
+    [bins]
+    initial = [1, 2]
+    recurrence = [1, 1]
+"""
+
+
+# ----------------------------------------------------------------------- the shipped files
+
+def test_shipped_names() -> None:
+    # common practice: the issue asks for the standard game, its reversal and two more
+    assert {"standard", "reversed", "tribonacci", "twos"} <= set(BUILTIN)
+    assert len(list(RULESETS_DIR.glob("*.toml"))) == len(BUILTIN)
+
+
+def test_standard_file_is_the_standard_game() -> None:
+    # common practice: the file and the Python definition must give identical arrays
+    rs = read_rule_file(RULESETS_DIR / "standard.toml")
+    assert rs.content_hash() == STANDARD.content_hash()
+    for n in (1, 2, 7, 30):
+        a, b = rs.instantiate(n), STANDARD.instantiate(n)
+        for field in ("values", "weights", "mv_bins", "mv_delta", "mv_drop", "start"):
+            assert np.array_equal(getattr(a, field), getattr(b, field)), field
+        assert a.move_names == b.move_names
+
+
+def test_content_hash_ignores_names_but_not_moves() -> None:
+    # common practice: the hash identifies the game, not its label
+    text = (RULESETS_DIR / "standard.toml").read_text()
+    renamed = parse_rules(text.replace('name = "standard"', 'name = "other"'))
+    assert renamed.content_hash() == STANDARD.content_hash()
+    restricted = parse_rules(text.replace('from = 3', 'from = 4'))
+    assert restricted.content_hash() != STANDARD.content_hash()
+
+
+def test_get_rules_accepts_name_ruleset_and_file(tmp_path: Path) -> None:
+    # common practice
+    path = RULESETS_DIR / "tribonacci.toml"
+    assert get_rules("tribonacci") is BUILTIN["tribonacci"]
+    assert get_rules(STANDARD) is STANDARD
+    assert get_rules(path).content_hash() == BUILTIN["tribonacci"].content_hash()
+    assert get_rules(str(path)).content_hash() == BUILTIN["tribonacci"].content_hash()
+    with pytest.raises(InputError, match="unknown rule set"):
+        get_rules("nonesuch")
+    with pytest.raises(InputError, match="cannot read"):
+        get_rules(str(tmp_path / "missing.toml"))
+
+
+# ------------------------------------------------------------- engine against brute force
+
+@pytest.mark.parametrize("name", SHIPPED)
+def test_spectrum_matches_bruteforce(name: str) -> None:
+    # source: rules_bruteforce (independent memoised enumeration)
+    for n in SMALL_N:
+        game = bf.Game(bf.DESCRIPTIONS[name], n)
+        res = zeckenum.count(n, name, threads=1)
+        assert res.length_counts == dict(sorted(game.spectrum().items())), (name, n)
+        assert res.rules == name
+        assert res.rules_hash == BUILTIN[name].content_hash()
+
+
+@pytest.mark.parametrize("name", SHIPPED)
+def test_terminal_positions_match_bruteforce(name: str) -> None:
+    # source: rules_bruteforce
+    for n in SMALL_N:
+        game = bf.Game(bf.DESCRIPTIONS[name], n)
+        assert terminal_positions(BUILTIN[name], n) == sorted(game.terminals()), (name, n)
+
+
+@pytest.mark.parametrize("name", SHIPPED)
+def test_random_play_matches_bruteforce(name: str) -> None:
+    # source: rules_bruteforce with fractions.Fraction (uniform choice among legal moves)
+    from zeckenum.randomplay import random_play
+
+    for n in range(1, 9):
+        game = bf.Game(bf.DESCRIPTIONS[name], n)
+        try:
+            res = random_play(n, name)
+        except InputError as exc:
+            pytest.skip(f"random play refuses {name!r}: {exc}")
+        assert res.length_probability == game.length_distribution(), (name, n)
+
+
+@pytest.mark.parametrize("name", SHIPPED)
+def test_outcomes_match_bruteforce(name: str) -> None:
+    # source: rules_bruteforce (normal-play minimax)
+    from zeckenum.solve import solve
+
+    for n in range(1, 11):
+        game = bf.Game(bf.DESCRIPTIONS[name], n)
+        res = solve(n, name)
+        assert (res.winner == 1) == game.first_player_wins(), (name, n)
+
+
+# ------------------------------------------------------------------------- reversed game
+
+def test_reversed_equals_standard_up_to_40() -> None:
+    # common practice: the reversed game's move graph is the standard one reversed, its only
+    # end is n tokens in bin 1, so its games are the standard games read backwards
+    for n in range(1, 41):
+        a = zeckenum.count(n, "standard", threads=1)
+        b = zeckenum.count(n, "reversed", threads=1)
+        assert b.games == a.games and b.length_counts == a.length_counts, n
+        assert b.states == a.states, n
+
+
+def test_reversed_needs_and_gets_a_strict_potential() -> None:
+    # common practice: checked here in exact integers, independently of the solver
+    rs = BUILTIN["reversed"]
+    for n in (10, 40, 70, 100):
+        spec = rs.instantiate(n)
+        w = [int(x) for x in spec.weights]
+        assert min(w) >= 0
+        for m in range(spec.mv_bins.shape[0]):
+            change = sum(int(d) * w[int(b)] for b, d in zip(spec.mv_bins[m], spec.mv_delta[m],
+                                                            strict=True))
+            assert change <= -1, spec.move_names[m]
+        # the ranking table stays moderate: start level at most 20 n
+        assert spec.start_level <= 20 * n
+
+
+def test_reversed_potential_is_optimal_against_linprog() -> None:
+    # source: scipy.optimize.linprog (the LP relaxation bounds the integer optimum below)
+    from scipy.optimize import linprog
+
+    spec = BUILTIN["reversed"].instantiate(40)
+    a = np.zeros((spec.mv_bins.shape[0], spec.nbins))
+    for m in range(a.shape[0]):
+        for b, d in zip(spec.mv_bins[m], spec.mv_delta[m], strict=True):
+            a[m, b] += d
+    lp = linprog(spec.start.astype(float), A_ub=a, b_ub=-np.ones(a.shape[0]),
+                 bounds=(0, None))
+    assert lp.status == 0
+    assert np.ceil(lp.fun - 1e-9) <= spec.start_level <= 2 * lp.fun + 1
+
+
+@pytest.mark.parametrize("n", range(1, 11))  # n = 2 has sparse levels 2 and 0, max drop 2
+def test_forced_potential_layering_counts_the_standard_game(n: int) -> None:
+    # source: rules_bruteforce; the same moves layered by an LP potential (moves dropping
+    # several levels, inside-layer moves impossible) must count the same games
+    text = (RULESETS_DIR / "standard.toml").read_text()
+    rs = parse_rules(text.replace('layering = "tokens"', 'layering = "potential"'))
+    assert rs.instantiate(max(n, 3)).mv_drop.min() >= 1
+    game = bf.Game(bf.STANDARD, n)
+    assert zeckenum.count(n, rs, threads=1).length_counts == dict(game.spectrum()), n
+
+
+# ------------------------------------------------------------------------ tribonacci game
+
+def tribonacci_oeis(count: int) -> list[int]:
+    """A000073: 0, 0, 1, 1, 2, 4, 7, 13, ... (a(n) = a(n-1) + a(n-2) + a(n-3))."""
+    a = [0, 0, 1]
+    while len(a) < count:
+        a.append(a[-1] + a[-2] + a[-3])
+    return a
+
+
+def test_tribonacci_bins_are_tribonacci_numbers() -> None:
+    # source: OEIS A000073, from memory: 0, 0, 1, 1, 2, 4, 7, 13, 24, 44, 81, 149, 274, 504
+    seq = tribonacci_oeis(14)
+    assert seq == [0, 0, 1, 1, 2, 4, 7, 13, 24, 44, 81, 149, 274, 504]
+    bins = BUILTIN["tribonacci"].bin_values(504)
+    assert bins == seq[3:]
+
+
+def greedy(n: int, bins: list[int]) -> tuple[int, ...]:
+    out = [0] * len(bins)
+    for i in range(len(bins) - 1, -1, -1):
+        out[i], n = divmod(n, bins[i])
+    return tuple(out)
+
+
+def test_tribonacci_ends_at_greedy_decomposition_up_to_60() -> None:
+    # source: OEIS A000073 (from memory) for the bins; "Fibonacci representations of higher
+    # order" (Fibonacci Quarterly, 1972, from memory): the greedy decomposition is the unique
+    # sum of distinct Tribonacci numbers with no three consecutive ones
+    seq = tribonacci_oeis(20)[3:]
+    for n in range(1, 61):
+        bins = [x for x in seq if x <= n]
+        g = greedy(n, bins)
+        assert max(g) <= 1 and all(g[i : i + 3] != (1, 1, 1) for i in range(len(g)))
+        assert terminal_positions(BUILTIN["tribonacci"], n) == [g], n
+
+
+# ----------------------------------------------------------------------- bad rule files
+
+def run_check(path: Path, *extra: str):
+    return CliRunner().invoke(rules_group, ["check", str(path), *extra])
+
+
+def assert_one_line_error(result, pattern: str) -> None:
+    assert result.exit_code == 2, result.output
+    assert isinstance(result.exception, SystemExit)  # not a traceback
+    errors = [ln for ln in result.output.splitlines() if ln.startswith("zeckenum: error:")]
+    assert len(errors) == 1, result.output
+    assert pattern in errors[0], errors[0]
+
+
+def test_value_changing_move(tmp_path: Path) -> None:
+    # common practice: 2 + 3 != 8, so combine at k = 2 (bins 1, 2 -> bin 4) changes the value
+    path = write(tmp_path, "v", 'name = "v"\n' + FIB_BINS + """
+    [[move]]
+    name = "skip"
+    from = 2
+    take = ["k-1", "k"]
+    give = ["k+2"]
+    """)
+    res = run_check(path)
+    assert_one_line_error(res, "move 'skip' at index 2 changes the value: it takes 3 and gives 5")
+    with pytest.raises(InputError, match="'skip'"):
+        zeckenum.count(5, str(path))
+
+
+def test_value_change_found_past_the_first_index(tmp_path: Path) -> None:
+    # common practice: 2 F(k) -> F(k+1) holds at k = 1 (1 + 1 = 2) only: 2 + 2 != 3
+    path = write(tmp_path, "w", 'name = "w"\n' + FIB_BINS + """
+    [[move]]
+    name = "double"
+    from = 1
+    take = ["k", "k"]
+    give = ["k+1"]
+    """)
+    assert_one_line_error(run_check(path), "move 'double' at index 2 changes the value")
+
+
+def test_cyclic_moves(tmp_path: Path) -> None:
+    # common practice: a move and its inverse give the cycle (n) -> (n-2, 1) -> (n)
+    path = write(tmp_path, "c", 'name = "c"\n' + FIB_BINS + """
+    [[move]]
+    name = "up"
+    at = 1
+    take = ["k", "k"]
+    give = ["k+1"]
+
+    [[move]]
+    name = "down"
+    at = 1
+    take = ["k+1"]
+    give = ["k", "k"]
+    """)
+    res = run_check(path, "--n", "4")
+    assert_one_line_error(res, "does not terminate at value 4: cycle (")
+    # the printed cycle is a real one: closed, and each step is "up" or "down"
+    text = res.output.split("cycle ", 1)[1].strip()
+    states = [tuple(int(c) for c in part.strip("() ").split(",")) for part in text.split("->")]
+    states = [s + (0,) * (2 - len(s)) for s in states]
+    assert len(states) >= 3 and states[0] == states[-1]
+    for a, b in zip(states, states[1:], strict=False):
+        assert (b[0] - a[0], b[1] - a[1]) in ((-2, 1), (2, -1))
+        assert min(b) >= 0 and b[0] + 2 * b[1] == 4
+    with pytest.raises(InputError, match="cycle"):
+        zeckenum.count(6, str(path))
+
+
+def test_acyclic_without_potential(tmp_path: Path) -> None:
+    # common practice: B1+B3 -> 2B2 -> B4 -> B1+B3 sums to zero (no linear potential), but
+    # from n tokens in bin 1 nothing moves at all
+    path = write(tmp_path, "a", """
+    name = "a"
+    [bins]
+    values = [1, 2, 3, 4]
+    [[move]]
+    name = "p"
+    at = 2
+    take = [1, 3]
+    give = [2, 2]
+    [[move]]
+    name = "q"
+    at = 2
+    take = [2, 2]
+    give = [4]
+    [[move]]
+    name = "r"
+    at = 2
+    take = [4]
+    give = [1, 3]
+    """)
+    assert_one_line_error(run_check(path, "--n", "4"), "no strict linear potential exists")
+
+
+def test_token_layering_refused_for_rising_moves(tmp_path: Path) -> None:
+    # common practice: the reversed moves raise the token count
+    text = (RULESETS_DIR / "reversed.toml").read_text()
+    path = write(tmp_path, "t", text.replace('start = "greedy"', 'start = "greedy"\n'
+                                             'layering = "tokens"'))
+    assert_one_line_error(run_check(path), "raises the token count")
+
+
+@pytest.mark.parametrize(
+    ("body", "message"),
+    [
+        # unknown bins
+        ('[bins]\nvalues = [1, 2, 3]\n[[move]]\nname = "m"\nfrom = 2\nto = 3\n'
+         'take = ["k-1", "k"]\ngive = ["k+1"]\n', "uses bin 4, but only bins 1..3"),
+        (FIB_BINS + '[[move]]\nname = "m"\nfrom = 2\ntake = ["k", "k"]\ngive = ["k-2", "k+1"]\n',
+         "uses bin 0"),
+        # malformed templates
+        (FIB_BINS + '[[move]]\nname = "m"\nfrom = 2\ntake = ["k-1", "j"]\ngive = ["k+1"]\n',
+         "bad bin 'j'"),
+        (FIB_BINS + '[[move]]\nname = "m"\nfrom = 2\ntake = [1]\ngive = [2]\n',
+         "only allowed in a one-off move"),
+        (FIB_BINS + '[[move]]\nname = "m"\nat = 2\nfrom = 2\ntake = ["k"]\ngive = ["k"]\n',
+         "exactly one of 'at'"),
+        (FIB_BINS + '[[move]]\nname = "m"\nat = 2\ntake = ["k"]\ngive = ["k"]\n',
+         "gives back exactly what it takes"),
+        (FIB_BINS + '[[move]]\nname = "m"\nform = 2\ntake = ["k"]\ngive = ["k"]\n',
+         "unknown key 'form'"),
+        (FIB_BINS + '[[move]]\nname = "m"\nfrom = 2\ntake = "k"\ngive = ["k+1"]\n',
+         "'take' must be a non-empty list"),
+        (FIB_BINS + '[[move]]\nname = "m"\nfrom = 2\ntake = ["k-1", "k"\n',
+         "not valid TOML"),
+        # other file problems
+        (FIB_BINS, "no moves"),
+        ('[bins]\nvalues = [1, 3, 2]\n', "must increase strictly"),
+        ('[bins]\ninitial = [1, 2]\nrecurrence = [0, 1]\n', "must increase strictly"),
+        (FIB_BINS + 'start = "middle"\n', "unknown key 'start' in [bins]"),
+    ],
+)
+def test_malformed_files(tmp_path: Path, body: str, message: str) -> None:
+    # common practice: each problem gives its own one-line error, never a traceback
+    path = tmp_path / "bad.toml"
+    path.write_text('name = "bad"\n' + textwrap.dedent(body))
+    assert_one_line_error(run_check(path), message)
+
+
+def test_bad_start(tmp_path: Path) -> None:
+    # common practice
+    text = (RULESETS_DIR / "twos.toml").read_text()
+    path = write(tmp_path, "s", text.replace("vector = [0, 1]", "vector = [0, -1]"))
+    assert_one_line_error(run_check(path), "start vector must be a list of counts")
+
+
+# --------------------------------------------------------------------------------- CLI
+
+def test_cli_list() -> None:
+    # common practice: one line per built-in rule set
+    res = CliRunner().invoke(rules_group, ["list"])
+    assert res.exit_code == 0
+    lines = res.output.strip().splitlines()
+    assert [ln.split()[0] for ln in lines] == SHIPPED
+
+
+@pytest.mark.parametrize("name", SHIPPED)
+def test_cli_check_shipped_files(name: str) -> None:
+    # common practice: every shipped file passes its own check
+    res = run_check(RULESETS_DIR / f"{name}.toml")
+    assert res.exit_code == 0, res.output
+    assert res.output.strip().endswith("ok")
+
+
+def test_cli_show_tribonacci_end_position() -> None:
+    # source: OEIS A000073 (from memory): 30 = 24 + 4 + 2 greedily
+    res = CliRunner().invoke(rules_group, ["show", "tribonacci", "--n", "30"])
+    assert res.exit_code == 0, res.output
+    assert "end positions at n=30: 1" in res.output
+    assert "= 24 + 4 + 2" in res.output
+    assert "combine: B(k-2) + B(k-1) + B(k) -> B(k+1) for k >= 3" in res.output
+
+
+def test_cli_show_file_and_potential() -> None:
+    # common practice: the reversed game ends with all n tokens in bin 1
+    res = CliRunner().invoke(rules_group, ["show", str(RULESETS_DIR / "reversed.toml"),
+                                           "--n", "12"])
+    assert res.exit_code == 0, res.output
+    assert "strict potential" in res.output
+    assert "(12)  = 12*1" in res.output
+
+
+def test_cli_show_unknown() -> None:
+    # common practice
+    res = CliRunner().invoke(rules_group, ["show", "nonesuch"])
+    assert_one_line_error(res, "unknown rule set 'nonesuch'")
+
+
+# ------------------------------------------------------------------------- vector start
+
+def test_vector_start_scales_with_n() -> None:
+    # common practice: n tokens worth 2 each end at the Zeckendorf decomposition of 2n
+    fib = bf.fib_bins(200)
+    for n in (1, 5, 13, 30):
+        spec = BUILTIN["twos"].instantiate(n)
+        assert spec.n == 2 * n and int(spec.start[1]) == n and int(spec.start.sum()) == n
+        bins = [x for x in fib if x <= 2 * n]
+        assert terminal_positions(BUILTIN["twos"], n) == [greedy(2 * n, bins)]
