@@ -99,7 +99,17 @@ def gaussian_table(lo: int, hi: int, rules: str, model: str, use_float: bool) ->
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
 def random_command(n, players, model, rules, winners_only, use_float, games, seed, nrange,
                    as_json) -> None:
-    """Random play at N: exact probability of every length and of each player winning."""
+    """Random play at N: exact probability of every length and of each player winning.
+
+    \b
+    Examples:
+      zeckenum random 40
+      zeckenum random 200 --winners-only --players 3
+      zeckenum random 80 --model pairs --json
+      zeckenum random 250 --float
+      zeckenum random 200 --simulate 100000 --seed 7
+      zeckenum random --range 10 60
+    """
     try:
         _run(n, players, model, rules, winners_only, use_float, games, seed, nrange, as_json)
     except ZeckenumError as exc:

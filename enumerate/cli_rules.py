@@ -76,13 +76,25 @@ def layering_lines(rules: RuleSet, n: int) -> list[str]:
 
 @click.group("rules")
 def rules_group() -> None:
-    """Rule sets: list the built-in ones, check a rule file, show a rule set."""
+    """Rule sets: list the built-in ones, check a rule file, show a rule set.
+
+    \b
+    Examples:
+      zeckenum rules list
+      zeckenum rules show reversed --n 12
+      zeckenum rules check my-variant.toml --n 30
+    """
 
 
 @rules_group.command("list")
 @one_line_errors
 def list_command() -> None:
-    """Built-in rule sets, one line each."""
+    """Built-in rule sets, one line each.
+
+    \b
+    Example:
+      zeckenum rules list
+    """
     width = max(len(name) for name in BUILTIN)
     for name in sorted(BUILTIN):
         click.echo(f"{name:<{width}}  {BUILTIN[name].description}")
@@ -94,7 +106,12 @@ def list_command() -> None:
               help="n at which termination and layering are checked")
 @one_line_errors
 def check_command(file: str, n: int) -> None:
-    """Check a rule file: syntax, the value of every move, and termination at n."""
+    """Check a rule file: syntax, the value of every move, and termination at n.
+
+    \b
+    Example:
+      zeckenum rules check my-variant.toml --n 30
+    """
     rules = read_rule_file(file)
     click.echo(f"{file}: rule set {rules.name!r} ({rules.content_hash()})")
     click.echo(f"value: every move keeps the value for every index ({len(rules.templates)} "
@@ -110,7 +127,13 @@ def check_command(file: str, n: int) -> None:
               help="n for the layering and the end positions")
 @one_line_errors
 def show_command(name_or_file: str, n: int) -> None:
-    """Show a rule set: bins, start, moves, level weights and end positions at n."""
+    """Show a rule set: bins, start, moves, level weights and end positions at n.
+
+    \b
+    Examples:
+      zeckenum rules show standard
+      zeckenum rules show enumerate/rulesets/tribonacci.toml --n 20
+    """
     rules = resolve(name_or_file)
     click.echo(f"rule set {rules.name!r}  hash {rules.content_hash()}")
     if rules.description:

@@ -85,7 +85,14 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
 @_one_line_errors
 def solve_command(n: int, rules_name: str, players: int, strategy_path: str | None,
                   as_json: bool) -> None:
-    """Who wins the game for N under optimal play (the last player to move wins)."""
+    """Who wins the game for N under optimal play (the last player to move wins).
+
+    \b
+    Examples:
+      zeckenum solve 100
+      zeckenum solve 60 --players 3 --json
+      zeckenum solve 80 --strategy n80.zstrat.gz
+    """
     rules = get_rules(rules_name)
     info = None
     if strategy_path is not None:
@@ -113,6 +120,10 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
 @_one_line_errors
 def check_strategy_command(file: str, rules_name: str | None, as_json: bool) -> None:
     """Confirm that the strategy in FILE wins against every answer of the loser.
+
+    \b
+    Example:
+      zeckenum check-strategy n80.zstrat.gz
 
     The check rebuilds the game's bins and moves from the rule set's definition and
     replays every game; it does not use the solver.
