@@ -15,6 +15,7 @@ from . import __version__
 from .cli_random import random_command
 from .cli_rules import rules_group
 from .cli_solve import check_strategy_command, solve_command
+from .cli_view import games_command, movestats_command, plot_command, report_command
 from .count import count
 from .errors import ZeckenumError
 from .memory import parse_size
@@ -172,6 +173,10 @@ main.add_command(rules_group)
 main.add_command(random_command)
 main.add_command(solve_command)
 main.add_command(check_strategy_command)
+main.add_command(games_command)
+main.add_command(movestats_command)
+main.add_command(plot_command)
+main.add_command(report_command)
 
 
 if __name__ == "__main__":  # pragma: no cover
