@@ -1,9 +1,12 @@
 """Benchmark of random play: engine modes against a plain-Python Fraction baseline.
 
-Each task runs in a fresh subprocess; the time is measured inside the child (imports
-excluded).  The baseline is the memoised Fraction recursion of tests/fraction_bruteforce.py
-(plain Python, no engine code), run with a time limit; when it does not finish at the
-target n, the ratio is computed at the largest n it finishes (printed as such).
+Each task runs in a fresh subprocess; the time is measured inside the child (imports and
+compilation excluded), both wall-clock and CPU (user + system of all the child's threads,
+from resource.getrusage): the machine may be shared, and CPU seconds are the steadier
+figure when other jobs compete for the cores.  The baseline is the memoised Fraction
+recursion of tests/fraction_bruteforce.py (plain Python, no engine code), run with a time
+limit; when it does not finish at the target n, the ratio is computed at the largest n it
+finishes (printed as such).
 
     python benchmarks/bench_random.py [--quick] [--baseline-limit SECONDS]
 
@@ -23,7 +26,10 @@ import click
 ROOT = Path(__file__).resolve().parent.parent
 
 CHILD = r"""
-import json, sys, time
+import json, resource, sys, time
+def cpu():
+    r = resource.getrusage(resource.RUSAGE_SELF)
+    return r.ru_utime + r.ru_stime
 sys.setrecursionlimit(100000)
 task, n = sys.argv[1], int(sys.argv[2])
 if task == "baseline":
@@ -33,16 +39,17 @@ if task == "baseline":
     from fraction_bruteforce import length_law
     box = {{}}
     def run():
-        t = time.perf_counter(); box["law"] = length_law(n, "moves")
-        box["s"] = time.perf_counter() - t
+        t = time.perf_counter(); c = cpu(); box["law"] = length_law(n, "moves")
+        box["s"] = time.perf_counter() - t; box["cpu"] = cpu() - c
     th = threading.Thread(target=run); th.start(); th.join()
-    print(json.dumps({{"s": box["s"]}}))
+    print(json.dumps({{"s": box["s"], "cpu": box["cpu"]}}))
     sys.exit(0)
 from zeckenum.randomplay import random_play
 from zeckenum.floatplay import float_play
 from zeckenum.simulate import simulate
 random_play(5); random_play(5, winners_only=True); float_play(5); simulate(5, 10)  # compile
 t = time.perf_counter()
+c = cpu()
 if task == "wins":
     random_play(n, winners_only=True)
 elif task == "exact":
@@ -51,11 +58,13 @@ elif task == "float":
     float_play(n)
 elif task == "simulate":
     simulate(n, int(sys.argv[3]), seed=1)
-print(json.dumps({{"s": time.perf_counter() - t}}))
+print(json.dumps({{"s": time.perf_counter() - t, "cpu": cpu() - c}}))
 """
 
 
-def run_child(task: str, n: int, limit: float, *extra: str) -> float | None:
+def run_child(task: str, n: int, limit: float, *extra: str) -> dict | None:
+    """{"s": wall seconds, "cpu": CPU seconds} of one task in a fresh process (None on
+    timeout)."""
     code = CHILD.format(tests=str(ROOT / "tests"))
     try:
         out = subprocess.run(
@@ -64,7 +73,7 @@ def run_child(task: str, n: int, limit: float, *extra: str) -> float | None:
         )
     except subprocess.TimeoutExpired:
         return None
-    return json.loads(out.stdout.strip().splitlines()[-1])["s"]
+    return json.loads(out.stdout.strip().splitlines()[-1])
 
 
 @click.command()
@@ -79,9 +88,14 @@ def main(quick: bool, baseline_limit: float) -> None:
         ("simulate 10^6 games", "simulate", 50 if quick else 200, 60.0,
          ("10000" if quick else "1000000",)),
     ]
-    print(f"{'task':22} {'n':>5} {'engine s':>9} {'target s':>9} "
-          f"{'baseline n':>10} {'baseline s':>10} {'engine s @bn':>12} {'ratio':>8}")
-    base_cache: dict[int, float | None] = {}
+    print(f"{'task':22} {'n':>5} {'wall s':>8} {'cpu s':>8} {'target s':>9} "
+          f"{'baseline n':>10} {'base wall':>9} {'base cpu':>9} {'eng wall@bn':>11} "
+          f"{'eng cpu@bn':>10} {'ratio wall':>10} {'ratio cpu':>9}")
+    base_cache: dict[int, dict | None] = {}
+
+    def fmt(x: dict | None, key: str, width: int, prec: int = 2) -> str:
+        return f"{x[key]:{width}.{prec}f}" if x is not None else f"{'-':>{width}}"
+
     for label, task, n, target, extra in rows:
         eng = run_child(task, n, 20 * target, *extra)
         # baseline: the same n if it finishes, else the largest of a few smaller n
@@ -96,11 +110,13 @@ def main(quick: bool, baseline_limit: float) -> None:
                 break
         eng_at_bn = eng if bn == n else (run_child(task, bn, 20 * target, *extra)
                                          if bn else None)
-        ratio = f"{bs / eng_at_bn:8.1f}" if bs and eng_at_bn else "       -"
-        print(f"{label:22} {n:5d} {eng if eng is not None else float('nan'):9.2f} "
-              f"{target:9.0f} {bn if bn else '-':>10} "
-              f"{bs if bs is not None else float('nan'):10.2f} "
-              f"{eng_at_bn if eng_at_bn is not None else float('nan'):12.3f} {ratio}")
+        ratio_w = (f"{bs['s'] / eng_at_bn['s']:10.1f}" if bs and eng_at_bn
+                   else f"{'-':>10}")
+        ratio_c = (f"{bs['cpu'] / eng_at_bn['cpu']:9.1f}" if bs and eng_at_bn
+                   else f"{'-':>9}")
+        print(f"{label:22} {n:5d} {fmt(eng, 's', 8)} {fmt(eng, 'cpu', 8)} {target:9.0f} "
+              f"{bn if bn else '-':>10} {fmt(bs, 's', 9)} {fmt(bs, 'cpu', 9)} "
+              f"{fmt(eng_at_bn, 's', 11, 3)} {fmt(eng_at_bn, 'cpu', 10, 3)} {ratio_w} {ratio_c}")
     print("ratio = baseline s / engine s at the baseline's n (Fraction recursion, model "
           "'moves'; it computes the full length law, so it is the same work as every task "
           "except simulate, where it is only a reference point)")

@@ -1,12 +1,16 @@
 """Random play in float64 with a rigorous bound on the accumulated rounding error.
 
-Same sweep as the exact one (`zeckenum.randomplay`), with one double per (state, length)
-instead of residues.  Error analysis (standard model of floating-point arithmetic,
-u = 2**-53, every quantity non-negative so no cancellation can occur):
+Same pulling sweep as the exact one (`zeckenum.randomplay`), with one double per (state,
+length) instead of residues: each state gathers its predecessors' finished rows.  In the
+model "moves" a finished row is scaled once by c = fl(1 / D(s)) and the moves add it; in
+the model "pairs" each move multiplies the source's row by c = fl(w / D(s)).  The first
+sweep runs in a background thread, a layer or two ahead (its kernels release the GIL).
+Error analysis (standard model of floating-point arithmetic, u = 2**-53, every quantity
+non-negative so no cancellation can occur):
 
-* a move's factor c = fl(w / D) carries one rounding; the term fl(v * c) one more;
-* a destination slot is the recursive sum of its m incoming terms: each term suffers at
-  most m - 1 further roundings;
+* a move's factor c carries one rounding; the term fl(v * c) one more;
+* a destination slot is a sum of its m incoming terms, added one after the other in any
+  order: each term suffers at most m - 1 further roundings;
 * so if every value of state s is v_exact * (1 + theta) with |theta| <= gamma(K(s)),
   gamma(k) = k u / (1 - k u), then every value of t has |theta| <= gamma(K(t)) with
   K(t) = max over moves s -> t of (K(s) + 2) + (number of moves into t) - 1, K(start) = 0;
@@ -26,9 +30,11 @@ bound is evaluated in exact rational arithmetic and rounded upward.
 from __future__ import annotations
 
 import math
+import os
 import queue
 import threading
 import time
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
 from fractions import Fraction
 
@@ -36,93 +42,92 @@ import numba as nb
 import numpy as np
 
 from .moments import float_moments, gaussian_diagnostics
-from .randomplay import layer_data, validate, winner_of_length
+from .randomplay import SweptLayer, skeleton_layers, validate, winner_of_length
 from .rules import get_rules
 from .statespace import build_space
 
-UNREACHED = np.iinfo(np.int32).max
 U = Fraction(1, 2**53)
 ETA = Fraction(1, 2**1074)
 
 
-@nb.njit(cache=True, nogil=True)
-def relax_layer_windows(
-    lmin: np.ndarray, lmax: np.ndarray, ptr: np.ndarray, drop: np.ndarray, dest: np.ndarray,
-    n_lmin: np.ndarray, n_lmax: np.ndarray,
-) -> None:
-    """Shortest/longest path lengths pushed along one layer's moves (UNREACHED: no path).
+@nb.njit(cache=True, nogil=True, inline="always")
+def _gather_float(dv: np.ndarray, sv: np.ndarray, c: float, unit: bool) -> None:
+    """dv += sv (unit) or dv += sv * c, element by element (a vectorised loop)."""
+    if unit:
+        for t in range(sv.size):
+            dv[t] += sv[t]
+    else:
+        for t in range(sv.size):
+            dv[t] += sv[t] * c
 
-    Drop-0 moves stay in the layer (ascending rank is topological), drop-1 moves go to n_*.
+
+@nb.njit(cache=True, nogil=True)
+def pull_float_windows(
+    vals: np.ndarray, off: np.ndarray, lmin: np.ndarray, win: np.ndarray, kfin: np.ndarray,
+    up_vals: np.ndarray, up_off: np.ndarray, up_lmin: np.ndarray, up_win: np.ndarray,
+    up_kfin: np.ndarray, up_dsum: np.ndarray, dsum: np.ndarray, ptr: np.ndarray,
+    drop: np.ndarray, src: np.ndarray, w: np.ndarray, unit: bool, acc: np.ndarray,
+) -> None:
+    """One layer of the float sweep, in ascending rank (see the module docstring).
+
+    vals: state j's probabilities for lengths lmin[j] .. lmin[j] + win[j] - 1 at
+    off[j] .. off[j+1]-1.  State j gathers its predecessors' finished rows (times
+    fl(w / D(source)) unless `unit`); then kfin[j] = K(j) + (moves in) - 1, and with
+    `unit` a non-terminal row is scaled by fl(1 / D(j)).  acc[2] counts the products done.
     """
-    for i in range(lmin.size):
-        if lmin[i] == UNREACHED:
+    for j in range(win.size):
+        wj = win[j]
+        if wj == 0:
             continue
-        a = lmin[i] + 1
-        b = lmax[i] + 1
-        for e in range(ptr[i], ptr[i + 1]):
-            j = dest[e]
+        kin = 0
+        for e in range(ptr[j], ptr[j + 1]):
+            # two written-out branches: selecting an array per move would cost reference
+            # counting on every move
+            i = src[e]
             if drop[e] == 0:
-                tmn, tmx = lmin, lmax
+                sw = win[i]
+                d0 = off[j] + lmin[i] + 1 - lmin[j]
+                c = 1.0 if unit else w[e] / dsum[i]
+                _gather_float(vals[d0 : d0 + sw], vals[off[i] : off[i] + sw], c, unit)
+                ks = kfin[i]
             else:
-                tmn, tmx = n_lmin, n_lmax
-            if a < tmn[j]:
-                tmn[j] = a
-            if b > tmx[j]:
-                tmx[j] = b
-
-
-@nb.njit(cache=True, nogil=True)
-def push_float_windows(
-    vals: np.ndarray, off: np.ndarray, lmin: np.ndarray, win: np.ndarray, kin: np.ndarray,
-    cnt: np.ndarray, dsum: np.ndarray, ptr: np.ndarray, drop: np.ndarray, dest: np.ndarray,
-    w: np.ndarray, n_vals: np.ndarray, n_off: np.ndarray, n_lmin: np.ndarray,
-    n_kin: np.ndarray, n_cnt: np.ndarray, unit: bool, out: np.ndarray, acc: np.ndarray,
-) -> None:
-    """One layer of the float sweep (see the module docstring for K, kin and cnt).
-
-    vals: state i's probabilities for lengths lmin[i] .. lmin[i] + win[i] - 1 at
-    off[i] .. off[i+1]-1.  acc = [largest terminal K, terminal states, products done].
-    Terminal rows are added into out[length].
-    """
-    for i in range(win.size):
-        wi = win[i]
-        if wi == 0:
-            continue
-        k_i = kin[i] + max(cnt[i] - 1, 0)
-        s0 = off[i]
-        d = dsum[i]
-        if d == 0:
-            for t in range(wi):
-                out[lmin[i] + t] += vals[s0 + t]
-            if k_i > acc[0]:
-                acc[0] = k_i
-            acc[1] += 1
-            continue
-        b = vals[s0 : s0 + wi]
-        if unit:
+                sw = up_win[i]
+                d0 = off[j] + up_lmin[i] + 1 - lmin[j]
+                c = 1.0 if unit else w[e] / up_dsum[i]
+                _gather_float(vals[d0 : d0 + sw], up_vals[up_off[i] : up_off[i] + sw], c, unit)
+                ks = up_kfin[i]
+            if not unit:
+                acc[2] += sw
+            if ks + 2 > kin:
+                kin = ks + 2
+        kfin[j] = kin + max(ptr[j + 1] - ptr[j] - 1, 0)
+        d = dsum[j]
+        if unit and d > 0:
+            row = vals[off[j] : off[j] + wj]
             c = 1.0 / d
-            for t in range(wi):
-                b[t] = b[t] * c
-            acc[2] += wi
-        for e in range(ptr[i], ptr[i + 1]):
-            j = dest[e]
-            if drop[e] == 0:
-                tv, toff, tmn, tk, tc = vals, off, lmin, kin, cnt
-            else:
-                tv, toff, tmn, tk, tc = n_vals, n_off, n_lmin, n_kin, n_cnt
-            d0 = toff[j] + (lmin[i] + 1 - tmn[j])
-            a = tv[d0 : d0 + wi]
-            if unit:
-                for t in range(wi):
-                    a[t] += b[t]
-            else:
-                ce = w[e] / d
-                for t in range(wi):
-                    a[t] += b[t] * ce
-                acc[2] += wi
-            if k_i + 2 > tk[j]:
-                tk[j] = k_i + 2
-            tc[j] += 1
+            for t in range(wj):
+                row[t] = row[t] * c
+            acc[2] += wj
+
+
+@nb.njit(cache=True, nogil=True)
+def collect_float_terminals(
+    vals: np.ndarray, off: np.ndarray, lmin: np.ndarray, win: np.ndarray, kfin: np.ndarray,
+    dsum: np.ndarray, out: np.ndarray, acc: np.ndarray,
+) -> None:
+    """Add the rows of the reached terminal states into out[length], in ascending rank;
+    acc[0] = largest terminal K, acc[1] += terminal states."""
+    for j in range(win.size):
+        wj = win[j]
+        if wj == 0 or dsum[j] != 0:
+            continue
+        o = out[lmin[j] : lmin[j] + wj]
+        row = vals[off[j] : off[j] + wj]
+        for t in range(wj):
+            o[t] += row[t]
+        if kfin[j] > acc[0]:
+            acc[0] = kfin[j]
+        acc[1] += 1
 
 
 @dataclass(frozen=True)
@@ -175,95 +180,89 @@ def _round_up(x: Fraction) -> float:
     return f if Fraction(f) >= x else math.nextafter(f, math.inf)
 
 
-def _windows_producer(space, out_q: queue.Queue, model: str) -> None:
-    """Reachability and windows layer by layer (background thread), with each layer's moves.
-
-    Puts (level, LayerMoves, w, D, lmin, win) once the level's windows are final."""
+def _producer(layers: Iterator[SweptLayer], out_q: queue.Queue) -> None:
+    """Run the first sweep into a queue (a background thread): layers, then None."""
     try:
-        start_level, start_rank = space.rank(space.spec.start)
-        empty = np.zeros(0, dtype=np.int32)
-
-        def fresh(level):
-            size = space.layer_size(level) if level >= 0 else 0
-            return np.full(size, UNREACHED, np.int32), np.full(size, -1, np.int32)
-
-        cur = fresh(start_level)
-        cur[0][start_rank] = 0
-        cur[1][start_rank] = 0
-        for level in range(start_level, -1, -1):
-            if space.layer_size(level) == 0:
-                continue
-            lm, w, dsum = layer_data(space, level, model)
-            nxt = fresh(level - 1) if level >= 1 else (empty, empty)
-            relax_layer_windows(cur[0], cur[1], lm.ptr, lm.drop, lm.dest, nxt[0], nxt[1])
-            lmin, lmax = cur
-            reached = lmin != UNREACHED
-            win = np.where(reached, lmax - lmin + 1, 0).astype(np.int32)
-            out_q.put((level, lm, w, dsum, np.where(reached, lmin, 0).astype(np.int32), win))
-            cur = nxt
+        for layer in layers:
+            out_q.put(layer)
         out_q.put(None)
-    except BaseException as exc:  # pragma: no cover - handed to the consumer
+    except BaseException as exc:  # noqa: BLE001 - handed to the consumer
         out_q.put(exc)
 
 
+def _queued(out_q: queue.Queue) -> Iterator[SweptLayer]:
+    while True:
+        item = out_q.get()
+        if item is None:
+            return
+        if isinstance(item, BaseException):
+            raise item
+        yield item
+
+
+def float_sweep(
+    layers: Iterable[SweptLayer], start_level: int, start_rank: int, unit: bool
+) -> tuple[np.ndarray, np.ndarray]:
+    """(out, acc): out[L] = computed probability of length L, acc = [largest terminal K,
+    terminal states, products done].
+
+    Memory traffic bounds this sweep (every move streams its source's window), so it runs
+    in one thread; `float_play` overlaps it with the first sweep instead.
+    """
+    out = np.zeros(64, dtype=np.float64)
+    acc = np.zeros(3, dtype=np.int64)
+    ring = [np.empty(0), np.empty(0)]
+    z64 = np.zeros(1, dtype=np.int64)
+    z32 = np.zeros(0, dtype=np.int32)
+    empty = (np.zeros(0), z64, z32, z32, z64[:0], z64[:0])
+    up = empty
+    prev = None
+    for k, layer in enumerate(layers):
+        level, lmin, win, dsum, inc = (layer.level, layer.lmin, layer.win, layer.dsum,
+                                       layer.incoming)
+        off = np.zeros(win.size + 1, dtype=np.int64)
+        np.cumsum(win.astype(np.int64), out=off[1:])
+        need = int(off[-1])
+        if ring[k % 2].size < need:
+            ring[k % 2] = np.empty(max(need, int(1.25 * ring[k % 2].size)))
+        vals = ring[k % 2][:need]
+        vals[:] = 0.0
+        if level == start_level:
+            vals[off[start_rank]] = 1.0
+        top = int((lmin + win).max(initial=0))
+        if top > out.size:
+            out = np.concatenate([out, np.zeros(max(top, 2 * out.size) - out.size)])
+        if prev != level + 1:
+            up = empty
+        kfin = np.zeros(win.size, dtype=np.int64)
+        pull_float_windows(vals, off, lmin, win, kfin, *up, dsum, inc.ptr, inc.drop, inc.src,
+                           inc.w, unit, acc)
+        collect_float_terminals(vals, off, lmin, win, kfin, dsum, out, acc)
+        up = (vals, off, lmin, win, kfin, dsum)
+        prev = level
+    return out, acc
+
+
 def float_play(
-    n: int, rules: str = "standard", players: int = 2, model: str = "moves"
+    n: int, rules: str = "standard", players: int = 2, model: str = "moves",
+    threads: int | None = None,
 ) -> FloatResult:
     """The length distribution and win probabilities in float64, with error bounds.
 
-    The windows sweep runs one layer ahead in a background thread (kernels release the
-    GIL), so the two sweeps overlap.
+    The first sweep runs one or two layers ahead in a background thread (kernels release
+    the GIL), so the two sweeps overlap.
     """
     validate(n, players, model)
     rs = get_rules(rules)
     t0 = time.perf_counter()
     space = build_space(rs.instantiate(n))
-    if space.max_drop > 1:
-        from .errors import InputError
-
-        raise InputError("random play supports rule sets whose moves drop the level by <= 1")
-    q: queue.Queue = queue.Queue(maxsize=3)
-    th = threading.Thread(target=_windows_producer, args=(space, q, model), daemon=True)
-    th.start()
-
-    def take():
-        item = q.get()
-        if isinstance(item, BaseException):
-            raise item
-        return item
-
+    nthreads = max(1, threads or os.cpu_count() or 1)
     start_level, start_rank = space.rank(space.spec.start)
-    out = np.zeros(8 * n + 64, dtype=np.float64)
-    acc = np.zeros(3, dtype=np.int64)
-
-    def alloc(item):
-        if item is None:
-            z = np.zeros(0, np.int32)
-            e = np.zeros(0, np.int64)
-            return np.zeros(0), np.zeros(1, np.int64), z, z, e, e.copy()
-        _lv, _lm, _w, _d, lmin, win = item
-        off = np.zeros(win.size + 1, dtype=np.int64)
-        np.cumsum(win.astype(np.int64), out=off[1:])
-        size = win.size
-        return (np.zeros(int(off[-1])), off, lmin, win, np.zeros(size, np.int64),
-                np.zeros(size, np.int64))
-
-    item = take()
-    cur = alloc(item)
-    cur[0][cur[1][start_rank]] = 1.0
-    while item is not None:
-        nxt_item = take()
-        if nxt_item is not None and nxt_item[0] != item[0] - 1:  # pragma: no cover
-            raise RuntimeError("levels are not consecutive")
-        nxt = alloc(nxt_item)
-        _lv, lm, w, dsum, _lmin, _win = item
-        if int(cur[3].max(initial=0)) + int(cur[2].max(initial=0)) + 2 > out.size:
-            out = np.concatenate([out, np.zeros(out.size)])
-        push_float_windows(
-            cur[0], cur[1], cur[2], cur[3], cur[4], cur[5], dsum, lm.ptr, lm.drop, lm.dest, w,
-            nxt[0], nxt[1], nxt[2], nxt[4], nxt[5], model == "moves", out, acc,
-        )
-        item, cur = nxt_item, nxt
+    layers = skeleton_layers(space, model, exponents=False, threads=nthreads)
+    q: queue.Queue = queue.Queue(maxsize=2)
+    th = threading.Thread(target=_producer, args=(layers, q), daemon=True)
+    th.start()
+    out, acc = float_sweep(_queued(q), start_level, start_rank, model == "moves")
     th.join()
     t1 = time.perf_counter()
     lengths = [int(L) for L in np.nonzero(out)[0]]
@@ -289,5 +288,6 @@ def float_play(
         length_error=err, win_probability=wins, win_error=werr_f, total=total,
         total_error=total_err, max_error=max(err.values()),
         moments=float_moments(ks, ps), gaussian=gaussian_diagnostics(dist),
-        stats={"sweep_s": round(t1 - t0, 3), "k_end": k_end, "products": int(acc[2])},
+        stats={"sweep_s": round(t1 - t0, 3),
+               "k_end": k_end, "products": int(acc[2])},
     )

@@ -23,27 +23,42 @@ probability is an integer over the product of D(s) along it, so every length pro
 times M = lcm over games of prod D(s) is an integer in [0, M].  M = prod_p p**e_p with
 e_p = max over games of sum v_p(D(s)), which a first sweep computes exactly (max-plus
 dynamic programming over the states, one exponent per prime p <= max D).  The second sweep
-computes every probability modulo word primes q (inverses of D(s) mod q from a table);
-the integer N = P * M is rebuilt by the Chinese remainder theorem from primes whose product
-exceeds M, and one extra prime checks it (CheckPrimeMismatch on disagreement).  The
+computes every probability modulo primes q below 2**50 (inverses of D(s) mod q from a
+table); the integer N = P * M is rebuilt by the Chinese remainder theorem from primes whose
+product exceeds M, and one extra prime checks it (CheckPrimeMismatch on disagreement).  The
 residues also satisfy sum N == M, which is checked.
 
-Word primes are below 3037000499 = floor(sqrt(2**63 - 1)), so a product of two residues
-fits in int64; reductions use a float64 estimate of the quotient corrected by one step
-(`mulmod`).  A destination accumulates unreduced products (at most #move-types incoming
-moves, each < q * max weight) and is reduced once, when the sweep reaches it.
+Both sweeps *pull*: layers are visited from the start's level downward and each state
+gathers from its predecessors (the moves into it), inside a layer in ascending rank, which
+is topological (see `statespace`).  The first sweep keeps the moves into every layer whose
+source is reachable (`Incoming`), so the second sweep only re-reads them; they are listed
+by `listing_kernel`, which ranks each move's source incrementally from the state's own
+rank (O(bins the move changes) per move instead of O(bins)).  When a state is
+complete, its row is reduced mod q and multiplied once by D(s)^-1; a move then adds its
+source's row times its integer weight -- in the model "moves" every weight is 1, so the
+edges are pure vectorised adds and the only multiplications are one per (state, word).
 
-The winner-only path keeps per state the P residues of length mod P instead of a window of
-lengths; it costs O(P) per move instead of O(window).
+Arithmetic.  Residues are below q < 2**50; a state's row accumulates at most m + 1 residues
+(m = moves into it <= number of move types, +1 for the start), which stays below 2**62 and
+is reduced once (`reduce62`).  Products use a float64 estimate of the quotient and an exact
+wrapping remainder (`mulmod`, proof in its docstring).  Compared with primes below 2**31.5
+this needs about 37% fewer primes for the same denominator.
+
+Prime blocks are independent: each block runs the whole second sweep in its own thread
+(kernels release the GIL).  The winner-only path keeps per state the P residues of length
+mod P instead of a window of lengths; it costs O(P) per move instead of O(window).
 """
 
 from __future__ import annotations
 
 import math
 import os
-from concurrent.futures import ThreadPoolExecutor
+from collections import deque
+from collections.abc import Callable, Iterator
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 from fractions import Fraction
+from functools import lru_cache
 
 import numba as nb
 import numpy as np
@@ -51,33 +66,36 @@ import numpy as np
 from .errors import CheckPrimeMismatch, InputError
 from .modular import crt, is_prime
 from .rules import GameSpec, get_rules
-from .statespace import StateSpace, build_space
+from .statespace import LayerMoves, StateSpace, build_space, move_applies
 
 MODELS = ("moves", "pairs")
-WORD_PRIME_CEILING = 3037000499  # floor(sqrt(2**63 - 1)): (q - 1)**2 fits in int64
+PRIME_CEILING = 2**50  # every residue prime lies below it (see `mulmod`)
+PRIME_FLOOR = 2**13  # and above it (see `reduce62`)
+UNREACHED = np.iinfo(np.int32).max
 
 
 # ----------------------------------------------------------------------------- primes
 
 
-def word_primes(count: int, offset: int = 0) -> list[int]:
-    """The primes number offset .. offset+count-1 counted downward from WORD_PRIME_CEILING."""
+@lru_cache(maxsize=16)
+def _descending_primes(count: int) -> tuple[int, ...]:
     out: list[int] = []
-    c = WORD_PRIME_CEILING if WORD_PRIME_CEILING % 2 else WORD_PRIME_CEILING - 1
-    skipped = 0
+    c = PRIME_CEILING - 1
     while len(out) < count:
         if is_prime(c):
-            if skipped < offset:
-                skipped += 1
-            else:
-                out.append(c)
+            out.append(c)
         c -= 2
-    return out
+    return tuple(out)
+
+
+def word_primes(count: int, offset: int = 0) -> list[int]:
+    """The primes number offset .. offset+count-1 counted downward from PRIME_CEILING."""
+    return list(_descending_primes(offset + count)[offset:])
 
 
 def primes_exceeding(bound: int, offset: int = 0) -> tuple[list[int], int]:
-    """(word primes whose product exceeds `bound`, one extra check prime)."""
-    need = max(1, math.ceil((bound.bit_length() + 1) / 31.4))
+    """(primes below PRIME_CEILING whose product exceeds `bound`, one extra check prime)."""
+    need = max(1, math.ceil((bound.bit_length() + 1) / 49.99))
     while True:
         ps = word_primes(need + 1, offset)
         prod = math.prod(ps[:need])
@@ -98,254 +116,467 @@ def small_primes_upto(m: int) -> np.ndarray:
     return np.nonzero(sieve)[0].astype(np.int64)
 
 
-def inverse_table(primes: list[int], dmax: int) -> np.ndarray:
-    """inv[q, d] = d**-1 mod primes[q] for 1 <= d <= dmax (inv[q, 0] = 0), int64."""
-    inv = np.zeros((len(primes), dmax + 1), dtype=np.int64)
-    for qi, p in enumerate(primes):
-        _fill_inverses(inv[qi], p, dmax)
+def inverse_table(primes: list[int] | np.ndarray, dmax: int) -> np.ndarray:
+    """inv[d, q] = d**-1 mod primes[q] for 1 <= d <= dmax (inv[0, q] = 0), int64.
+
+    Requires dmax < min(primes)."""
+    ps = np.asarray(primes, dtype=np.int64)
+    inv = np.zeros((dmax + 1, ps.size), dtype=np.int64)
+    for qi in range(ps.size):
+        col = np.zeros(dmax + 1, dtype=np.int64)
+        _fill_inverses(col, int(ps[qi]), dmax)
+        inv[:, qi] = col
     return inv
 
 
 @nb.njit(cache=True, nogil=True)
 def _fill_inverses(row: np.ndarray, p: int, dmax: int) -> None:
     """row[d] = d**-1 mod p by inv(d) = -(p // d) * inv(p mod d) (valid for d < p)."""
+    pinv = 1.0 / p
     if dmax >= 1:
         row[1] = 1
     for d in range(2, dmax + 1):
-        row[d] = (p - (p // d) * row[p % d] % p) % p
+        x = mulmod(p // d, row[p % d], p, pinv)
+        row[d] = p - x if x else 0
 
 
-# ----------------------------------------------------------------------------- kernels
+# ----------------------------------------------------------------------------- arithmetic
 
 
 @nb.njit(cache=True, nogil=True, inline="always")
 def mulmod(a: int, b: int, p: int, pinv: float) -> int:
-    """a * b mod p for 0 <= a, b < p < 3037000500 (float64 quotient estimate, one correction)."""
+    """a * b mod p for 0 <= a, b < p < 2**50, with pinv = fl(1 / p).
+
+    Proof.  With u = 2**-53, float(a) and float(b) are exact (< 2**53) and
+    y = fl(fl(a * b) * pinv) = (a b / p)(1 + e1)(1 + e2)(1 + e3), |ei| <= u, so
+    |y - a b / p| <= (a b / p)((1 + u)**3 - 1) < p * 3.0001 u < 2**50 * 3.0001 * 2**-53 < 0.38.
+    Hence q = trunc(y) = floor(y) (y >= 0) is floor(a b / p) + {-1, 0, 1} and the true
+    remainder r = a b - q p lies in [-p, 2p), inside (-2**63, 2**63).  It is computed in
+    uint64, whose multiplication and subtraction wrap (are exact mod 2**64), so reading the
+    result as int64 gives r exactly; one conditional add and one conditional subtract of p
+    bring it into [0, p).  (Signed int64 products are avoided: numba marks them `nsw`,
+    which makes an overflow undefined.)
+    """
     q = np.int64(float(a) * float(b) * pinv)
-    r = a * b - q * p  # the estimate is off by at most one: r in [-p, 2p)
-    r += (r >> 63) & p
-    r -= p * np.int64(r >= p)
+    r = np.int64(np.uint64(a) * np.uint64(b) - np.uint64(q) * np.uint64(p))
+    if r < 0:
+        r += p
+    if r >= p:
+        r -= p
     return r
 
 
 @nb.njit(cache=True, nogil=True, inline="always")
-def reduce63(x: int, p: int, pinv: float) -> int:
-    """x mod p for 0 <= x < 2**63 (float64 quotient estimate, corrected)."""
+def reduce62(x: int, p: int, pinv: float) -> int:
+    """x mod p for 0 <= x < 2**62 and 2**13 < p < 2**50, with pinv = fl(1 / p).
+
+    Proof.  y = fl(float(x) * pinv) = (x / p)(1 + e), |e| <= 3.0001 u; x / p < 2**49, so
+    |y - x / p| < 0.38 and q = trunc(y) = floor(x / p) + {-1, 0, 1}.  Then
+    0 <= q p <= x + p < 2**63, and r = x - q p in [-p, 2p) is exact in int64.
+    """
     q = np.int64(float(x) * pinv)
-    r = x - q * p  # x / p < 2**32: the estimate is off by at most one, r in [-p, 2p)
-    r += (r >> 63) & p
-    r -= p * np.int64(r >= p)
+    r = x - q * p
+    if r < 0:
+        r += p
+    if r >= p:
+        r -= p
     return r
 
 
 @nb.njit(cache=True, nogil=True)
-def move_weights(
-    states: np.ndarray, ptr: np.ndarray, move: np.ndarray, tk_bins: np.ndarray,
-    tk_cnt: np.ndarray, pairs: bool,
-):
-    """(w[e], D[i]): weight of every move and total move weight of every state of a layer.
+def finish_row(row: np.ndarray, primes: np.ndarray, pinv: np.ndarray, iv: np.ndarray) -> None:
+    """row[q] = (row[q] mod primes[q]) * iv[q] mod primes[q], for 0 <= row[q] < 2**62.
 
-    Model "moves": every move has weight 1.  Model "pairs": prod over taken bins of
-    binomial(count in bin, tokens taken).  D is 0 exactly for states without moves.
-    """
+    A separate small loop, so that LLVM vectorises it (AVX-512 has the int64 <-> float64
+    conversions and the int64 products it needs)."""
+    for q in range(row.size):
+        row[q] = mulmod(reduce62(row[q], primes[q], pinv[q]), iv[q], primes[q], pinv[q])
+
+
+@nb.njit(cache=True, nogil=True)
+def add_row_mod(acc: np.ndarray, row: np.ndarray, primes: np.ndarray, pinv: np.ndarray) -> None:
+    """acc[q] = (acc[q] + row[q]) mod primes[q] for 0 <= acc[q] < primes[q], row[q] < 2**62."""
+    for q in range(row.size):
+        x = reduce62(row[q], primes[q], pinv[q]) + acc[q]
+        acc[q] = x - primes[q] if x >= primes[q] else x
+
+
+# ----------------------------------------------------------------------------- weights
+
+
+@nb.njit(cache=True, nogil=True, inline="always")
+def move_weight(
+    states: np.ndarray, i: int, m: int, back: bool, mv_bins: np.ndarray, mv_delta: np.ndarray,
+    tk_cnt: np.ndarray,
+) -> int:
+    """Weight (model "pairs") of move m out of state i, or, with `back`, of move m out of
+    the source of the move m into state i: prod over taken bins of binomial(count, taken)."""
+    x = 1
+    for j in range(mv_bins.shape[1]):
+        c = tk_cnt[m, j]
+        if c > 0:
+            a = states[i, mv_bins[m, j]]
+            if back:
+                a -= mv_delta[m, j]
+            b = 1
+            for t in range(c):
+                b = b * (a - t) // (t + 1)
+            x *= b
+    return x
+
+
+@nb.njit(cache=True, nogil=True)
+def total_weights(
+    states: np.ndarray, level: int, max_level: int, mv_bins: np.ndarray, mv_delta: np.ndarray,
+    mv_drop: np.ndarray, tk_cnt: np.ndarray, pairs: bool,
+) -> np.ndarray:
+    """D[i]: total weight of the moves out of state i of a layer (0 exactly when none)."""
     size = states.shape[0]
-    w = np.ones(ptr[size], dtype=np.int64)
     dsum = np.zeros(size, dtype=np.int64)
     for i in range(size):
         tot = 0
-        for e in range(ptr[i], ptr[i + 1]):
-            x = 1
-            if pairs:
-                m = move[e]
-                for j in range(tk_bins.shape[1]):
-                    c = tk_cnt[m, j]
-                    if c > 0:
-                        a = states[i, tk_bins[m, j]]
-                        b = 1
-                        for t in range(c):
-                            b = b * (a - t) // (t + 1)
-                        x *= b
-            w[e] = x
-            tot += x
+        for m in range(mv_bins.shape[0]):
+            if move_applies(states, i, m, 1, level, max_level, mv_bins, mv_delta, mv_drop):
+                if pairs:
+                    tot += move_weight(states, i, m, False, mv_bins, mv_delta, tk_cnt)
+                else:
+                    tot += 1
         dsum[i] = tot
-    return w, dsum
+    return dsum
 
 
 @nb.njit(cache=True, nogil=True)
-def first_pass_layer(
-    reach: np.ndarray, lmin: np.ndarray, lmax: np.ndarray, ex: np.ndarray, dsum: np.ndarray,
-    ptr: np.ndarray, drop: np.ndarray, dest: np.ndarray,
-    n_reach: np.ndarray, n_lmin: np.ndarray, n_lmax: np.ndarray, n_ex: np.ndarray,
-    spf: np.ndarray, pidx: np.ndarray, end_ex: np.ndarray, stats: np.ndarray,
-) -> None:
-    """Reachability, length windows and lcm exponents, pushed along one layer's moves.
+def incoming_weights(
+    states: np.ndarray, ptr: np.ndarray, move: np.ndarray, mv_bins: np.ndarray,
+    mv_delta: np.ndarray, tk_cnt: np.ndarray,
+) -> np.ndarray:
+    """w[e]: model-"pairs" weight of every move e into the states of a layer."""
+    w = np.ones(move.size, dtype=np.int64)
+    for i in range(states.shape[0]):
+        for e in range(ptr[i], ptr[i + 1]):
+            w[e] = move_weight(states, i, move[e], True, mv_bins, mv_delta, tk_cnt)
+    return w
 
-    ex[i, b] = max over paths start -> i of sum v_{p_b}(D(s)) over the states s left on the
-    path; drop-0 moves write into this layer (ascending rank is topological), drop-1 moves
-    into the n_* arrays of the next layer.  Terminal states fold into end_ex (max) and
+
+# ----------------------------------------------------------------------------- listing
+
+
+@nb.njit(cache=True, nogil=True)
+def listing_kernel(
+    states: np.ndarray, level: int, tab: np.ndarray, values: np.ndarray, weights: np.ndarray,
+    n: int, mv_bins: np.ndarray, mv_delta: np.ndarray, mv_drop: np.ndarray,
+    mv_lo: np.ndarray, mv_hi: np.ndarray, tk_cnt: np.ndarray, pairs: bool,
+):
+    """Moves into every state of a layer with their sources' ranks, and D per state.
+
+    Returns (ptr, drop int8, src int64, move int32, dsum, bad): the same moves into state j,
+    in the same order, as `StateSpace.predecessors` (move e comes from rank src[e] of
+    layer level + drop[e]), D(j) = total weight of the moves out of j (as
+    `total_weights`), and bad = -1 or a state with a move in from the same layer that does
+    not come from a lower rank.
+
+    Ranks are found incrementally.  With the co-lexicographic rank of `statespace.rank_of`,
+    rank = sum over bins k (top down) of term_k = tab[k+1, v_k, t_k] -
+    tab[k+1, v_k - c_k values[k], t_k - c_k weights[k]], v_k / t_k the value / level left
+    for bins 0..k.  A move changes only bins mv_lo[m] .. mv_hi[m]; the source has the same
+    counts elsewhere, the same value, and a level larger by its drop d.  So above mv_hi the
+    source's terms are the state's terms at levels t_k + d, and below mv_lo (where v and t
+    are again equal) they are the state's terms.  Per state the suffix sums of its terms
+    at shift d = 0, 1, .. max drop and the prefix sums are computed once (O(bins)), then
+    each move costs O(mv_hi - mv_lo + 1) table reads.
+    """
+    size = states.shape[0]
+    nb_ = values.size
+    nmoves = mv_bins.shape[0]
+    width = mv_bins.shape[1]
+    max_level = tab.shape[2] - 1
+    maxd = 0
+    for m in range(nmoves):
+        if mv_drop[m] > maxd:
+            maxd = mv_drop[m]
+    ptr = np.zeros(size + 1, dtype=np.int64)
+    dsum = np.zeros(size, dtype=np.int64)
+    for i in range(size):
+        deg = 0
+        tot = 0
+        for m in range(nmoves):
+            if move_applies(states, i, m, -1, level, max_level, mv_bins, mv_delta, mv_drop):
+                deg += 1
+            if move_applies(states, i, m, 1, level, max_level, mv_bins, mv_delta, mv_drop):
+                if pairs:
+                    tot += move_weight(states, i, m, False, mv_bins, mv_delta, tk_cnt)
+                else:
+                    tot += 1
+        ptr[i + 1] = ptr[i] + deg
+        dsum[i] = tot
+    total = ptr[size]
+    drop = np.empty(total, dtype=np.int8)
+    src = np.empty(total, dtype=np.int64)
+    move = np.empty(total, dtype=np.int32)
+    vk = np.zeros(nb_ + 1, dtype=np.int64)  # value left for bins 0..k-1 (index k)
+    tk = np.zeros(nb_ + 1, dtype=np.int64)
+    above = np.zeros((maxd + 1, nb_ + 1), dtype=np.int64)  # sum of terms of bins >= k
+    below = np.zeros(nb_ + 1, dtype=np.int64)  # sum of terms of bins < k
+    term = np.zeros(nb_, dtype=np.int64)
+    work = np.zeros(nb_, dtype=np.int64)
+    bad = -1
+    for i in range(size):
+        if ptr[i + 1] == ptr[i]:
+            continue
+        v = n
+        t = level
+        vk[nb_] = v
+        tk[nb_] = t
+        for d in range(maxd + 1):
+            above[d, nb_] = 0
+        for k in range(nb_ - 1, -1, -1):
+            c = states[i, k]
+            for d in range(maxd + 1):
+                x = 0
+                if c > 0 and t + d <= max_level:
+                    x = tab[k + 1, v, t + d] - tab[k + 1, v - c * values[k],
+                                                   t + d - c * weights[k]]
+                above[d, k] = above[d, k + 1] + x
+                if d == 0:
+                    term[k] = x
+            v -= c * values[k]
+            t -= c * weights[k]
+            vk[k] = v
+            tk[k] = t
+        below[0] = 0
+        for k in range(nb_):
+            below[k + 1] = below[k] + term[k]
+        e = ptr[i]
+        for m in range(nmoves):
+            if not move_applies(states, i, m, -1, level, max_level, mv_bins, mv_delta,
+                                mv_drop):
+                continue
+            d = mv_drop[m]
+            lo = mv_lo[m]
+            hi = mv_hi[m]
+            for k in range(lo, hi + 1):
+                work[k] = states[i, k]
+            for j in range(width):
+                b = mv_bins[m, j]
+                work[b] -= mv_delta[m, j]
+            r = above[d, hi + 1] + below[lo]
+            v = vk[hi + 1]
+            t = tk[hi + 1] + d
+            for k in range(hi, lo - 1, -1):
+                c = work[k]
+                if c > 0:
+                    r += tab[k + 1, v, t] - tab[k + 1, v - c * values[k], t - c * weights[k]]
+                    v -= c * values[k]
+                    t -= c * weights[k]
+            if d == 0 and r >= i and bad < 0:
+                bad = i
+            drop[e] = d
+            src[e] = r
+            move[e] = m
+            e += 1
+    return ptr, drop, src, move, dsum, bad
+
+
+# ----------------------------------------------------------------------------- first sweep
+
+
+@nb.njit(cache=True, nogil=True)
+def first_pass_pull(
+    lmin: np.ndarray, lmax: np.ndarray, ex: np.ndarray, up_lmin: np.ndarray,
+    up_lmax: np.ndarray, up_ex: np.ndarray, ptr: np.ndarray, drop: np.ndarray, src: np.ndarray,
+    keep: np.ndarray, dsum: np.ndarray, spf: np.ndarray, pidx: np.ndarray, end_ex: np.ndarray,
+    stats: np.ndarray,
+) -> None:
+    """Reachability, length windows and lcm exponents gathered into one layer.
+
+    Sources of drop-0 moves are this layer's arrays (finished, ascending rank), of drop-1
+    moves the up_* arrays.  lmin == UNREACHED marks an unreached state.  Once state j is
+    complete, ex[j, b] = max over paths start -> j of sum v_{p_b}(D(s)) over the states s
+    on the path *including j itself* (what its moves carry on).  keep[e] marks the moves
+    whose source is reachable.  Terminal states fold into end_ex (max) and
     stats = [states, moves, terminals, shortest, longest, max D].
     """
-    nb_ = ex.shape[1]
-    cand = np.zeros(nb_, dtype=ex.dtype)
-    for i in range(reach.size):
-        if not reach[i]:
+    nbp = ex.shape[1]
+    for j in range(lmin.size):
+        for e in range(ptr[j], ptr[j + 1]):
+            # two written-out branches: selecting an array per move would cost reference
+            # counting on every move
+            i = src[e]
+            if drop[e] == 0:
+                a = lmin[i]
+                if a == UNREACHED:
+                    continue
+                z = lmax[i]
+                for b in range(nbp):
+                    if ex[i, b] > ex[j, b]:
+                        ex[j, b] = ex[i, b]
+            else:
+                a = up_lmin[i]
+                if a == UNREACHED:
+                    continue
+                z = up_lmax[i]
+                for b in range(nbp):
+                    if up_ex[i, b] > ex[j, b]:
+                        ex[j, b] = up_ex[i, b]
+            keep[e] = True
+            stats[1] += 1
+            if a + 1 < lmin[j]:
+                lmin[j] = a + 1
+            if z + 1 > lmax[j]:
+                lmax[j] = z + 1
+        if lmin[j] == UNREACHED:
             continue
         stats[0] += 1
-        deg = ptr[i + 1] - ptr[i]
-        stats[1] += deg
-        if deg == 0:
+        d = dsum[j]
+        if d == 0:
             stats[2] += 1
-            if lmin[i] < stats[3]:
-                stats[3] = lmin[i]
-            if lmax[i] > stats[4]:
-                stats[4] = lmax[i]
-            for b in range(nb_):
-                if ex[i, b] > end_ex[b]:
-                    end_ex[b] = ex[i, b]
+            if lmin[j] < stats[3]:
+                stats[3] = lmin[j]
+            if lmax[j] > stats[4]:
+                stats[4] = lmax[j]
+            for b in range(nbp):
+                if ex[j, b] > end_ex[b]:
+                    end_ex[b] = ex[j, b]
             continue
-        d = dsum[i]
         if d > stats[5]:
             stats[5] = d
-        for b in range(nb_):
-            cand[b] = ex[i, b]
-        while d > 1:
-            p = spf[d]
-            cand[pidx[p]] += 1
-            d //= p
-        a = lmin[i] + 1
-        z = lmax[i] + 1
-        for e in range(ptr[i], ptr[i + 1]):
-            j = dest[e]
-            if drop[e] == 0:
-                tr, tmn, tmx, tex = reach, lmin, lmax, ex
-            else:
-                tr, tmn, tmx, tex = n_reach, n_lmin, n_lmax, n_ex
-            if not tr[j]:
-                tr[j] = True
-                tmn[j] = a
-                tmx[j] = z
-            else:
-                if a < tmn[j]:
-                    tmn[j] = a
-                if z > tmx[j]:
-                    tmx[j] = z
-            for b in range(nb_):
-                if cand[b] > tex[j, b]:
-                    tex[j, b] = cand[b]
+        if nbp > 0:
+            while d > 1:
+                p = spf[d]
+                ex[j, pidx[p]] += 1
+                d //= p
 
 
 @nb.njit(cache=True, nogil=True)
-def push_mod_windows(
-    vals: np.ndarray, off: np.ndarray, lmin: np.ndarray, win: np.ndarray, dsum: np.ndarray,
-    ptr: np.ndarray, drop: np.ndarray, dest: np.ndarray, w: np.ndarray,
-    n_vals: np.ndarray, n_off: np.ndarray, n_lmin: np.ndarray, n_win: np.ndarray,
-    primes: np.ndarray, inv: np.ndarray, unit: bool, out: np.ndarray,
+def compact_incoming(
+    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray, keep: np.ndarray
+) -> tuple:
+    """Compressed rows restricted to kept moves: (ptr int64, drop int8, src int32, w int64).
+
+    w may be empty (model "moves": every weight is 1); it is then returned empty."""
+    size = ptr.size - 1
+    total = 0
+    for e in range(keep.size):
+        if keep[e]:
+            total += 1
+    new_ptr = np.zeros(size + 1, dtype=np.int64)
+    new_drop = np.empty(total, dtype=np.int8)
+    new_src = np.empty(total, dtype=np.int32)
+    new_w = np.empty(total if w.size else 0, dtype=np.int64)
+    k = 0
+    for j in range(size):
+        for e in range(ptr[j], ptr[j + 1]):
+            if keep[e]:
+                new_drop[k] = drop[e]
+                new_src[k] = src[e]
+                if w.size:
+                    new_w[k] = w[e]
+                k += 1
+        new_ptr[j + 1] = k
+    return new_ptr, new_drop, new_src, new_w
+
+
+# ----------------------------------------------------------------------------- second sweep
+
+
+@nb.njit(cache=True, nogil=True, inline="always")
+def _add_into(dv: np.ndarray, sv: np.ndarray) -> None:
+    """dv += sv word by word (unreduced; a vectorised loop)."""
+    for k in range(sv.size):
+        dv[k] += sv[k]
+
+
+@nb.njit(cache=True, nogil=True, inline="always")
+def _addmul_into(dv: np.ndarray, sv: np.ndarray, we: int, primes: np.ndarray,
+                 pinv: np.ndarray) -> None:
+    """dv += (we * sv mod q) for rows of primes.size residues, 0 <= we < every q."""
+    nq = primes.size
+    for t in range(sv.size // nq):
+        a = dv[t * nq : t * nq + nq]
+        b = sv[t * nq : t * nq + nq]
+        for q in range(nq):
+            a[q] += mulmod(b[q], we, primes[q], pinv[q])
+
+
+@nb.njit(cache=True, nogil=True)
+def pull_mod_windows(
+    vals: np.ndarray, off: np.ndarray, lmin: np.ndarray, win: np.ndarray,
+    up_vals: np.ndarray, up_off: np.ndarray, up_lmin: np.ndarray, up_win: np.ndarray,
+    dsum: np.ndarray, ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray,
+    unit: bool, primes: np.ndarray, pinv: np.ndarray, inv: np.ndarray, out: np.ndarray,
 ) -> None:
     """One layer of the exact sweep over length windows, for one block of primes.
 
-    State i owns words off[i] .. off[i+1]-1 laid out [length in its window][prime], so a
-    move adds one contiguous block.  When the sweep reaches i its words are reduced mod q
-    and multiplied by D(i)^-1 (inv[D, q]); then for every move e, w[e] times the block is
-    added (unreduced) into the destination's block shifted by one length.  Blocks of
-    terminal states are reduced and added into out[length, q].
+    State j owns words off[j] .. off[j+1]-1 laid out [length in its window][prime].  It
+    gathers its predecessors' finished rows (times the move's weight unless `unit`),
+    shifted by one length; then its words are reduced and multiplied by D(j)^-1, or, for a
+    terminal state, added into out[length, q].
     """
     nq = primes.size
-    pinv = np.empty(nq)
-    for q in range(nq):
-        pinv[q] = 1.0 / primes[q]
-    for i in range(win.size):
-        wi = win[i]
-        if wi == 0:
+    for j in range(win.size):
+        wj = win[j]
+        if wj == 0:
             continue
-        s0 = off[i]
-        d = dsum[i]
-        for t in range(wi):
-            base = s0 + t * nq
-            if d == 0:
-                row = lmin[i] + t
-                for q in range(nq):
-                    p = primes[q]
-                    x = reduce63(vals[base + q], p, pinv[q]) + out[row, q]
-                    if x >= p:
-                        x -= p
-                    out[row, q] = x
-            else:
-                for q in range(nq):
-                    p = primes[q]
-                    vals[base + q] = mulmod(
-                        reduce63(vals[base + q], p, pinv[q]), inv[d, q], p, pinv[q]
-                    )
-        if d == 0:
-            continue
-        span = wi * nq
-        for e in range(ptr[i], ptr[i + 1]):
-            j = dest[e]
+        for e in range(ptr[j], ptr[j + 1]):
+            # two written-out branches: selecting an array per move would cost reference
+            # counting on every move
+            i = src[e]
             if drop[e] == 0:
-                tv, toff, tmn = vals, off, lmin
+                span = win[i] * nq
+                d0 = off[j] + (lmin[i] + 1 - lmin[j]) * nq
+                dv = vals[d0 : d0 + span]
+                sv = vals[off[i] : off[i] + span]
             else:
-                tv, toff, tmn = n_vals, n_off, n_lmin
-            d0 = toff[j] + (lmin[i] + 1 - tmn[j]) * nq
-            a = tv[d0 : d0 + span]  # views: lets LLVM vectorise the block add
-            b = vals[s0 : s0 + span]
+                span = up_win[i] * nq
+                d0 = off[j] + (up_lmin[i] + 1 - lmin[j]) * nq
+                dv = vals[d0 : d0 + span]
+                sv = up_vals[up_off[i] : up_off[i] + span]
             if unit:
-                for k in range(span):
-                    a[k] += b[k]
+                _add_into(dv, sv)
             else:
-                we = w[e]
-                for k in range(span):
-                    a[k] += b[k] * we
+                _addmul_into(dv, sv, w[e], primes, pinv)
+        d = dsum[j]
+        for t in range(wj):
+            row = vals[off[j] + t * nq : off[j] + t * nq + nq]
+            if d == 0:
+                add_row_mod(out[lmin[j] + t], row, primes, pinv)
+            else:
+                finish_row(row, primes, pinv, inv[d])
 
 
 @nb.njit(cache=True, nogil=True)
-def push_mod_residues(
-    vals: np.ndarray, reach: np.ndarray, dsum: np.ndarray,
-    ptr: np.ndarray, drop: np.ndarray, dest: np.ndarray, w: np.ndarray,
-    n_vals: np.ndarray, primes: np.ndarray, inv: np.ndarray, unit: bool, out: np.ndarray,
+def pull_mod_residues(
+    vals: np.ndarray, up_vals: np.ndarray, win: np.ndarray, dsum: np.ndarray,
+    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray, unit: bool,
+    primes: np.ndarray, pinv: np.ndarray, inv: np.ndarray, out: np.ndarray,
 ) -> None:
-    """One layer of the winner-only sweep: vals[i, r, q] = P(reach i, length = r mod P).
+    """One layer of the winner-only sweep: vals[j, r, q] = P(reach j, length = r mod P).
 
-    Same reduction scheme as `push_mod_windows`; a move sends residue r to residue r + 1.
+    Same scheme as `pull_mod_windows`; a move sends residue r to residue r + 1 (mod P).
     Terminal rows are added into out[r, q].
     """
-    nq = primes.size
     npl = vals.shape[1]
-    pinv = np.empty(nq)
-    for q in range(nq):
-        pinv[q] = 1.0 / primes[q]
-    for i in range(reach.size):
-        if not reach[i]:
+    for j in range(win.size):
+        if win[j] == 0:
             continue
-        d = dsum[i]
+        for e in range(ptr[j], ptr[j + 1]):
+            i = src[e]
+            for r in range(npl):
+                dv = vals[j, r + 1 if r + 1 < npl else 0]
+                if drop[e] == 0:
+                    sv = vals[i, r]
+                else:
+                    sv = up_vals[i, r]
+                if unit:
+                    _add_into(dv, sv)
+                else:
+                    _addmul_into(dv, sv, w[e], primes, pinv)
+        d = dsum[j]
         for r in range(npl):
             if d == 0:
-                for q in range(nq):
-                    p = primes[q]
-                    x = reduce63(vals[i, r, q], p, pinv[q]) + out[r, q]
-                    if x >= p:
-                        x -= p
-                    out[r, q] = x
+                add_row_mod(out[r], vals[j, r], primes, pinv)
             else:
-                for q in range(nq):
-                    p = primes[q]
-                    vals[i, r, q] = mulmod(
-                        reduce63(vals[i, r, q], p, pinv[q]), inv[d, q], p, pinv[q]
-                    )
-        if d == 0:
-            continue
-        for e in range(ptr[i], ptr[i + 1]):
-            j = dest[e]
-            tv = vals if drop[e] == 0 else n_vals
-            we = w[e]
-            for r in range(npl):
-                r1 = r + 1 if r + 1 < npl else 0
-                a = tv[j, r1]
-                b = vals[i, r]
-                if unit:
-                    for q in range(nq):
-                        a[q] += b[q]
-                else:
-                    for q in range(nq):
-                        a[q] += b[q] * we
+                finish_row(vals[j, r], primes, pinv, inv[d])
 
 
 # ----------------------------------------------------------------------------- drivers
@@ -371,100 +602,205 @@ def max_weight_bound(spec: GameSpec, model: str) -> int:
 
 
 @dataclass(frozen=True, eq=False)
-class Skeleton:
-    """Result of the first sweep: reachable states, windows and the common denominator.
+class Incoming:
+    """Moves into the states of one layer whose source is reachable (compressed rows).
 
-    reach[level] bool per rank; lmin/win[level] int32 (win 0: unreachable);
-    denominator M = lcm over games of prod D(s), with M * P(any event) an integer.
+    Rows of state j: ptr[j]..ptr[j+1]-1; move e comes from rank src[e] of the layer
+    drop[e] levels above, with weight w[e] (w empty: every weight is 1).
     """
 
-    reach: dict[int, np.ndarray]
+    ptr: np.ndarray
+    drop: np.ndarray
+    src: np.ndarray
+    w: np.ndarray
+
+
+@dataclass(frozen=True, eq=False)
+class Skeleton:
+    """Result of the first sweep: reachable states, windows, weights and the denominator.
+
+    Per level (sweep order `levels`, from the start's level down): lmin/win int32 per rank
+    (win 0: unreachable), dsum int64 = D(s) (0: no move), incoming = `Incoming`.
+    denominator M = lcm over games of prod D(s), with M * P(any event) an integer (1 when
+    the sweep ran without exponents).
+    """
+
+    levels: list[int]
+    start_level: int
+    start_rank: int
     lmin: dict[int, np.ndarray]
     win: dict[int, np.ndarray]
+    dsum: dict[int, np.ndarray]
+    incoming: dict[int, Incoming]
     denominator: int
     states: int
     transitions: int
+    terminals: int
     shortest: int
     longest: int
     max_weight: int
+    max_indegree: int
 
 
-def layer_data(space: StateSpace, level: int, model: str):
-    """(LayerMoves, w, D) of one layer under a random model."""
-    lm = space.moves(level)
-    tk_bins, tk_cnt = take_arrays(space.spec)
-    w, dsum = move_weights(lm.states, lm.ptr, lm.move, tk_bins, tk_cnt, model == "pairs")
-    return lm, w, dsum
+def changed_span(spec: GameSpec) -> tuple[np.ndarray, np.ndarray]:
+    """(lo, hi): per move, the lowest and highest bin whose count it changes."""
+    lo = np.zeros(spec.mv_bins.shape[0], dtype=np.int64)
+    hi = np.zeros(spec.mv_bins.shape[0], dtype=np.int64)
+    for m in range(spec.mv_bins.shape[0]):
+        bins = [int(b) for b, d in zip(spec.mv_bins[m], spec.mv_delta[m], strict=True) if d]
+        lo[m], hi[m] = (min(bins), max(bins)) if bins else (0, -1)
+    return lo, hi
 
 
-def first_sweep(space: StateSpace, model: str) -> Skeleton:
-    """Reachability, length windows and the exact lcm denominator M of one game and model."""
+def layer_listing(space: StateSpace, level: int, model: str):
+    """(states, moves into them, D per state, weights of the moves in) of one layer."""
+    spec = space.spec
+    _bins, tk_cnt = take_arrays(spec)
+    lo, hi = changed_span(spec)
+    states = space.states(level)
+    ptr, drop, src, move, dsum, bad = listing_kernel(
+        states, level, space.tab, spec.values, spec.weights, spec.n, spec.mv_bins,
+        spec.mv_delta, spec.mv_drop, lo, hi, tk_cnt, model == "pairs",
+    )
+    if bad >= 0:
+        raise InputError(
+            f"rule set {spec.rules.name!r}: a move inside level {level} does not raise the "
+            "state's rank, so the layers are not in topological order"
+        )
+    lm = LayerMoves(level, states, ptr, drop, src, move)
+    if model == "pairs":
+        w = incoming_weights(states, lm.ptr, lm.move, spec.mv_bins, spec.mv_delta, tk_cnt)
+    else:
+        w = np.zeros(0, dtype=np.int64)
+    return states, lm, dsum, w
+
+
+def _listings(space: StateSpace, levels: list[int], model: str, threads: int) -> Iterator:
+    """`layer_listing` of each level in turn, derived up to `threads` layers ahead."""
+    with ThreadPoolExecutor(max_workers=max(1, threads)) as pool:
+        pending: deque[Future] = deque()
+        todo = iter(levels)
+        for level in todo:
+            pending.append(pool.submit(layer_listing, space, level, model))
+            if len(pending) > threads:
+                break
+        while pending:
+            yield pending.popleft().result()
+            nxt = next(todo, None)
+            if nxt is not None:
+                pending.append(pool.submit(layer_listing, space, nxt, model))
+
+
+def _threads(threads: int | None) -> int:
+    return max(1, threads or os.cpu_count() or 1)
+
+
+@dataclass(frozen=True, eq=False)
+class SweptLayer:
+    """One finished layer of the first sweep: windows, D per state and moves in."""
+
+    level: int
+    lmin: np.ndarray
+    win: np.ndarray
+    dsum: np.ndarray
+    incoming: Incoming
+
+
+def skeleton_layers(
+    space: StateSpace, model: str, exponents: bool = True, threads: int | None = None,
+    totals: dict | None = None,
+) -> Iterator[SweptLayer]:
+    """The first sweep, one finished layer at a time (from the start's level down).
+
+    When the iterator is exhausted, `totals` (if given) holds start_level, start_rank,
+    denominator (1 without `exponents`), states, transitions, terminals, shortest, longest,
+    max_weight and max_indegree.
+    """
     check_model(model)
     spec = space.spec
     if space.max_drop > 1:
         raise InputError("random play supports rule sets whose moves drop the level by <= 1")
-    dbound = max_weight_bound(spec, model)
-    plist = small_primes_upto(dbound)
-    spf = np.zeros(dbound + 1, dtype=np.int64)
-    for p in plist[::-1]:
-        spf[p::p] = p
-    pidx = np.zeros(dbound + 1, dtype=np.int64)
-    pidx[plist] = np.arange(plist.size)
-    nbp = max(1, plist.size)
-    exdt = np.int32
+    if exponents:
+        dbound = max_weight_bound(spec, model)
+        plist = small_primes_upto(dbound)
+        spf = np.zeros(dbound + 1, dtype=np.int64)
+        for p in plist[::-1]:
+            spf[p::p] = p
+        pidx = np.zeros(dbound + 1, dtype=np.int64)
+        pidx[plist] = np.arange(plist.size)
+    else:
+        plist = spf = pidx = np.zeros(0, dtype=np.int64)
+    nbp = plist.size
     start_level, start_rank = space.rank(spec.start)
-
-    def fresh(level: int):
-        size = space.layer_size(level)
-        return (
-            np.zeros(size, dtype=np.bool_),
-            np.zeros(size, dtype=np.int32),
-            np.zeros(size, dtype=np.int32),
-            np.zeros((size, nbp), dtype=exdt),
-        )
-
-    def fresh_empty():
-        z = np.zeros(0, np.int32)
-        return np.zeros(0, np.bool_), z, z.copy(), np.zeros((0, nbp), dtype=exdt)
-
-    cur = fresh(start_level)
-    cur[0][start_rank] = True
-    end_ex = np.zeros(nbp, dtype=exdt)
+    levels = [lv for lv in space.levels if lv <= start_level]
+    end_ex = np.zeros(nbp, dtype=np.int32)
     stats = np.array([0, 0, 0, np.iinfo(np.int64).max, -1, 0], dtype=np.int64)
-    reach_d: dict[int, np.ndarray] = {}
-    lmin_d: dict[int, np.ndarray] = {}
-    win_d: dict[int, np.ndarray] = {}
-    for level in range(start_level, -1, -1):
-        if space.layer_size(level) == 0:
-            continue
-        lm, _w, dsum = layer_data(space, level, model)
-        nxt = fresh(level - 1) if level >= 1 else fresh_empty()
-        first_pass_layer(
-            cur[0], cur[1], cur[2], cur[3], dsum, lm.ptr, lm.drop, lm.dest,
-            nxt[0], nxt[1], nxt[2], nxt[3], spf, pidx, end_ex, stats,
+    z32 = np.zeros(0, dtype=np.int32)
+    empty = (z32, z32, np.zeros((0, nbp), dtype=np.int32))
+    up = empty
+    prev = None
+    max_in = 0
+    for level, (states, lm, dsum, w) in zip(
+        levels, _listings(space, levels, model, _threads(threads)), strict=True
+    ):
+        size = states.shape[0]
+        lmin = np.full(size, UNREACHED, dtype=np.int32)
+        lmax = np.full(size, -1, dtype=np.int32)
+        ex = np.zeros((size, nbp), dtype=np.int32)
+        if level == start_level:
+            lmin[start_rank] = lmax[start_rank] = 0
+        if prev != level + 1:
+            up = empty
+        keep = np.zeros(lm.dest.size, dtype=np.bool_)
+        first_pass_pull(lmin, lmax, ex, *up, lm.ptr, lm.drop, lm.dest, keep, dsum, spf, pidx,
+                        end_ex, stats)
+        reached = lmin != UNREACHED
+        inc = Incoming(*compact_incoming(lm.ptr, lm.drop, lm.dest, w, keep))
+        if size:
+            max_in = max(max_in, int(np.diff(inc.ptr).max()))
+        yield SweptLayer(
+            level=level, lmin=np.where(reached, lmin, 0).astype(np.int32),
+            win=np.where(reached, lmax - lmin + 1, 0).astype(np.int32), dsum=dsum,
+            incoming=inc,
         )
-        reach, lmin, lmax = cur[0], cur[1], cur[2]
-        reach_d[level] = reach
-        lmin_d[level] = np.where(reach, lmin, 0).astype(np.int32)
-        win_d[level] = np.where(reach, lmax - lmin + 1, 0).astype(np.int32)
-        cur = nxt
-    m = 1
-    for b, p in enumerate(plist):
-        if end_ex[b]:
-            m *= int(p) ** int(end_ex[b])
+        up = (lmin, lmax, ex)
+        prev = level
+    if totals is not None:
+        m = 1
+        for b, p in enumerate(plist):
+            if end_ex[b]:
+                m *= int(p) ** int(end_ex[b])
+        totals.update(
+            start_level=start_level, start_rank=start_rank, denominator=m,
+            states=int(stats[0]), transitions=int(stats[1]), terminals=int(stats[2]),
+            shortest=int(stats[3]), longest=int(stats[4]), max_weight=int(stats[5]),
+            max_indegree=max_in,
+        )
+
+
+def first_sweep(
+    space: StateSpace, model: str, exponents: bool = True, threads: int | None = None
+) -> Skeleton:
+    """Reachability, length windows, moves in, and (with `exponents`) the exact lcm
+    denominator M of one game and model."""
+    totals: dict = {}
+    layers = list(skeleton_layers(space, model, exponents, threads, totals))
     return Skeleton(
-        reach=reach_d, lmin=lmin_d, win=win_d, denominator=m, states=int(stats[0]),
-        transitions=int(stats[1]), shortest=int(stats[3]), longest=int(stats[4]),
-        max_weight=int(stats[5]),
+        levels=[x.level for x in layers], lmin={x.level: x.lmin for x in layers},
+        win={x.level: x.win for x in layers}, dsum={x.level: x.dsum for x in layers},
+        incoming={x.level: x.incoming for x in layers}, **totals,
     )
 
 
-def _check_accumulation(space: StateSpace, model: str, primes: list[int]) -> None:
-    """Refuse a run whose unreduced accumulation could overflow int64 (see module doc)."""
-    spec = space.spec
-    wmax = 1 if model == "moves" else max_weight_bound(spec, model)
-    if len(spec.move_names) * (max(primes) - 1) * wmax >= 2**63:
-        raise InputError("n too large for the exact random sweep's int64 accumulation")
+def _check_accumulation(space: StateSpace, skel: Skeleton, model: str,
+                        primes: list[int]) -> None:
+    """Refuse a run outside the proved ranges of `mulmod` and `reduce62` (see module doc)."""
+    if max(primes) >= PRIME_CEILING or min(primes) <= PRIME_FLOOR:
+        raise InputError("residue primes must lie between 2**13 and 2**50")
+    if (skel.max_indegree + 1) * max(primes) >= 2**62:
+        raise InputError("too many moves into one state for the exact sweep's accumulation")
+    if max(skel.max_weight, max_weight_bound(space.spec, model)) >= min(primes):
+        raise InputError("move weights too large for the exact random sweep")
 
 
 def _rebuild(rows: list[list[int]], check: list[int], primes: list[int], check_prime: int,
@@ -488,13 +824,76 @@ def _rebuild(rows: list[list[int]], check: list[int], primes: list[int], check_p
 
 def _prime_blocks(allp: list[int], threads: int | None) -> list[np.ndarray]:
     """Split the primes into one contiguous block per worker thread."""
-    k = max(1, min(threads or os.cpu_count() or 1, len(allp)))
+    k = max(1, min(_threads(threads), len(allp)))
     return [np.array(b, dtype=np.int64) for b in np.array_split(np.array(allp), k) if b.size]
 
 
-def _levels_down(space: StateSpace) -> list[int]:
-    start_level = space.spec.start_level
-    return [lv for lv in range(start_level, -1, -1) if space.layer_size(lv) > 0]
+def _sweep_windows_block(skel: Skeleton, primes: np.ndarray, unit: bool) -> np.ndarray:
+    """out[L, q] = (probability of length L) mod primes[q], one block, whole sweep."""
+    nq = primes.size
+    pinv = 1.0 / primes.astype(np.float64)
+    inv = inverse_table(primes, max(skel.max_weight, 1))
+    out = np.zeros((skel.longest + 1, nq), dtype=np.int64)
+    sizes = [int(skel.win[lv].astype(np.int64).sum()) * nq for lv in skel.levels]
+    ring = [np.empty(max(sizes), dtype=np.int64) for _ in range(2)]
+    z64 = np.zeros(1, dtype=np.int64)
+    z32 = np.zeros(0, dtype=np.int32)
+    up = (z64[:0], z64, z32, z32)
+    prev = None
+    for k, level in enumerate(skel.levels):
+        lmin, win = skel.lmin[level], skel.win[level]
+        off = np.zeros(win.size + 1, dtype=np.int64)
+        np.cumsum(win.astype(np.int64) * nq, out=off[1:])
+        vals = ring[k % 2][: int(off[-1])]
+        vals[:] = 0
+        if level == skel.start_level:
+            vals[off[skel.start_rank] : off[skel.start_rank + 1]] = 1
+        if prev != level + 1:
+            up = (z64[:0], z64, z32, z32)
+        inc = skel.incoming[level]
+        pull_mod_windows(vals, off, lmin, win, *up, skel.dsum[level], inc.ptr, inc.drop,
+                         inc.src, inc.w, unit, primes, pinv, inv, out)
+        up = (vals, off, lmin, win)
+        prev = level
+    return out
+
+
+def _sweep_residues_block(skel: Skeleton, primes: np.ndarray, unit: bool,
+                          players: int) -> np.ndarray:
+    """out[r, q] = P(length = r mod players) mod primes[q], one block, whole sweep."""
+    nq = primes.size
+    pinv = 1.0 / primes.astype(np.float64)
+    inv = inverse_table(primes, max(skel.max_weight, 1))
+    out = np.zeros((players, nq), dtype=np.int64)
+    cap = max(skel.win[lv].size for lv in skel.levels) * players * nq
+    ring = [np.empty(cap, dtype=np.int64) for _ in range(2)]
+    empty = np.zeros((0, players, nq), dtype=np.int64)
+    up = empty
+    prev = None
+    for k, level in enumerate(skel.levels):
+        win = skel.win[level]
+        vals = ring[k % 2][: win.size * players * nq].reshape(win.size, players, nq)
+        vals[:] = 0
+        if level == skel.start_level:
+            vals[skel.start_rank, 0, :] = 1
+        if prev != level + 1:
+            up = empty
+        inc = skel.incoming[level]
+        pull_mod_residues(vals, up, win, skel.dsum[level], inc.ptr, inc.drop, inc.src, inc.w,
+                          unit, primes, pinv, inv, out)
+        up = vals
+        prev = level
+    return out
+
+
+def _run_blocks(
+    blocks: list[np.ndarray], fn: Callable[[np.ndarray], np.ndarray]
+) -> list[np.ndarray]:
+    """fn(block) for every prime block, one thread per block."""
+    if len(blocks) == 1:
+        return [fn(blocks[0])]
+    with ThreadPoolExecutor(len(blocks)) as pool:
+        return list(pool.map(fn, blocks))
 
 
 def exact_length_distribution(
@@ -504,40 +903,9 @@ def exact_length_distribution(
     """({length: exact probability} for lengths of positive probability, primes, check)."""
     primes, check_prime = primes_exceeding(skel.denominator, prime_offset)
     allp = primes + [check_prime]
-    _check_accumulation(space, model, allp)
+    _check_accumulation(space, skel, model, allp)
     blocks = _prime_blocks(allp, threads)
-    invs = [np.ascontiguousarray(inverse_table(list(b), max(skel.max_weight, 1)).T)
-            for b in blocks]
-    outs = [np.zeros((skel.longest + 1, b.size), dtype=np.int64) for b in blocks]
-    start_level, start_rank = space.rank(space.spec.start)
-
-    def alloc(level: int, nq: int):
-        if level not in skel.win:
-            z = np.zeros(0, np.int32)
-            return np.zeros(0, np.int64), np.zeros(1, np.int64), z, z
-        win = skel.win[level]
-        off = np.zeros(win.size + 1, dtype=np.int64)
-        np.cumsum(win.astype(np.int64) * nq, out=off[1:])
-        return np.zeros(int(off[-1]), dtype=np.int64), off, skel.lmin[level], win
-
-    curs = [alloc(start_level, b.size) for b in blocks]
-    for c in curs:
-        c[0][c[1][start_rank] : c[1][start_rank + 1]] = 1
-    with ThreadPoolExecutor(len(blocks)) as pool:
-        for level in _levels_down(space):
-            lm, w, dsum = layer_data(space, level, model)
-            nxts = [alloc(level - 1, b.size) for b in blocks]
-
-            def run(k: int, lm=lm, w=w, dsum=dsum, nxts=nxts, curs=curs) -> None:
-                cur, nxt = curs[k], nxts[k]
-                push_mod_windows(
-                    cur[0], cur[1], cur[2], cur[3], dsum, lm.ptr, lm.drop, lm.dest, w,
-                    nxt[0], nxt[1], nxt[2], nxt[3], blocks[k], invs[k], model == "moves",
-                    outs[k],
-                )
-
-            list(pool.map(run, range(len(blocks))))
-            curs = nxts
+    outs = _run_blocks(blocks, lambda b: _sweep_windows_block(skel, b, model == "moves"))
     out = np.concatenate(outs, axis=1)
     lengths = [L for L in range(out.shape[0]) if out[L].any()]
     rows = [[int(x) for x in out[L, : len(primes)]] for L in lengths]
@@ -553,35 +921,11 @@ def exact_win_residues(
     """({r: P(length = r mod players)}, primes, check) without any length window."""
     primes, check_prime = primes_exceeding(skel.denominator, prime_offset)
     allp = primes + [check_prime]
-    _check_accumulation(space, model, allp)
+    _check_accumulation(space, skel, model, allp)
     blocks = _prime_blocks(allp, threads)
-    invs = [np.ascontiguousarray(inverse_table(list(b), max(skel.max_weight, 1)).T)
-            for b in blocks]
-    outs = [np.zeros((players, b.size), dtype=np.int64) for b in blocks]
-    start_level, start_rank = space.rank(space.spec.start)
-
-    def alloc(level: int, nq: int):
-        if level not in skel.reach:
-            return np.zeros((0, players, nq), np.int64), np.zeros(0, np.bool_)
-        r = skel.reach[level]
-        return np.zeros((r.size, players, nq), dtype=np.int64), r
-
-    curs = [alloc(start_level, b.size) for b in blocks]
-    for c in curs:
-        c[0][start_rank, 0, :] = 1
-    with ThreadPoolExecutor(len(blocks)) as pool:
-        for level in _levels_down(space):
-            lm, w, dsum = layer_data(space, level, model)
-            nxts = [alloc(level - 1, b.size) for b in blocks]
-
-            def run(k: int, lm=lm, w=w, dsum=dsum, nxts=nxts, curs=curs) -> None:
-                push_mod_residues(
-                    curs[k][0], curs[k][1], dsum, lm.ptr, lm.drop, lm.dest, w, nxts[k][0],
-                    blocks[k], invs[k], model == "moves", outs[k],
-                )
-
-            list(pool.map(run, range(len(blocks))))
-            curs = nxts
+    outs = _run_blocks(
+        blocks, lambda b: _sweep_residues_block(skel, b, model == "moves", players)
+    )
     out = np.concatenate(outs, axis=1)
     rows = [[int(x) for x in out[r, : len(primes)]] for r in range(players)]
     check = [int(out[r, len(primes)]) for r in range(players)]
@@ -699,7 +1043,7 @@ def random_play(
     rs = get_rules(rules)
     t0 = time.perf_counter()
     space = build_space(rs.instantiate(n))
-    skel = first_sweep(space, model)
+    skel = first_sweep(space, model, threads=threads)
     t1 = time.perf_counter()
     moments: dict = {}
     gauss: dict = {}

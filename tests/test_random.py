@@ -187,3 +187,66 @@ def test_cli_json_and_errors() -> None:
 def test_bad_model_is_input_error() -> None:
     with pytest.raises(InputError):
         random_play(5, model="tokens")
+
+
+# Source: Python's exact integer arithmetic (a * b % p), on random and edge-case inputs, for
+# the float-assisted products of the exact sweep (proof in zeckenum.randomplay.mulmod).
+def test_mulmod_and_reduce_match_python_integers() -> None:
+    from zeckenum.randomplay import PRIME_CEILING, mulmod, reduce62, word_primes
+
+    rng = np.random.default_rng(20240611)
+    primes = word_primes(3) + word_primes(2, offset=200) + [2**49 + 9, 1_000_003, 8209, 3]
+    for p in primes:
+        assert p < PRIME_CEILING
+        pinv = 1.0 / p
+        edge = [0, 1, 2, p // 2, p // 2 + 1, p - 2, p - 1]
+        rand = [int(x) % p for x in rng.integers(0, 2**62, size=400, dtype=np.int64)]
+        vals = [x for x in edge if 0 <= x < p] + rand
+        for a in vals[:60]:
+            for b in vals[:60]:
+                assert mulmod(a, b, p, pinv) == a * b % p, (a, b, p)
+        for a, b in zip(rand, rand[::-1], strict=True):
+            assert mulmod(a, b, p, pinv) == a * b % p, (a, b, p)
+        if p > 2**13:
+            xs = [0, 1, p - 1, p, p + 1, 2 * p - 1, 2**62 - 1, 2**62 - p, (2**62 // p) * p,
+                  (2**62 // p) * p - 1] + [int(x) for x in rng.integers(0, 2**62, size=400)]
+            for x in xs:
+                assert reduce62(x, p, pinv) == x % p, (x, p)
+
+
+# Source: common practice (the incremental ranks of the random sweeps' listing agree with
+# the state space's own listing of moves into each layer, for every shipped rule set).
+def test_incremental_listing_matches_statespace() -> None:
+    from zeckenum.randomplay import layer_listing, take_arrays, total_weights
+    from zeckenum.rules import BUILTIN
+    from zeckenum.statespace import build_space
+
+    for name, rs in BUILTIN.items():
+        for n in (1, 2, 7, 16, 29):
+            space = build_space(rs.instantiate(n))
+            spec = space.spec
+            _bins, tk_cnt = take_arrays(spec)
+            for level in space.levels:
+                states, lm, dsum, _w = layer_listing(space, level, "pairs")
+                ref = space.predecessors(level, states)
+                assert np.array_equal(ref.ptr, lm.ptr), (name, n, level)
+                assert np.array_equal(ref.drop, lm.drop), (name, n, level)
+                assert np.array_equal(ref.dest, lm.dest), (name, n, level)
+                assert np.array_equal(ref.move, lm.move), (name, n, level)
+                d2 = total_weights(states, level, space.top, spec.mv_bins, spec.mv_delta,
+                                   spec.mv_drop, tk_cnt, True)
+                assert np.array_equal(dsum, d2), (name, n, level)
+
+
+# Source: fractions.Fraction brute force; the exact result does not depend on the prime
+# blocks (thread count) or on which primes are used (disjoint prime sets).
+@pytest.mark.parametrize("model", MODELS)
+def test_exact_independent_of_threads_and_primes(model: str) -> None:
+    ref = length_law(12, model)
+    one = random_play(12, model=model, threads=1)
+    two = random_play(12, model=model, threads=2, prime_offset=50)
+    assert one.length_probability == ref and two.length_probability == ref
+    assert not set(one.primes) & set(two.primes)
+    w1 = random_play(12, model=model, threads=1, winners_only=True)
+    w2 = random_play(12, model=model, threads=2, winners_only=True, prime_offset=50)
+    assert w1.win_probability == w2.win_probability == win_law(ref, 2)
