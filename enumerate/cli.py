@@ -12,6 +12,7 @@ import sys
 import click
 
 from . import __version__
+from .cli_cluster import plan_command, table_command, verify_command
 from .cli_random import random_command
 from .cli_rules import rules_group
 from .cli_solve import check_strategy_command, solve_command
@@ -142,7 +143,16 @@ def format_count(res: CountResult) -> str:
               help="Memory limit, e.g. 4G (default: what the machine has available).")
 @click.option("--progress/--no-progress", default=False, help="Show a progress bar on stderr.")
 @RULES_OPTION
-def count_command(n, as_json, out, threads, prime_offset, max_memory, progress, rules) -> None:  # noqa: ANN001, E501
+@click.option("--workers", type=click.IntRange(min=1), default=None,
+              help="Run the prime blocks on a local Dask cluster of K worker processes.")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Run the prime blocks on an existing Dask cluster (e.g. tcp://host:8786).")
+@click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False), default=None,
+              help="Keep each finished block in DIR; rerunning resumes from it.")
+def count_command(
+    n, as_json, out, threads, prime_offset, max_memory, progress, rules, workers, scheduler,
+    checkpoint_dir,
+) -> None:
     """Count every game started from N (by default: the standard game, N tokens in F1).
 
     Prints reachable states, transitions, the exact number of games, the shortest and
@@ -153,12 +163,21 @@ def count_command(n, as_json, out, threads, prime_offset, max_memory, progress, 
       zeckenum count 30
       zeckenum count 200 --json --out spectrum200.csv
       zeckenum count 40 --rules reversed
+      zeckenum count 180 --workers 2 --checkpoint ckpt180
     """
     try:
-        res = count(
-            n, rules, threads=threads, prime_offset=prime_offset, max_memory=max_memory,
-            progress=progress,
-        )
+        if workers or scheduler or checkpoint_dir:
+            from .cluster.run import run_count
+
+            res = run_count(
+                n, rules, workers=workers, scheduler=scheduler, checkpoint_dir=checkpoint_dir,
+                progress=progress, prime_offset=prime_offset, threads=threads,
+            )
+        else:
+            res = count(
+                n, rules, threads=threads, prime_offset=prime_offset, max_memory=max_memory,
+                progress=progress,
+            )
         if out:
             res.write(out)
     except ZeckenumError as exc:
@@ -177,6 +196,9 @@ main.add_command(games_command)
 main.add_command(movestats_command)
 main.add_command(plot_command)
 main.add_command(report_command)
+main.add_command(table_command)
+main.add_command(verify_command)
+main.add_command(plan_command)
 
 
 if __name__ == "__main__":  # pragma: no cover

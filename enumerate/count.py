@@ -163,31 +163,12 @@ def count(
 
     residues = np.concatenate([p[0] for p in parts], axis=0)
     updates = sum(p[1] for p in parts)
-    nrec = len(primes)
-    lengths = range(windows.shortest, windows.longest + 1)
-    values = reconstruct(
-        [[int(x) for x in residues[:nrec, length]] for length in lengths],
-        primes,
-        check_prime,
-        [int(residues[nrec, length]) for length in lengths],
-        what="count of games of one length",
-    )
-    length_counts = {L: v for L, v in zip(lengths, values, strict=True) if v}
-    t3 = time.perf_counter()
-    return CountResult(
-        rules=ruleset.name,
-        rules_hash=ruleset.content_hash(),
-        n=n,
-        states=windows.states,
-        transitions=windows.transitions,
-        games=sum(length_counts.values()),
-        shortest=min(length_counts),
-        longest=max(length_counts),
-        length_counts=length_counts,
-        primes=tuple(primes),
-        check_prime=check_prime,
+    return assemble_count(
+        ruleset.name, ruleset.content_hash(), n, windows.states, windows.transitions,
+        windows.shortest, windows.longest,
+        primes, check_prime, residues,
         stats={
-            "seconds_total": round(t3 - t0, 3),
+            "seconds_total": round(time.perf_counter() - t0, 3),
             "seconds_windows": round(t1 - t0, 3),
             "seconds_exact": round(t2 - t1, 3),
             "word_updates": int(updates),
@@ -197,4 +178,49 @@ def count(
             "count_bits": windows.count_bits,
             "terminal_states": windows.terminals,
         },
+    )
+
+
+def assemble_count(
+    rules_name: str,
+    rules_hash: str,
+    n: int,
+    states: int,
+    transitions: int,
+    shortest: int,
+    longest: int,
+    primes: list[int],
+    check_prime: int,
+    residues: np.ndarray,
+    stats: dict,
+) -> CountResult:
+    """The CountResult from the spectrum's residues, rows in the order primes + [check].
+
+    Garner's CRT rebuilds the count of each length from shortest to longest, checked
+    against the check prime (CheckPrimeMismatch on any disagreement).  Shared by the
+    in-process path and the cluster path (`zeckenum.cluster.run`).
+    """
+    nrec = len(primes)
+    lengths = range(shortest, longest + 1)
+    values = reconstruct(
+        [[int(x) for x in residues[:nrec, length]] for length in lengths],
+        list(primes),
+        check_prime,
+        [int(residues[nrec, length]) for length in lengths],
+        what="count of games of one length",
+    )
+    length_counts = {L: v for L, v in zip(lengths, values, strict=True) if v}
+    return CountResult(
+        rules=rules_name,
+        rules_hash=rules_hash,
+        n=n,
+        states=states,
+        transitions=transitions,
+        games=sum(length_counts.values()),
+        shortest=min(length_counts),
+        longest=max(length_counts),
+        length_counts=length_counts,
+        primes=tuple(primes),
+        check_prime=check_prime,
+        stats=stats,
     )

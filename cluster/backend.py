@@ -1,0 +1,377 @@
+"""Where shards run: threads in this process, a local Dask cluster, or an existing one.
+
+`open_pool(workers=None, scheduler=None)` yields a `Pool`:
+
+* neither given: threads in this process (nothing is started);
+* `workers=K`: a `distributed.LocalCluster` of K worker processes (one thread each) on
+  127.0.0.1 with free ports, closed when the block exits, even on error;
+* `scheduler=ADDRESS`: a client of an existing cluster (nothing is started or closed).
+
+Numba's on-disk cache is not safe when several processes compile the same function at once
+(numba issues 4807 and 10128).  So the client compiles first (`warm_up`: a tiny count in
+this process), and every worker process gets a cache folder of its own, a *slot* under
+`$ZECKENUM_NUMBA_CACHE` (default: <tmp>/zeckenum-numba-<uid>) held with an exclusive
+`flock` (the kernel drops the lock when its holder dies, even by SIGKILL):
+
+* `--workers K`: the client locks K slots, copies its freshly compiled kernels into them
+  (`seed_slot`) and starts worker i with NUMBA_CACHE_DIR set to slot i, so the worker
+  loads the kernels instead of compiling them (seconds instead of tens of seconds);
+* `--scheduler ADDRESS`: the `NumbaCacheSlot` worker plugin locks a free slot on the
+  worker's own machine before the worker imports zeckenum (a worker started with
+  NUMBA_CACHE_DIR already set keeps it).  Slots persist, so later runs load the kernels.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import os
+import queue
+import tempfile
+import threading
+from collections.abc import Callable, Iterator
+from concurrent.futures import Future, ThreadPoolExecutor
+from pathlib import Path
+
+from ..errors import InputError
+
+log = logging.getLogger("zeckenum.cluster")
+
+_warm = threading.Lock()
+_warmed = False
+
+
+def warm_up() -> None:
+    """Compile (or load) every kernel of `count` in this process, once."""
+    global _warmed
+    with _warm:
+        if not _warmed:
+            from ..count import count
+
+            count(5, threads=1)
+            _warmed = True
+
+
+def warm_worker() -> bool:
+    """Run on each worker when a pool opens: import zeckenum and load (or compile) its
+    kernels there, so the first shard does not pay for it."""
+    warm_up()
+    return True
+
+
+def cache_base() -> Path:
+    """Folder of the per-worker numba cache slots."""
+    env = os.environ.get("ZECKENUM_NUMBA_CACHE")
+    if env:
+        return Path(env)
+    uid = os.getuid() if hasattr(os, "getuid") else 0
+    return Path(tempfile.gettempdir()) / f"zeckenum-numba-{uid}"
+
+
+_PLUGIN_SOURCE = """
+def setup(self, worker):
+    import os
+    import sys
+    import tempfile
+
+    if os.environ.get("NUMBA_CACHE_DIR"):
+        return
+    if "zeckenum.spectrum" in sys.modules:
+        import logging
+
+        logging.getLogger("zeckenum.cluster").warning(
+            "zeckenum was imported before its numba cache slot was set; keeping the default")
+        return
+    base = os.environ.get("ZECKENUM_NUMBA_CACHE") or os.path.join(
+        tempfile.gettempdir(), "zeckenum-numba-%d" % (os.getuid() if hasattr(os, "getuid") else 0))
+    os.makedirs(base, exist_ok=True)
+    try:
+        import fcntl
+    except ImportError:
+        slot = os.path.join(base, "pid-%d" % os.getpid())
+    else:
+        for i in range(4096):
+            fd = os.open(os.path.join(base, "slot-%d.lock" % i), os.O_CREAT | os.O_RDWR, 0o600)
+            try:
+                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except OSError:
+                os.close(fd)
+                continue
+            self._lock_fd = fd  # held for the life of the worker process
+            slot = os.path.join(base, "slot-%d" % i)
+            break
+        else:
+            slot = os.path.join(base, "pid-%d" % os.getpid())
+    os.makedirs(slot, exist_ok=True)
+    os.environ["NUMBA_CACHE_DIR"] = slot
+    if "numba" in sys.modules:
+        from numba.core import config
+
+        config.CACHE_DIR = slot
+"""
+
+
+def _make_plugin():  # noqa: ANN202
+    """The `NumbaCacheSlot` worker plugin: a slot folder of its own for each worker process.
+
+    Its code must reach the worker without importing zeckenum (importing any part of the
+    package compiles or loads the kernels, fixing their cache folder).  So the plugin is
+    built from source in a namespace that is not an importable module: cloudpickle then
+    ships it by value, and unpickling it on the worker imports nothing of ours.  The slot
+    rule is the same as `claim_slots` (first free `flock`ed slot under the cache base).
+    """
+    from distributed.diagnostics.plugin import WorkerPlugin
+
+    module = "zeckenum_numba_cache_slot_plugin"  # deliberately not importable
+    ns: dict = {"__name__": module}
+    exec(compile(_PLUGIN_SOURCE, "<zeckenum numba cache slot plugin>", "exec"), ns)  # noqa: S102
+    cls = type("NumbaCacheSlot", (WorkerPlugin,), {
+        "__module__": module, "name": "zeckenum-numba-cache-slot", "setup": ns["setup"],
+        "__doc__": "Give each worker process its own numba cache folder.",
+    })
+    return cls()
+
+
+class Pool:
+    """Runs task functions somewhere and hands back their futures as they finish."""
+
+    kind = "pool"
+
+    def submit(self, fn: Callable, *args, priority: int = 0,
+               where: list[str] | None = None) -> Future:
+        raise NotImplementedError
+
+    def completion(self) -> Completion:
+        raise NotImplementedError
+
+    @property
+    def workers(self) -> list[str]:
+        raise NotImplementedError
+
+
+class Completion:
+    """Futures in the order they finish; more can be added while iterating."""
+
+    def __init__(self) -> None:
+        self._q: queue.Queue = queue.Queue()
+        self._pending = 0
+
+    def add(self, fut: Future) -> None:
+        self._pending += 1
+        fut.add_done_callback(self._q.put)
+
+    def __iter__(self) -> Iterator[Future]:
+        while self._pending:
+            fut = self._q.get()
+            self._pending -= 1
+            yield fut
+
+
+class ThreadPool(Pool):
+    """Shards in threads of this process (the kernels release the GIL)."""
+
+    kind = "in-process"
+
+    def __init__(self, threads: int | None = None) -> None:
+        self.threads = threads or os.cpu_count() or 1
+        self._ex = ThreadPoolExecutor(max_workers=self.threads)
+
+    def submit(self, fn, *args, priority=0, where=None):  # noqa: ANN001, ANN002
+        return self._ex.submit(fn, *args)
+
+    def completion(self) -> Completion:
+        return Completion()
+
+    @property
+    def workers(self) -> list[str]:
+        return [""] * self.threads
+
+    def close(self) -> None:
+        self._ex.shutdown(wait=True, cancel_futures=True)
+
+
+class DaskCompletion(Completion):
+    """`distributed.as_completed` (works the same against a remote scheduler)."""
+
+    def __init__(self, client) -> None:  # noqa: ANN001
+        from distributed import as_completed
+
+        self._ac = as_completed([], loop=client.loop, with_results=False)
+        self._client = client
+
+    def add(self, fut) -> None:  # noqa: ANN001
+        self._ac.add(fut)
+
+    def __iter__(self):
+        return iter(self._ac)
+
+
+class DaskPool(Pool):
+    """Shards as tasks of a Dask cluster."""
+
+    kind = "dask"
+
+    def __init__(self, client) -> None:  # noqa: ANN001
+        self.client = client
+
+    def submit(self, fn, *args, priority=0, where=None):  # noqa: ANN001, ANN002
+        return self.client.submit(
+            fn, *args, pure=False, priority=priority, workers=where,
+            allow_other_workers=where is not None,
+        )
+
+    def completion(self) -> Completion:
+        return DaskCompletion(self.client)
+
+    @property
+    def workers(self) -> list[str]:
+        return sorted(self.client.scheduler_info(n_workers=-1)["workers"])
+
+
+def start_local_cluster(workers: int, **kwargs):  # noqa: ANN201
+    """A LocalCluster of `workers` processes x 1 thread on 127.0.0.1, free ports, no dashboard.
+
+    Worker i is started with NUMBA_CACHE_DIR set to a cache slot that this process locks
+    (`claim_slots`), so the folder is the worker's alone from its first import on; a worker
+    the nanny restarts gets the same slot back (the old process is gone by then).
+    """
+    from distributed import LocalCluster
+
+    cluster = LocalCluster(
+        n_workers=0, threads_per_worker=1, processes=True, host="127.0.0.1",
+        scheduler_port=0, dashboard_address=None, silence_logs=logging.ERROR, **kwargs,
+    )
+    try:
+        slots = claim_slots(workers)
+        cluster._zeckenum_slot_fds = [fd for fd, _ in slots]
+        for i, (_, folder) in enumerate(slots):
+            seed_slot(folder)
+            spec = dict(cluster.new_spec)
+            options = dict(spec["options"])
+            options["env"] = {**(options.get("env") or {}), "NUMBA_CACHE_DIR": str(folder)}
+            cluster.worker_spec[f"w{i}"] = {"cls": spec["cls"], "options": options}
+        cluster.scale(workers)
+    except BaseException:
+        close_cluster(cluster)
+        raise
+    return cluster
+
+
+def claim_slots(count: int, base: Path | None = None) -> list[tuple[int, Path]]:
+    """Lock `count` free cache slot folders for workers this process starts."""
+    import fcntl
+
+    base = cache_base() if base is None else Path(base)
+    base.mkdir(parents=True, exist_ok=True)
+    out: list[tuple[int, Path]] = []
+    for i in range(4096):
+        if len(out) == count:
+            break
+        fd = os.open(base / f"slot-{i}.lock", os.O_CREAT | os.O_RDWR, 0o600)
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            os.close(fd)
+            continue
+        folder = base / f"slot-{i}"
+        folder.mkdir(exist_ok=True)
+        out.append((fd, folder))
+    return out
+
+
+def seed_slot(folder: Path) -> int:
+    """Copy this process's compiled zeckenum kernels into a slot folder; files copied.
+
+    Run after `warm_up` and before the slot's worker starts (the slot is locked by this
+    process, so nobody else touches it).  Uses numba's own rule for where a cache folder
+    keeps a source folder's files, so the worker finds them and loads instead of
+    compiling (seconds instead of tens of seconds).  Files already there are kept; each
+    copy is atomic (temporary file + rename).  Any failure only means the worker compiles.
+    """
+    try:
+        from numba.core.caching import _CacheLocator
+
+        from .. import spectrum
+
+        src = Path(spectrum.pull_residues._cache._cache_path)
+        dst = Path(folder) / _CacheLocator.get_suitable_cache_subpath(spectrum.__file__)
+        dst.mkdir(parents=True, exist_ok=True)
+        copied = 0
+        for f in src.iterdir():
+            if f.suffix not in (".nbi", ".nbc") or (dst / f.name).exists():
+                continue
+            tmp = dst / f".{f.name}.{os.getpid()}.tmp"
+            tmp.write_bytes(f.read_bytes())
+            os.replace(tmp, dst / f.name)
+            copied += 1
+        return copied
+    except Exception as exc:  # noqa: BLE001 - seeding is an optimisation only
+        log.info("numba cache seeding skipped: %s", exc)
+        return 0
+
+
+def close_cluster(cluster) -> None:  # noqa: ANN001
+    """Close a cluster from `start_local_cluster` and release its cache slots."""
+    try:
+        cluster.close()
+    finally:
+        for fd in getattr(cluster, "_zeckenum_slot_fds", []):
+            os.close(fd)
+
+
+def connect(address_or_cluster, workers: int | None = None, plugin: bool = True):  # noqa: ANN001, ANN201
+    """A Client (with the numba cache slot plugin unless `plugin` is False); waits for
+    `workers` workers."""
+    from distributed import Client
+
+    client = Client(address_or_cluster, set_as_default=False, timeout=15)
+    try:
+        if plugin:
+            client.register_plugin(_make_plugin())
+        if workers:
+            client.wait_for_workers(workers, timeout=120)
+        client.run(warm_worker)
+    except BaseException:
+        client.close()
+        raise
+    return client
+
+
+@contextlib.contextmanager
+def open_pool(
+    workers: int | None = None, scheduler: str | None = None, threads: int | None = None
+) -> Iterator[Pool]:
+    """A `Pool` for the requested backend, closed (cluster included) on exit."""
+    if workers is not None and scheduler is not None:
+        raise InputError("give either --workers or --scheduler, not both")
+    if workers is not None and workers < 1:
+        raise InputError(f"workers must be >= 1, got {workers}")
+    warm_up()
+    if scheduler is not None:
+        try:
+            client = connect(scheduler)
+        except (OSError, TimeoutError) as exc:
+            raise InputError(f"cannot reach the Dask scheduler at {scheduler}: {exc}") from None
+        try:
+            if not client.scheduler_info(n_workers=-1)["workers"]:
+                client.wait_for_workers(1, timeout=60)
+            yield DaskPool(client)
+        finally:
+            client.close()
+        return
+    if workers is not None:
+        cluster = start_local_cluster(workers)
+        client = None
+        try:
+            client = connect(cluster, workers, plugin=False)
+            yield DaskPool(client)
+        finally:
+            if client is not None:
+                client.close()
+            close_cluster(cluster)
+        return
+    pool = ThreadPool(threads)
+    try:
+        yield pool
+    finally:
+        pool.close()

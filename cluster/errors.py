@@ -1,0 +1,17 @@
+"""Errors of the Dask layer; each is a `ZeckenumError`, so the CLI prints one line."""
+
+from __future__ import annotations
+
+from ..errors import InputError, ZeckenumError
+
+
+class CheckpointRefused(InputError):
+    """A checkpoint directory written for other parameters (n, rules, primes, code version)."""
+
+    exit_code = 2
+
+
+class TableCheckFailed(ZeckenumError):
+    """A published table failed `verify`: a checksum or a recomputed row disagrees."""
+
+    exit_code = 5

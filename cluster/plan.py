@@ -1,0 +1,121 @@
+"""Shard plans: which primes an exact count uses and how they are cut into blocks.
+
+Every prime costs the same work (the exact sweep does the same word updates per prime), so
+blocks of equal size balance.  The default aims at `count.PRIMES_PER_BLOCK` primes per
+block and rounds the number of blocks up to a multiple of the workers, so that every
+worker gets the same share; `blocks=` or `max_primes_per_block=` override it (tests use
+them to get several shards at small n).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from ..count import PRIMES_PER_BLOCK
+from ..errors import InputError
+from ..modular import primes_for_bits
+from .tasks import Facts
+
+
+@dataclass(frozen=True)
+class ShardPlan:
+    """The primes of one exact count and their blocks (shard i computes blocks[i]).
+
+    The last prime of the last block is the check prime; `primes` are the ones the CRT uses.
+    """
+
+    rules: str
+    rules_hash: str
+    n: int
+    prime_offset: int
+    primes: tuple[int, ...]
+    check_prime: int
+    blocks: tuple[tuple[int, ...], ...]
+
+    @property
+    def all_primes(self) -> tuple[int, ...]:
+        return (*self.primes, self.check_prime)
+
+    def to_dict(self) -> dict:
+        """JSON form: primes as decimal strings (they exceed 2**53)."""
+        return {
+            "rules": self.rules,
+            "rules_hash": self.rules_hash,
+            "n": self.n,
+            "prime_offset": self.prime_offset,
+            "primes": [str(p) for p in self.primes],
+            "check_prime": str(self.check_prime),
+            "blocks": [[str(p) for p in b] for b in self.blocks],
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> ShardPlan:
+        return cls(
+            rules=str(d["rules"]),
+            rules_hash=str(d["rules_hash"]),
+            n=int(d["n"]),
+            prime_offset=int(d["prime_offset"]),
+            primes=tuple(int(p) for p in d["primes"]),
+            check_prime=int(d["check_prime"]),
+            blocks=tuple(tuple(int(p) for p in b) for b in d["blocks"]),
+        )
+
+
+def block_count(
+    nprimes: int, workers: int = 1, blocks: int | None = None,
+    max_primes_per_block: int | None = None,
+) -> int:
+    """How many blocks `nprimes` primes are cut into (1 .. nprimes)."""
+    if blocks is not None:
+        if blocks < 1:
+            raise InputError(f"blocks must be >= 1, got {blocks}")
+        return min(nprimes, blocks)
+    if max_primes_per_block is not None:
+        if max_primes_per_block < 1:
+            raise InputError(f"max primes per block must be >= 1, got {max_primes_per_block}")
+        return min(nprimes, math.ceil(nprimes / max_primes_per_block))
+    workers = max(1, workers)
+    k = math.ceil(nprimes / PRIMES_PER_BLOCK)
+    return min(nprimes, workers * math.ceil(k / workers))
+
+
+def split_evenly(primes: tuple[int, ...], nblocks: int) -> tuple[tuple[int, ...], ...]:
+    """`primes` cut into `nblocks` consecutive blocks whose sizes differ by at most one."""
+    base, extra = divmod(len(primes), nblocks)
+    out, i = [], 0
+    for b in range(nblocks):
+        size = base + (1 if b < extra else 0)
+        out.append(tuple(primes[i : i + size]))
+        i += size
+    return tuple(out)
+
+
+def make_plan(
+    facts: Facts, prime_offset: int = 0, workers: int = 1, blocks: int | None = None,
+    max_primes_per_block: int | None = None,
+) -> ShardPlan:
+    """The shard plan of the game described by `facts`."""
+    primes, check = primes_for_bits(facts.count_bits, prime_offset)
+    allp = (*primes, check)
+    nblocks = block_count(len(allp), workers, blocks, max_primes_per_block)
+    return ShardPlan(
+        rules=facts.rules,
+        rules_hash=facts.rules_hash,
+        n=facts.n,
+        prime_offset=prime_offset,
+        primes=tuple(primes),
+        check_prime=check,
+        blocks=split_evenly(allp, nblocks),
+    )
+
+
+def worker_bytes(facts: Facts, plan: ShardPlan, threads: int = 1) -> int:
+    """Peak bytes of one worker running `threads` shards of `plan` at once.
+
+    The per-state windows and shared move lists of the game, plus for each running shard
+    its layers in flight (words_one words per prime of the block) and fixed buffers.
+    """
+    biggest = sorted((len(b) for b in plan.blocks), reverse=True)[:threads]
+    per_block = sum(facts.words_one * 8 * b + facts.fixed_bytes for b in biggest)
+    return facts.window_bytes + facts.shared_bytes + per_block

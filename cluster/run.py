@@ -1,0 +1,329 @@
+"""Exact counts run as shards: in threads, on a local Dask cluster, or on a remote one.
+
+`run_count(n, workers=..., scheduler=..., checkpoint_dir=...)` gives the same
+`CountResult` as `zeckenum.count(n)` (equal field by field; only `stats` differ).  The
+flow for one n:
+
+1. First sweep: `tasks.prepare_task(rules, n)`.  On a Dask cluster it is sent to every
+   worker at once, so each worker builds its own windows in parallel and the first answer
+   plans the run; in-process it runs once and the threads share it.
+2. Plan: `plan.make_plan` takes the primes for the size bound (`modular.primes_for_bits`,
+   plus the check prime) and cuts them into equal blocks, a multiple of the workers.
+3. Shards: one `tasks.spectrum_task(rules, n, block)` per block; each finished shard is
+   written to the checkpoint (if any) as soon as it arrives.
+4. `assemble` rebuilds every length's count by the CRT (`modular.reconstruct`, checked
+   against the check prime) into a `results.CountResult`, exactly as `count.count` does.
+
+With a checkpoint directory the plan and the first sweep's facts come from its manifest,
+verified shards are reused and only the others are computed (`stats["shards_reused"]`,
+`stats["shards_computed"]`).  Ranges of n (`run_counts`) submit one task per (n, block);
+on a cluster the largest n go first and the blocks of one n prefer the worker that swept
+it (its windows are cached there).
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from ..count import assemble_count, check_n
+from ..errors import InputError
+from ..memory import available_bytes, refuse_if_over
+from ..results import CountResult
+from ..rules import RuleSet, get_rules
+from . import checkpoint as ckpt
+from .backend import DaskPool, Pool, ThreadPool, open_pool
+from .plan import ShardPlan, make_plan, worker_bytes
+from .tasks import Facts, prepare_task, spectrum_task
+
+
+@dataclass
+class _Job:
+    """Book-keeping of one n while its shards run."""
+
+    n: int
+    facts: Facts | None = None
+    plan: ShardPlan | None = None
+    cp: ckpt.Checkpoint | None = None
+    residues: list = field(default_factory=list)
+    updates: list = field(default_factory=list)
+    reused: int = 0
+    computed: int = 0
+    rejected: int = 0
+    t0: float = 0.0
+
+
+def assemble(facts: Facts, plan: ShardPlan, residues: list[np.ndarray], stats: dict) -> CountResult:
+    """The `CountResult` of one n from its shards' residues (in block order).
+
+    The same reconstruction as `count.count`: Garner's CRT per length over the plan's
+    primes, checked against the check prime (CheckPrimeMismatch on disagreement).
+    """
+    return assemble_count(
+        facts.rules, facts.rules_hash, facts.n, facts.states, facts.transitions,
+        facts.shortest, facts.longest,
+        list(plan.primes), plan.check_prime, np.concatenate(residues, axis=0), stats,
+    )
+
+
+def _wanted(ruleset: RuleSet, n: int, prime_offset: int) -> dict:
+    from .. import __version__
+
+    return {
+        "rules": ruleset.name, "rules_hash": ruleset.content_hash(), "n": n,
+        "prime_offset": prime_offset, "version": __version__,
+    }
+
+
+def _worker_limit(pool: Pool) -> int | None:
+    """Memory one worker may use: the smallest memory limit of the cluster's workers
+    (None: unknown or unlimited), or in-process what the machine has available."""
+    if not isinstance(pool, DaskPool):
+        return available_bytes()
+    info = pool.client.scheduler_info(n_workers=-1)["workers"].values()
+    limits = [int(w.get("memory_limit") or 0) for w in info]
+    limits = [x for x in limits if x > 0]
+    return min(limits) if limits else None
+
+
+def count_on_pool(
+    ns: Iterable[int],
+    rules: str | RuleSet,
+    pool: Pool,
+    *,
+    prime_offset: int = 0,
+    checkpoint_dir: str | Path | None = None,
+    blocks: int | None = None,
+    max_primes_per_block: int | None = None,
+    progress: bool = False,
+    on_shard: Callable[[int, int], None] | None = None,
+) -> dict[int, CountResult]:
+    """Exact counts of every n in `ns` with shards on `pool`; {n: CountResult}.
+
+    checkpoint_dir  one folder per run of one n; with several n, sub-folders n-<n>
+    on_shard(n, i)  called after shard i of n is stored (and checkpointed)
+    """
+    ruleset = get_rules(rules)
+    ns = sorted({check_n(n) for n in ns}, reverse=True)
+    if prime_offset < 0:
+        raise InputError(f"prime offset must be >= 0, got {prime_offset}")
+    explicit = blocks is not None or max_primes_per_block is not None
+    workers = pool.workers
+    nworkers = max(1, len(workers))
+    single = len(ns) == 1
+    limit = _worker_limit(pool)
+
+    def folder(n: int) -> Path | None:
+        if checkpoint_dir is None:
+            return None
+        return Path(checkpoint_dir) if single else Path(checkpoint_dir) / f"n-{n:05d}"
+
+    bar = None
+    if progress:
+        from tqdm import tqdm
+
+        label = f"count n={ns[0]}" if single else f"count n={ns[-1]}..{ns[0]}"
+        bar = tqdm(total=0, unit="shard", desc=label, leave=True)
+
+    jobs = {n: _Job(n=n, t0=time.perf_counter()) for n in ns}
+    done = pool.completion()
+    kind: dict = {}  # future -> ("prepare", n) | ("shard", n, i), until it is done
+    results: dict[int, CountResult] = {}
+
+    def plan_for(job: _Job, facts: Facts) -> ShardPlan:
+        return make_plan(facts, prime_offset, nworkers, blocks, max_primes_per_block)
+
+    def start_shards(job: _Job) -> None:
+        assert job.plan is not None and job.facts is not None
+        nb = len(job.plan.blocks)
+        if bar is not None:
+            bar.total += nb
+            bar.update(job.reused)
+        # Placement: the blocks of one n of a range go to the worker that swept it (its
+        # windows are cached there); the blocks of a single n are dealt round-robin, so
+        # every worker gets the same number (the scheduler alone may hand one worker more
+        # when there are few blocks).  Restrictions are loose: a lost worker's blocks run
+        # elsewhere.
+        dask_workers = [w for w in workers if w] if isinstance(pool, DaskPool) else []
+        todo = [i for i in range(nb) if job.residues[i] is None]
+        for k, i in enumerate(todo):
+            if not single and job.facts.where:
+                where = [job.facts.where]
+            elif dask_workers:
+                where = [dask_workers[k % len(dask_workers)]]
+            else:
+                where = None
+            block = job.plan.blocks[i]
+            fut = pool.submit(spectrum_task, ruleset, job.n, block, priority=1, where=where)
+            kind[fut] = ("shard", job.n, i)
+            done.add(fut)
+        if all(r is not None for r in job.residues):
+            finish(job)
+
+    def finish(job: _Job) -> None:
+        assert job.plan is not None and job.facts is not None
+        stats = {
+            "seconds_total": round(time.perf_counter() - job.t0, 3),
+            "seconds_windows": job.facts.seconds_windows,
+            "word_updates": int(sum(job.updates)),
+            "backend": pool.kind,
+            "workers": nworkers,
+            "prime_blocks": len(job.plan.blocks),
+            "shards_total": len(job.plan.blocks),
+            "shards_computed": job.computed,
+            "shards_reused": job.reused,
+            "shards_rejected": job.rejected,
+            "count_bits": job.facts.count_bits,
+            "terminal_states": job.facts.terminals,
+        }
+        results[job.n] = assemble(job.facts, job.plan, job.residues, stats)
+
+    def adopt(job: _Job, facts: Facts) -> None:
+        job.facts = facts
+        job.plan = plan_for(job, facts)
+        if limit is not None:
+            threads = nworkers if isinstance(pool, ThreadPool) else 1
+            refuse_if_over(worker_bytes(facts, job.plan, threads), limit,
+                           f"the shards of n={job.n} in flight on one worker")
+        job.residues = [None] * len(job.plan.blocks)
+        job.updates = [0] * len(job.plan.blocks)
+        root = folder(job.n)
+        if root is not None:
+            job.cp = ckpt.create(root, job.plan, facts.to_dict())
+        start_shards(job)
+
+    try:
+        for n in ns:
+            job = jobs[n]
+            root = folder(n)
+            cp = ckpt.open_existing(root, _wanted(ruleset, n, prime_offset)) if root else None
+            if cp is not None:
+                facts = Facts(**{**cp.facts, "where": ""})  # old cluster's address
+                if explicit and plan_for(job, facts) != cp.plan:
+                    raise ckpt.CheckpointRefused(
+                        f"checkpoint {root} was written for another shard plan "
+                        f"({len(cp.plan.blocks)} blocks of primes); use another directory"
+                    )
+                job.facts, job.plan, job.cp = facts, cp.plan, cp
+                nb = len(cp.plan.blocks)
+                job.residues, job.updates = [None] * nb, [0] * nb
+                for i in range(nb):
+                    had = bool(cp.shards[i].get("sha256"))
+                    r = cp.load_shard(i)
+                    if r is not None:
+                        job.residues[i] = r
+                        job.updates[i] = int(cp.shards[i].get("word_updates") or 0)
+                        job.reused += 1
+                    elif had:
+                        job.rejected += 1
+                cp.save_manifest()
+                start_shards(job)
+                continue
+            targets = workers if (single and isinstance(pool, DaskPool)) else [None]
+            for w in targets:
+                fut = pool.submit(prepare_task, ruleset, n, where=[w] if w else None)
+                kind[fut] = ("prepare", n)
+                done.add(fut)
+
+        for fut in done:
+            tag = kind.pop(fut)
+            value = fut.result()
+            if tag[0] == "prepare":  # the first answer plans; the others only warmed caches
+                job = jobs[tag[1]]
+                if job.facts is None:
+                    adopt(job, value)
+                continue
+            _, n, i = tag
+            job = jobs[n]
+            residues, updates = value
+            job.residues[i] = np.asarray(residues, dtype=np.int64)
+            job.updates[i] = int(updates)
+            job.computed += 1
+            if job.cp is not None:
+                job.cp.save_shard(i, job.residues[i], int(updates))
+            if bar is not None:
+                bar.update(1)
+            if on_shard is not None:
+                on_shard(n, i)
+            if all(r is not None for r in job.residues):
+                finish(job)
+    finally:
+        if bar is not None:
+            bar.close()
+        for fut in kind:
+            if hasattr(fut, "release"):
+                fut.release()
+            else:
+                fut.cancel()
+    return results
+
+
+def run_counts(
+    ns: Iterable[int],
+    rules: str | RuleSet = "standard",
+    *,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    checkpoint_dir: str | Path | None = None,
+    progress: bool = False,
+    prime_offset: int = 0,
+    blocks: int | None = None,
+    max_primes_per_block: int | None = None,
+    threads: int | None = None,
+    on_shard: Callable[[int, int], None] | None = None,
+) -> dict[int, CountResult]:
+    """Exact counts for every n in `ns` on the chosen backend ({n: CountResult}).
+
+    Backends: in-process threads (default), `workers=K` (a LocalCluster started and closed
+    here), `scheduler=ADDRESS` (an existing cluster).  In-process, one n runs at a time
+    (its blocks in threads); on a cluster, all (n, block) tasks are in flight at once.
+    """
+    ns = list(ns)
+    opts = dict(prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
+                max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard)
+    with open_pool(workers, scheduler, threads) as pool:
+        if isinstance(pool, ThreadPool) and len(ns) > 1:
+            out: dict[int, CountResult] = {}
+            for n in sorted(set(ns)):
+                sub = None if checkpoint_dir is None else Path(checkpoint_dir) / f"n-{n:05d}"
+                out.update(count_on_pool([n], rules, pool, **{**opts, "checkpoint_dir": sub}))
+            return out
+        return count_on_pool(ns, rules, pool, **opts)
+
+
+def run_count(
+    n: int,
+    rules: str | RuleSet = "standard",
+    *,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    checkpoint_dir: str | Path | None = None,
+    progress: bool = False,
+    prime_offset: int = 0,
+    blocks: int | None = None,
+    max_primes_per_block: int | None = None,
+    threads: int | None = None,
+    on_shard: Callable[[int, int], None] | None = None,
+) -> CountResult:
+    """`zeckenum.count(n)` computed shard by shard, optionally on Dask and checkpointed.
+
+    Equal to `count(n, rules, prime_offset=prime_offset)` (stats aside).  stats adds
+    shards_total / shards_computed / shards_reused / shards_rejected and the backend.
+    """
+    n = check_n(n)
+    res = run_counts(
+        [n], rules, workers=workers, scheduler=scheduler, checkpoint_dir=checkpoint_dir,
+        progress=progress, prime_offset=prime_offset, blocks=blocks,
+        max_primes_per_block=max_primes_per_block, threads=threads, on_shard=on_shard,
+    )
+    return res[n]
+
+
+count_on_cluster = run_count
+"""Alias: the sharded count (kept for callers that name the cluster path explicitly)."""
+
+__all__ = ["assemble", "count_on_cluster", "count_on_pool", "run_count", "run_counts"]

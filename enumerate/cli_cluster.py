@@ -1,0 +1,114 @@
+"""Command line of the Dask layer: `table`, `verify` and `plan` (registered by `cli.main`).
+
+Each command is a thin layer over `zeckenum.cluster`; `ZeckenumError`s become one line on
+stderr and the error's exit status (`cli.fail`).
+"""
+
+from __future__ import annotations
+
+import json
+
+import click
+
+from .errors import ZeckenumError
+
+# No import from `cli` at module level: `cli` imports this module to register the commands.
+POSITIVE = click.IntRange(min=1)
+
+
+def fail(exc: ZeckenumError) -> None:
+    """One line on stderr and the error's exit status (`cli.fail`)."""
+    from .cli import fail as cli_fail
+
+    cli_fail(exc)
+
+_backend_help = {
+    "workers": "Start a local Dask cluster of K worker processes (127.0.0.1).",
+    "scheduler": "Use an existing Dask cluster at this scheduler address.",
+}
+
+
+@click.command("table")
+@click.option("--from", "lo", type=POSITIVE, required=True, help="First n.")
+@click.option("--to", "hi", type=POSITIVE, required=True, help="Last n (inclusive).")
+@click.option("--what", default="count", show_default=True,
+              help="Comma-separated: count, solve, random.")
+@click.option("--out", type=click.Path(file_okay=False), required=True,
+              help="Directory to publish (must be new or empty).")
+@click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
+@click.option("--workers", type=click.IntRange(min=1), default=None,
+              help=_backend_help["workers"])
+@click.option("--scheduler", default=None, help=_backend_help["scheduler"])
+@click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False), default=None,
+              help="Keep finished shards here; a rerun resumes from them.")
+@click.option("--progress/--no-progress", default=False, help="Progress bar on stderr.")
+def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, progress):  # noqa: ANN001
+    """Publish exact tables for every n from --from to --to into a directory.
+
+    \b
+    Writes summary.csv, spectra.csv (n,length,count), one "n value" .seq file per column,
+    and manifest.json (rule set, hashes, version, parameters, date, SHA-256 of each file).
+    Example:
+      zeckenum table --from 1 --to 80 --what count --out table80 --workers 2
+    """
+    from .cluster.table import build_table, parse_what
+
+    try:
+        kinds = parse_what(what)
+        manifest = build_table(lo, hi, kinds, out, rules, workers=workers,
+                               scheduler=scheduler, checkpoint_dir=checkpoint_dir,
+                               progress=progress)
+    except ZeckenumError as exc:
+        fail(exc)
+    click.echo(f"zeckenum table: n={lo}..{hi} ({', '.join(kinds)}) -> {out}: "
+               f"{len(manifest['files'])} files + manifest.json")
+
+
+@click.command("verify")
+@click.argument("folder", type=click.Path(file_okay=False))
+@click.option("--sample", type=click.IntRange(min=0), default=3, show_default=True,
+              help="How many n to recompute with a disjoint prime set.")
+@click.option("--seed", type=int, default=0, show_default=True, help="Seed of the sample.")
+@click.option("--rules", default=None, help="Rule set (default: the one named in the table).")
+@click.option("--workers", type=click.IntRange(min=1), default=None,
+              help=_backend_help["workers"])
+@click.option("--scheduler", default=None, help=_backend_help["scheduler"])
+def verify_command(folder, sample, seed, rules, workers, scheduler):  # noqa: ANN001
+    """Check a published table: checksums, consistency, and recomputed sample rows.
+
+    Exits 0 when everything agrees, else prints one line naming the first disagreement.
+    """
+    from .cluster.table import verify_table
+
+    try:
+        rep = verify_table(folder, sample, seed, rules, workers=workers, scheduler=scheduler)
+    except ZeckenumError as exc:
+        fail(exc)
+    ns = ", ".join(str(n) for n in rep["recomputed"]) or "none"
+    click.echo(f"zeckenum verify: {folder} OK: {rep['files']} checksums, {rep['rows']} rows "
+               f"consistent, recomputed n = {ns} with disjoint primes")
+
+
+@click.command("plan")
+@click.argument("what", type=click.Choice(["count"]))
+@click.argument("n", type=POSITIVE)
+@click.option("--workers", type=click.IntRange(min=1), default=1, show_default=True,
+              help="Workers the run would use.")
+@click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
+@click.option("--probe", "probe_n", type=POSITIVE, default=90, show_default=True,
+              help="n of the calibration count on this machine.")
+@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+def plan_command(what, n, workers, rules, probe_n, as_json):  # noqa: ANN001
+    """Forecast a run before starting it: states, transitions, shards, memory, time.
+
+    Runs the first sweep of N (exact sizes and word updates) and a small calibration count.
+    Example:
+      zeckenum plan count 250 --workers 8
+    """
+    from .cluster.predict import format_prediction, predict_count
+
+    try:
+        p = predict_count(n, rules, workers, probe_n=probe_n)
+    except ZeckenumError as exc:
+        fail(exc)
+    click.echo(json.dumps(p) if as_json else format_prediction(p))

@@ -1,0 +1,192 @@
+"""Published tables (`table`), their verification (`verify`) and the forecast (`plan`).
+
+External references: the brute force in tests/bruteforce.py (plain Python); OEIS A003107
+(partitions of n into Fibonacci parts = states of the standard game's space), from memory;
+hashlib for checksums (reference library).  The CLI commands are driven with click's
+CliRunner on the command objects.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import json
+
+import pytest
+from bruteforce import census
+from click.testing import CliRunner
+from zeckenum.cli_cluster import plan_command, table_command, verify_command
+
+
+@pytest.fixture(scope="module")
+def table(tmp_path_factory):  # noqa: ANN001, ANN201
+    out = tmp_path_factory.mktemp("tables") / "t"
+    r = CliRunner().invoke(table_command, ["--from", "18", "--to", "24", "--out", str(out)])
+    assert r.exit_code == 0, r.output
+    return out
+
+
+def _copy(src, dst):  # noqa: ANN001, ANN202
+    dst.mkdir()
+    for f in src.iterdir():
+        (dst / f.name).write_bytes(f.read_bytes())
+    return dst
+
+
+def _rows(path) -> list[dict]:  # noqa: ANN001
+    with open(path, newline="") as f:
+        return list(csv.DictReader(f))
+
+
+def test_table_matches_bruteforce(table) -> None:  # noqa: ANN001
+    summary = {int(r["n"]): r for r in _rows(table / "summary.csv")}
+    assert sorted(summary) == list(range(18, 25))
+    spectra = _rows(table / "spectra.csv")
+    for n in (18, 21, 24):
+        ref = census(n)
+        row = summary[n]
+        assert int(row["games"]) == ref["games"]
+        assert (int(row["shortest"]), int(row["longest"])) == (ref["shortest"], ref["longest"])
+        assert (int(row["states"]), int(row["transitions"])) == (ref["states"],
+                                                                 ref["transitions"])
+        assert int(row["shortest_games"]) == ref["length_counts"][ref["shortest"]]
+        got = {int(r["length"]): int(r["count"]) for r in spectra if int(r["n"]) == n}
+        assert got == ref["length_counts"]
+    games = dict(line.split() for line in (table / "games.seq").read_text().splitlines())
+    assert int(games["20"]) == census(20)["games"]
+
+
+def test_manifest_has_provenance_and_checksums(table) -> None:  # noqa: ANN001
+    import zeckenum
+
+    m = json.loads((table / "manifest.json").read_text())
+    assert m["rules"] == "standard"
+    assert m["rules_hash"] == zeckenum.STANDARD.content_hash()
+    assert m["version"] == zeckenum.__version__
+    assert m["parameters"]["from"] == 18 and m["parameters"]["to"] == 24
+    assert m["created"].endswith("Z")
+    names = {p.name for p in table.iterdir()} - {"manifest.json"}
+    assert set(m["files"]) == names
+    for name, entry in m["files"].items():
+        assert hashlib.sha256((table / name).read_bytes()).hexdigest() == entry["sha256"]
+
+
+def test_verify_passes_on_a_fresh_table(table) -> None:  # noqa: ANN001
+    r = CliRunner().invoke(verify_command, [str(table)])
+    assert r.exit_code == 0, r.output
+    assert "OK" in r.output
+
+
+def test_verify_fails_on_an_edited_cell(table, tmp_path) -> None:  # noqa: ANN001
+    bad = _copy(table, tmp_path / "bad")
+    text = (bad / "spectra.csv").read_text().splitlines()
+    n, length, count = text[5].split(",")
+    text[5] = f"{n},{length},{int(count) + 1}"
+    (bad / "spectra.csv").write_text("\n".join(text) + "\n")
+    r = CliRunner().invoke(verify_command, [str(bad)])
+    assert r.exit_code == 5
+    assert len(r.output.strip().splitlines()) == 1
+    assert "spectra.csv" in r.output and "SHA-256" in r.output
+
+
+def test_verify_recomputation_catches_a_forged_checksum(table, tmp_path) -> None:  # noqa: ANN001
+    # change a value no cross-check covers (states) in both files, then forge the checksums:
+    # only the recomputation with disjoint primes can notice
+    bad = _copy(table, tmp_path / "forged")
+    rows = (bad / "summary.csv").read_text().splitlines()
+    cells = rows[3].split(",")
+    cells[1] = str(int(cells[1]) + 1)
+    rows[3] = ",".join(cells)
+    (bad / "summary.csv").write_text("\n".join(rows) + "\n")
+    seq = (bad / "states.seq").read_text().splitlines()
+    seq[2] = f"{cells[0]} {cells[1]}"
+    (bad / "states.seq").write_text("\n".join(seq) + "\n")
+    m = json.loads((bad / "manifest.json").read_text())
+    for name in ("summary.csv", "states.seq"):
+        m["files"][name]["sha256"] = hashlib.sha256((bad / name).read_bytes()).hexdigest()
+    (bad / "manifest.json").write_text(json.dumps(m))
+    r = CliRunner().invoke(verify_command, [str(bad), "--sample", "100"])
+    assert r.exit_code == 5
+    assert f"n={cells[0]} states" in r.output
+
+
+def test_verify_catches_inconsistent_files(table, tmp_path) -> None:  # noqa: ANN001
+    bad = _copy(table, tmp_path / "inconsistent")
+    seq = (bad / "games.seq").read_text().splitlines()
+    n, v = seq[0].split()
+    seq[0] = f"{n} {int(v) * 2}"
+    (bad / "games.seq").write_text("\n".join(seq) + "\n")
+    m = json.loads((bad / "manifest.json").read_text())
+    m["files"]["games.seq"]["sha256"] = hashlib.sha256((bad / "games.seq").read_bytes()).hexdigest()
+    (bad / "manifest.json").write_text(json.dumps(m))
+    r = CliRunner().invoke(verify_command, [str(bad), "--sample", "0"])
+    assert r.exit_code == 5 and "games.seq" in r.output
+
+
+def test_table_refuses_bad_input(tmp_path) -> None:  # noqa: ANN001
+    runner = CliRunner()
+    r = runner.invoke(table_command, ["--from", "5", "--to", "6", "--what", "census",
+                                      "--out", str(tmp_path / "x")])
+    assert r.exit_code == 2 and "census" in r.output
+    r = runner.invoke(table_command, ["--from", "9", "--to", "6", "--out", str(tmp_path / "y")])
+    assert r.exit_code == 2
+    r = runner.invoke(verify_command, [str(tmp_path / "nothing")])
+    assert r.exit_code == 2
+
+
+def test_table_with_solve_and_random(tmp_path) -> None:  # noqa: ANN001
+    from fractions import Fraction
+
+    from zeckenum.cluster.table import extra_kinds
+
+    kinds = sorted(extra_kinds())
+    if not kinds:
+        pytest.skip("neither solve nor random is available in this build")
+    out = tmp_path / "t"
+    r = CliRunner().invoke(table_command, ["--from", "2", "--to", "9", "--what",
+                                           ",".join(["count", *kinds]), "--out", str(out)])
+    assert r.exit_code == 0, r.output
+    if "random" in kinds:
+        by_n: dict[int, Fraction] = {}
+        for row in _rows(out / "random.csv"):
+            by_n[int(row["n"])] = by_n.get(int(row["n"]), 0) + Fraction(row["probability"])
+        assert all(v == 1 for v in by_n.values())  # win probabilities sum to 1 (fractions)
+    if "solve" in kinds:
+        rows = _rows(out / "solve.csv")
+        assert [int(r["n"]) for r in rows] == list(range(2, 10))
+        # "The Zeckendorf Game" (2018), arXiv:1809.04881: player 2 wins for every n > 2
+        assert all(r["winner"] == "2" for r in rows if int(r["n"]) > 2)
+    assert CliRunner().invoke(verify_command, [str(out), "--sample", "20"]).exit_code == 0
+    # a forged solve.csv / random.csv row (checksum updated) is caught by the recomputation
+    name = "solve.csv" if "solve" in kinds else "random.csv"
+    lines = (out / name).read_text().splitlines()
+    cells = lines[-1].split(",")
+    if name == "solve.csv":
+        cells[-1] = str(int(cells[-1]) + 1)
+    else:
+        cells[-1] = str(Fraction(cells[-1]) / 2 or Fraction(1, 2))
+    lines[-1] = ",".join(cells)
+    (out / name).write_text("\n".join(lines) + "\n")
+    m = json.loads((out / "manifest.json").read_text())
+    m["files"][name]["sha256"] = hashlib.sha256((out / name).read_bytes()).hexdigest()
+    (out / "manifest.json").write_text(json.dumps(m))
+    r = CliRunner().invoke(verify_command, [str(out), "--sample", "20"])
+    assert r.exit_code == 5 and name in r.output
+
+
+def test_plan_reports_exact_sizes() -> None:
+    r = CliRunner().invoke(plan_command, ["count", "100", "--workers", "2", "--json",
+                                          "--probe", "60"])
+    assert r.exit_code == 0, r.output
+    p = json.loads(r.output)
+    assert p["states_in_space"] == 97075  # OEIS A003107(100), from memory
+    assert p["workers"] == 2 and p["shards"] % 2 == 0
+    assert p["predicted_seconds"] > 0
+
+
+def test_plan_word_updates_equal_the_run() -> None:
+    import zeckenum
+    from zeckenum.cluster.predict import predict_count
+
+    p = predict_count(64, probe_n=40)
+    assert p["word_updates"] == zeckenum.count(64).stats["word_updates"]
