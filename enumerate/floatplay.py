@@ -1,10 +1,11 @@
 """Random play in float64 with a rigorous bound on the accumulated rounding error.
 
-Same pulling sweep as the exact one (`zeckenum.randomplay`), with one double per (state,
-length) instead of residues: each state gathers its predecessors' finished rows.  In the
-model "moves" a finished row is scaled once by c = fl(1 / D(s)) and the moves add it; in
-the model "pairs" each move multiplies the source's row by c = fl(w / D(s)).  The first
-sweep runs in a background thread, a layer or two ahead (its kernels release the GIL).
+Same pulling sweep as the exact one (`zeckenum.randomplay`, any level drop of the moves),
+with one double per (state, length) instead of residues: each state gathers its
+predecessors' finished rows.  In the model "moves" a finished row is scaled once by
+c = fl(1 / D(s)) and the moves add it; in the model "pairs" each move multiplies the
+source's row by c = fl(w / D(s)).  The first sweep runs in a background thread, a layer or
+two ahead (its kernels release the GIL).
 Error analysis (standard model of floating-point arithmetic, u = 2**-53, every quantity
 non-negative so no cancellation can occur):
 
@@ -42,7 +43,14 @@ import numba as nb
 import numpy as np
 
 from .moments import float_moments, gaussian_diagnostics
-from .randomplay import SweptLayer, skeleton_layers, validate, winner_of_length
+from .randomplay import (
+    SweptLayer,
+    drop_stale,
+    gather_passes,
+    skeleton_layers,
+    validate,
+    winner_of_length,
+)
 from .rules import get_rules
 from .statespace import build_space
 
@@ -67,6 +75,7 @@ def pull_float_windows(
     up_vals: np.ndarray, up_off: np.ndarray, up_lmin: np.ndarray, up_win: np.ndarray,
     up_kfin: np.ndarray, up_dsum: np.ndarray, dsum: np.ndarray, ptr: np.ndarray,
     drop: np.ndarray, src: np.ndarray, w: np.ndarray, unit: bool, acc: np.ndarray,
+    which: int = -1,
 ) -> None:
     """One layer of the float sweep, in ascending rank (see the module docstring).
 
@@ -74,16 +83,22 @@ def pull_float_windows(
     off[j] .. off[j+1]-1.  State j gathers its predecessors' finished rows (times
     fl(w / D(source)) unless `unit`); then kfin[j] = K(j) + (moves in) - 1, and with
     `unit` a non-terminal row is scaled by fl(1 / D(j)).  acc[2] counts the products done.
+    `which` selects the moves gathered (`randomplay.gather_passes`): -1 all (drops 0 and
+    1, up_* one level up), d >= 1 those of drop d (up_* d levels up) leaving the states
+    unfinished, with kfin[j] holding the running max of K(source) + 2; 0 the drop-0 moves,
+    then finishing.  kfin must start at 0.
     """
     for j in range(win.size):
         wj = win[j]
         if wj == 0:
             continue
-        kin = 0
+        kin = kfin[j]
         for e in range(ptr[j], ptr[j + 1]):
             # two written-out branches: selecting an array per move would cost reference
             # counting on every move
             i = src[e]
+            if which >= 0 and drop[e] != which:
+                continue
             if drop[e] == 0:
                 sw = win[i]
                 d0 = off[j] + lmin[i] + 1 - lmin[j]
@@ -100,6 +115,9 @@ def pull_float_windows(
                 acc[2] += sw
             if ks + 2 > kin:
                 kin = ks + 2
+        if which > 0:
+            kfin[j] = kin
+            continue
         kfin[j] = kin + max(ptr[j + 1] - ptr[j] - 1, 0)
         d = dsum[j]
         if unit and d > 0:
@@ -201,45 +219,48 @@ def _queued(out_q: queue.Queue) -> Iterator[SweptLayer]:
 
 
 def float_sweep(
-    layers: Iterable[SweptLayer], start_level: int, start_rank: int, unit: bool
+    layers: Iterable[SweptLayer], start_level: int, start_rank: int, unit: bool,
+    max_drop: int = 1,
 ) -> tuple[np.ndarray, np.ndarray]:
     """(out, acc): out[L] = computed probability of length L, acc = [largest terminal K,
     terminal states, products done].
 
+    `max_drop` bounds the level drop of every move: the layers level + 1 .. level +
+    max_drop stay live, in a ring of max_drop + 1 reused buffers (the layers still read are
+    among the max_drop swept just before the current one, so none shares its slot).
     Memory traffic bounds this sweep (every move streams its source's window), so it runs
     in one thread; `float_play` overlaps it with the first sweep instead.
     """
     out = np.zeros(64, dtype=np.float64)
     acc = np.zeros(3, dtype=np.int64)
-    ring = [np.empty(0), np.empty(0)]
+    span = max(max_drop, 1) + 1
+    ring = [np.empty(0) for _ in range(span)]
     z64 = np.zeros(1, dtype=np.int64)
     z32 = np.zeros(0, dtype=np.int32)
     empty = (np.zeros(0), z64, z32, z32, z64[:0], z64[:0])
-    up = empty
-    prev = None
+    live: dict[int, tuple] = {}
     for k, layer in enumerate(layers):
         level, lmin, win, dsum, inc = (layer.level, layer.lmin, layer.win, layer.dsum,
                                        layer.incoming)
         off = np.zeros(win.size + 1, dtype=np.int64)
         np.cumsum(win.astype(np.int64), out=off[1:])
         need = int(off[-1])
-        if ring[k % 2].size < need:
-            ring[k % 2] = np.empty(max(need, int(1.25 * ring[k % 2].size)))
-        vals = ring[k % 2][:need]
+        if ring[k % span].size < need:
+            ring[k % span] = np.empty(max(need, int(1.25 * ring[k % span].size)))
+        vals = ring[k % span][:need]
         vals[:] = 0.0
         if level == start_level:
             vals[off[start_rank]] = 1.0
         top = int((lmin + win).max(initial=0))
         if top > out.size:
             out = np.concatenate([out, np.zeros(max(top, 2 * out.size) - out.size)])
-        if prev != level + 1:
-            up = empty
         kfin = np.zeros(win.size, dtype=np.int64)
-        pull_float_windows(vals, off, lmin, win, kfin, *up, dsum, inc.ptr, inc.drop, inc.src,
-                           inc.w, unit, acc)
+        for which, src_level in gather_passes(inc.drop, max_drop, level, live):
+            pull_float_windows(vals, off, lmin, win, kfin, *live.get(src_level, empty), dsum,
+                               inc.ptr, inc.drop, inc.src, inc.w, unit, acc, which)
         collect_float_terminals(vals, off, lmin, win, kfin, dsum, out, acc)
-        up = (vals, off, lmin, win, kfin, dsum)
-        prev = level
+        live[level] = (vals, off, lmin, win, kfin, dsum)
+        drop_stale(live, level, max_drop)
     return out, acc
 
 
@@ -262,7 +283,8 @@ def float_play(
     q: queue.Queue = queue.Queue(maxsize=2)
     th = threading.Thread(target=_producer, args=(layers, q), daemon=True)
     th.start()
-    out, acc = float_sweep(_queued(q), start_level, start_rank, model == "moves")
+    out, acc = float_sweep(_queued(q), start_level, start_rank, model == "moves",
+                           space.max_drop)
     th.join()
     t1 = time.perf_counter()
     lengths = [int(L) for L in np.nonzero(out)[0]]

@@ -30,7 +30,13 @@ residues also satisfy sum N == M, which is checked.
 
 Both sweeps *pull*: layers are visited from the start's level downward and each state
 gathers from its predecessors (the moves into it), inside a layer in ascending rank, which
-is topological (see `statespace`).  The first sweep keeps the moves into every layer whose
+is topological (see `statespace`).  A move may drop the level by up to `max_drop` of the
+rule set, so the layers level + 1 .. level + max_drop stay live (the first sweep keeps them
+in a dict, the second in a ring of max_drop + 1 reused buffers).  When max_drop <= 1 one
+kernel call gathers a layer (drop 0 from itself, drop 1 from the layer above); otherwise one
+call per drop d >= 1 present gathers from the layer level + d, and a last call gathers the
+moves inside the layer in ascending rank and finishes the states (`gather_passes`).  The
+first sweep keeps the moves into every layer whose
 source is reachable (`Incoming`), so the second sweep only re-reads them; they are listed
 by `listing_kernel`, which ranks each move's source incrementally from the state's own
 rank (O(bins the move changes) per move instead of O(bins)).  When a state is
@@ -54,7 +60,7 @@ from __future__ import annotations
 import math
 import os
 from collections import deque
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Mapping
 from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 from fractions import Fraction
@@ -385,16 +391,19 @@ def first_pass_pull(
     lmin: np.ndarray, lmax: np.ndarray, ex: np.ndarray, up_lmin: np.ndarray,
     up_lmax: np.ndarray, up_ex: np.ndarray, ptr: np.ndarray, drop: np.ndarray, src: np.ndarray,
     keep: np.ndarray, dsum: np.ndarray, spf: np.ndarray, pidx: np.ndarray, end_ex: np.ndarray,
-    stats: np.ndarray,
+    stats: np.ndarray, which: int = -1,
 ) -> None:
     """Reachability, length windows and lcm exponents gathered into one layer.
 
-    Sources of drop-0 moves are this layer's arrays (finished, ascending rank), of drop-1
-    moves the up_* arrays.  lmin == UNREACHED marks an unreached state.  Once state j is
-    complete, ex[j, b] = max over paths start -> j of sum v_{p_b}(D(s)) over the states s
-    on the path *including j itself* (what its moves carry on).  keep[e] marks the moves
-    whose source is reachable.  Terminal states fold into end_ex (max) and
-    stats = [states, moves, terminals, shortest, longest, max D].
+    Sources of drop-0 moves are this layer's arrays (finished, ascending rank), of the other
+    moves the up_* arrays.  `which` selects the moves gathered (see `gather_passes`): -1
+    all of them, every drop being 0 or 1 (up_* is the layer one level up); d >= 1 only
+    the moves of drop d (up_* is the layer d levels up), leaving the states unfinished; 0
+    only the drop-0 moves, then finishing the states.  lmin == UNREACHED marks an
+    unreached state.  Once state j is complete, ex[j, b] = max over paths start -> j of
+    sum v_{p_b}(D(s)) over the states s on the path *including j itself* (what its moves
+    carry on).  keep[e] marks the moves whose source is reachable.  Terminal states fold
+    into end_ex (max) and stats = [states, moves, terminals, shortest, longest, max D].
     """
     nbp = ex.shape[1]
     for j in range(lmin.size):
@@ -402,6 +411,8 @@ def first_pass_pull(
             # two written-out branches: selecting an array per move would cost reference
             # counting on every move
             i = src[e]
+            if which >= 0 and drop[e] != which:
+                continue
             if drop[e] == 0:
                 a = lmin[i]
                 if a == UNREACHED:
@@ -424,7 +435,7 @@ def first_pass_pull(
                 lmin[j] = a + 1
             if z + 1 > lmax[j]:
                 lmax[j] = z + 1
-        if lmin[j] == UNREACHED:
+        if which > 0 or lmin[j] == UNREACHED:
             continue
         stats[0] += 1
         d = dsum[j]
@@ -504,13 +515,15 @@ def pull_mod_windows(
     up_vals: np.ndarray, up_off: np.ndarray, up_lmin: np.ndarray, up_win: np.ndarray,
     dsum: np.ndarray, ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray,
     unit: bool, primes: np.ndarray, pinv: np.ndarray, inv: np.ndarray, out: np.ndarray,
+    which: int = -1,
 ) -> None:
     """One layer of the exact sweep over length windows, for one block of primes.
 
     State j owns words off[j] .. off[j+1]-1 laid out [length in its window][prime].  It
     gathers its predecessors' finished rows (times the move's weight unless `unit`),
     shifted by one length; then its words are reduced and multiplied by D(j)^-1, or, for a
-    terminal state, added into out[length, q].
+    terminal state, added into out[length, q].  `which` selects the moves gathered and
+    whether the states are finished, as in `first_pass_pull`.
     """
     nq = primes.size
     for j in range(win.size):
@@ -521,6 +534,8 @@ def pull_mod_windows(
             # two written-out branches: selecting an array per move would cost reference
             # counting on every move
             i = src[e]
+            if which >= 0 and drop[e] != which:
+                continue
             if drop[e] == 0:
                 span = win[i] * nq
                 d0 = off[j] + (lmin[i] + 1 - lmin[j]) * nq
@@ -535,6 +550,8 @@ def pull_mod_windows(
                 _add_into(dv, sv)
             else:
                 _addmul_into(dv, sv, w[e], primes, pinv)
+        if which > 0:
+            continue
         d = dsum[j]
         for t in range(wj):
             row = vals[off[j] + t * nq : off[j] + t * nq + nq]
@@ -548,12 +565,12 @@ def pull_mod_windows(
 def pull_mod_residues(
     vals: np.ndarray, up_vals: np.ndarray, win: np.ndarray, dsum: np.ndarray,
     ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray, unit: bool,
-    primes: np.ndarray, pinv: np.ndarray, inv: np.ndarray, out: np.ndarray,
+    primes: np.ndarray, pinv: np.ndarray, inv: np.ndarray, out: np.ndarray, which: int = -1,
 ) -> None:
     """One layer of the winner-only sweep: vals[j, r, q] = P(reach j, length = r mod P).
 
-    Same scheme as `pull_mod_windows`; a move sends residue r to residue r + 1 (mod P).
-    Terminal rows are added into out[r, q].
+    Same scheme (and `which`) as `pull_mod_windows`; a move sends residue r to residue
+    r + 1 (mod P).  Terminal rows are added into out[r, q].
     """
     npl = vals.shape[1]
     for j in range(win.size):
@@ -561,6 +578,8 @@ def pull_mod_residues(
             continue
         for e in range(ptr[j], ptr[j + 1]):
             i = src[e]
+            if which >= 0 and drop[e] != which:
+                continue
             for r in range(npl):
                 dv = vals[j, r + 1 if r + 1 < npl else 0]
                 if drop[e] == 0:
@@ -571,6 +590,8 @@ def pull_mod_residues(
                     _add_into(dv, sv)
                 else:
                     _addmul_into(dv, sv, w[e], primes, pinv)
+        if which > 0:
+            continue
         d = dsum[j]
         for r in range(npl):
             if d == 0:
@@ -594,11 +615,33 @@ def check_model(model: str) -> None:
 
 
 def max_weight_bound(spec: GameSpec, model: str) -> int:
-    """An a-priori bound on D(s) over all states: #move types, or C(n, 2) for pairs."""
+    """An a-priori bound on D(s) over all states of the game.
+
+    Model "moves": the number of move types.  Model "pairs": a move taking k tokens (c_b
+    from bin b) has weight prod_b binomial(a(b), c_b), the number of k-token subsets of the
+    state that it can take, so D(s) <= mu * sum over the take sizes k of binomial(T, k),
+    with mu the largest number of move types taking the same tokens (same bins and counts)
+    and T a bound on the tokens of any state: the start's tokens when no move gives more
+    tokens than it takes, else value // smallest bin value.  For the standard game this is
+    binomial(n, 2).
+    """
     if model == "moves":
         return len(spec.move_names)
+    takes: dict[tuple, int] = {}
+    sizes: set[int] = set()
+    grows = False
+    for m in range(spec.mv_bins.shape[0]):
+        dl = [int(d) for d in spec.mv_delta[m]]
+        take = tuple(sorted((int(b), -d) for b, d in zip(spec.mv_bins[m], dl, strict=True)
+                            if d < 0))
+        takes[take] = takes.get(take, 0) + 1
+        sizes.add(sum(c for _b, c in take))
+        grows = grows or sum(dl) > 0
     tokens = int(spec.start.sum())
-    return max(1, tokens * (tokens - 1) // 2)
+    if grows:
+        tokens = max(tokens, int(spec.n) // int(spec.values.min()))
+    mu = max(takes.values(), default=1)
+    return max(1, mu * sum(math.comb(tokens, k) for k in sizes))
 
 
 @dataclass(frozen=True, eq=False)
@@ -640,6 +683,34 @@ class Skeleton:
     longest: int
     max_weight: int
     max_indegree: int
+    max_drop: int = 1
+
+
+def gather_passes(
+    drop: np.ndarray, max_drop: int, level: int, live: Mapping[int, object]
+) -> list[tuple[int, int]]:
+    """The kernel calls that gather one layer: [(which, source level)].
+
+    `which` is the kernels' pass selector.  When no move of the game drops the level by
+    more than 1 there is one pass, which = -1 (drop-0 moves from the layer itself, drop-1
+    moves from the layer one level up) -- or which = 0 (drop-0 moves only) when that layer
+    is not live.  Otherwise one pass per drop d >= 1 present among the moves `drop` whose
+    source layer level + d is live, in ascending d, then the finishing pass which = 0 over
+    the moves inside the layer, in ascending rank.  (A layer that is not live holds no
+    reachable state.)  The last pass always has which <= 0, so every state is finished.
+    """
+    if max_drop <= 1:
+        return [(-1, level + 1)] if level + 1 in live else [(0, level)]
+    present = np.flatnonzero(np.bincount(drop)) if drop.size else np.zeros(0, dtype=np.int64)
+    ups = [(int(d), level + int(d)) for d in present if d > 0 and level + int(d) in live]
+    return ups + [(0, level)]
+
+
+def drop_stale(live: dict, level: int, max_drop: int) -> None:
+    """Forget the live layers no layer below `level` can gather from (above level +
+    max_drop - 1)."""
+    for stale in [lv for lv in live if lv > level + max_drop - 1]:
+        del live[stale]
 
 
 def changed_span(spec: GameSpec) -> tuple[np.ndarray, np.ndarray]:
@@ -718,8 +789,7 @@ def skeleton_layers(
     """
     check_model(model)
     spec = space.spec
-    if space.max_drop > 1:
-        raise InputError("random play supports rule sets whose moves drop the level by <= 1")
+    max_drop = space.max_drop
     if exponents:
         dbound = max_weight_bound(spec, model)
         plist = small_primes_upto(dbound)
@@ -737,8 +807,7 @@ def skeleton_layers(
     stats = np.array([0, 0, 0, np.iinfo(np.int64).max, -1, 0], dtype=np.int64)
     z32 = np.zeros(0, dtype=np.int32)
     empty = (z32, z32, np.zeros((0, nbp), dtype=np.int32))
-    up = empty
-    prev = None
+    live: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
     max_in = 0
     for level, (states, lm, dsum, w) in zip(
         levels, _listings(space, levels, model, _threads(threads)), strict=True
@@ -749,11 +818,12 @@ def skeleton_layers(
         ex = np.zeros((size, nbp), dtype=np.int32)
         if level == start_level:
             lmin[start_rank] = lmax[start_rank] = 0
-        if prev != level + 1:
-            up = empty
+        if exponents and dsum.size and int(dsum.max()) > dbound:
+            raise RuntimeError(f"a total move weight exceeds the a-priori bound {dbound}")
         keep = np.zeros(lm.dest.size, dtype=np.bool_)
-        first_pass_pull(lmin, lmax, ex, *up, lm.ptr, lm.drop, lm.dest, keep, dsum, spf, pidx,
-                        end_ex, stats)
+        for which, src_level in gather_passes(lm.drop, max_drop, level, live):
+            first_pass_pull(lmin, lmax, ex, *live.get(src_level, empty), lm.ptr, lm.drop,
+                            lm.dest, keep, dsum, spf, pidx, end_ex, stats, which)
         reached = lmin != UNREACHED
         inc = Incoming(*compact_incoming(lm.ptr, lm.drop, lm.dest, w, keep))
         if size:
@@ -763,8 +833,8 @@ def skeleton_layers(
             win=np.where(reached, lmax - lmin + 1, 0).astype(np.int32), dsum=dsum,
             incoming=inc,
         )
-        up = (lmin, lmax, ex)
-        prev = level
+        live[level] = (lmin, lmax, ex)
+        drop_stale(live, level, max_drop)
     if totals is not None:
         m = 1
         for b, p in enumerate(plist):
@@ -774,7 +844,7 @@ def skeleton_layers(
             start_level=start_level, start_rank=start_rank, denominator=m,
             states=int(stats[0]), transitions=int(stats[1]), terminals=int(stats[2]),
             shortest=int(stats[3]), longest=int(stats[4]), max_weight=int(stats[5]),
-            max_indegree=max_in,
+            max_indegree=max_in, max_drop=max_drop,
         )
 
 
@@ -835,26 +905,29 @@ def _sweep_windows_block(skel: Skeleton, primes: np.ndarray, unit: bool) -> np.n
     inv = inverse_table(primes, max(skel.max_weight, 1))
     out = np.zeros((skel.longest + 1, nq), dtype=np.int64)
     sizes = [int(skel.win[lv].astype(np.int64).sum()) * nq for lv in skel.levels]
-    ring = [np.empty(max(sizes), dtype=np.int64) for _ in range(2)]
+    # a ring of max_drop + 1 reused buffers: the layers still read are among the max_drop
+    # layers swept just before the current one, so none shares its slot
+    span = min(skel.max_drop + 1, len(skel.levels))
+    ring = [np.empty(max(sizes), dtype=np.int64) for _ in range(max(span, 1))]
     z64 = np.zeros(1, dtype=np.int64)
     z32 = np.zeros(0, dtype=np.int32)
-    up = (z64[:0], z64, z32, z32)
-    prev = None
+    empty = (z64[:0], z64, z32, z32)
+    live: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = {}
     for k, level in enumerate(skel.levels):
         lmin, win = skel.lmin[level], skel.win[level]
         off = np.zeros(win.size + 1, dtype=np.int64)
         np.cumsum(win.astype(np.int64) * nq, out=off[1:])
-        vals = ring[k % 2][: int(off[-1])]
+        vals = ring[k % span][: int(off[-1])]
         vals[:] = 0
         if level == skel.start_level:
             vals[off[skel.start_rank] : off[skel.start_rank + 1]] = 1
-        if prev != level + 1:
-            up = (z64[:0], z64, z32, z32)
         inc = skel.incoming[level]
-        pull_mod_windows(vals, off, lmin, win, *up, skel.dsum[level], inc.ptr, inc.drop,
-                         inc.src, inc.w, unit, primes, pinv, inv, out)
-        up = (vals, off, lmin, win)
-        prev = level
+        for which, src_level in gather_passes(inc.drop, skel.max_drop, level, live):
+            pull_mod_windows(vals, off, lmin, win, *live.get(src_level, empty),
+                             skel.dsum[level], inc.ptr, inc.drop, inc.src, inc.w, unit, primes,
+                             pinv, inv, out, which)
+        live[level] = (vals, off, lmin, win)
+        drop_stale(live, level, skel.max_drop)
     return out
 
 
@@ -866,23 +939,23 @@ def _sweep_residues_block(skel: Skeleton, primes: np.ndarray, unit: bool,
     inv = inverse_table(primes, max(skel.max_weight, 1))
     out = np.zeros((players, nq), dtype=np.int64)
     cap = max(skel.win[lv].size for lv in skel.levels) * players * nq
-    ring = [np.empty(cap, dtype=np.int64) for _ in range(2)]
+    span = min(skel.max_drop + 1, len(skel.levels))  # as in `_sweep_windows_block`
+    ring = [np.empty(cap, dtype=np.int64) for _ in range(max(span, 1))]
     empty = np.zeros((0, players, nq), dtype=np.int64)
-    up = empty
-    prev = None
+    live: dict[int, np.ndarray] = {}
     for k, level in enumerate(skel.levels):
         win = skel.win[level]
-        vals = ring[k % 2][: win.size * players * nq].reshape(win.size, players, nq)
+        vals = ring[k % span][: win.size * players * nq].reshape(win.size, players, nq)
         vals[:] = 0
         if level == skel.start_level:
             vals[skel.start_rank, 0, :] = 1
-        if prev != level + 1:
-            up = empty
         inc = skel.incoming[level]
-        pull_mod_residues(vals, up, win, skel.dsum[level], inc.ptr, inc.drop, inc.src, inc.w,
-                          unit, primes, pinv, inv, out)
-        up = vals
-        prev = level
+        for which, src_level in gather_passes(inc.drop, skel.max_drop, level, live):
+            pull_mod_residues(vals, live.get(src_level, empty), win, skel.dsum[level],
+                              inc.ptr, inc.drop, inc.src, inc.w, unit, primes, pinv, inv, out,
+                              which)
+        live[level] = vals
+        drop_stale(live, level, skel.max_drop)
     return out
 
 
@@ -953,12 +1026,14 @@ def wins_from_lengths(dist: dict[int, Fraction], players: int) -> dict[int, Frac
 class RandomResult:
     """Exact random play at one n.
 
+    rules / rules_hash: the rule set's name and `RuleSet.content_hash()`;
     length_probability {length: Fraction} (None on the winner-only path);
     win_probability {player (1-based): Fraction}; moments from `zeckenum.moments.exact_moments`
     (empty on the winner-only path); denominator = M (every probability times M is an integer).
     """
 
     rules: str
+    rules_hash: str
     n: int
     players: int
     model: str
@@ -987,6 +1062,7 @@ class RandomResult:
 
         d = {
             "rules": self.rules,
+            "rules_hash": self.rules_hash,
             "n": self.n,
             "players": self.players,
             "model": self.model,
@@ -1063,7 +1139,8 @@ def random_play(
         gauss = gaussian_diagnostics({k: float(v) for k, v in dist.items()})
     t2 = time.perf_counter()
     return RandomResult(
-        rules=rs.name, n=n, players=players, model=model, win_probability=wins,
+        rules=rs.name, rules_hash=rs.content_hash(), n=n, players=players, model=model,
+        win_probability=wins,
         length_probability=dist, moments=moments, gaussian=gauss,
         denominator=skel.denominator, primes=tuple(primes), check_prime=check,
         states=skel.states, transitions=skel.transitions,

@@ -113,9 +113,10 @@ def test_float_within_its_error_bound_n100() -> None:
         assert abs(Fraction(f.win_probability[i]) - p) <= Fraction(f.win_error[i])
 
 
-def _chi_square_pvalue(n: int, games: int, seed: int, model: str = "moves") -> float:
-    res = random_play(n, model=model)
-    lengths = simulate_lengths(n, games, seed, model=model)
+def _chi_square_pvalue(n: int, games: int, seed: int, model: str = "moves",
+                      rules: str = "standard") -> float:
+    res = random_play(n, rules, model=model)
+    lengths = simulate_lengths(n, games, seed, rules, model=model)
     ks = sorted(res.length_probability)
     exp = np.array([float(res.length_probability[k]) for k in ks]) * games
     obs = np.array([(lengths == k).sum() for k in ks], dtype=float)
@@ -139,6 +140,13 @@ def _chi_square_pvalue(n: int, games: int, seed: int, model: str = "moves") -> f
 @pytest.mark.parametrize("model", MODELS)
 def test_simulation_agrees_with_exact_n40(model: str) -> None:
     assert _chi_square_pvalue(40, 20000, seed=12345, model=model) > 1e-3
+
+
+# Source: scipy.stats.chisquare as above, on the rule sets whose moves drop several levels.
+@pytest.mark.parametrize("model", MODELS)
+@pytest.mark.parametrize("rules", ["reversed", "tribonacci"])
+def test_simulation_agrees_with_exact_other_rules(rules: str, model: str) -> None:
+    assert _chi_square_pvalue(20, 20000, seed=777, model=model, rules=rules) > 1e-3
 
 
 @pytest.mark.slow
@@ -250,3 +258,46 @@ def test_exact_independent_of_threads_and_primes(model: str) -> None:
     w1 = random_play(12, model=model, threads=1, winners_only=True)
     w2 = random_play(12, model=model, threads=2, winners_only=True, prime_offset=50)
     assert w1.win_probability == w2.win_probability == win_law(ref, 2)
+
+
+def _potential_layered_standard():
+    """The standard game's moves layered by a strict potential instead of token counts:
+    every move then drops the level by 1 or more (several levels for some), none stays in
+    its layer -- the multi-layer gather of the sweeps on a game with a known law."""
+    from zeckenum.rulefile import parse_rules
+    from zeckenum.rules import RULESETS_DIR
+
+    text = (RULESETS_DIR / "standard.toml").read_text()
+    return parse_rules(text.replace('layering = "tokens"', 'layering = "potential"'))
+
+
+# Source: fractions.Fraction brute force (memoised over states); the layering is only a
+# sweep order, so the standard game layered by a potential must give the same exact law.
+@pytest.mark.parametrize("model", MODELS)
+@pytest.mark.parametrize("n", [2, 5, 9, 14])
+def test_multi_level_drops_match_fraction_reference(n: int, model: str) -> None:
+    from zeckenum.rules import STANDARD
+    from zeckenum.statespace import build_space
+
+    rs = _potential_layered_standard()
+    space = build_space(rs.instantiate(n))
+    assert space.max_drop >= 2
+    assert rs.content_hash() != STANDARD.content_hash()
+    ref = length_law(n, model)
+    res = random_play(n, rs, players=3, model=model)
+    assert res.length_probability == ref
+    assert res.win_probability == win_law(ref, 3)
+    assert res.rules_hash == rs.content_hash()
+    fast = random_play(n, rs, players=3, model=model, winners_only=True)
+    assert fast.win_probability == win_law(ref, 3)
+    f = float_play(n, rs, players=3, model=model)
+    for L, p in ref.items():
+        assert abs(Fraction(f.length_probability[L]) - p) <= Fraction(f.length_error[L])
+
+
+# Source: common practice (results name the rule set by its content hash, as counts do).
+def test_result_carries_rules_hash() -> None:
+    from zeckenum.rules import STANDARD
+
+    d = random_play(6).to_dict()
+    assert d["rules"] == "standard" and d["rules_hash"] == STANDARD.content_hash()

@@ -8,7 +8,10 @@ higher order", Fibonacci Quarterly, 1972, from memory), scipy/fractions as named
 
 from __future__ import annotations
 
+import math
 import textwrap
+from fractions import Fraction
+from functools import cache
 from pathlib import Path
 
 import numpy as np
@@ -101,18 +104,81 @@ def test_terminal_positions_match_bruteforce(name: str) -> None:
         assert terminal_positions(BUILTIN[name], n) == sorted(game.terminals()), (name, n)
 
 
+def pairs_length_law(game: bf.Game) -> dict[int, Fraction]:
+    """{length: probability} when a move is drawn with probability proportional to the number
+    of token subsets it can take: prod over its taken bins of binomial(count, taken).
+
+    Plain Python over the brute force's own moves (`rules_bruteforce.Game.moves`)."""
+
+    @cache
+    def rest(state: tuple[int, ...]) -> tuple[tuple[int, Fraction], ...]:
+        options = []
+        for take, give in game.moves:
+            if all(state[b - 1] >= c for b, c in take.items()):
+                nxt = list(state)
+                for b, c in take.items():
+                    nxt[b - 1] -= c
+                for b, c in give.items():
+                    nxt[b - 1] += c
+                options.append((tuple(nxt), math.prod(math.comb(state[b - 1], c)
+                                                      for b, c in take.items())))
+        if not options:
+            return ((0, Fraction(1)),)
+        total = sum(w for _, w in options)
+        acc: dict[int, Fraction] = {}
+        for nxt, w in options:
+            for length, p in rest(nxt):
+                acc[length + 1] = acc.get(length + 1, Fraction(0)) + p * Fraction(w, total)
+        return tuple(sorted(acc.items()))
+
+    return dict(rest(game.start))
+
+
+def win_law(law: dict[int, Fraction], players: int) -> dict[int, Fraction]:
+    """{player: probability}: player i makes the last move when (length - 1) % P == i - 1."""
+    out = {i: Fraction(0) for i in range(1, players + 1)}
+    for length, p in law.items():
+        out[(length - 1) % players + 1] += p
+    return out
+
+
+@pytest.mark.parametrize("model", ["moves", "pairs"])
 @pytest.mark.parametrize("name", SHIPPED)
-def test_random_play_matches_bruteforce(name: str) -> None:
-    # source: rules_bruteforce with fractions.Fraction (uniform choice among legal moves)
+def test_random_play_matches_bruteforce(name: str, model: str) -> None:
+    # source: rules_bruteforce with fractions.Fraction ("moves": uniform choice among legal
+    # moves, `Game.length_distribution`; "pairs": `pairs_length_law` above).  n up to 10
+    # covers moves dropping the level by several layers ('reversed' from n = 5, 'tribonacci'
+    # from n = 10).
     from zeckenum.randomplay import random_play
 
-    for n in range(1, 9):
+    for n in range(1, 11):
         game = bf.Game(bf.DESCRIPTIONS[name], n)
-        try:
-            res = random_play(n, name)
-        except InputError as exc:
-            pytest.skip(f"random play refuses {name!r}: {exc}")
-        assert res.length_probability == game.length_distribution(), (name, n)
+        ref = game.length_distribution() if model == "moves" else pairs_length_law(game)
+        res = random_play(n, name, players=3, model=model)
+        assert res.length_probability == ref, (name, n)
+        assert res.win_probability == win_law(ref, 3), (name, n)
+        assert res.to_dict()["rules_hash"] == BUILTIN[name].content_hash()
+        fast = random_play(n, name, players=3, model=model, winners_only=True)
+        assert fast.win_probability == win_law(ref, 3), (name, n)
+
+
+@pytest.mark.parametrize("model", ["moves", "pairs"])
+@pytest.mark.parametrize("name", SHIPPED)
+def test_float_play_within_its_bound_of_bruteforce(name: str, model: str) -> None:
+    # source: rules_bruteforce with fractions.Fraction, against the float sweep's own
+    # rigorous error bounds
+    from zeckenum.floatplay import float_play
+
+    for n in (5, 10, 12):
+        game = bf.Game(bf.DESCRIPTIONS[name], n)
+        ref = game.length_distribution() if model == "moves" else pairs_length_law(game)
+        res = float_play(n, name, players=2, model=model)
+        assert set(res.length_probability) == set(ref), (name, n)
+        for length, p in ref.items():
+            err = abs(Fraction(res.length_probability[length]) - p)
+            assert err <= Fraction(res.length_error[length]), (name, n, length)
+        for i, p in win_law(ref, 2).items():
+            assert abs(Fraction(res.win_probability[i]) - p) <= Fraction(res.win_error[i])
 
 
 @pytest.mark.parametrize("name", SHIPPED)
