@@ -13,6 +13,7 @@ import click
 
 from . import __version__
 from .cli_cluster import plan_command, table_command, verify_command
+from .cli_errors import fail
 from .cli_random import random_command
 from .cli_rules import rules_group
 from .cli_solve import check_strategy_command, solve_command
@@ -60,10 +61,6 @@ RULES_OPTION = click.option(
 )
 
 
-def fail(exc: ZeckenumError) -> None:
-    """Print a ZeckenumError as one line and exit with its status."""
-    click.echo(f"zeckenum: error: {exc}", err=True)
-    sys.exit(exc.exit_code)
 
 
 class OneLineGroup(click.Group):

@@ -10,17 +10,13 @@ import json
 
 import click
 
+from .cli_errors import fail
 from .errors import ZeckenumError
 
 # No import from `cli` at module level: `cli` imports this module to register the commands.
 POSITIVE = click.IntRange(min=1)
 
 
-def fail(exc: ZeckenumError) -> None:
-    """One line on stderr and the error's exit status (`cli.fail`)."""
-    from .cli import fail as cli_fail
-
-    cli_fail(exc)
 
 _backend_help = {
     "workers": "Start a local Dask cluster of K worker processes (127.0.0.1).",

@@ -9,34 +9,17 @@ Errors are one line on stderr with the error's exit status (2 for bad input).
 
 from __future__ import annotations
 
-import functools
-import sys
-from collections.abc import Callable
 from pathlib import Path
 
 import click
 
-from .errors import ZeckenumError
+from .cli_errors import one_line_errors
 from .rulefile import describe_template, read_rule_file
 from .rules import BUILTIN, RuleSet, get_rules
 from .validate import format_state, layering_report, terminal_positions
 
 SHOW_TERMINALS = 12
 """At most this many end positions are printed by `rules show`."""
-
-
-def one_line_errors(fn: Callable) -> Callable:
-    """Turn a ZeckenumError into one line on stderr and the error's exit status."""
-
-    @functools.wraps(fn)
-    def wrapper(*args, **kwargs):  # noqa: ANN002, ANN003
-        try:
-            return fn(*args, **kwargs)
-        except ZeckenumError as exc:
-            click.echo(f"zeckenum: error: {exc}", err=True)
-            sys.exit(exc.exit_code)
-
-    return wrapper
 
 
 def resolve(name_or_file: str) -> RuleSet:

@@ -8,31 +8,14 @@ a strategy that does not win), never as a traceback.
 from __future__ import annotations
 
 import json
-import sys
-from collections.abc import Callable
-from functools import wraps
-from typing import Any
 
 import click
 
-from .errors import InputError, ZeckenumError
+from .cli_errors import one_line_errors
+from .errors import InputError
 from .rules import get_rules
 from .solve import MAX_PLAYERS, SolveResult, solve, winning_strategy
 from .strategy import check_strategy, read_strategy, write_strategy
-
-
-def _one_line_errors(func: Callable[..., Any]) -> Callable[..., Any]:
-    """Turn ZeckenumError into 'error: <message>' on stderr and the error's exit code."""
-
-    @wraps(func)
-    def wrapper(*args: Any, **kwargs: Any) -> Any:
-        try:
-            return func(*args, **kwargs)
-        except ZeckenumError as exc:
-            click.echo(f"error: {exc}", err=True)
-            sys.exit(exc.exit_code)
-
-    return wrapper
 
 
 def _table(rows: list[tuple[str, str]]) -> str:
@@ -82,7 +65,7 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
               help="Write a winning strategy for the winner to this file (two players; "
                    "gzip-compressed when the name ends in .gz).")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
-@_one_line_errors
+@one_line_errors
 def solve_command(n: int, rules_name: str, players: int, strategy_path: str | None,
                   as_json: bool) -> None:
     """Who wins the game for N under optimal play (the last player to move wins).
@@ -117,7 +100,7 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
 @click.option("--rules", "rules_name", default=None,
               help="Rule set name or .toml rule file (default: the name in FILE's header).")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
-@_one_line_errors
+@one_line_errors
 def check_strategy_command(file: str, rules_name: str | None, as_json: bool) -> None:
     """Confirm that the strategy in FILE wins against every answer of the loser.
 

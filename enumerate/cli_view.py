@@ -8,29 +8,13 @@ from __future__ import annotations
 
 import json
 import sys
-from collections.abc import Callable
 from fractions import Fraction
-from functools import wraps
 from pathlib import Path
-from typing import Any
 
 import click
 
-from .errors import InputError, ZeckenumError
-
-
-def _one_line_errors(func: Callable[..., Any]) -> Callable[..., Any]:
-    """Turn ZeckenumError into 'error: <message>' on stderr and the error's exit code."""
-
-    @wraps(func)
-    def wrapper(*args: Any, **kwargs: Any) -> Any:
-        try:
-            return func(*args, **kwargs)
-        except ZeckenumError as exc:
-            click.echo(f"error: {exc}", err=True)
-            sys.exit(exc.exit_code)
-
-    return wrapper
+from .cli_errors import one_line_errors
+from .errors import InputError
 
 
 def _frac(x: Fraction) -> str:
@@ -44,7 +28,7 @@ def _frac(x: Fraction) -> str:
 @click.option("--near", default=3, show_default=True, type=click.IntRange(1, 100),
               help="How many lengths next to each extreme to list with their game counts.")
 @click.option("--json", "as_json", is_flag=True, help="One JSON object instead of text.")
-@_one_line_errors
+@one_line_errors
 def games_command(n: int, rules: str, near: int, as_json: bool) -> None:
     """An explicit shortest and longest game at N, as move lists with the state after each
     move; the number of games at the lengths near the extremes; and (standard game) the
@@ -107,7 +91,7 @@ def games_command(n: int, rules: str, near: int, as_json: bool) -> None:
               help="Random model for the expected counts.")
 @click.option("--no-random", is_flag=True, help="Skip the random-play expected counts.")
 @click.option("--json", "as_json", is_flag=True, help="One JSON object instead of text.")
-@_one_line_errors
+@one_line_errors
 def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_random: bool,
                       as_json: bool) -> None:
     """For every move at N: its total number of occurrences over all games and its exact
@@ -217,7 +201,7 @@ def _load_data(table: str | None, lo_hi: tuple[int, int] | None, rules: str,
               help="Compute random-play laws only for n up to this.")
 @click.option("--out", "out", default=None,
               help="Output prefix: writes PREFIX.png and PREFIX.svg (default: KIND).")
-@_one_line_errors
+@one_line_errors
 def plot_command(kind: str, table: str | None, lo_hi: tuple[int, int] | None, n: int | None,
                  source: str, rules: str, random_upto: int, out: str | None) -> None:
     """Draw one figure (PNG and SVG) from a table directory or a fresh computation.
@@ -251,7 +235,7 @@ def plot_command(kind: str, table: str | None, lo_hi: tuple[int, int] | None, n:
 @click.option("--detail", "detail_n", type=int, default=None,
               help="The n of the extremal games and move statistics (default: the largest "
                    "n <= 60).")
-@_one_line_errors
+@one_line_errors
 def report_command(folder: str, lo_hi: tuple[int, int] | None, rules: str, random_upto: int,
                    detail_n: int | None) -> None:
     """Write FOLDER/report.html, one self-contained page (figures, tables, provenance, how

@@ -43,10 +43,11 @@ def is_prime(n: int) -> bool:
     return True
 
 
-@lru_cache(maxsize=8)
-def _descending_primes(count: int) -> tuple[int, ...]:
+@lru_cache(maxsize=16)
+def descending_primes(ceiling: int, count: int) -> tuple[int, ...]:
+    """The `count` largest primes below `ceiling` (odd ceiling - 1 downward), largest first."""
     out: list[int] = []
-    c = PRIME_CEILING - 1
+    c = ceiling - 1 if ceiling % 2 == 0 else ceiling - 2
     while len(out) < count:
         if is_prime(c):
             out.append(c)
@@ -56,7 +57,7 @@ def _descending_primes(count: int) -> tuple[int, ...]:
 
 def primes_below_ceiling(count: int, offset: int = 0) -> list[int]:
     """The primes number offset .. offset+count-1 counted downward from 2**62 (all odd)."""
-    return list(_descending_primes(offset + count)[offset:])
+    return list(descending_primes(PRIME_CEILING, offset + count)[offset:])
 
 
 def primes_for_bits(bits: int, offset: int = 0) -> tuple[list[int], int]:

@@ -64,13 +64,12 @@ from collections.abc import Callable, Iterator, Mapping
 from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 from fractions import Fraction
-from functools import lru_cache
 
 import numba as nb
 import numpy as np
 
 from .errors import CheckPrimeMismatch, InputError
-from .modular import crt, is_prime
+from .modular import crt, descending_primes
 from .rules import GameSpec, get_rules
 from .statespace import LayerMoves, StateSpace, build_space, move_applies
 
@@ -83,20 +82,9 @@ UNREACHED = np.iinfo(np.int32).max
 # ----------------------------------------------------------------------------- primes
 
 
-@lru_cache(maxsize=16)
-def _descending_primes(count: int) -> tuple[int, ...]:
-    out: list[int] = []
-    c = PRIME_CEILING - 1
-    while len(out) < count:
-        if is_prime(c):
-            out.append(c)
-        c -= 2
-    return tuple(out)
-
-
 def word_primes(count: int, offset: int = 0) -> list[int]:
     """The primes number offset .. offset+count-1 counted downward from PRIME_CEILING."""
-    return list(_descending_primes(offset + count)[offset:])
+    return list(descending_primes(PRIME_CEILING, offset + count)[offset:])
 
 
 def primes_exceeding(bound: int, offset: int = 0) -> tuple[list[int], int]:

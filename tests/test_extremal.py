@@ -133,4 +133,4 @@ def test_games_cli_text_and_json() -> None:
 def test_games_cli_bad_input() -> None:
     res = CliRunner().invoke(games_command, ["0"])
     assert res.exit_code == 2
-    assert res.output.strip().startswith("error:") and "Traceback" not in res.output
+    assert res.output.strip().startswith("zeckenum: error:") and "Traceback" not in res.output

@@ -222,4 +222,4 @@ def test_movestats_cli() -> None:
     res = runner.invoke(movestats_command, ["13"])
     assert res.exit_code == 0 and "all hold" in res.output
     res = runner.invoke(movestats_command, ["13", "--move", "jump@2"])
-    assert res.exit_code == 2 and res.output.startswith("error:")
+    assert res.exit_code == 2 and res.output.startswith("zeckenum: error:")

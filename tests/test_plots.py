@@ -200,4 +200,4 @@ def test_plot_cli_from_table_and_fresh(table: Path, tmp_path: Path) -> None:
     assert res.exit_code == 0, res.output
     assert (tmp_path / "d.svg").is_file()
     res = runner.invoke(plot_command, ["shape"])
-    assert res.exit_code == 2 and res.output.startswith("error:")
+    assert res.exit_code == 2 and res.output.startswith("zeckenum: error:")

@@ -112,7 +112,7 @@ def test_report_cli_fresh_and_errors(tmp_path: Path) -> None:
     tags = parse(path.read_text())
     assert len(tags.imgs) == EXPECTED_FIGURES
     res = runner.invoke(report_command, [str(tmp_path / "nothing")])
-    assert res.exit_code == 2 and res.output.startswith("error:")
+    assert res.exit_code == 2 and res.output.startswith("zeckenum: error:")
 
 
 def test_report_cli_from_table(tmp_path: Path) -> None:

@@ -245,7 +245,7 @@ def test_corrupt_losing_move(tmp_path) -> None:
     runner = CliRunner()
     res = runner.invoke(check_strategy_command, [str(path)])
     assert res.exit_code == 1
-    assert res.output.startswith("error: ")
+    assert res.output.startswith("zeckenum: error: ")
     assert len(res.output.strip().splitlines()) == 1
 
 
@@ -308,7 +308,7 @@ def test_cli_table_mentions_moves() -> None:
 def test_cli_bad_input_one_line(args: list[str]) -> None:
     res = CliRunner().invoke(solve_command, args)
     assert res.exit_code == 2
-    assert res.output.startswith("error: ")
+    assert res.output.startswith("zeckenum: error: ")
     assert len(res.output.strip().splitlines()) == 1
 
 
