@@ -69,6 +69,7 @@ import numba as nb
 import numpy as np
 
 from .errors import CheckPrimeMismatch, InputError
+from .memory import available_bytes, refuse_if_over
 from .modular import crt, descending_primes
 from .rules import GameSpec, get_rules
 from .statespace import LayerMoves, StateSpace, build_space, move_applies
@@ -880,10 +881,37 @@ def _rebuild(rows: list[list[int]], check: list[int], primes: list[int], check_p
     return out
 
 
-def _prime_blocks(allp: list[int], threads: int | None) -> list[np.ndarray]:
-    """Split the primes into one contiguous block per worker thread."""
+def _prime_blocks(
+    allp: list[int], threads: int | None, words_per_prime: int, what: str
+) -> tuple[list[np.ndarray], int]:
+    """(blocks of primes, threads to run them): as few blocks as the memory allows.
+
+    A block of b primes holds b * words_per_prime int64 words at its peak; `threads`
+    blocks run at once and must fit in the memory the machine has available (with a
+    margin for the kept first sweep).  MemoryRefused when even one prime does not fit.
+    """
     k = max(1, min(_threads(threads), len(allp)))
-    return [np.array(b, dtype=np.int64) for b in np.array_split(np.array(allp), k) if b.size]
+    budget = int(available_bytes() * 0.8)
+    per_prime = max(1, words_per_prime) * 8
+    refuse_if_over(per_prime, budget, what)
+    k = min(k, budget // per_prime)
+    size = max(1, min(math.ceil(len(allp) / k), budget // (k * per_prime)))
+    nblocks = math.ceil(len(allp) / size)
+    nblocks = k * math.ceil(nblocks / k)
+    blocks = [np.array(b, dtype=np.int64) for b in np.array_split(np.array(allp), nblocks)]
+    return [b for b in blocks if b.size], k
+
+
+def _window_words(skel: Skeleton) -> int:
+    """int64 words per prime of `_sweep_windows_block`'s buffer ring."""
+    span = max(1, min(skel.max_drop + 1, len(skel.levels)))
+    return span * max(int(skel.win[lv].astype(np.int64).sum()) for lv in skel.levels)
+
+
+def _residue_words(skel: Skeleton, players: int) -> int:
+    """int64 words per prime of `_sweep_residues_block`'s buffer ring."""
+    span = max(1, min(skel.max_drop + 1, len(skel.levels)))
+    return span * max(skel.win[lv].size for lv in skel.levels) * players
 
 
 def _sweep_windows_block(skel: Skeleton, primes: np.ndarray, unit: bool) -> np.ndarray:
@@ -948,12 +976,12 @@ def _sweep_residues_block(skel: Skeleton, primes: np.ndarray, unit: bool,
 
 
 def _run_blocks(
-    blocks: list[np.ndarray], fn: Callable[[np.ndarray], np.ndarray]
+    blocks: list[np.ndarray], fn: Callable[[np.ndarray], np.ndarray], threads: int
 ) -> list[np.ndarray]:
-    """fn(block) for every prime block, one thread per block."""
-    if len(blocks) == 1:
-        return [fn(blocks[0])]
-    with ThreadPoolExecutor(len(blocks)) as pool:
+    """fn(block) for every prime block, `threads` blocks at a time, in block order."""
+    if len(blocks) == 1 or threads == 1:
+        return [fn(b) for b in blocks]
+    with ThreadPoolExecutor(threads) as pool:
         return list(pool.map(fn, blocks))
 
 
@@ -965,8 +993,9 @@ def exact_length_distribution(
     primes, check_prime = primes_exceeding(skel.denominator, prime_offset)
     allp = primes + [check_prime]
     _check_accumulation(space, skel, model, allp)
-    blocks = _prime_blocks(allp, threads)
-    outs = _run_blocks(blocks, lambda b: _sweep_windows_block(skel, b, model == "moves"))
+    blocks, k = _prime_blocks(allp, threads, _window_words(skel),
+                              f"the exact length law at n={space.spec.n}")
+    outs = _run_blocks(blocks, lambda b: _sweep_windows_block(skel, b, model == "moves"), k)
     out = np.concatenate(outs, axis=1)
     lengths = [L for L in range(out.shape[0]) if out[L].any()]
     rows = [[int(x) for x in out[L, : len(primes)]] for L in lengths]
@@ -983,9 +1012,10 @@ def exact_win_residues(
     primes, check_prime = primes_exceeding(skel.denominator, prime_offset)
     allp = primes + [check_prime]
     _check_accumulation(space, skel, model, allp)
-    blocks = _prime_blocks(allp, threads)
+    blocks, k = _prime_blocks(allp, threads, _residue_words(skel, players),
+                              f"the exact win probabilities at n={space.spec.n}")
     outs = _run_blocks(
-        blocks, lambda b: _sweep_residues_block(skel, b, model == "moves", players)
+        blocks, lambda b: _sweep_residues_block(skel, b, model == "moves", players), k
     )
     out = np.concatenate(outs, axis=1)
     rows = [[int(x) for x in out[r, : len(primes)]] for r in range(players)]

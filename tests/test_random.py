@@ -301,3 +301,16 @@ def test_result_carries_rules_hash() -> None:
 
     d = random_play(6).to_dict()
     assert d["rules"] == "standard" and d["rules_hash"] == STANDARD.content_hash()
+
+
+def test_exact_paths_refuse_runs_that_do_not_fit(monkeypatch: pytest.MonkeyPatch) -> None:
+    """With (almost) no memory available both exact paths refuse before sweeping (common
+    practice: the project's rule that a run which cannot fit is refused up front)."""
+    import zeckenum.randomplay as rp
+    from zeckenum.errors import MemoryRefused
+
+    monkeypatch.setattr(rp, "available_bytes", lambda: 10)
+    with pytest.raises(MemoryRefused, match="estimated"):
+        rp.random_play(20)
+    with pytest.raises(MemoryRefused, match="estimated"):
+        rp.random_play(20, winners_only=True)
