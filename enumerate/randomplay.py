@@ -73,6 +73,7 @@ from .memory import available_bytes, refuse_if_over
 from .modular import crt, descending_primes
 from .rules import GameSpec, get_rules
 from .statespace import LayerMoves, StateSpace, build_space, move_applies
+from .windows import compact_rows
 
 MODELS = ("moves", "pairs")
 PRIME_CEILING = 2**50  # every residue prime lies below it (see `mulmod`)
@@ -447,35 +448,6 @@ def first_pass_pull(
                 d //= p
 
 
-@nb.njit(cache=True, nogil=True)
-def compact_incoming(
-    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray, keep: np.ndarray
-) -> tuple:
-    """Compressed rows restricted to kept moves: (ptr int64, drop int8, src int32, w int64).
-
-    w may be empty (model "moves": every weight is 1); it is then returned empty."""
-    size = ptr.size - 1
-    total = 0
-    for e in range(keep.size):
-        if keep[e]:
-            total += 1
-    new_ptr = np.zeros(size + 1, dtype=np.int64)
-    new_drop = np.empty(total, dtype=np.int8)
-    new_src = np.empty(total, dtype=np.int32)
-    new_w = np.empty(total if w.size else 0, dtype=np.int64)
-    k = 0
-    for j in range(size):
-        for e in range(ptr[j], ptr[j + 1]):
-            if keep[e]:
-                new_drop[k] = drop[e]
-                new_src[k] = src[e]
-                if w.size:
-                    new_w[k] = w[e]
-                k += 1
-        new_ptr[j + 1] = k
-    return new_ptr, new_drop, new_src, new_w
-
-
 # ----------------------------------------------------------------------------- second sweep
 
 
@@ -814,7 +786,7 @@ def skeleton_layers(
             first_pass_pull(lmin, lmax, ex, *live.get(src_level, empty), lm.ptr, lm.drop,
                             lm.dest, keep, dsum, spf, pidx, end_ex, stats, which)
         reached = lmin != UNREACHED
-        inc = Incoming(*compact_incoming(lm.ptr, lm.drop, lm.dest, w, keep))
+        inc = Incoming(*compact_rows(lm.ptr, lm.drop, lm.dest, w, keep))
         if size:
             max_in = max(max_in, int(np.diff(inc.ptr).max()))
         yield SweptLayer(

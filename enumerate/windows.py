@@ -246,9 +246,13 @@ def gather_order(drop: np.ndarray) -> list[int]:
 
 @nb.njit(cache=True, nogil=True)
 def compact_rows(
-    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, keep: np.ndarray
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Compressed rows restricted to the kept entries, with int8 drops and int32 ranks."""
+    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray, keep: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Compressed rows restricted to kept entries: (ptr int64, drop int8, src int32, w int64).
+
+    w holds a per-entry weight (random play's move weights) or is empty, and is then
+    returned empty.
+    """
     size = ptr.size - 1
     total = 0
     for e in range(keep.size):
@@ -257,15 +261,18 @@ def compact_rows(
     new_ptr = np.zeros(size + 1, dtype=np.int64)
     new_drop = np.empty(total, dtype=np.int8)
     new_src = np.empty(total, dtype=np.int32)
+    new_w = np.empty(total if w.size else 0, dtype=np.int64)
     k = 0
     for j in range(size):
         for e in range(ptr[j], ptr[j + 1]):
             if keep[e]:
                 new_drop[k] = drop[e]
                 new_src[k] = src[e]
+                if w.size:
+                    new_w[k] = w[e]
                 k += 1
         new_ptr[j + 1] = k
-    return new_ptr, new_drop, new_src
+    return new_ptr, new_drop, new_src, new_w
 
 
 def compress_incoming(
@@ -274,4 +281,5 @@ def compress_incoming(
     """The rows restricted to kept moves, in compact dtypes (int32 ranks, int8 drops)."""
     if src.size and int(src.max()) >= 2**31:
         raise ValueError("a layer with 2**31 states or more does not fit int32 ranks")
-    return Incoming(*compact_rows(ptr, drop, src, keep))
+    new_ptr, new_drop, new_src, _ = compact_rows(ptr, drop, src, np.zeros(0, np.int64), keep)
+    return Incoming(new_ptr, new_drop, new_src)
