@@ -265,6 +265,15 @@ def _walk_start(n: int, level: int, c: np.ndarray, lowv: np.ndarray, lowt: np.nd
     _terms(nb_ - 1, lowv, lowt, tab, suf)
 
 
+@nb.njit(cache=True, nogil=True, inline="always")
+def unit_game(values: np.ndarray, weights: np.ndarray) -> bool:
+    """Whether bin 1 has value 1 and every level weight is 1 (the walk's fast case)."""
+    unit = values[0] == 1
+    for k in range(values.size):
+        unit = unit and weights[k] == 1
+    return unit
+
+
 @nb.njit(cache=True, nogil=True)
 def walk_layer(n: int, level: int, size: int, tab: np.ndarray, values: np.ndarray,
                weights: np.ndarray) -> np.ndarray:
@@ -276,9 +285,7 @@ def walk_layer(n: int, level: int, size: int, tab: np.ndarray, values: np.ndarra
     lowv = np.zeros(nbins + 1, dtype=np.int64)
     lowt = np.zeros(nbins + 1, dtype=np.int64)
     suf = np.zeros((1, nbins + 1), dtype=np.int64)
-    unit = values[0] == 1
-    for k in range(nbins):
-        unit = unit and weights[k] == 1
+    unit = unit_game(values, weights)
     _walk_start(n, level, c, lowv, lowt, tab, values, weights, suf, unit)
     for q in range(size):
         if q > 0 and _step_down(c, lowv, lowt, tab, values, weights, unit) < 0:
@@ -344,15 +351,14 @@ def classify_layer_2p(
     suf = np.zeros((max_drop + 1, nbins + 1), dtype=np.int64)
     nmoves = mv_bins.shape[0]
     cand = np.zeros(nmoves, dtype=np.int64)
-    unit = values[0] == 1
-    for k in range(nbins):
-        unit = unit and weights[k] == 1
+    unit = unit_game(values, weights)
     b0 = base[0]
     p_count = 0
     examined = 0
     bad = -1
     _walk_start(n, level, c, lowv, lowt, tab, values, weights, suf, unit)
     for i in range(size - 1, -1, -1):
+        # one walk step (kept inline here: as an inlined helper it ran ~15% slower)
         if i < size - 1:
             j = _step_down(c, lowv, lowt, tab, values, weights, unit)
             if j < 0:
@@ -417,15 +423,14 @@ def classify_layer_multi(
     suf = np.zeros((max_drop + 1, nbins + 1), dtype=np.int64)
     nmoves = mv_bins.shape[0]
     cand = np.zeros(nmoves, dtype=np.int64)
-    unit = values[0] == 1
-    for k in range(nbins):
-        unit = unit and weights[k] == 1
+    unit = unit_game(values, weights)
     full = np.uint64(0xFFFFFFFFFFFFFFFF) >> np.uint64(64 - players)
     b0 = base[0]
     examined = 0
     bad = -1
     _walk_start(n, level, c, lowv, lowt, tab, values, weights, suf, unit)
     for i in range(size - 1, -1, -1):
+        # one walk step (kept inline here: as an inlined helper it ran ~15% slower)
         if i < size - 1:
             j = _step_down(c, lowv, lowt, tab, values, weights, unit)
             if j < 0:
