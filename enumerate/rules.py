@@ -18,9 +18,10 @@ value (what the state space is built over).
 Level weights (the engine's layering, see `statespace`): "tokens" uses the token count
 (weights all 1) and refuses a rule set that breaks it; "auto" uses the token count when
 every move keeps or lowers it and a move keeping it raises its largest changed bin, and
-otherwise a strict potential found by integer linear programming (`validate`); "potential"
-always uses the potential.  Rule files are read by `rulefile`; the shipped rule sets live
-in `rulesets/*.toml`.
+otherwise a strict potential found by integer linear programming (over the moves that fire
+at this n when the whole move set has none: `validate`); "potential" always uses a
+potential.  Rule files are read by `rulefile`; the shipped rule sets live in
+`rulesets/*.toml`.
 """
 
 from __future__ import annotations
@@ -151,7 +152,8 @@ class RuleSet:
 
         Every template is applied at every index of its range whose bins exist.  When a
         potential is needed for the layering, moves that take more value than the game has
-        (they can never apply) are left out.
+        (they can never apply) are left out, and when the rest has no potential but every
+        game ends, so are the moves that never fire from the start (`validate`).
         """
         if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 1:
             raise InputError(f"n must be a positive integer, got {n}")
@@ -177,7 +179,7 @@ class RuleSet:
         start = self.start_vector(n, values)
         from .validate import layering_weights
 
-        weights, keep = layering_weights(self, values, effects, names, start)
+        weights, keep, layering = layering_weights(self, values, effects, names, start)
         if keep is not None:
             names = [names[m] for m in keep]
             effects = [effects[m] for m in keep]
@@ -200,6 +202,7 @@ class RuleSet:
             mv_drop=mv_drop.astype(np.int64),
             move_names=tuple(names),
             start=start,
+            layering=layering,
         )
 
 
@@ -213,6 +216,8 @@ class GameSpec:
     mv_delta[m, j] change of the count in mv_bins[m, j]
     mv_drop[m]     how much move m lowers the level (>= 0 for a valid layering)
     start          the start state's count vector
+    layering       how the weights were found (`validate`: token count, strict or ranked
+                   potential, possibly on the moves that fire at this n only)
     """
 
     rules: RuleSet
@@ -224,6 +229,7 @@ class GameSpec:
     mv_drop: np.ndarray
     move_names: tuple[str, ...]
     start: np.ndarray
+    layering: str = "token count"
 
     @property
     def nbins(self) -> int:

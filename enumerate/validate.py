@@ -7,19 +7,33 @@ values, so D = 0 on d consecutive such indices (and every index before them) pro
 for every index: `check_values` checks exactly those.
 
 Termination and layering (the contract of `statespace`: every move lowers the level
-sum(weights * counts) or keeps it and goes to a higher co-lexicographic rank):
+sum(weights * counts) or keeps it and goes to a higher co-lexicographic rank).  A move
+*raises the rank* when it gains tokens in the largest bin it changes: then, at equal value
+and level, it leads to a co-lexicographically larger state whatever the state.  Tried in
+this order, on the moves that can apply at this value:
 
 1. token count: weights all 1 work when no move raises the token count and every move that
-   keeps it gains tokens in the largest bin it changes (then (level, rank) strictly
-   increases lexicographically in the order the engine sweeps, so every game ends);
+   keeps it raises the rank;
 2. strict potential: non-negative integer weights w with delta . w <= -1 for every move,
    found by integer linear programming (scipy.optimize.milp, HiGHS) with the smallest
    start level, then the smallest sum of weights; the solution is re-checked in exact
    integers;
 3. otherwise a depth-first search over the states reachable from the start for this n
    either finds a cycle (the game need not end: error listing the cycle's states) or shows
-   the reachable graph is acyclic (the game ends for this n, but the engine's layering needs
-   a linear potential: error saying so).
+   the reachable graph is acyclic.  Then only the moves that fire somewhere in that graph
+   matter: 2 is tried again on them alone, and the game is instantiated with just those
+   moves (it is the same game for this n).  If even they have no strict potential, the
+   error says so (the engine's layering needs one).
+
+Allowing moves that raise the rank to keep the level (delta . w <= 0 for them) would not
+widen case 2: by Farkas' lemma a strict potential fails to exist only when a non-negative,
+non-zero combination y of moves has y . delta >= 0 in every bin, hence = 0 (the moves keep
+the value and bin values are positive); the largest bin any move of y changes would then
+only gain if all of y's moves raised the rank, so y holds a move that does not, and that
+move blocks the relaxed program too.
+
+Every way through 1-3 proves the game ends: along every move (level, rank) strictly
+increases in the lexicographic order the engine sweeps, over a finite set of states.
 """
 
 from __future__ import annotations
@@ -143,26 +157,30 @@ def strict_potential(a: np.ndarray, start: np.ndarray) -> np.ndarray | None:
 
 def find_cycle(
     effects: Sequence[dict[int, int]], start: Sequence[int], limit: int = CYCLE_SEARCH_LIMIT
-) -> tuple[list[tuple[int, ...]] | None, int]:
-    """(a cycle of states reachable from `start`, or None; states visited).
+) -> tuple[list[tuple[int, ...]] | None, int, set[int]]:
+    """(a cycle of states reachable from `start` or None, states visited, moves that fired).
 
     Iterative depth-first search; the cycle is listed from its first state back to it.
-    InputError when more than `limit` states are reachable.
+    Without a cycle, `fired` holds the index of every move that applies to some reachable
+    state.  InputError when more than `limit` states are reachable.
     """
     moves = [sorted((b - 1, d) for b, d in eff.items()) for eff in effects]
     s0 = tuple(int(c) for c in start)
     colour: dict[tuple[int, ...], int] = {s0: 1}  # 1: on the stack, 2: finished
+    fired: set[int] = set()
     path = [s0]
     stack = [iter(_successors(s0, moves))]
     while stack:
-        nxt = next(stack[-1], None)
-        if nxt is None:
+        step = next(stack[-1], None)
+        if step is None:
             colour[path.pop()] = 2
             stack.pop()
             continue
+        m, nxt = step
+        fired.add(m)
         c = colour.get(nxt)
         if c == 1:
-            return path[path.index(nxt):] + [nxt], len(colour)
+            return path[path.index(nxt):] + [nxt], len(colour), fired
         if c is None:
             if len(colour) >= limit:
                 raise InputError(
@@ -171,16 +189,16 @@ def find_cycle(
             colour[nxt] = 1
             path.append(nxt)
             stack.append(iter(_successors(nxt, moves)))
-    return None, len(colour)
+    return None, len(colour), fired
 
 
 def _successors(state: tuple[int, ...], moves: list[list[tuple[int, int]]]):
-    for mv in moves:
+    for m, mv in enumerate(moves):
         if all(state[b] + d >= 0 for b, d in mv):
             nxt = list(state)
             for b, d in mv:
                 nxt[b] += d
-            yield tuple(nxt)
+            yield m, tuple(nxt)
 
 
 def format_state(state: Sequence[int]) -> str:
@@ -191,17 +209,21 @@ def format_state(state: Sequence[int]) -> str:
     return "(" + ",".join(str(c) for c in s) + ")"
 
 
+TOKENS = "token count"
+STRICT = "strict potential (integer LP)"
+
+
 def layering_weights(
     rules: RuleSet,
     values: Sequence[int],
     effects: list[dict[int, int]],
     names: list[str],
     start: np.ndarray,
-) -> tuple[np.ndarray, list[int] | None]:
-    """(level weights, kept move indices or None for all) for one instantiated game.
+) -> tuple[np.ndarray, list[int] | None, str]:
+    """(level weights, kept move indices or None for all, method) for one instantiated game.
 
-    See the module docstring for the three cases; raises InputError with one line when the
-    layering is impossible (the game may not end, or it ends but has no linear potential).
+    See the module docstring for cases 1-3; raises InputError with one line when the
+    layering is impossible (the game may not end, or it ends but has no potential).
     """
     nbins = len(values)
     mode = rules.level_weights
@@ -212,7 +234,7 @@ def layering_weights(
     if mode in ("tokens", "auto"):
         bad = token_violation(effects)
         if bad is None:
-            return np.ones(nbins, dtype=np.int64), None
+            return np.ones(nbins, dtype=np.int64), None, TOKENS
         if mode == "tokens":
             m, why = bad
             raise InputError(
@@ -224,21 +246,23 @@ def layering_weights(
         m for m, eff in enumerate(effects)
         if sum(-d * values[b - 1] for b, d in eff.items() if d < 0) <= value
     ]
-    kept = [effects[m] for m in keep]
-    w = _cached_potential(tuple(tuple(sorted(e.items())) for e in kept), nbins,
-                          tuple(start.tolist()))
+    w = _cached_potential([effects[m] for m in keep], nbins, start)
     if w is not None:
-        return w, keep
-    cycle, seen = find_cycle(kept, start)
+        return w, keep, STRICT
+    cycle, seen, fired = find_cycle([effects[m] for m in keep], start)
     if cycle is not None:
         shown = " -> ".join(format_state(s) for s in cycle)
         raise InputError(
             f"rule set {rules.name!r} does not terminate at value {value}: cycle {shown}"
         )
+    keep = [keep[j] for j in sorted(fired)]
+    w = _cached_potential([effects[m] for m in keep], nbins, start)
+    if w is not None:
+        return w, keep, f"{STRICT} of the {len(keep)} moves that fire at value {value}"
     raise InputError(
         f"rule set {rules.name!r}: every game ends at value {value} (the {seen} reachable "
-        "states form an acyclic graph), but no strict linear potential exists and the "
-        "engine's layering needs one"
+        "states form an acyclic graph), but even the moves that fire there have no strict "
+        "linear potential, and the engine's layering needs one"
     )
 
 
@@ -246,11 +270,12 @@ _POTENTIALS: dict[tuple, np.ndarray | None] = {}
 
 
 def _cached_potential(
-    effects: tuple[tuple[tuple[int, int], ...], ...], nbins: int, start: tuple[int, ...]
+    effects: list[dict[int, int]], nbins: int, start: np.ndarray
 ) -> np.ndarray | None:
-    key = (effects, nbins, start)
+    """`strict_potential` of these moves from `start`, memoised per process."""
+    key = (tuple(tuple(sorted(e.items())) for e in effects), nbins, tuple(start.tolist()))
     if key not in _POTENTIALS:
-        a = effect_matrix([dict(e) for e in effects], nbins)
+        a = effect_matrix(effects, nbins)
         _POTENTIALS[key] = strict_potential(a, np.array(start, dtype=np.int64))
     w = _POTENTIALS[key]
     return None if w is None else w.copy()
@@ -277,13 +302,11 @@ def layering_report(rules: RuleSet, n: int) -> LayeringReport:
     from .statespace import build_space
 
     spec = rules.instantiate(n)
-    ones = bool((spec.weights == 1).all())
-    method = "token count" if ones else "strict potential (integer LP)"
     space = build_space(spec)
     return LayeringReport(
         n=n,
         value=spec.n,
-        method=method,
+        method=spec.layering,
         weights=tuple(int(x) for x in spec.weights),
         start_level=spec.start_level,
         moves=len(spec.move_names),

@@ -21,8 +21,10 @@ import zeckenum
 from click.testing import CliRunner
 from zeckenum.cli_rules import rules_group
 from zeckenum.errors import InputError
+from zeckenum.randomplay import random_play
 from zeckenum.rulefile import parse_rules, read_rule_file
 from zeckenum.rules import BUILTIN, RULESETS_DIR, STANDARD, get_rules
+from zeckenum.solve import solve
 from zeckenum.validate import terminal_positions
 
 SHIPPED = sorted(BUILTIN)
@@ -354,7 +356,7 @@ def test_cyclic_moves(tmp_path: Path) -> None:
 
 def test_acyclic_without_potential(tmp_path: Path) -> None:
     # common practice: B1+B3 -> 2B2 -> B4 -> B1+B3 sums to zero (no linear potential), but
-    # from n tokens in bin 1 nothing moves at all
+    # from n tokens in bin 1 nothing moves at all: one game, of no move
     path = write(tmp_path, "a", """
     name = "a"
     [bins]
@@ -375,7 +377,80 @@ def test_acyclic_without_potential(tmp_path: Path) -> None:
     take = [4]
     give = [1, 3]
     """)
-    assert_one_line_error(run_check(path, "--n", "4"), "no strict linear potential exists")
+    res = run_check(path, "--n", "4")
+    assert res.exit_code == 0, res.output
+    assert "of the 0 moves that fire at value 4" in res.output
+    assert zeckenum.count(4, str(path), threads=1).length_counts == {0: 1}
+
+
+# Bins 1..5; pairs merge (1+1 -> 2, 2+2 -> 4), and a swap 3+4 <-> 2+5 with its inverse.
+# The swap pair alone sums to zero, so no linear potential exists for the whole move set.
+SWAP_GAME = """
+    name = "swap"
+    [bins]
+    values = [1, 2, 3, 4, 5]
+    [[move]]
+    name = "pair"
+    at = 1
+    take = [1, 1]
+    give = [2]
+    [[move]]
+    name = "double"
+    at = 2
+    take = [2, 2]
+    give = [4]
+    [[move]]
+    name = "swap-up"
+    at = 3
+    take = [3, 4]
+    give = [2, 5]
+    [[move]]
+    name = "swap-down"
+    at = 3
+    take = [2, 5]
+    give = [3, 4]
+"""
+
+SWAP_BF = {
+    "bins": lambda limit: [v for v in (1, 2, 3, 4, 5) if v <= limit],
+    "start": "ones",
+    "moves": [
+        (lambda k: ({1: 2}, {2: 1}), 1, 1),
+        (lambda k: ({2: 2}, {4: 1}), 2, 2),
+        (lambda k: ({3: 1, 4: 1}, {2: 1, 5: 1}), 3, 3),
+        (lambda k: ({2: 1, 5: 1}, {3: 1, 4: 1}), 3, 3),
+    ],
+}
+
+
+def test_moves_that_never_fire_are_left_out(tmp_path: Path) -> None:
+    # source: rules_bruteforce with all four moves.  From n tokens in bin 1 no token ever
+    # reaches bin 3 or 5, so the swaps never fire (common practice): the cycle search proves
+    # every game ends, and the two merges alone have a strict potential.
+    path = write(tmp_path, "swap", SWAP_GAME)
+    rs = read_rule_file(path)
+    for n in range(1, 13):
+        spec = rs.instantiate(n)
+        assert set(spec.move_names) <= {"pair@1", "double@2"}, n
+        game = bf.Game(SWAP_BF, n)
+        assert zeckenum.count(n, rs, threads=1).length_counts == dict(game.spectrum()), n
+        law = random_play(n, rs).length_probability
+        assert law == {k: v for k, v in game.length_distribution().items() if v}, n
+        assert (solve(n, rs).winner == 1) == game.first_player_wins(), n
+    res = run_check(path, "--n", "8")
+    assert res.exit_code == 0, res.output
+    assert "of the 2 moves that fire at value 8" in res.output
+
+
+def test_same_moves_cycle_from_another_start(tmp_path: Path) -> None:
+    # common practice: from one token in bin 3 and one in bin 4, swap-up then swap-down
+    # come back to the start
+    vector = 'name = "swap"\n    start = { vector = [0, 0, 1, 1] }'
+    text = SWAP_GAME.replace('name = "swap"', vector)
+    path = write(tmp_path, "swap2", text)
+    assert_one_line_error(run_check(path, "--n", "1"),
+                          "does not terminate at value 7: cycle (0,0,1,1) -> (0,1,0,0,1) -> "
+                          "(0,0,1,1)")
 
 
 def test_token_layering_refused_for_rising_moves(tmp_path: Path) -> None:
