@@ -8,12 +8,22 @@ Python API (the CLI is a thin layer over it)::
     res.to_dict()                     # JSON-ready
 """
 
+import sys
 from importlib.metadata import PackageNotFoundError, version
 
 from .count import count
 from .errors import CheckPrimeMismatch, InputError, MemoryRefused, ZeckenumError
 from .results import CountResult
 from .rules import STANDARD, RuleSet, get_rules
+
+# Exact results are integers and rationals of many thousands of digits (the fourth moment
+# of a random game's length under the "pairs" model passes 4300 digits near n = 42), and
+# tables and checkpoints hold them as decimal text.  Python >= 3.11 refuses to convert an
+# int of more than 4300 digits to or from text by default; every such conversion in this
+# package is of a number it computed or of a file whose checksum it verifies, so the limit
+# is lifted once, here.
+if hasattr(sys, "set_int_max_str_digits"):
+    sys.set_int_max_str_digits(0)
 
 try:
     __version__ = version("zeckenum")

@@ -314,3 +314,19 @@ def test_exact_paths_refuse_runs_that_do_not_fit(monkeypatch: pytest.MonkeyPatch
         rp.random_play(20)
     with pytest.raises(MemoryRefused, match="estimated"):
         rp.random_play(20, winners_only=True)
+
+
+def test_json_of_moments_with_thousands_of_digits() -> None:
+    # source: fractions; the fourth central moment under "pairs" at n = 44 has more than
+    # 4300 digits (the default limit of Python's int <-> str conversion), and the printed
+    # moments must equal the ones recomputed from the printed law
+    res = CliRunner().invoke(random_command, ["44", "--model", "pairs", "--json"])
+    assert res.exit_code == 0, res.output
+    d = json.loads(res.output)
+    law = {int(k): Fraction(v) for k, v in d["length_probability"].items()}
+    assert sum(law.values()) == 1
+    mean = sum(k * p for k, p in law.items())
+    assert Fraction(d["mean_length"]) == mean
+    m4 = sum((k - mean) ** 4 * p for k, p in law.items())
+    assert Fraction(d["central_moment_4"]) == m4
+    assert len(d["central_moment_4"]) > 4300
