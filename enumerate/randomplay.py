@@ -53,6 +53,12 @@ this needs about 37% fewer primes for the same denominator.
 Prime blocks are independent: each block runs the whole second sweep in its own thread
 (kernels release the GIL).  The winner-only path keeps per state the P residues of length
 mod P instead of a window of lengths; it costs O(P) per move instead of O(window).
+
+Shards.  One block's sweep is `random_law_residues` (kernel `pull_mod_windows`) or
+`random_win_residues` (kernel `pull_mod_residues`), each returning int64 residues laid out
+[prime][column]; their cluster twins are `zeckenum.cluster.random_tasks.random_law_task`
+and `random_win_task`.  `assemble_random` turns the residues of all blocks into the
+`RandomResult`, for the in-process path (`random_play`) and the cluster path alike.
 """
 
 from __future__ import annotations
@@ -823,14 +829,21 @@ def first_sweep(
     )
 
 
-def _check_accumulation(space: StateSpace, skel: Skeleton, model: str,
-                        primes: list[int]) -> None:
-    """Refuse a run outside the proved ranges of `mulmod` and `reduce62` (see module doc)."""
+def weight_bound(space: StateSpace, skel: Skeleton, model: str) -> int:
+    """The largest total move weight D(s) the exact sweep may have to invert: the largest
+    one the first sweep met, or the a-priori bound `max_weight_bound` if that is larger."""
+    return max(skel.max_weight, max_weight_bound(space.spec, model))
+
+
+def check_random_primes(primes: list[int], max_indegree: int, max_weight: int) -> None:
+    """Refuse residue primes outside the proved ranges of `mulmod` and `reduce62` (see the
+    module docstring), for a game with at most `max_indegree` moves into one state and
+    total move weights at most `max_weight` (`weight_bound`)."""
     if max(primes) >= PRIME_CEILING or min(primes) <= PRIME_FLOOR:
         raise InputError("residue primes must lie between 2**13 and 2**50")
-    if (skel.max_indegree + 1) * max(primes) >= 2**62:
+    if (max_indegree + 1) * max(primes) >= 2**62:
         raise InputError("too many moves into one state for the exact sweep's accumulation")
-    if max(skel.max_weight, max_weight_bound(space.spec, model)) >= min(primes):
+    if max_weight >= min(primes):
         raise InputError("move weights too large for the exact random sweep")
 
 
@@ -874,20 +887,27 @@ def _prime_blocks(
     return [b for b in blocks if b.size], k
 
 
-def _window_words(skel: Skeleton) -> int:
-    """int64 words per prime of `_sweep_windows_block`'s buffer ring."""
+def law_words_per_prime(skel: Skeleton) -> int:
+    """int64 words per prime of `random_law_residues`'s buffer ring."""
     span = max(1, min(skel.max_drop + 1, len(skel.levels)))
     return span * max(int(skel.win[lv].astype(np.int64).sum()) for lv in skel.levels)
 
 
-def _residue_words(skel: Skeleton, players: int) -> int:
-    """int64 words per prime of `_sweep_residues_block`'s buffer ring."""
+def win_words_per_prime(skel: Skeleton, players: int) -> int:
+    """int64 words per prime of `random_win_residues`'s buffer ring."""
     span = max(1, min(skel.max_drop + 1, len(skel.levels)))
     return span * max(skel.win[lv].size for lv in skel.levels) * players
 
 
-def _sweep_windows_block(skel: Skeleton, primes: np.ndarray, unit: bool) -> np.ndarray:
-    """out[L, q] = (probability of length L) mod primes[q], one block, whole sweep."""
+def random_law_residues(skel: Skeleton, primes: np.ndarray | list[int], unit: bool) -> np.ndarray:
+    """residues[q, L] = P(length = L) mod primes[q] (as N * M^-1 mod q, see `_rebuild`),
+    int64 of shape (len(primes), longest + 1): the exact sweep of one prime block.
+
+    `unit`: every move weight is 1 (model "moves").  One shard of the length law: in-process
+    `random_play` runs the blocks in threads, its cluster twin is
+    `zeckenum.cluster.random_tasks.random_law_task`.  Kernel: `pull_mod_windows`.
+    """
+    primes = np.asarray(primes, dtype=np.int64)
     nq = primes.size
     pinv = 1.0 / primes.astype(np.float64)
     inv = inverse_table(primes, max(skel.max_weight, 1))
@@ -916,18 +936,25 @@ def _sweep_windows_block(skel: Skeleton, primes: np.ndarray, unit: bool) -> np.n
                              pinv, inv, out, which)
         live[level] = (vals, off, lmin, win)
         drop_stale(live, level, skel.max_drop)
-    return out
+    return np.ascontiguousarray(out.T)
 
 
-def _sweep_residues_block(skel: Skeleton, primes: np.ndarray, unit: bool,
-                          players: int) -> np.ndarray:
-    """out[r, q] = P(length = r mod players) mod primes[q], one block, whole sweep."""
+def random_win_residues(skel: Skeleton, primes: np.ndarray | list[int], unit: bool,
+                        players: int) -> np.ndarray:
+    """residues[q, r] = P(length = r mod players) mod primes[q], int64 of shape
+    (len(primes), players): the winner-only sweep of one prime block.
+
+    One shard of the win probabilities: in-process `random_play(winners_only=True)` runs the
+    blocks in threads, its cluster twin is `zeckenum.cluster.random_tasks.random_win_task`.
+    Kernel: `pull_mod_residues`.
+    """
+    primes = np.asarray(primes, dtype=np.int64)
     nq = primes.size
     pinv = 1.0 / primes.astype(np.float64)
     inv = inverse_table(primes, max(skel.max_weight, 1))
     out = np.zeros((players, nq), dtype=np.int64)
     cap = max(skel.win[lv].size for lv in skel.levels) * players * nq
-    span = min(skel.max_drop + 1, len(skel.levels))  # as in `_sweep_windows_block`
+    span = min(skel.max_drop + 1, len(skel.levels))  # as in `random_law_residues`
     ring = [np.empty(cap, dtype=np.int64) for _ in range(max(span, 1))]
     empty = np.zeros((0, players, nq), dtype=np.int64)
     live: dict[int, np.ndarray] = {}
@@ -944,7 +971,7 @@ def _sweep_residues_block(skel: Skeleton, primes: np.ndarray, unit: bool,
                               which)
         live[level] = vals
         drop_stale(live, level, skel.max_drop)
-    return out
+    return np.ascontiguousarray(out.T)
 
 
 def _run_blocks(
@@ -957,23 +984,66 @@ def _run_blocks(
         return list(pool.map(fn, blocks))
 
 
+def random_residues(
+    space: StateSpace, skel: Skeleton, model: str, players: int, winners_only: bool,
+    prime_offset: int = 0, threads: int | None = None,
+) -> tuple[np.ndarray, list[int], int]:
+    """(residues, primes, check prime) of the exact sweep run in-process, block by block in
+    threads.
+
+    residues has one row per prime, in the order primes + [check prime]: the columns of
+    `random_law_residues` (lengths 0 .. longest), or with `winners_only` those of
+    `random_win_residues` (length mod players).  The primes are the fewest below 2**50
+    whose product exceeds the denominator M (`primes_exceeding`).
+    """
+    primes, check_prime = primes_exceeding(skel.denominator, prime_offset)
+    allp = primes + [check_prime]
+    check_random_primes(allp, skel.max_indegree, weight_bound(space, skel, model))
+    unit = model == "moves"
+    if winners_only:
+        blocks, k = _prime_blocks(allp, threads, win_words_per_prime(skel, players),
+                                  f"the exact win probabilities at n={space.spec.n}")
+        outs = _run_blocks(blocks, lambda b: random_win_residues(skel, b, unit, players), k)
+    else:
+        blocks, k = _prime_blocks(allp, threads, law_words_per_prime(skel),
+                                  f"the exact length law at n={space.spec.n}")
+        outs = _run_blocks(blocks, lambda b: random_law_residues(skel, b, unit), k)
+    return np.concatenate(outs, axis=0), primes, check_prime
+
+
+def law_from_residues(
+    residues: np.ndarray, primes: list[int], check_prime: int, denominator: int
+) -> dict[int, Fraction]:
+    """{length: exact probability} for the lengths of positive probability, from the rows
+    of `random_law_residues` (primes + [check prime]); CRT checked by the check prime."""
+    nrec = len(primes)
+    lengths = [L for L in range(residues.shape[1]) if residues[:, L].any()]
+    rows = [[int(x) for x in residues[:nrec, L]] for L in lengths]
+    check = [int(residues[nrec, L]) for L in lengths]
+    fr = _rebuild(rows, check, primes, check_prime, denominator, "length probability")
+    return dict(zip(lengths, fr, strict=True))
+
+
+def wins_from_residues(
+    residues: np.ndarray, primes: list[int], check_prime: int, denominator: int
+) -> dict[int, Fraction]:
+    """{r: P(length = r mod players)} from the rows of `random_win_residues`
+    (primes + [check prime]); CRT checked by the check prime."""
+    nrec = len(primes)
+    rows = [[int(x) for x in residues[:nrec, r]] for r in range(residues.shape[1])]
+    check = [int(residues[nrec, r]) for r in range(residues.shape[1])]
+    fr = _rebuild(rows, check, primes, check_prime, denominator, "residue probability")
+    return dict(enumerate(fr))
+
+
 def exact_length_distribution(
     space: StateSpace, skel: Skeleton, model: str, prime_offset: int = 0,
     threads: int | None = None,
 ) -> tuple[dict[int, Fraction], list[int], int]:
     """({length: exact probability} for lengths of positive probability, primes, check)."""
-    primes, check_prime = primes_exceeding(skel.denominator, prime_offset)
-    allp = primes + [check_prime]
-    _check_accumulation(space, skel, model, allp)
-    blocks, k = _prime_blocks(allp, threads, _window_words(skel),
-                              f"the exact length law at n={space.spec.n}")
-    outs = _run_blocks(blocks, lambda b: _sweep_windows_block(skel, b, model == "moves"), k)
-    out = np.concatenate(outs, axis=1)
-    lengths = [L for L in range(out.shape[0]) if out[L].any()]
-    rows = [[int(x) for x in out[L, : len(primes)]] for L in lengths]
-    check = [int(out[L, len(primes)]) for L in lengths]
-    fr = _rebuild(rows, check, primes, check_prime, skel.denominator, "length probability")
-    return dict(zip(lengths, fr, strict=True)), primes, check_prime
+    residues, primes, check = random_residues(space, skel, model, 2, False, prime_offset,
+                                              threads)
+    return law_from_residues(residues, primes, check, skel.denominator), primes, check
 
 
 def exact_win_residues(
@@ -981,19 +1051,9 @@ def exact_win_residues(
     threads: int | None = None,
 ) -> tuple[dict[int, Fraction], list[int], int]:
     """({r: P(length = r mod players)}, primes, check) without any length window."""
-    primes, check_prime = primes_exceeding(skel.denominator, prime_offset)
-    allp = primes + [check_prime]
-    _check_accumulation(space, skel, model, allp)
-    blocks, k = _prime_blocks(allp, threads, _residue_words(skel, players),
-                              f"the exact win probabilities at n={space.spec.n}")
-    outs = _run_blocks(
-        blocks, lambda b: _sweep_residues_block(skel, b, model == "moves", players), k
-    )
-    out = np.concatenate(outs, axis=1)
-    rows = [[int(x) for x in out[r, : len(primes)]] for r in range(players)]
-    check = [int(out[r, len(primes)]) for r in range(players)]
-    fr = _rebuild(rows, check, primes, check_prime, skel.denominator, "residue probability")
-    return dict(enumerate(fr)), primes, check_prime
+    residues, primes, check = random_residues(space, skel, model, players, True, prime_offset,
+                                              threads)
+    return wins_from_residues(residues, primes, check, skel.denominator), primes, check
 
 
 # ----------------------------------------------------------------------------- API
@@ -1095,15 +1155,55 @@ def validate(n: int, players: int, model: str) -> None:
     check_model(model)
 
 
+def assemble_random(
+    *, rules: str, rules_hash: str, n: int, players: int, model: str, winners_only: bool,
+    denominator: int, states: int, transitions: int, primes: list[int], check_prime: int,
+    residues: np.ndarray, stats: dict,
+) -> RandomResult:
+    """The `RandomResult` of one game from its exact sweep's residues.
+
+    residues: one row per prime, in the order primes + [check prime], with the columns of
+    `random_law_residues` (lengths) or, with `winners_only`, of `random_win_residues`
+    (length mod players).  The CRT rebuilds every probability times the denominator M,
+    checked against the check prime (CheckPrimeMismatch); then the win probabilities, and
+    for the length law its exact moments and Gaussian diagnostics.  Shared by the
+    in-process path (`random_play`) and the cluster path (`zeckenum.cluster.run.run_random`),
+    so both give equal results (stats aside).
+    """
+    from .moments import exact_moments, gaussian_diagnostics
+
+    moments: dict = {}
+    gauss: dict = {}
+    if winners_only:
+        res = wins_from_residues(residues, primes, check_prime, denominator)
+        wins = {winner_of_length(r, players): v for r, v in res.items()}
+        wins = dict(sorted(wins.items()))
+        dist = None
+    else:
+        dist = law_from_residues(residues, primes, check_prime, denominator)
+        wins = wins_from_lengths(dist, players)
+        moments = exact_moments(dist)
+        gauss = gaussian_diagnostics({k: float(v) for k, v in dist.items()})
+    return RandomResult(
+        rules=rules, rules_hash=rules_hash, n=n, players=players, model=model,
+        win_probability=wins,
+        length_probability=dist, moments=moments, gaussian=gauss,
+        denominator=denominator, primes=tuple(primes), check_prime=check_prime,
+        states=states, transitions=transitions, stats=stats,
+    )
+
+
 def random_play(
     n: int, rules: str = "standard", players: int = 2, model: str = "moves", *,
     winners_only: bool = False, prime_offset: int = 0, threads: int | None = None,
 ) -> RandomResult:
     """Exact random play at n: the length distribution (unless `winners_only`) and the
-    probability that each of `players` players wins, under random model `model`."""
-    import time
+    probability that each of `players` players wins, under random model `model`.
 
-    from .moments import exact_moments, gaussian_diagnostics
+    In-process: the first sweep, then the prime blocks in threads (`random_residues`),
+    then `assemble_random`.  `zeckenum.cluster.run.run_random` shards the same blocks
+    across Dask workers, with checkpoints, and gives an equal result."""
+    import time
 
     validate(n, players, model)
     rs = get_rules(rules)
@@ -1111,28 +1211,14 @@ def random_play(
     space = build_space(rs.instantiate(n))
     skel = first_sweep(space, model, threads=threads)
     t1 = time.perf_counter()
-    moments: dict = {}
-    gauss: dict = {}
-    if winners_only:
-        res, primes, check = exact_win_residues(
-            space, skel, model, players, prime_offset, threads
-        )
-        wins = {winner_of_length(r, players): v for r, v in res.items()}
-        wins = dict(sorted(wins.items()))
-        dist = None
-    else:
-        dist, primes, check = exact_length_distribution(
-            space, skel, model, prime_offset, threads
-        )
-        wins = wins_from_lengths(dist, players)
-        moments = exact_moments(dist)
-        gauss = gaussian_diagnostics({k: float(v) for k, v in dist.items()})
-    t2 = time.perf_counter()
-    return RandomResult(
+    residues, primes, check = random_residues(space, skel, model, players, winners_only,
+                                              prime_offset, threads)
+    stats: dict = {"first_sweep_s": round(t1 - t0, 3)}
+    res = assemble_random(
         rules=rs.name, rules_hash=rs.content_hash(), n=n, players=players, model=model,
-        win_probability=wins,
-        length_probability=dist, moments=moments, gaussian=gauss,
-        denominator=skel.denominator, primes=tuple(primes), check_prime=check,
-        states=skel.states, transitions=skel.transitions,
-        stats={"first_sweep_s": round(t1 - t0, 3), "exact_sweep_s": round(t2 - t1, 3)},
+        winners_only=winners_only, denominator=skel.denominator, states=skel.states,
+        transitions=skel.transitions, primes=primes, check_prime=check, residues=residues,
+        stats=stats,
     )
+    stats["exact_sweep_s"] = round(time.perf_counter() - t1, 3)
+    return res
