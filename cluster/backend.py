@@ -8,10 +8,10 @@
 * `scheduler=ADDRESS`: a client of an existing cluster (nothing is started or closed).
 
 Numba's on-disk cache is not safe when several processes compile the same function at once
-(numba issues 4807 and 10128).  So the client compiles first (`warm_up`: a tiny count in
-this process), and every worker process gets a cache folder of its own, a *slot* under
-`$ZECKENUM_NUMBA_CACHE` (default: <tmp>/zeckenum-numba-<uid>) held with an exclusive
-`flock` (the kernel drops the lock when its holder dies, even by SIGKILL):
+(numba issues 4807 and 10128).  So the client compiles first (`warm_up`: a tiny count or
+random play in this process), and every worker process gets a cache folder of its own, a
+*slot* under `$ZECKENUM_NUMBA_CACHE` (default: <tmp>/zeckenum-numba-<uid>) held with an
+exclusive `flock` (the kernel drops the lock when its holder dies, even by SIGKILL):
 
 * `--workers K`: the client locks K slots, copies its freshly compiled kernels into them
   (`seed_slot`) and starts worker i with NUMBA_CACHE_DIR set to slot i, so the worker
@@ -38,24 +38,37 @@ from ..errors import InputError
 log = logging.getLogger("zeckenum.cluster")
 
 _warm = threading.Lock()
-_warmed = False
+_warmed: set[str] = set()
+
+WARM_KINDS = ("count", "random")
+"""Kinds of run whose kernels `warm_up` knows how to compile."""
 
 
-def warm_up() -> None:
-    """Compile (or load) every kernel of `count` in this process, once."""
-    global _warmed
+def warm_up(kinds: tuple[str, ...] = ("count",)) -> None:
+    """Compile (or load) the kernels of each kind of run in `kinds` in this process, once:
+    "count" (a tiny `count`) and "random" (a tiny `random_play`, length law and winners)."""
     with _warm:
-        if not _warmed:
-            from ..count import count
+        for kind in kinds:
+            if kind in _warmed:
+                continue
+            if kind == "count":
+                from ..count import count
 
-            count(5, threads=1)
-            _warmed = True
+                count(5, threads=1)
+            elif kind == "random":
+                from ..randomplay import random_play
+
+                random_play(5, threads=1)
+                random_play(5, threads=1, winners_only=True)
+            else:
+                raise ValueError(f"unknown kind of run to warm up: {kind!r}")
+            _warmed.add(kind)
 
 
-def warm_worker() -> bool:
+def warm_worker(kinds: tuple[str, ...] = ("count",)) -> bool:
     """Run on each worker when a pool opens: import zeckenum and load (or compile) its
     kernels there, so the first shard does not pay for it."""
-    warm_up()
+    warm_up(kinds)
     return True
 
 
@@ -319,9 +332,10 @@ def close_cluster(cluster) -> None:  # noqa: ANN001
             os.close(fd)
 
 
-def connect(address_or_cluster, workers: int | None = None, plugin: bool = True):  # noqa: ANN001, ANN201
+def connect(address_or_cluster, workers: int | None = None, plugin: bool = True,  # noqa: ANN001, ANN201
+            warm: tuple[str, ...] = ("count",)):
     """A Client (with the numba cache slot plugin unless `plugin` is False); waits for
-    `workers` workers."""
+    `workers` workers and loads the kernels of the kinds of run `warm` on each."""
     from distributed import Client
 
     client = Client(address_or_cluster, set_as_default=False, timeout=15)
@@ -330,7 +344,7 @@ def connect(address_or_cluster, workers: int | None = None, plugin: bool = True)
             client.register_plugin(_make_plugin())
         if workers:
             client.wait_for_workers(workers, timeout=120)
-        client.run(warm_worker)
+        client.run(warm_worker, tuple(warm))
     except BaseException:
         client.close()
         raise
@@ -339,17 +353,21 @@ def connect(address_or_cluster, workers: int | None = None, plugin: bool = True)
 
 @contextlib.contextmanager
 def open_pool(
-    workers: int | None = None, scheduler: str | None = None, threads: int | None = None
+    workers: int | None = None, scheduler: str | None = None, threads: int | None = None,
+    warm: tuple[str, ...] = ("count",),
 ) -> Iterator[Pool]:
-    """A `Pool` for the requested backend, closed (cluster included) on exit."""
+    """A `Pool` for the requested backend, closed (cluster included) on exit.
+
+    warm: the kinds of run ("count", "random") whose kernels are compiled here first (and
+    copied into the new workers' cache slots) and loaded on every worker."""
     if workers is not None and scheduler is not None:
         raise InputError("give either --workers or --scheduler, not both")
     if workers is not None and workers < 1:
         raise InputError(f"workers must be >= 1, got {workers}")
-    warm_up()
+    warm_up(tuple(warm))
     if scheduler is not None:
         try:
-            client = connect(scheduler)
+            client = connect(scheduler, warm=warm)
         except (OSError, TimeoutError) as exc:
             raise InputError(f"cannot reach the Dask scheduler at {scheduler}: {exc}") from None
         try:
@@ -363,7 +381,7 @@ def open_pool(
         cluster = start_local_cluster(workers)
         client = None
         try:
-            client = connect(cluster, workers, plugin=False)
+            client = connect(cluster, workers, plugin=False, warm=warm)
             yield DaskPool(client)
         finally:
             if client is not None:

@@ -1,18 +1,24 @@
 """Checkpoints: every finished shard on disk, so a rerun resumes instead of starting over.
 
-Layout of a checkpoint directory (one n):
+Layout of a checkpoint directory (one n of one kind of run: a count, or random play):
 
-    manifest.json        parameters, the shard plan, the first sweep's facts, and per shard
-                         its file name, SHA-256, word updates (null until it is done)
-    shard-0000.npy ...   residues of one block (numpy .npy, int64, block size x (longest+1))
+    manifest.json        parameters, the shard plan, the first sweep's facts, the columns
+                         of a shard, and per shard its file name, SHA-256, word updates
+                         (null until it is done)
+    shard-0000.npy ...   residues of one block (numpy .npy, int64, primes in the block x
+                         columns: longest + 1 lengths for a count or a length law, the
+                         players for win probabilities)
 
 Every file is written atomically: a temporary file in the same directory, flushed and
 fsync'ed, then renamed over the final name (and the directory fsync'ed), so a crash leaves
 either the old or the new file, never a torn one.  A rerun first compares the parameters
-(rule set name and content hash, n, prime offset, code version); a directory from other
-parameters is refused (`CheckpointRefused`).  Then each finished shard is re-read and
-checked (SHA-256, shape, residues below their primes): a corrupt, truncated or swapped file
-is reported with a warning line and recomputed, never used.
+(the kind of run -- "count" or "random" -- and its own parameters such as the random
+model, the players and winners-only; the rule set name and content hash, n, prime offset,
+code version); a directory from other parameters is refused (`CheckpointRefused`), so a
+count's directory is never reused by random play or the other way round.  Then each
+finished shard is re-read and checked (SHA-256, shape against the kind's column count,
+residues below their primes): a corrupt, truncated or swapped file is reported with a
+warning line and recomputed, never used.
 """
 
 from __future__ import annotations
@@ -78,25 +84,47 @@ def warn(message: str) -> None:
     print(f"zeckenum: warning: {message}", file=sys.stderr, flush=True)
 
 
-def parameters(plan: ShardPlan) -> dict:
-    """What must match for a checkpoint to be reused."""
+COUNT_KIND = {"kind": "count"}
+"""The kind parameters of a count (and of every manifest written before kinds existed)."""
+
+
+def parameters(plan: ShardPlan, kind: dict | None = None) -> dict:
+    """What must match for a checkpoint to be reused: the kind of run first ("kind" and the
+    kind's own parameters, default a count), then rule set, n, prime offset and version."""
+    kind = COUNT_KIND if kind is None else kind
     return {
+        "kind": kind["kind"],
         "rules": plan.rules,
         "rules_hash": plan.rules_hash,
         "n": plan.n,
         "prime_offset": plan.prime_offset,
         "version": __version__,
+        **{k: v for k, v in kind.items() if k != "kind"},
     }
 
 
 @dataclass
 class Checkpoint:
-    """A checkpoint directory of one exact count: its plan, facts and finished shards."""
+    """A checkpoint directory of one sharded run: its plan, facts and finished shards.
+
+    kind     the kind parameters ({"kind": "count"} or e.g. {"kind": "random", "model": ..,
+             "players": .., "winners_only": ..})
+    columns  residues per prime of every shard (None: a count's longest + 1 from facts)
+    """
 
     root: Path
     plan: ShardPlan
     facts: dict
     shards: list[dict] = field(default_factory=list)
+    kind: dict = field(default_factory=lambda: dict(COUNT_KIND))
+    columns: int | None = None
+
+    @property
+    def shard_columns(self) -> int:
+        """Residues per prime that every shard file must hold."""
+        if self.columns is not None:
+            return int(self.columns)
+        return int(self.facts["longest"]) + 1
 
     @property
     def manifest_path(self) -> Path:
@@ -108,11 +136,12 @@ class Checkpoint:
     def to_dict(self) -> dict:
         return {
             "format": FORMAT,
-            "parameters": parameters(self.plan),
+            "parameters": parameters(self.plan, self.kind),
             "check_prime": str(self.plan.check_prime),
             "primes": [str(p) for p in self.plan.primes],
             "plan": self.plan.to_dict(),
             "facts": self.facts,
+            "columns": self.shard_columns,
             "shards": self.shards,
         }
 
@@ -157,9 +186,9 @@ class Checkpoint:
                     problem = "cannot be read as an array"
         if residues is not None:
             block = np.asarray(self.plan.blocks[i], dtype=np.int64)
-            longest = int(self.facts["longest"])
-            if residues.dtype != np.int64 or residues.shape != (block.size, longest + 1):
-                problem = f"has shape {residues.shape}, expected {(block.size, longest + 1)}"
+            shape = (block.size, self.shard_columns)
+            if residues.dtype != np.int64 or residues.shape != shape:
+                problem = f"has shape {residues.shape}, expected {shape}"
             elif residues.size and (
                 residues.min() < 0 or np.any(residues >= block[:, None])
             ):
@@ -195,11 +224,13 @@ def read_manifest(root: Path) -> dict | None:
 
 
 def check_parameters(root: Path, stored: dict, wanted: dict) -> None:
-    """CheckpointRefused naming the first parameter that differs."""
+    """CheckpointRefused naming the first parameter that differs (a manifest without a kind
+    was written by a count)."""
     for key, value in wanted.items():
-        if stored.get(key) != value:
+        have = stored.get(key, COUNT_KIND.get(key))
+        if have != value:
             raise CheckpointRefused(
-                f"checkpoint {root} was written for {key}={stored.get(key)!r}, "
+                f"checkpoint {root} was written for {key}={have!r}, "
                 f"not {key}={value!r}; use another directory (or remove it)"
             )
 
@@ -208,7 +239,9 @@ def open_existing(root: Path, wanted: dict, plan: ShardPlan | None = None) -> Ch
     """The checkpoint in `root` if it matches `wanted` parameters, None if there is none.
 
     `plan`, when given, must equal the stored plan (an explicitly different blocking is
-    refused too); otherwise the stored plan is reused as it is.
+    refused too); otherwise the stored plan is reused as it is.  The checkpoint's kind is
+    taken from `wanted` (its "kind" and the keys `parameters` adds after "version"); set
+    `columns` on it before loading shards of a kind other than a count.
     """
     data = read_manifest(root)
     if data is None:
@@ -230,16 +263,26 @@ def open_existing(root: Path, wanted: dict, plan: ShardPlan | None = None) -> Ch
         raise CheckpointRefused(f"checkpoint {root / MANIFEST} is damaged; remove it")
     for stale in Path(root).glob(".*.tmp"):  # left by a client killed while writing
         stale.unlink(missing_ok=True)
-    return Checkpoint(root=Path(root), plan=stored, facts=facts, shards=shards)
+    base = set(parameters(stored))
+    kind = {"kind": wanted.get("kind", "count"),
+            **{k: v for k, v in wanted.items() if k not in base}}
+    return Checkpoint(root=Path(root), plan=stored, facts=facts, shards=shards, kind=kind)
 
 
-def create(root: Path, plan: ShardPlan, facts: dict) -> Checkpoint:
-    """A new checkpoint for `plan` in `root` (created if needed), manifest written."""
+def create(
+    root: Path, plan: ShardPlan, facts: dict, kind: dict | None = None,
+    columns: int | None = None,
+) -> Checkpoint:
+    """A new checkpoint for `plan` in `root` (created if needed), manifest written.
+
+    kind: the kind parameters (default a count); columns: residues per prime of a shard
+    (default a count's longest + 1)."""
     root = Path(root)
     root.mkdir(parents=True, exist_ok=True)
     cp = Checkpoint(
         root=root, plan=plan, facts=facts,
         shards=[blank_entry(i) for i in range(len(plan.blocks))],
+        kind=dict(COUNT_KIND if kind is None else kind), columns=columns,
     )
     cp.save_manifest()
     return cp

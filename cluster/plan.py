@@ -1,10 +1,12 @@
-"""Shard plans: which primes an exact count uses and how they are cut into blocks.
+"""Shard plans: which primes a sharded run uses and how they are cut into blocks.
 
 Every prime costs the same work (the exact sweep does the same word updates per prime), so
 blocks of equal size balance.  The default aims at `count.PRIMES_PER_BLOCK` primes per
 block and rounds the number of blocks up to a multiple of the workers, so that every
 worker gets the same share; `blocks=` or `max_primes_per_block=` override it (tests use
-them to get several shards at small n).
+them to get several shards at small n).  A count takes primes below 2**62 for its size
+bound (`make_plan`); random play takes primes below 2**50 whose product exceeds its
+denominator (`zeckenum.randomplay.primes_exceeding`); both are cut by `plan_from_primes`.
 """
 
 from __future__ import annotations
@@ -15,6 +17,7 @@ from dataclasses import dataclass
 from ..count import PRIMES_PER_BLOCK
 from ..errors import InputError
 from ..modular import primes_for_bits
+from .random_tasks import RandomFacts
 from .tasks import Facts
 
 
@@ -95,9 +98,20 @@ def make_plan(
     facts: Facts, prime_offset: int = 0, workers: int = 1, blocks: int | None = None,
     max_primes_per_block: int | None = None,
 ) -> ShardPlan:
-    """The shard plan of the game described by `facts`."""
+    """The shard plan of the exact count described by `facts` (primes below 2**62 for its
+    size bound `count_bits`, plus the check prime)."""
     primes, check = primes_for_bits(facts.count_bits, prime_offset)
-    allp = (*primes, check)
+    return plan_from_primes(facts, prime_offset, list(primes), check, workers, blocks,
+                            max_primes_per_block)
+
+
+def plan_from_primes(
+    facts: Facts | RandomFacts, prime_offset: int, primes: list[int], check_prime: int,
+    workers: int = 1, blocks: int | None = None, max_primes_per_block: int | None = None,
+) -> ShardPlan:
+    """The shard plan of any kind of run: `primes` + [check_prime] cut into equal blocks
+    (`block_count`, `split_evenly`); `facts` names the game (rules, rules_hash, n)."""
+    allp = (*primes, check_prime)
     nblocks = block_count(len(allp), workers, blocks, max_primes_per_block)
     return ShardPlan(
         rules=facts.rules,
@@ -105,12 +119,12 @@ def make_plan(
         n=facts.n,
         prime_offset=prime_offset,
         primes=tuple(primes),
-        check_prime=check,
+        check_prime=check_prime,
         blocks=split_evenly(allp, nblocks),
     )
 
 
-def worker_bytes(facts: Facts, plan: ShardPlan, threads: int = 1) -> int:
+def worker_bytes(facts: Facts | RandomFacts, plan: ShardPlan, threads: int = 1) -> int:
     """Peak bytes of one worker running `threads` shards of `plan` at once.
 
     The per-state windows and shared move lists of the game, plus for each running shard

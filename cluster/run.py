@@ -1,24 +1,32 @@
-"""Exact counts run as shards: in threads, on a local Dask cluster, or on a remote one.
+"""Sharded runs: exact counts and exact random play in threads, on a local Dask cluster,
+or on a remote one, with checkpoints and resume.
 
 `run_count(n, workers=..., scheduler=..., checkpoint_dir=...)` gives the same
-`CountResult` as `zeckenum.count(n)` (equal field by field; only `stats` differ).  The
+`CountResult` as `zeckenum.count(n)`, and `run_random(n, ...)` the same `RandomResult` as
+`zeckenum.randomplay.random_play(n, ...)` (equal field by field; only `stats` differ).
+One driver, `shards_on_pool`, runs both; a `kinds.ShardKind` supplies what differs.  The
 flow for one n:
 
-1. First sweep: `tasks.prepare_task(rules, n)`.  On a Dask cluster it is sent to every
-   worker at once, so each worker builds its own windows in parallel and the first answer
-   plans the run; in-process it runs once and the threads share it.
-2. Plan: `plan.make_plan` takes the primes for the size bound (`modular.primes_for_bits`,
-   plus the check prime) and cuts them into equal blocks, a multiple of the workers.
-3. Shards: one `tasks.spectrum_task(rules, n, block)` per block; each finished shard is
-   written to the checkpoint (if any) as soon as it arrives.
-4. `assemble` rebuilds every length's count by the CRT (`modular.reconstruct`, checked
-   against the check prime) into a `results.CountResult`, exactly as `count.count` does.
+1. First sweep: the kind's prepare task (`tasks.prepare_task`,
+   `random_tasks.random_prepare_task`).  On a Dask cluster it is sent to every worker at
+   once, so each worker builds its own first sweep in parallel and the first answer plans
+   the run; in-process it runs once and the threads share it.
+2. Plan: the kind's primes (a count: below 2**62 for its size bound; random play: below
+   2**50 with a product above its denominator), plus the check prime, cut into equal
+   blocks, a multiple of the workers (`plan.plan_from_primes`).
+3. Shards: one shard task per block (`tasks.spectrum_task`, `random_tasks.random_law_task`,
+   `random_tasks.random_win_task`); each finished shard is written to the checkpoint (if
+   any) as soon as it arrives.
+4. The kind's assembly rebuilds the result by the CRT, checked against the check prime,
+   with the same function as the in-process path (`count.assemble_count`,
+   `randomplay.assemble_random`).
 
 With a checkpoint directory the plan and the first sweep's facts come from its manifest,
 verified shards are reused and only the others are computed (`stats["shards_reused"]`,
-`stats["shards_computed"]`).  Ranges of n (`run_counts`) submit one task per (n, block);
-on a cluster the largest n go first and the blocks of one n prefer the worker that swept
-it (its windows are cached there).
+`stats["shards_computed"]`); a directory of another kind or other parameters is refused.
+Ranges of n (`run_counts`) submit one task per (n, block); on a cluster the largest n go
+first and the blocks of one n prefer the worker that swept it (its windows are cached
+there).
 """
 
 from __future__ import annotations
@@ -27,18 +35,21 @@ import time
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
-from ..count import assemble_count, check_n
+from ..count import check_n
 from ..errors import InputError
 from ..memory import available_bytes, refuse_if_over
+from ..randomplay import RandomResult, validate
 from ..results import CountResult
 from ..rules import RuleSet, get_rules
 from . import checkpoint as ckpt
 from .backend import DaskPool, Pool, ThreadPool, open_pool
-from .plan import ShardPlan, make_plan, worker_bytes
-from .tasks import Facts, prepare_task, spectrum_task
+from .kinds import ShardKind, assemble_count_shards, count_kind, random_kind
+from .plan import ShardPlan, worker_bytes
+from .tasks import Facts
 
 
 @dataclass
@@ -46,7 +57,7 @@ class _Job:
     """Book-keeping of one n while its shards run."""
 
     n: int
-    facts: Facts | None = None
+    facts: Any = None
     plan: ShardPlan | None = None
     cp: ckpt.Checkpoint | None = None
     residues: list = field(default_factory=list)
@@ -63,19 +74,18 @@ def assemble(facts: Facts, plan: ShardPlan, residues: list[np.ndarray], stats: d
     The same reconstruction as `count.count`: Garner's CRT per length over the plan's
     primes, checked against the check prime (CheckPrimeMismatch on disagreement).
     """
-    return assemble_count(
-        facts.rules, facts.rules_hash, facts.n, facts.states, facts.transitions,
-        facts.shortest, facts.longest,
-        list(plan.primes), plan.check_prime, np.concatenate(residues, axis=0), stats,
-    )
+    return assemble_count_shards(facts, plan, np.concatenate(residues, axis=0), stats)
 
 
-def _wanted(ruleset: RuleSet, n: int, prime_offset: int) -> dict:
+def _wanted(kind: ShardKind, n: int, prime_offset: int) -> dict:
+    """The parameters a checkpoint of this run must have been written for, kind first."""
     from .. import __version__
 
     return {
-        "rules": ruleset.name, "rules_hash": ruleset.content_hash(), "n": n,
+        "kind": kind.name,
+        "rules": kind.ruleset.name, "rules_hash": kind.ruleset.content_hash(), "n": n,
         "prime_offset": prime_offset, "version": __version__,
+        **{k: v for k, v in kind.parameters.items() if k != "kind"},
     }
 
 
@@ -90,9 +100,9 @@ def _worker_limit(pool: Pool) -> int | None:
     return min(limits) if limits else None
 
 
-def count_on_pool(
+def shards_on_pool(
+    kind: ShardKind,
     ns: Iterable[int],
-    rules: str | RuleSet,
     pool: Pool,
     *,
     prime_offset: int = 0,
@@ -101,16 +111,16 @@ def count_on_pool(
     max_primes_per_block: int | None = None,
     progress: bool = False,
     on_shard: Callable[[int, int], None] | None = None,
-) -> dict[int, CountResult]:
-    """Exact counts of every n in `ns` with shards on `pool`; {n: CountResult}.
+) -> dict[int, Any]:
+    """The results of every n in `ns` for one kind of run, with shards on `pool`; {n: result}.
 
     checkpoint_dir  one folder per run of one n; with several n, sub-folders n-<n>
     on_shard(n, i)  called after shard i of n is stored (and checkpointed)
     """
-    ruleset = get_rules(rules)
     ns = sorted({check_n(n) for n in ns}, reverse=True)
     if prime_offset < 0:
         raise InputError(f"prime offset must be >= 0, got {prime_offset}")
+    ruleset = kind.ruleset
     explicit = blocks is not None or max_primes_per_block is not None
     workers = pool.workers
     nworkers = max(1, len(workers))
@@ -126,16 +136,16 @@ def count_on_pool(
     if progress:
         from tqdm import tqdm
 
-        label = f"count n={ns[0]}" if single else f"count n={ns[-1]}..{ns[0]}"
+        label = f"{kind.label} n={ns[0]}" if single else f"{kind.label} n={ns[-1]}..{ns[0]}"
         bar = tqdm(total=0, unit="shard", desc=label, leave=True)
 
     jobs = {n: _Job(n=n, t0=time.perf_counter()) for n in ns}
     done = pool.completion()
-    kind: dict = {}  # future -> ("prepare", n) | ("shard", n, i), until it is done
-    results: dict[int, CountResult] = {}
+    tags: dict = {}  # future -> ("prepare", n) | ("shard", n, i), until it is done
+    results: dict[int, Any] = {}
 
-    def plan_for(job: _Job, facts: Facts) -> ShardPlan:
-        return make_plan(facts, prime_offset, nworkers, blocks, max_primes_per_block)
+    def plan_for(facts: Any) -> ShardPlan:
+        return kind.plan(facts, prime_offset, nworkers, blocks, max_primes_per_block)
 
     def start_shards(job: _Job) -> None:
         assert job.plan is not None and job.facts is not None
@@ -144,7 +154,7 @@ def count_on_pool(
             bar.total += nb
             bar.update(job.reused)
         # Placement: the blocks of one n of a range go to the worker that swept it (its
-        # windows are cached there); the blocks of a single n are dealt round-robin, so
+        # first sweep is cached there); the blocks of a single n are dealt round-robin, so
         # every worker gets the same number (the scheduler alone may hand one worker more
         # when there are few blocks).  Restrictions are loose: a lost worker's blocks run
         # elsewhere.
@@ -158,8 +168,9 @@ def count_on_pool(
             else:
                 where = None
             block = job.plan.blocks[i]
-            fut = pool.submit(spectrum_task, ruleset, job.n, block, priority=1, where=where)
-            kind[fut] = ("shard", job.n, i)
+            fut = pool.submit(kind.shard_task, ruleset, job.n, *kind.shard_args, block,
+                              priority=1, where=where)
+            tags[fut] = ("shard", job.n, i)
             done.add(fut)
         if all(r is not None for r in job.residues):
             finish(job)
@@ -177,14 +188,14 @@ def count_on_pool(
             "shards_computed": job.computed,
             "shards_reused": job.reused,
             "shards_rejected": job.rejected,
-            "count_bits": job.facts.count_bits,
-            "terminal_states": job.facts.terminals,
+            **kind.extra_stats(job.facts),
         }
-        results[job.n] = assemble(job.facts, job.plan, job.residues, stats)
+        residues = np.concatenate(job.residues, axis=0)
+        results[job.n] = kind.assemble(job.facts, job.plan, residues, stats)
 
-    def adopt(job: _Job, facts: Facts) -> None:
+    def adopt(job: _Job, facts: Any) -> None:
         job.facts = facts
-        job.plan = plan_for(job, facts)
+        job.plan = plan_for(facts)
         if limit is not None:
             threads = nworkers if isinstance(pool, ThreadPool) else 1
             refuse_if_over(worker_bytes(facts, job.plan, threads), limit,
@@ -193,44 +204,55 @@ def count_on_pool(
         job.updates = [0] * len(job.plan.blocks)
         root = folder(job.n)
         if root is not None:
-            job.cp = ckpt.create(root, job.plan, facts.to_dict())
+            job.cp = ckpt.create(root, job.plan, facts.to_dict(), kind.parameters,
+                                 kind.columns(facts))
+        start_shards(job)
+
+    def resume(job: _Job, root: Path, cp: ckpt.Checkpoint) -> None:
+        try:
+            facts = kind.facts_from_dict(cp.facts)
+        except (TypeError, ValueError, KeyError):
+            raise ckpt.CheckpointRefused(
+                f"checkpoint {root / ckpt.MANIFEST} is damaged; remove it"
+            ) from None
+        if explicit and plan_for(facts) != cp.plan:
+            raise ckpt.CheckpointRefused(
+                f"checkpoint {root} was written for another shard plan "
+                f"({len(cp.plan.blocks)} blocks of primes); use another directory"
+            )
+        cp.columns = kind.columns(facts)
+        job.facts, job.plan, job.cp = facts, cp.plan, cp
+        nb = len(cp.plan.blocks)
+        job.residues, job.updates = [None] * nb, [0] * nb
+        for i in range(nb):
+            had = bool(cp.shards[i].get("sha256"))
+            r = cp.load_shard(i)
+            if r is not None:
+                job.residues[i] = r
+                job.updates[i] = int(cp.shards[i].get("word_updates") or 0)
+                job.reused += 1
+            elif had:
+                job.rejected += 1
+        cp.save_manifest()
         start_shards(job)
 
     try:
         for n in ns:
             job = jobs[n]
             root = folder(n)
-            cp = ckpt.open_existing(root, _wanted(ruleset, n, prime_offset)) if root else None
+            cp = ckpt.open_existing(root, _wanted(kind, n, prime_offset)) if root else None
             if cp is not None:
-                facts = Facts(**{**cp.facts, "where": ""})  # old cluster's address
-                if explicit and plan_for(job, facts) != cp.plan:
-                    raise ckpt.CheckpointRefused(
-                        f"checkpoint {root} was written for another shard plan "
-                        f"({len(cp.plan.blocks)} blocks of primes); use another directory"
-                    )
-                job.facts, job.plan, job.cp = facts, cp.plan, cp
-                nb = len(cp.plan.blocks)
-                job.residues, job.updates = [None] * nb, [0] * nb
-                for i in range(nb):
-                    had = bool(cp.shards[i].get("sha256"))
-                    r = cp.load_shard(i)
-                    if r is not None:
-                        job.residues[i] = r
-                        job.updates[i] = int(cp.shards[i].get("word_updates") or 0)
-                        job.reused += 1
-                    elif had:
-                        job.rejected += 1
-                cp.save_manifest()
-                start_shards(job)
+                resume(job, root, cp)
                 continue
             targets = workers if (single and isinstance(pool, DaskPool)) else [None]
             for w in targets:
-                fut = pool.submit(prepare_task, ruleset, n, where=[w] if w else None)
-                kind[fut] = ("prepare", n)
+                fut = pool.submit(kind.prepare_task, ruleset, n, *kind.prepare_args,
+                                  where=[w] if w else None)
+                tags[fut] = ("prepare", n)
                 done.add(fut)
 
         for fut in done:
-            tag = kind.pop(fut)
+            tag = tags.pop(fut)
             value = fut.result()
             if tag[0] == "prepare":  # the first answer plans; the others only warmed caches
                 job = jobs[tag[1]]
@@ -254,12 +276,64 @@ def count_on_pool(
     finally:
         if bar is not None:
             bar.close()
-        for fut in kind:
+        for fut in tags:
             if hasattr(fut, "release"):
                 fut.release()
             else:
                 fut.cancel()
     return results
+
+
+def count_on_pool(
+    ns: Iterable[int],
+    rules: str | RuleSet,
+    pool: Pool,
+    *,
+    prime_offset: int = 0,
+    checkpoint_dir: str | Path | None = None,
+    blocks: int | None = None,
+    max_primes_per_block: int | None = None,
+    progress: bool = False,
+    on_shard: Callable[[int, int], None] | None = None,
+) -> dict[int, CountResult]:
+    """Exact counts of every n in `ns` with shards on `pool`; {n: CountResult}.
+
+    checkpoint_dir  one folder per run of one n; with several n, sub-folders n-<n>
+    on_shard(n, i)  called after shard i of n is stored (and checkpointed)
+    """
+    return shards_on_pool(
+        count_kind(get_rules(rules)), ns, pool, prime_offset=prime_offset,
+        checkpoint_dir=checkpoint_dir, blocks=blocks,
+        max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
+    )
+
+
+def random_on_pool(
+    n: int,
+    rules: str | RuleSet,
+    pool: Pool,
+    players: int = 2,
+    model: str = "moves",
+    *,
+    winners_only: bool = False,
+    prime_offset: int = 0,
+    checkpoint_dir: str | Path | None = None,
+    blocks: int | None = None,
+    max_primes_per_block: int | None = None,
+    progress: bool = False,
+    on_shard: Callable[[int, int], None] | None = None,
+) -> RandomResult:
+    """Exact random play at n with shards on `pool` (equal to `random_play`, stats aside).
+
+    on_shard(n, i)  called after shard i is stored (and checkpointed)
+    """
+    validate(n, players, model)
+    kind = random_kind(get_rules(rules), model, players, bool(winners_only))
+    return shards_on_pool(
+        kind, [n], pool, prime_offset=prime_offset, checkpoint_dir=checkpoint_dir,
+        blocks=blocks, max_primes_per_block=max_primes_per_block, progress=progress,
+        on_shard=on_shard,
+    )[n]
 
 
 def run_counts(
@@ -285,7 +359,7 @@ def run_counts(
     ns = list(ns)
     opts = dict(prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
                 max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard)
-    with open_pool(workers, scheduler, threads) as pool:
+    with open_pool(workers, scheduler, threads, warm=("count",)) as pool:
         if isinstance(pool, ThreadPool) and len(ns) > 1:
             out: dict[int, CountResult] = {}
             for n in sorted(set(ns)):
@@ -326,4 +400,45 @@ def run_count(
 count_on_cluster = run_count
 """Alias: the sharded count (kept for callers that name the cluster path explicitly)."""
 
-__all__ = ["assemble", "count_on_cluster", "count_on_pool", "run_count", "run_counts"]
+
+def run_random(
+    n: int,
+    rules: str | RuleSet = "standard",
+    players: int = 2,
+    model: str = "moves",
+    *,
+    winners_only: bool = False,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    checkpoint_dir: str | Path | None = None,
+    progress: bool = False,
+    prime_offset: int = 0,
+    blocks: int | None = None,
+    max_primes_per_block: int | None = None,
+    threads: int | None = None,
+    on_shard: Callable[[int, int], None] | None = None,
+) -> RandomResult:
+    """`randomplay.random_play(n, ...)` computed shard by shard, optionally on Dask and
+    checkpointed.
+
+    Equal to `random_play(n, rules, players, model, winners_only=winners_only,
+    prime_offset=prime_offset)` (stats aside).  Backends as `run_counts`: in-process threads
+    (default), `workers=K` (a LocalCluster started and closed here), `scheduler=ADDRESS`.
+    stats: shards_total / shards_computed / shards_reused / shards_rejected, the backend,
+    word updates, terminal states and the denominator's bits.
+    """
+    validate(n, players, model)
+    if prime_offset < 0:  # refused before a cluster starts
+        raise InputError(f"prime offset must be >= 0, got {prime_offset}")
+    with open_pool(workers, scheduler, threads, warm=("random",)) as pool:
+        return random_on_pool(
+            n, rules, pool, players, model, winners_only=winners_only,
+            prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
+            max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
+        )
+
+
+__all__ = [
+    "assemble", "count_on_cluster", "count_on_pool", "random_on_pool", "run_count",
+    "run_counts", "run_random", "shards_on_pool",
+]

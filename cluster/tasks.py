@@ -13,7 +13,8 @@ in and one small int64 array (block size x (longest + 1)) comes out.
 client needs to plan the shards (count_bits -> primes, the memory of one block) and to
 report the result (states, transitions, shortest, longest).  On a cluster the client sends
 it to every worker at once, so each worker warms its cache in parallel and the client
-itself stays light (it may be a laptop driving a large cluster).
+itself stays light (it may be a laptop driving a large cluster).  Random play's twins
+live in `random_tasks`.
 """
 
 from __future__ import annotations
@@ -160,7 +161,8 @@ def clear_cache() -> None:
         _cache.clear()
 
 
-def _worker_address() -> str:
+def worker_address() -> str:
+    """Address of the Dask worker running this code ("" outside a worker)."""
     try:
         from distributed import get_worker
 
@@ -172,7 +174,7 @@ def _worker_address() -> str:
 def prepare_task(rules: str | RuleSet, n: int) -> Facts:
     """Run (or reuse) the first sweep of (rules, n) here and return its `Facts`."""
     _, _, facts = prepared(rules, n)
-    return Facts(**{**facts.to_dict(), "where": _worker_address()})
+    return Facts(**{**facts.to_dict(), "where": worker_address()})
 
 
 def spectrum_task(

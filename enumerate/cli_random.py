@@ -80,6 +80,18 @@ def gaussian_table(lo: int, hi: int, rules: str, model: str, use_float: bool) ->
     return rows
 
 
+SHARD_OPTIONS = {"workers": "--workers", "scheduler": "--scheduler",
+                 "checkpoint_dir": "--checkpoint", "progress": "--progress"}
+"""Exact mode only: with any of them the prime blocks run sharded (`cluster.run.run_random`)."""
+
+
+def _refuse_sharding(sharded: dict, mode: str) -> None:
+    """InputError when an exact-mode sharding option is given with another mode."""
+    given = [flag for key, flag in SHARD_OPTIONS.items() if sharded.get(key)]
+    if given:
+        raise InputError(f"{', '.join(given)}: exact mode only, not with {mode}")
+
+
 @click.command("random")
 @click.argument("n", type=int, required=False)
 @click.option("--players", "-p", type=int, default=2, show_default=True,
@@ -97,8 +109,18 @@ def gaussian_table(lo: int, hi: int, rules: str, model: str, use_float: bool) ->
 @click.option("--range", "nrange", type=int, nargs=2, default=None, metavar="A B",
               help="Gaussian diagnostics table for n = A..B.")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+@click.option("--workers", type=click.IntRange(min=1), default=None,
+              help="Exact mode: run the prime blocks on a local Dask cluster of K worker "
+                   "processes.")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Exact mode: run the prime blocks on an existing Dask cluster "
+                   "(e.g. tcp://host:8786).")
+@click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False), default=None,
+              help="Exact mode: keep each finished block in DIR; rerunning resumes from it.")
+@click.option("--progress/--no-progress", default=False,
+              help="Exact mode: show a progress bar of the prime blocks on stderr.")
 def random_command(n, players, model, rules, winners_only, use_float, games, seed, nrange,
-                   as_json) -> None:
+                   as_json, workers, scheduler, checkpoint_dir, progress) -> None:
     """Random play at N: exact probability of every length and of each player winning.
 
     \b
@@ -109,17 +131,23 @@ def random_command(n, players, model, rules, winners_only, use_float, games, see
       zeckenum random 250 --float
       zeckenum random 200 --simulate 100000 --seed 7
       zeckenum random --range 10 60
+      zeckenum random 300 --workers 2 --checkpoint ckpt-random300
     """
+    sharded = {"workers": workers, "scheduler": scheduler, "checkpoint_dir": checkpoint_dir,
+               "progress": progress}
     try:
-        _run(n, players, model, rules, winners_only, use_float, games, seed, nrange, as_json)
+        _run(n, players, model, rules, winners_only, use_float, games, seed, nrange, as_json,
+             sharded)
     except ZeckenumError as exc:
         click.echo(f"error: {exc}", err=True)
         sys.exit(exc.exit_code)
 
 
 def _run(n, players, model, rules, winners_only, use_float, games, seed, nrange,
-         as_json) -> None:
+         as_json, sharded: dict | None = None) -> None:
+    sharded = sharded or {}
     if nrange is not None:
+        _refuse_sharding(sharded, "--range")
         lo, hi = nrange
         if lo < 1 or hi < lo:
             raise InputError(f"--range needs 1 <= A <= B, got {lo} {hi}")
@@ -141,15 +169,22 @@ def _run(n, players, model, rules, winners_only, use_float, games, seed, nrange,
     if sum([use_float, games is not None, winners_only]) > 1:
         raise InputError("choose at most one of --float, --simulate, --winners-only")
     if games is not None:
+        _refuse_sharding(sharded, "--simulate")
         from .simulate import simulate
 
         res = simulate(n, games, seed, rules, players, model)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_sim(res)
     elif use_float:
+        _refuse_sharding(sharded, "--float")
         from .floatplay import float_play
 
         res = float_play(n, rules, players, model)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_float(res)
+    elif any(sharded.values()):
+        from .cluster.run import run_random
+
+        res = run_random(n, rules, players, model, winners_only=winners_only, **sharded)
+        click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only)
     else:
         from .randomplay import random_play
 

@@ -1,0 +1,147 @@
+"""Kinds of sharded run: what a count and random play each supply to the one driver.
+
+The driver (`run.shards_on_pool`) knows nothing about counting or probabilities.  A
+`ShardKind` tells it how to run the first sweep (`prepare_task`, returning a small facts
+object), how to plan the primes (`plan`), which task computes one prime block
+(`shard_task`, returning (residues [prime][column], word updates)), how many columns a
+shard has (for checkpoint checks), the parameters a checkpoint must match, and how the
+residues of all blocks become the result (`assemble`, the same function the in-process
+path uses).
+
+count   prepare `tasks.prepare_task`, shards `tasks.spectrum_task`, assembly
+        `count.assemble_count`
+random  prepare `random_tasks.random_prepare_task`, shards `random_tasks.random_law_task`
+        (length law) or `random_tasks.random_win_task` (winners only), assembly
+        `randomplay.assemble_random`
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..count import assemble_count
+from ..randomplay import RandomResult, assemble_random, check_random_primes, primes_exceeding
+from ..results import CountResult
+from ..rules import RuleSet
+from .plan import ShardPlan, make_plan, plan_from_primes
+from .random_tasks import RandomFacts, random_law_task, random_prepare_task, random_win_task
+from .tasks import Facts, prepare_task, spectrum_task
+
+
+@dataclass(frozen=True)
+class ShardKind:
+    """Everything kind-specific about a sharded run of one rule set.
+
+    name          the checkpoint's "kind" parameter ("count" or "random")
+    label         progress bar text ("count", "random law", "random wins")
+    prepare_task  prepare_task(ruleset, n, *prepare_args) -> facts (runs on a worker)
+    shard_task    shard_task(ruleset, n, *shard_args, block) -> (residues, word updates),
+                  residues int64 of shape (primes in block, columns)
+    parameters    the kind parameters a checkpoint must match, "kind" first
+    facts_from_dict  facts back from a manifest's JSON form
+    plan          plan(facts, prime_offset, workers, blocks, max_primes_per_block)
+    columns       columns(facts): residues per prime of every shard
+    assemble      assemble(facts, plan, residues of all blocks stacked, stats) -> result
+    extra_stats   extra_stats(facts): the kind's own entries of the result's stats
+    """
+
+    name: str
+    label: str
+    ruleset: RuleSet
+    prepare_task: Callable[..., Any]
+    prepare_args: tuple
+    shard_task: Callable[..., tuple[np.ndarray, int]]
+    shard_args: tuple
+    parameters: dict
+    facts_from_dict: Callable[[dict], Any]
+    plan: Callable[..., ShardPlan]
+    columns: Callable[[Any], int]
+    assemble: Callable[[Any, ShardPlan, np.ndarray, dict], Any]
+    extra_stats: Callable[[Any], dict]
+
+
+# ----------------------------------------------------------------------------- count
+
+
+def assemble_count_shards(
+    facts: Facts, plan: ShardPlan, residues: np.ndarray, stats: dict
+) -> CountResult:
+    """`count.assemble_count` of the stacked residues of all blocks (primes + [check])."""
+    return assemble_count(
+        facts.rules, facts.rules_hash, facts.n, facts.states, facts.transitions,
+        facts.shortest, facts.longest,
+        list(plan.primes), plan.check_prime, residues, stats,
+    )
+
+
+def count_kind(ruleset: RuleSet) -> ShardKind:
+    """The exact count: primes below 2**62 for the size bound, `spectrum_task` shards."""
+    return ShardKind(
+        name="count", label="count", ruleset=ruleset,
+        prepare_task=prepare_task, prepare_args=(),
+        shard_task=spectrum_task, shard_args=(),
+        parameters={"kind": "count"},
+        facts_from_dict=lambda d: Facts(**{**d, "where": ""}),  # not the old cluster's address
+        plan=make_plan,
+        columns=lambda facts: facts.longest + 1,
+        assemble=assemble_count_shards,
+        extra_stats=lambda facts: {"count_bits": facts.count_bits,
+                                   "terminal_states": facts.terminals},
+    )
+
+
+# ----------------------------------------------------------------------------- random play
+
+
+def random_plan(
+    facts: RandomFacts, prime_offset: int = 0, workers: int = 1, blocks: int | None = None,
+    max_primes_per_block: int | None = None,
+) -> ShardPlan:
+    """The shard plan of exact random play: the primes below 2**50 whose product exceeds
+    the denominator M (`randomplay.primes_exceeding`) plus the check prime, refused outside
+    the proved arithmetic ranges (`randomplay.check_random_primes`), in equal blocks."""
+    primes, check = primes_exceeding(int(facts.denominator), prime_offset)
+    check_random_primes([*primes, check], facts.max_indegree, facts.weight_bound)
+    return plan_from_primes(facts, prime_offset, primes, check, workers, blocks,
+                            max_primes_per_block)
+
+
+def assemble_random_shards(
+    facts: RandomFacts, plan: ShardPlan, residues: np.ndarray, stats: dict
+) -> RandomResult:
+    """`randomplay.assemble_random` of the stacked residues of all blocks."""
+    return assemble_random(
+        rules=facts.rules, rules_hash=facts.rules_hash, n=facts.n, players=facts.players,
+        model=facts.model, winners_only=facts.winners_only,
+        denominator=int(facts.denominator), states=facts.states,
+        transitions=facts.transitions, primes=list(plan.primes),
+        check_prime=plan.check_prime, residues=residues, stats=stats,
+    )
+
+
+def random_kind(ruleset: RuleSet, model: str, players: int, winners_only: bool) -> ShardKind:
+    """Exact random play: the length law (`random_law_task` shards) or, with
+    `winners_only`, the win probabilities (`random_win_task` shards)."""
+    if winners_only:
+        task, args, label = random_win_task, (model, players), "random wins"
+    else:
+        task, args, label = random_law_task, (model,), "random law"
+    return ShardKind(
+        name="random", label=label, ruleset=ruleset,
+        prepare_task=random_prepare_task, prepare_args=(model, players, winners_only),
+        shard_task=task, shard_args=args,
+        parameters={"kind": "random", "model": model, "players": players,
+                    "winners_only": winners_only},
+        facts_from_dict=lambda d: RandomFacts(**{**d, "where": ""}),
+        plan=random_plan,
+        columns=lambda facts: facts.columns,
+        assemble=assemble_random_shards,
+        extra_stats=lambda facts: {
+            "terminal_states": facts.terminals,
+            "denominator_bits": int(facts.denominator).bit_length(),
+        },
+    )
