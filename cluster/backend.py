@@ -40,13 +40,14 @@ log = logging.getLogger("zeckenum.cluster")
 _warm = threading.Lock()
 _warmed: set[str] = set()
 
-WARM_KINDS = ("count", "random")
+WARM_KINDS = ("count", "random", "solve")
 """Kinds of run whose kernels `warm_up` knows how to compile."""
 
 
 def warm_up(kinds: tuple[str, ...] = ("count",)) -> None:
     """Compile (or load) the kernels of each kind of run in `kinds` in this process, once:
-    "count" (a tiny `count`) and "random" (a tiny `random_play`, length law and winners)."""
+    "count" (a tiny `count`), "random" (a tiny `random_play`, length law and winners) and
+    "solve" (tiny solves: two and three players, with and without the reachability sweep)."""
     with _warm:
         for kind in kinds:
             if kind in _warmed:
@@ -60,6 +61,12 @@ def warm_up(kinds: tuple[str, ...] = ("count",)) -> None:
 
                 random_play(5, threads=1)
                 random_play(5, threads=1, winners_only=True)
+            elif kind == "solve":
+                from ..solve import solve
+
+                solve(5)
+                solve(5, players=3)
+                solve(5, "reversed")
             else:
                 raise ValueError(f"unknown kind of run to warm up: {kind!r}")
             _warmed.add(kind)

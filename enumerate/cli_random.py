@@ -3,11 +3,11 @@
 from __future__ import annotations
 
 import json
-import sys
 from fractions import Fraction
 
 import click
 
+from .cli_errors import fail
 from .errors import InputError, ZeckenumError
 from .randomplay import MODELS, frac_str
 
@@ -139,8 +139,7 @@ def random_command(n, players, model, rules, winners_only, use_float, games, see
         _run(n, players, model, rules, winners_only, use_float, games, seed, nrange, as_json,
              sharded)
     except ZeckenumError as exc:
-        click.echo(f"error: {exc}", err=True)
-        sys.exit(exc.exit_code)
+        fail(exc)
 
 
 def _run(n, players, model, rules, winners_only, use_float, games, seed, nrange,

@@ -65,9 +65,21 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
               help="Write a winning strategy for the winner to this file (two players; "
                    "gzip-compressed when the name ends in .gz).")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+@click.option("--workers", type=click.IntRange(min=1), default=None,
+              help="Run the level-range shards on a local Dask cluster of K worker processes "
+                   "(one shard at a time: they form a chain).")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Run the level-range shards on an existing Dask cluster.")
+@click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False), default=None,
+              help="Keep each finished level range in DIR; rerunning resumes from it.")
+@click.option("--shards", type=click.IntRange(min=1), default=None,
+              help="Cut the levels into this many ranges (default: about 2e7 states each).")
+@click.option("--progress/--no-progress", default=False,
+              help="Show a progress bar of the level ranges on stderr.")
 @one_line_errors
 def solve_command(n: int, rules_name: str, players: int, strategy_path: str | None,
-                  as_json: bool) -> None:
+                  as_json: bool, workers: int | None, scheduler: str | None,
+                  checkpoint_dir: str | None, shards: int | None, progress: bool) -> None:
     """Who wins the game for N under optimal play (the last player to move wins).
 
     \b
@@ -75,15 +87,25 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
       zeckenum solve 100
       zeckenum solve 60 --players 3 --json
       zeckenum solve 80 --strategy n80.zstrat.gz
+      zeckenum solve 500 --checkpoint ckpt-solve500 --progress
     """
     rules = get_rules(rules_name)
     info = None
+    chained = workers or scheduler or checkpoint_dir or shards or progress
     if strategy_path is not None:
         if players != 2:
             raise InputError("--strategy is defined for two players only")
+        if chained:
+            raise InputError("--strategy runs in-process; it does not take --workers, "
+                             "--scheduler, --checkpoint, --shards or --progress")
         strat, res = winning_strategy(n, rules)
         nbytes = write_strategy(strategy_path, strat, rules.bin_values(n))
         info = {"file": strategy_path, "positions": strat.size, "bytes": nbytes}
+    elif chained:
+        from .cluster.solve_chain import run_solve
+
+        res = run_solve(n, rules, players, workers=workers, scheduler=scheduler,
+                        checkpoint_dir=checkpoint_dir, shards=shards, progress=progress)
     else:
         res = solve(n, rules, players)
     if as_json:

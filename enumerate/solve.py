@@ -673,6 +673,8 @@ def sweep_classes(
     players: int = 2,
     keep: bool = False,
     reach: dict[int, np.ndarray] | None = None,
+    levels: range | None = None,
+    held: dict[int, np.ndarray] | None = None,
 ) -> tuple[dict[int, np.ndarray], dict]:
     """Run the upward sweep; returns (packed bits of the retained layers, statistics).
 
@@ -681,16 +683,21 @@ def sweep_classes(
     only the top `max_drop + 1` layers survive (enough to judge the start's moves).  With
     `reach` (from `sweep_reach`), unreachable states are skipped and not counted; without
     it every state of the layers is classified and counted.
+
+    The sweep may run in pieces: `levels` (ascending, default 0 .. start level) are the
+    levels this call classifies and `held` the bits returned by the call that swept the
+    levels just below them.  Pieces chained this way return exactly the bits of one whole
+    sweep; their statistics add up to its statistics (the peak is a maximum).
     """
     spec = space.spec
     top = spec.start_level
     span = space.max_drop
     planes = 1 if players == 2 else players
-    held: dict[int, np.ndarray] = {}
+    held = {} if held is None else dict(held)
     stats = {"states": 0, "p_positions": 0, "moves_examined": 0, "peak_bits_bytes": 0,
              "layers": 0}
     no_reach = np.zeros(1, dtype=np.uint8)
-    for level in range(0, top + 1):
+    for level in range(0, top + 1) if levels is None else levels:
         size = space.layer_size(level)
         if size == 0:
             continue
@@ -765,14 +772,34 @@ def solve(
     """
     _check_players(players)
     rs = get_rules(rules)
-    spec = rs.instantiate(n)
-    space = build_space(spec)
-    if reach is None:
-        reach = rs.content_hash() != STANDARD.content_hash()
+    space = build_space(rs.instantiate(n))
+    reach = needs_reach(rs) if reach is None else reach
     t0 = time.perf_counter()
     reach_bits = sweep_reach(space)[0] if reach else None
     held, stats = sweep_classes(space, players, keep=keep_classes, reach=reach_bits)
-    seconds = time.perf_counter() - t0
+    stats["reach_pass"] = bool(reach)
+    return solve_result(n, space, players, held, stats, time.perf_counter() - t0,
+                        keep_classes=keep_classes)
+
+
+def needs_reach(rules: RuleSet) -> bool:
+    """Whether solving needs the reachability sweep first (every rule set but the standard
+    game, whose states of value n are all reachable: module docstring)."""
+    return rules.content_hash() != STANDARD.content_hash()
+
+
+def solve_result(
+    n: int, space: StateSpace, players: int, held: dict[int, np.ndarray], stats: dict,
+    seconds: float, keep_classes: bool = False,
+) -> SolveResult:
+    """The `SolveResult` at n of a finished upward sweep (`sweep_classes`, whole or in
+    pieces) of the game `space`.
+
+    `held` must hold the start's level and the max_drop levels below it; `stats` the
+    sweep's summed statistics plus "reach_pass".
+    """
+    spec = space.spec
+    rs = spec.rules
     start_level, start_rank = space.rank(spec.start)
     start_moves: dict[str, bool] = {}
     if players == 2:
@@ -818,7 +845,7 @@ def solve(
         seconds=seconds,
         peak_bits_bytes=stats["peak_bits_bytes"],
         classes=classes,
-        stats={"layers": stats["layers"], "reach_pass": bool(reach)},
+        stats={"layers": stats["layers"], "reach_pass": bool(stats.get("reach_pass"))},
     )
 
 
