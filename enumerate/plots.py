@@ -130,8 +130,9 @@ def _rows(path: Path) -> list[dict]:
 
 
 def read_table(folder: str | Path) -> RunData:
-    """A table directory (manifest.json, summary.csv, spectra.csv, optional random.csv) as
-    RunData; random-play length laws are not part of a table (see `add_random`)."""
+    """A table directory (manifest.json, summary.csv, spectra.csv, and random.csv with
+    random_lengths.csv when the table has random play) as RunData; `add_random` fills in
+    random-play laws a table lacks."""
     folder = Path(folder)
     if not is_table(folder):
         raise InputError(f"{folder}: no manifest.json and summary.csv (not a zeckenum table)")
@@ -146,8 +147,11 @@ def read_table(folder: str | Path) -> RunData:
         wins = {}
         if (folder / "random.csv").is_file():
             for r in _rows(folder / "random.csv"):
-                if int(r["player"]) == 1:
-                    wins[int(r["n"])] = Fraction(r["probability"])
+                wins[int(r["n"])] = Fraction(r["player1_wins"])
+        random: dict[int, dict[int, Fraction]] = {}
+        if (folder / "random_lengths.csv").is_file():
+            for r in _rows(folder / "random_lengths.csv"):
+                random.setdefault(int(r["n"]), {})[int(r["length"])] = Fraction(r["probability"])
     except (KeyError, ValueError, json.JSONDecodeError) as exc:
         raise InputError(f"{folder}: malformed table ({exc})") from None
     spectra = {n: dict(sorted(sp.items())) for n, sp in spectra.items() if sp}
@@ -156,8 +160,8 @@ def read_table(folder: str | Path) -> RunData:
     prov = {"source": f"table {folder}", "manifest": manifest,
             "rules": manifest.get("rules", "standard"),
             "rules_hash": manifest.get("rules_hash", "")}
-    return RunData(rules=str(prov["rules"]), spectra=spectra, wins=wins, summary=summary,
-                   provenance=prov)
+    return RunData(rules=str(prov["rules"]), spectra=spectra, random=random, wins=wins,
+                   summary=summary, provenance=prov)
 
 
 def add_random(data: RunData, upto: int, threads: int | None = None) -> RunData:

@@ -86,9 +86,9 @@ def test_killing_a_worker_mid_run_gives_the_same_result() -> None:
 
 @pytest.mark.slow
 def test_table_on_cluster_equals_in_process(tmp_path) -> None:  # noqa: ANN001
-    from zeckenum.cluster.table import build_table, extra_kinds
+    from zeckenum.cluster.table import TABLE_KINDS, build_table
 
-    what = ("count", *sorted(extra_kinds()))
+    what = TABLE_KINDS
     a = build_table(3, 14, what, tmp_path / "local")
     b = build_table(3, 14, what, tmp_path / "dask", workers=2)
     assert a["files"].keys() == b["files"].keys()

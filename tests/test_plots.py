@@ -66,13 +66,21 @@ def write_fixed_table(folder: Path, ns: tuple[int, ...] = FIXED_NS) -> Path:
         for n, c in cens.items():
             for length, k in c["length_counts"].items():
                 w.writerow([n, length, k])
+    laws = random_laws(ns)
     with (folder / "random.csv").open("w", newline="") as f:
         w = csv.writer(f)
-        w.writerow(["n", "player", "probability"])
-        for n, law in random_laws(ns).items():
+        w.writerow(["n", "player1_wins", "player2_wins", "mean_length", "variance"])
+        for n, law in laws.items():
             p1 = sum((p for length, p in law.items() if length % 2 == 1), Fraction(0))
-            w.writerow([n, 1, str(p1)])
-            w.writerow([n, 2, str(1 - p1)])
+            mean = sum(length * p for length, p in law.items())
+            var = sum((length - mean) ** 2 * p for length, p in law.items())
+            w.writerow([n, str(p1), str(1 - p1), str(mean), str(var)])
+    with (folder / "random_lengths.csv").open("w", newline="") as f:
+        w = csv.writer(f)
+        w.writerow(["n", "length", "probability"])
+        for n, law in laws.items():
+            for length, p in sorted(law.items()):
+                w.writerow([n, length, str(p)])
     manifest = {"format": "zeckenum-table/1", "tool": "zeckenum", "rules": "standard",
                 "rules_hash": "test-fixture", "parameters": {"from": ns[0], "to": ns[-1],
                                                             "what": ["count", "random"]},
@@ -99,6 +107,8 @@ def test_read_table(table: Path, data: RunData) -> None:
     # player 1 wins the games of odd length (common practice: players alternate)
     law = random_laws((9,))[9]
     assert data.wins[9] == sum((p for k, p in law.items() if k % 2), Fraction(0))
+    # the table's random_lengths.csv is read back exactly (source: fraction_bruteforce)
+    assert read_table(table).random == random_laws()
 
 
 def test_distribution_figure(data: RunData) -> None:
@@ -120,8 +130,13 @@ def test_distribution_figure(data: RunData) -> None:
     assert np.allclose(curve.get_ydata(), stats.norm.pdf(x, mean, sd))
 
 
-def test_distribution_without_random_has_one_panel(table: Path) -> None:
-    fig = figure_distribution(read_table(table), 10)
+def test_distribution_without_random_has_one_panel(table: Path, tmp_path: Path) -> None:
+    bare = tmp_path / "bare"
+    bare.mkdir()
+    for f in table.iterdir():
+        if f.name not in ("random.csv", "random_lengths.csv"):
+            (bare / f.name).write_bytes(f.read_bytes())
+    fig = figure_distribution(read_table(bare), 10)
     assert len(fig.axes) == 1 and len(fig.axes[0].lines) == 2
 
 

@@ -137,41 +137,106 @@ def test_table_refuses_bad_input(tmp_path) -> None:  # noqa: ANN001
 def test_table_with_solve_and_random(tmp_path) -> None:  # noqa: ANN001
     from fractions import Fraction
 
-    from zeckenum.cluster.table import extra_kinds
+    from fraction_bruteforce import length_law
 
-    kinds = sorted(extra_kinds())
-    if not kinds:
-        pytest.skip("neither solve nor random is available in this build")
     out = tmp_path / "t"
     r = CliRunner().invoke(table_command, ["--from", "2", "--to", "9", "--what",
-                                           ",".join(["count", *kinds]), "--out", str(out)])
+                                           "count,solve,random", "--out", str(out)])
     assert r.exit_code == 0, r.output
-    if "random" in kinds:
-        by_n: dict[int, Fraction] = {}
-        for row in _rows(out / "random.csv"):
-            by_n[int(row["n"])] = by_n.get(int(row["n"]), 0) + Fraction(row["probability"])
-        assert all(v == 1 for v in by_n.values())  # win probabilities sum to 1 (fractions)
-    if "solve" in kinds:
-        rows = _rows(out / "solve.csv")
-        assert [int(r["n"]) for r in rows] == list(range(2, 10))
-        # "The Zeckendorf Game" (2018), arXiv:1809.04881: player 2 wins for every n > 2
-        assert all(r["winner"] == "2" for r in rows if int(r["n"]) > 2)
+    # source: tests/fraction_bruteforce.py (exact law of a random game, fractions)
+    laws: dict[int, dict[int, Fraction]] = {}
+    for row in _rows(out / "random_lengths.csv"):
+        laws.setdefault(int(row["n"]), {})[int(row["length"])] = Fraction(row["probability"])
+    for n in range(2, 10):
+        ref = {k: v for k, v in length_law(n, "moves").items() if v}
+        assert laws[n] == ref, n
+    for row in _rows(out / "random.csv"):
+        n = int(row["n"])
+        p1 = sum(p for L, p in laws[n].items() if L % 2 == 1)
+        assert Fraction(row["player1_wins"]) == p1
+        assert Fraction(row["player1_wins"]) + Fraction(row["player2_wins"]) == 1
+        assert Fraction(row["mean_length"]) == sum(L * p for L, p in laws[n].items())
+    rows = _rows(out / "solve.csv")
+    assert [int(r["n"]) for r in rows] == list(range(2, 10))
+    # "The Zeckendorf Game" (2018), arXiv:1809.04881: player 2 wins for every n > 2
+    assert all(r["winner"] == "2" for r in rows if int(r["n"]) > 2)
+    assert (out / "p_positions.seq").read_text().splitlines()[0] == f"2 {rows[0]['p_positions']}"
     assert CliRunner().invoke(verify_command, [str(out), "--sample", "20"]).exit_code == 0
-    # a forged solve.csv / random.csv row (checksum updated) is caught by the recomputation
-    name = "solve.csv" if "solve" in kinds else "random.csv"
-    lines = (out / name).read_text().splitlines()
-    cells = lines[-1].split(",")
-    if name == "solve.csv":
-        cells[-1] = str(int(cells[-1]) + 1)
-    else:
-        cells[-1] = str(Fraction(cells[-1]) / 2 or Fraction(1, 2))
-    lines[-1] = ",".join(cells)
-    (out / name).write_text("\n".join(lines) + "\n")
-    m = json.loads((out / "manifest.json").read_text())
-    m["files"][name]["sha256"] = hashlib.sha256((out / name).read_bytes()).hexdigest()
-    (out / "manifest.json").write_text(json.dumps(m))
-    r = CliRunner().invoke(verify_command, [str(out), "--sample", "20"])
-    assert r.exit_code == 5 and name in r.output
+
+
+def _forge(folder, name: str, edit) -> None:  # noqa: ANN001
+    """Apply `edit` to the last line of a table file and update its checksum."""
+    lines = (folder / name).read_text().splitlines()
+    lines[-1] = edit(lines[-1])
+    (folder / name).write_text("\n".join(lines) + "\n")
+    m = json.loads((folder / "manifest.json").read_text())
+    m["files"][name]["sha256"] = hashlib.sha256((folder / name).read_bytes()).hexdigest()
+    (folder / "manifest.json").write_text(json.dumps(m))
+
+
+@pytest.mark.parametrize("what", ["solve", "random"])
+def test_verify_catches_a_forged_extra_row(tmp_path, what: str) -> None:  # noqa: ANN001
+    from fractions import Fraction
+
+    out = tmp_path / "t"
+    r = CliRunner().invoke(table_command, ["--from", "3", "--to", "8", "--what", what,
+                                           "--out", str(out)])
+    assert r.exit_code == 0, r.output
+    assert CliRunner().invoke(verify_command, [str(out), "--sample", "0"]).exit_code == 0
+
+    def bump(line: str) -> str:
+        cells = line.split(",")
+        if what == "solve":
+            cells[-1] = str(int(cells[-1]) + 1)
+        else:
+            cells[-1] = str(Fraction(cells[-1]) / 2)
+        return ",".join(cells)
+
+    name = "solve.csv" if what == "solve" else "random.csv"
+    forged = tmp_path / "forged"
+    _copy(out, forged)
+    _forge(forged, name, bump)
+    # solve.csv: caught by the recomputation (n = 8 in the sample); random.csv: already by
+    # the consistency of the variance with random_lengths.csv (fractions)
+    r = CliRunner().invoke(verify_command, [str(forged), "--sample", "6"])
+    assert r.exit_code == 5 and name in r.output, r.output
+    if what == "random":
+        # a forged law of n = 8 that sums to 1, with random.csv's row made consistent with
+        # it (fractions): only the recomputation with other primes can catch it
+        law = tmp_path / "law"
+        _copy(out, law)
+        rows = _rows(law / "random_lengths.csv")
+        mine = [r for r in rows if r["n"] == "8"]
+        shift = Fraction(mine[-2]["probability"]) / 2
+        mine[-2]["probability"] = str(Fraction(mine[-2]["probability"]) - shift)
+        mine[-1]["probability"] = str(Fraction(mine[-1]["probability"]) + shift)
+        p = {int(r["length"]): Fraction(r["probability"]) for r in mine}
+        mean = sum(L * q for L, q in p.items())
+        var = sum((L - mean) ** 2 * q for L, q in p.items())
+        p1 = sum(q for L, q in p.items() if L % 2 == 1)
+        _write_rows(law / "random_lengths.csv", rows)
+        summary = _rows(law / "random.csv")
+        summary[-1].update(player1_wins=str(p1), player2_wins=str(1 - p1),
+                           mean_length=str(mean), variance=str(var))
+        _write_rows(law / "random.csv", summary)
+        (law / "mean_length.seq").write_text("".join(
+            f"{r['n']} {r['mean_length']}\n" for r in summary))
+        (law / "player1_wins.seq").write_text("".join(
+            f"{r['n']} {r['player1_wins']}\n" for r in summary))
+        m = json.loads((law / "manifest.json").read_text())
+        for name in ("random_lengths.csv", "random.csv", "mean_length.seq", "player1_wins.seq"):
+            m["files"][name]["sha256"] = hashlib.sha256((law / name).read_bytes()).hexdigest()
+        (law / "manifest.json").write_text(json.dumps(m))
+        assert CliRunner().invoke(verify_command, [str(law), "--sample", "0"]).exit_code == 0
+        r = CliRunner().invoke(verify_command, [str(law), "--sample", "6"])
+        assert r.exit_code == 5 and "recomputation with other primes" in r.output, r.output
+
+
+def _write_rows(path, rows: list[dict]) -> None:  # noqa: ANN001
+    with open(path, "w", newline="") as f:
+        w = csv.DictWriter(f, fieldnames=list(rows[0]), lineterminator="\n")
+        w.writeheader()
+        w.writerows(rows)
 
 
 def test_plan_reports_exact_sizes() -> None:
