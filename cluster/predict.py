@@ -1,27 +1,73 @@
-"""The `plan` command's forecast: size, shards, memory and time of a count before running it.
+"""The `plan` command's forecast: size, shards, memory and time of a run before starting it.
 
-Exact parts: the states of the state space (`StateSpace.total_states()`), and from the
-first sweep (cheap next to the exact sweep) the reachable states, transitions, the primes,
-and the exact sweep's word updates (`tasks.updates_per_prime` times the number of primes,
-equal to `stats["word_updates"]` of the run).  Calibrated part: the rate of word updates
-per second, measured by a probe count on this machine (`probe_n`, one thread, in-process);
-the forecast wall time on K workers is the first sweep (every worker runs it, in parallel)
-plus the busiest worker's shards divided by that rate.
+Three kinds of run, one forecast each; every forecast has an exact part and a time
+calibrated on this machine.
+
+count   (`predict_count`)  Exact: the states of the state space (`StateSpace.total_states()`),
+        and from the first sweep (cheap next to the exact sweep) the reachable states,
+        transitions, the primes, and the exact sweep's word updates (`tasks.updates_per_prime`
+        times the number of primes, equal to `stats["word_updates"]` of the run).  Rate: word
+        updates per second of a probe count (`probe_rate`, one thread, in-process).
+random  (`predict_random`)  Exact: random play's first sweep (`random_tasks.random_prepare_task`,
+        the task that plans the sharded run): reachable states, transitions, the denominator M,
+        the primes (`randomplay.primes_exceeding` on M, plus the check prime), the shard plan
+        of the random kind (`kinds.random_plan`, the driver's own planner) and the word updates
+        per prime (`RandomFacts.updates_one`).  Rate: word updates per second of the same
+        shard task on a probe game (`probe_random_rate`, one thread).
+solve   (`predict_solve`)  Exact: the states of the space from the rank table (all reachable
+        in the standard game; for other rule sets an upper bound, made exact by the
+        reachability sweep with `reach=True`), the level ranges of the chain
+        (`solve_chain.plan_ranges`) and the peak bit memory (`solve_peak_bits`).  Rate: states
+        walked per second of a probe solve (`probe_solve_rate`).
+
+The sharded kinds (count, random) forecast the wall time on K workers as the first sweep
+(every worker runs it, in parallel) plus the busiest worker's shards divided by the rate.
+A chained solve runs its level ranges one after the other, so its forecast does not depend
+on the workers.
 """
 
 from __future__ import annotations
 
 import math
+import textwrap
 import time
 
-from ..count import count
+from ..count import check_n, count
+from ..errors import InputError
 from ..memory import human
+from ..randomplay import validate, word_primes
 from ..rules import RuleSet, get_rules
-from .plan import make_plan, worker_bytes
-from .tasks import first_sweep
+from ..solve import _check_players, needs_reach, solve, sweep_reach
+from ..statespace import StateSpace, build_space
+from .kinds import random_kind
+from .plan import ShardPlan, make_plan, worker_bytes
+from .random_tasks import RandomFacts
+from .solve_chain import plan_ranges
+from .tasks import Facts, first_sweep
 
 PROBE_N = 90
-"""Probe size: about a second on one core, long enough rows to measure the steady rate."""
+"""Probe size of a count: about a second on one core, long enough rows to measure the
+steady rate."""
+PROBE_RANDOM_N = 100
+"""Probe size of random play: a fraction of a second per shard of the length law."""
+PROBE_SOLVE_N = 160
+"""Probe size of a solve: about 1.2e6 states, a few tenths of a second on one core."""
+PROBE_MIN_SECONDS = 0.25
+"""A random-play probe repeats its shard until it has run this long (at most
+PROBE_MAX_REPEATS times), so a fast shard (winners only) is still timed reliably."""
+PROBE_MAX_REPEATS = 50
+
+SOLVE_NOTE = ("the chain runs one level range at a time: workers do not speed up one n "
+              "(they speed up ranges of n, one task per n in `table`)")
+
+
+def _check_workers(workers: int) -> int:
+    if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
+        raise InputError(f"workers must be a positive integer, got {workers!r}")
+    return workers
+
+
+# ----------------------------------------------------------------------------- count
 
 
 def probe_rate(probe_n: int = PROBE_N, rules: str | RuleSet = "standard") -> dict:
@@ -38,6 +84,39 @@ def probe_rate(probe_n: int = PROBE_N, rules: str | RuleSet = "standard") -> dic
     }
 
 
+def shard_forecast(facts: Facts | RandomFacts, plan: ShardPlan, workers: int, rate: dict,
+                   ) -> dict:
+    """The part of a sharded run's forecast that counts and random play share.
+
+    primes (incl. the check prime), shards and the primes of the largest one, the exact
+    word updates (updates per prime x primes), bytes per worker (`plan.worker_bytes`), and
+    seconds: the first sweep plus the busiest worker's word updates / rate["updates_per_second"]
+    (on `workers` workers and on one).
+    """
+    nprimes = len(plan.all_primes)
+    per_worker = math.ceil(len(plan.blocks) / workers)
+    biggest = max(len(b) for b in plan.blocks)
+    speed = rate["updates_per_second"]
+    busiest_updates = facts.updates_one * min(nprimes, per_worker * biggest)
+    seconds = facts.seconds_windows + busiest_updates / speed
+    one_worker = facts.seconds_windows + facts.updates_one * nprimes / speed
+    memory = worker_bytes(facts, plan)
+    return {
+        "primes": nprimes,
+        "shards": len(plan.blocks),
+        "primes_per_shard": biggest,
+        "workers": workers,
+        "word_updates": facts.updates_one * nprimes,
+        "memory_per_worker_bytes": memory,
+        "memory_per_worker": human(memory),
+        "seconds_first_sweep": facts.seconds_windows,
+        "updates_per_second": round(speed),
+        "probe": f"n={rate['probe_n']} in {rate['probe_seconds']} s",
+        "predicted_seconds": round(seconds, 1),
+        "predicted_seconds_one_worker": round(one_worker, 1),
+    }
+
+
 def predict_count(
     n: int, rules: str | RuleSet = "standard", workers: int = 1, *,
     blocks: int | None = None, probe_n: int = PROBE_N,
@@ -47,13 +126,6 @@ def predict_count(
     rate = probe_rate(probe_n, ruleset)
     space, windows, facts = first_sweep(ruleset, n)
     plan = make_plan(facts, 0, workers, blocks)
-    nprimes = len(plan.all_primes)
-    per_worker = math.ceil(len(plan.blocks) / workers)
-    biggest = max(len(b) for b in plan.blocks)
-    busiest_updates = facts.updates_one * min(nprimes, per_worker * biggest)
-    seconds = facts.seconds_windows + busiest_updates / rate["updates_per_second"]
-    one_worker = facts.seconds_windows + facts.updates_one * nprimes / rate[
-        "updates_per_second"]
     return {
         "rules": ruleset.name,
         "n": n,
@@ -61,37 +133,303 @@ def predict_count(
         "reachable_states": facts.states,
         "transitions": facts.transitions,
         "count_bits": facts.count_bits,
-        "primes": nprimes,
-        "shards": len(plan.blocks),
-        "primes_per_shard": biggest,
-        "workers": workers,
-        "word_updates": facts.updates_one * nprimes,
-        "memory_per_worker_bytes": worker_bytes(facts, plan),
-        "memory_per_worker": human(worker_bytes(facts, plan)),
-        "seconds_first_sweep": facts.seconds_windows,
-        "updates_per_second": round(rate["updates_per_second"]),
-        "probe": f"n={rate['probe_n']} in {rate['probe_seconds']} s",
-        "predicted_seconds": round(seconds, 1),
-        "predicted_seconds_one_worker": round(one_worker, 1),
+        **shard_forecast(facts, plan, workers, rate),
     }
 
 
-def format_prediction(p: dict) -> str:
-    """The forecast as an aligned text table."""
+# ----------------------------------------------------------------------------- random play
+
+
+def probe_random_rate(
+    probe_n: int, rules: str | RuleSet = "standard", model: str = "moves", players: int = 2,
+    winners_only: bool = False, block_primes: int = 1,
+) -> dict:
+    """Word updates per second of one shard of random play on one thread of this machine.
+
+    Runs the random kind's own tasks: the first sweep of the probe game (`prepare_task`,
+    not timed), then its shard task (`random_law_task`, or `random_win_task` with
+    `winners_only`) on a block of `block_primes` primes below 2**50, repeated until it has
+    run PROBE_MIN_SECONDS; rate = the word updates those shards report / their seconds.
+    """
+    ruleset = get_rules(rules)
+    kind = random_kind(ruleset, model, players, winners_only)
+    t0 = time.perf_counter()
+    kind.prepare_task(ruleset, probe_n, *kind.prepare_args)
+    block = word_primes(max(1, block_primes))
+    updates, spent, repeats = 0, 0.0, 0
+    while repeats < PROBE_MAX_REPEATS and (repeats == 0 or spent < PROBE_MIN_SECONDS):
+        t1 = time.perf_counter()
+        _, done = kind.shard_task(ruleset, probe_n, *kind.shard_args, block)
+        spent += time.perf_counter() - t1
+        updates += int(done)
+        repeats += 1
+    return {
+        "probe_n": probe_n,
+        "probe_seconds": round(time.perf_counter() - t0, 3),
+        "updates_per_second": max(updates, 1) / max(spent, 1e-6),
+    }
+
+
+def predict_random(
+    n: int, rules: str | RuleSet = "standard", workers: int = 1, *,
+    model: str = "moves", players: int = 2, winners_only: bool = False,
+    blocks: int | None = None, probe_n: int | None = None,
+) -> dict:
+    """Forecast of `run_random(n, rules, players, model, winners_only=..., workers=workers)`.
+
+    Exact (equal to what the run reports): reachable states, transitions, the denominator's
+    bits, the CRT primes and the check prime, the shards, the word updates (per prime and in
+    all); memory per worker = the first sweep's skeleton + one block's ring buffers
+    (`plan.worker_bytes`).  Time from `probe_random_rate` at `probe_n` (default
+    PROBE_RANDOM_N) with blocks as large as the plan's largest.  `workers` are K Dask
+    workers (`workers=K`) or K threads in-process (`threads=K`): the driver plans both alike.
+    """
+    validate(n, players, model)
+    _check_workers(workers)
+    ruleset = get_rules(rules)
+    kind = random_kind(ruleset, model, players, bool(winners_only))
+    # compile / load the kernels outside every measurement
+    kind.prepare_task(ruleset, 5, *kind.prepare_args)
+    kind.shard_task(ruleset, 5, *kind.shard_args, word_primes(1))
+    facts: RandomFacts = kind.prepare_task(ruleset, n, *kind.prepare_args)
+    plan = kind.plan(facts, 0, workers, blocks, None)
+    biggest = max(len(b) for b in plan.blocks)
+    rate = probe_random_rate(probe_n or PROBE_RANDOM_N, ruleset, model, players,
+                             bool(winners_only), biggest)
+    space = build_space(ruleset.instantiate(n))
+    return {
+        "kind": "random",
+        "rules": ruleset.name,
+        "n": n,
+        "model": model,
+        "players": players,
+        "winners_only": bool(winners_only),
+        "states_in_space": space.total_states(),
+        "reachable_states": facts.states,
+        "transitions": facts.transitions,
+        "denominator_bits": int(facts.denominator).bit_length(),
+        "crt_primes": [str(p) for p in plan.primes],
+        "check_prime": str(plan.check_prime),
+        "word_updates_per_prime": facts.updates_one,
+        "skeleton_bytes": facts.window_bytes,
+        **shard_forecast(facts, plan, workers, rate),
+    }
+
+
+# ----------------------------------------------------------------------------- solve
+
+
+def layer_bytes(space: StateSpace, level: int) -> int:
+    """Bytes of one bit plane of a layer (one bit per state, packed); 0 outside 0..top."""
+    if level < 0 or level > space.top:
+        return 0
+    return (space.layer_size(level) + 7) // 8
+
+
+def in_flight_bits(space: StateSpace, players: int = 2) -> int:
+    """Bytes of the largest window of max_drop + 1 consecutive layers, x bit planes (1 for
+    two players, else `players`): what any sweep of this space must hold at once."""
+    planes = 1 if players == 2 else players
+    span = space.max_drop
+    return planes * max(sum(layer_bytes(space, lv - d) for d in range(span + 1))
+                        for lv in space.levels)
+
+
+def solve_peak_bits(space: StateSpace, players: int = 2) -> int:
+    """Peak bytes of outcome bits `solve.sweep_classes` reports (`peak_bits_bytes`), from
+    the layer sizes alone.
+
+    Replays the sweep's accounting, level by level upward: the layers it holds from the
+    levels below (the last max_drop + 1 swept), the flight buffer of the level's window
+    (itself and the max_drop levels below) and the copy of the finished layer, each one
+    bit per state per plane.  The chain (`solve_chain.run_solve`) holds the same layers at
+    every level, so its peak is the same.  Bounds: in_flight_bits <= peak <=
+    3 x in_flight_bits (each of the three parts fits in the largest window).
+    """
+    planes = 1 if players == 2 else players
+    span = space.max_drop
+    held: list[int] = []
+    peak = 0
+    for level in sorted(space.levels):
+        window = sum(layer_bytes(space, level - d) for d in range(span + 1))
+        held_bytes = sum(layer_bytes(space, lv) for lv in held)
+        peak = max(peak, planes * (held_bytes + window + layer_bytes(space, level)))
+        held = [lv for lv in (*held, level) if lv >= level - span]
+    return peak
+
+
+def probe_solve_rate(probe_n: int = PROBE_SOLVE_N, rules: str | RuleSet = "standard",
+                     players: int = 2) -> dict:
+    """States of the space walked per second by `solve.solve` on one thread of this machine
+    (its reachability sweep included, for the rule sets that need one)."""
+    ruleset = get_rules(rules)
+    solve(5, ruleset, players)  # compile / load kernels outside the measurement
+    t0 = time.perf_counter()
+    res = solve(probe_n, ruleset, players)
+    wall = time.perf_counter() - t0
+    walked = build_space(ruleset.instantiate(probe_n)).total_states()
+    return {
+        "probe_n": probe_n,
+        "probe_seconds": round(wall, 3),
+        "states_per_second": walked / max(res.seconds, 1e-6),
+    }
+
+
+def predict_solve(
+    n: int, rules: str | RuleSet = "standard", workers: int = 1, *,
+    players: int = 2, shards: int | None = None, reach: bool = False,
+    probe_n: int | None = None,
+) -> dict:
+    """Forecast of `run_solve(n, rules, players, shards=shards, workers=workers)`.
+
+    Exact: states of the space (rank table); the states solved (`states`): all of them
+    for the standard game (every state is reachable, `solve` module docstring), else the
+    space's states as an upper bound (`states_exact` False) unless `reach` runs the
+    reachability sweep (one bit per state, about as long as a fraction of the solve);
+    the level ranges (`solve_chain.plan_ranges`, the chain's shards) and the peak bit
+    memory (`solve_peak_bits`, equal to the run's `peak_bits_bytes`).  Memory per worker
+    adds the rank table and, for rule sets that need it, the reachability bits (kept for
+    the whole sweep).  Time = states of the space / the probe's states per second
+    (`probe_solve_rate` at `probe_n`, default PROBE_SOLVE_N), whatever the workers.
+    """
+    n = check_n(n)
+    _check_players(players)
+    _check_workers(workers)
+    ruleset = get_rules(rules)
+    space = build_space(ruleset.instantiate(n))
+    ranges = plan_ranges(space, shards)
+    total = space.total_states()
+    reach_pass = needs_reach(ruleset)
+    states, exact, seconds_reach = total, not reach_pass, None
+    if reach_pass and reach:
+        t0 = time.perf_counter()
+        states = sweep_reach(space)[1]["states"]
+        seconds_reach = round(time.perf_counter() - t0, 3)
+        exact = True
+    rate = probe_solve_rate(probe_n or PROBE_SOLVE_N, ruleset, players)
+    peak = solve_peak_bits(space, players)
+    reach_bytes = sum(layer_bytes(space, lv) for lv in space.levels) if reach_pass else 0
+    memory = peak + reach_bytes + space.tab.nbytes
+    seconds = total / rate["states_per_second"]
+    return {
+        "kind": "solve",
+        "rules": ruleset.name,
+        "n": n,
+        "players": players,
+        "workers": workers,
+        "states_in_space": total,
+        "states": states,
+        "states_exact": exact,
+        "reach_pass": reach_pass,
+        "seconds_reach": seconds_reach,
+        "levels": len(space.levels),
+        "max_drop": space.max_drop,
+        "shards": len(ranges),
+        "level_ranges": [[lo, hi] for lo, hi in ranges],
+        "range_states": [sum(space.layer_size(lv) for lv in range(lo, hi + 1))
+                         for lo, hi in ranges],
+        "in_flight_bits_bytes": in_flight_bits(space, players),
+        "peak_bits_bytes": peak,
+        "reach_bits_bytes": reach_bytes,
+        "rank_table_bytes": int(space.tab.nbytes),
+        "memory_per_worker_bytes": memory,
+        "memory_per_worker": human(memory),
+        "states_per_second": round(rate["states_per_second"]),
+        "probe": f"n={rate['probe_n']} in {rate['probe_seconds']} s",
+        "predicted_seconds": round(seconds, 1),
+        "parallel": SOLVE_NOTE,
+    }
+
+
+# ----------------------------------------------------------------------------- text
+
+
+def _shard_rows(p: dict) -> list[tuple[str, str]]:
+    """Rows of the sharded kinds (count, random): primes, shards, work, memory, time."""
+    updates = f"{p['word_updates']:,}"
+    if "word_updates_per_prime" in p:
+        updates += f" ({p['word_updates_per_prime']:,} per prime)"
+    memory = p["memory_per_worker"]
+    if "skeleton_bytes" in p:
+        memory += f" (skeleton {human(p['skeleton_bytes'])} + one block's buffers)"
     rows = [
+        ("primes (incl. check prime)", str(p["primes"])),
+        ("shards", f"{p['shards']} (up to {p['primes_per_shard']} primes each)"),
+        ("word updates (exact)", updates),
+        ("memory per worker", memory),
+        ("first sweep (measured)", f"{p['seconds_first_sweep']:.2f} s"),
+        ("rate (probe " + p["probe"] + ")", f"{p['updates_per_second']:,} updates/s"),
+        (f"predicted time, {p['workers']} worker(s)", f"{p['predicted_seconds']:.1f} s"),
+    ]
+    if p["workers"] > 1:
+        rows.append(("predicted time, 1 worker", f"{p['predicted_seconds_one_worker']:.1f} s"))
+    return rows
+
+
+def _count_rows(p: dict) -> list[tuple[str, str]]:
+    return [
         ("states (whole space, exact)", f"{p['states_in_space']:,}"),
         ("reachable states (exact)", f"{p['reachable_states']:,}"),
         ("transitions (exact)", f"{p['transitions']:,}"),
         ("size bound", f"{p['count_bits']} bits"),
-        ("primes (incl. check prime)", str(p["primes"])),
-        ("shards", f"{p['shards']} (up to {p['primes_per_shard']} primes each)"),
-        ("word updates (exact)", f"{p['word_updates']:,}"),
-        ("memory per worker", p["memory_per_worker"]),
-        ("first sweep (measured)", f"{p['seconds_first_sweep']:.2f} s"),
-        ("rate (probe " + p["probe"] + ")", f"{p['updates_per_second']:,} updates/s"),
-        (f"predicted time, {p['workers']} worker(s)", f"{p['predicted_seconds']:.1f} s"),
-        ("predicted time, 1 worker", f"{p['predicted_seconds_one_worker']:.1f} s"),
+        *_shard_rows(p),
     ]
+
+
+def _random_rows(p: dict) -> list[tuple[str, str]]:
+    return [
+        ("states (whole space, exact)", f"{p['states_in_space']:,}"),
+        ("reachable states (exact)", f"{p['reachable_states']:,}"),
+        ("transitions (exact)", f"{p['transitions']:,}"),
+        ("denominator M (exact)", f"{p['denominator_bits']} bits"),
+        *_shard_rows(p),
+    ]
+
+
+def _solve_rows(p: dict) -> list[tuple[str, str]]:
+    if not p["reach_pass"]:
+        how = "exact: every state is reachable"
+    elif p["states_exact"]:
+        how = f"exact: reachability sweep, {p['seconds_reach']:.2f} s"
+    else:
+        how = "upper bound; --reach runs the reachability sweep"
+    ranges = p["range_states"]
+    planes = 1 if p["players"] == 2 else p["players"]
+    rows = [
+        ("states (whole space, exact)", f"{p['states_in_space']:,}"),
+        ("states solved", f"{p['states']:,} ({how})"),
+        ("levels", f"{p['levels']} (a move drops at most {p['max_drop']})"),
+        ("level ranges (shards)", f"{p['shards']} (up to {max(ranges):,} states each)"),
+        ("peak outcome bits", f"{human(p['peak_bits_bytes'])} ({p['max_drop'] + 1} layers "
+                              f"in flight x {planes} plane(s))"),
+    ]
+    if p["reach_pass"]:
+        rows.append(("reachability bits", human(p["reach_bits_bytes"])))
+    rows += [
+        ("memory per worker", p["memory_per_worker"]),
+        ("rate (probe " + p["probe"] + ")", f"{p['states_per_second']:,} states/s"),
+        (f"predicted time, {p['workers']} worker(s)", f"{p['predicted_seconds']:.1f} s"),
+    ]
+    return rows
+
+
+_HEADS = {
+    "count": (("rules", "n", "workers"), _count_rows),
+    "random": (("rules", "n", "model", "players", "winners_only", "workers"), _random_rows),
+    "solve": (("rules", "n", "players", "workers"), _solve_rows),
+}
+
+
+def format_prediction(p: dict) -> str:
+    """Any forecast (`predict_count`, `predict_random`, `predict_solve`) as an aligned text
+    table; the kind is p["kind"] (a count's forecast has none)."""
+    kind = p.get("kind", "count")
+    keys, rows_of = _HEADS[kind]
+    rows = rows_of(p)
     width = max(len(k) for k, _ in rows)
-    head = f"zeckenum plan count  rules={p['rules']}  n={p['n']}  workers={p['workers']}"
-    return "\n".join([head, ""] + [f"  {k:<{width}}  {v}" for k, v in rows])
+    head = f"zeckenum plan {kind}  " + "  ".join(f"{k}={p[k]}" for k in keys)
+    lines = [head, ""] + [f"  {k:<{width}}  {v}" for k, v in rows]
+    if kind == "solve":
+        lines += ["", textwrap.fill(f"note: {p['parallel']}", 90, initial_indent="  ",
+                                    subsequent_indent="  ")]
+    return "\n".join(lines)

@@ -1,4 +1,5 @@
-"""Command line of the Dask layer: `table`, `verify` and `plan` (registered by `cli.main`).
+"""Command line of the Dask layer: `table`, `verify` and the `plan` group (`plan count`,
+`plan random`, `plan solve`), registered by `cli.main`.
 
 Each command is a thin layer over `zeckenum.cluster`; `ZeckenumError`s become one line on
 stderr and the error's exit status (`cli.fail`).
@@ -11,7 +12,8 @@ import json
 import click
 
 from .cli_errors import fail
-from .errors import ZeckenumError
+from .errors import InputError, ZeckenumError
+from .randomplay import MODELS
 
 # No import from `cli` at module level: `cli` imports this module to register the commands.
 POSITIVE = click.IntRange(min=1)
@@ -85,8 +87,27 @@ def verify_command(folder, sample, seed, rules, workers, scheduler):  # noqa: AN
                f"consistent, recomputed n = {ns} with disjoint primes")
 
 
-@click.command("plan")
-@click.argument("what", type=click.Choice(["count"]))
+@click.group("plan")
+def plan_command() -> None:
+    """Forecast a run before starting it: exact sizes, shards, memory and time.
+
+    \b
+    Each forecast runs the cheap exact part of N (first sweep or rank table) and a small
+    calibration run of the same kind on this machine.
+    Examples:
+      zeckenum plan count 250 --workers 8
+      zeckenum plan random 150 --model pairs --workers 4
+      zeckenum plan solve 400 --shards 20
+    """
+
+
+def _echo_prediction(p: dict, as_json: bool) -> None:
+    from .cluster.predict import format_prediction
+
+    click.echo(json.dumps(p) if as_json else format_prediction(p))
+
+
+@plan_command.command("count")
 @click.argument("n", type=POSITIVE)
 @click.option("--workers", type=click.IntRange(min=1), default=1, show_default=True,
               help="Workers the run would use.")
@@ -94,17 +115,97 @@ def verify_command(folder, sample, seed, rules, workers, scheduler):  # noqa: AN
 @click.option("--probe", "probe_n", type=POSITIVE, default=90, show_default=True,
               help="n of the calibration count on this machine.")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
-def plan_command(what, n, workers, rules, probe_n, as_json):  # noqa: ANN001
-    """Forecast a run before starting it: states, transitions, shards, memory, time.
+def plan_count_command(n, workers, rules, probe_n, as_json):  # noqa: ANN001
+    """Forecast an exact count: sizes, shards, memory, time.
 
     Runs the first sweep of N (exact sizes and word updates) and a small calibration count.
+
+    \b
     Example:
       zeckenum plan count 250 --workers 8
     """
-    from .cluster.predict import format_prediction, predict_count
+    from .cluster.predict import predict_count
 
     try:
         p = predict_count(n, rules, workers, probe_n=probe_n)
     except ZeckenumError as exc:
         fail(exc)
-    click.echo(json.dumps(p) if as_json else format_prediction(p))
+    _echo_prediction(p, as_json)
+
+
+@plan_command.command("random")
+@click.argument("n", type=int)
+@click.option("--model", type=click.Choice(MODELS), default="moves", show_default=True,
+              help="Random model: uniform over legal moves, or over token pairs.")
+@click.option("--players", "-p", type=int, default=2, show_default=True,
+              help="Number of players P (>= 2).")
+@click.option("--winners-only", is_flag=True,
+              help="Forecast the win probabilities only (no length law).")
+@click.option("--workers", type=int, default=1, show_default=True,
+              help="Workers the run would use.")
+@click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
+@click.option("--probe", "probe_n", type=int, default=None,
+              help="n of the calibration run on this machine (default 100).")
+@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+def plan_random_command(n, model, players, winners_only, workers, rules, probe_n,  # noqa: ANN001
+                        as_json):
+    """Forecast exact random play: sizes, primes, shards, memory, time.
+
+    Runs random play's first sweep of N (exact states, transitions, denominator, primes,
+    shards and word updates) and a small calibration shard.
+
+    \b
+    Example:
+      zeckenum plan random 150 --model pairs --workers 4
+    """
+    from .cluster.predict import predict_random
+
+    try:
+        _check_probe(probe_n)
+        p = predict_random(n, rules, workers, model=model, players=players,
+                           winners_only=winners_only, probe_n=probe_n)
+    except ZeckenumError as exc:
+        fail(exc)
+    _echo_prediction(p, as_json)
+
+
+@plan_command.command("solve")
+@click.argument("n", type=int)
+@click.option("--players", "-p", type=int, default=2, show_default=True,
+              help="Number of players P (>= 2).")
+@click.option("--workers", type=int, default=1, show_default=True,
+              help="Workers the run would use (the chain runs one range at a time).")
+@click.option("--shards", type=int, default=None,
+              help="Level ranges of the chain (default: one per 2e7 states).")
+@click.option("--reach", is_flag=True,
+              help="Run the reachability sweep for an exact state count (rule sets other "
+                   "than the standard game; else the count is an upper bound).")
+@click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
+@click.option("--probe", "probe_n", type=int, default=None,
+              help="n of the calibration solve on this machine (default 160).")
+@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+def plan_solve_command(n, players, workers, shards, reach, rules, probe_n,  # noqa: ANN001
+                       as_json):
+    """Forecast optimal play: states, level ranges, bit memory, time.
+
+    Reads the exact sizes off the rank table and times a small calibration solve.  The
+    chain runs one level range at a time: workers do not speed up one n.
+
+    \b
+    Example:
+      zeckenum plan solve 400 --shards 20
+    """
+    from .cluster.predict import predict_solve
+
+    try:
+        _check_probe(probe_n)
+        p = predict_solve(n, rules, workers, players=players, shards=shards, reach=reach,
+                          probe_n=probe_n)
+    except ZeckenumError as exc:
+        fail(exc)
+    _echo_prediction(p, as_json)
+
+
+def _check_probe(probe_n: int | None) -> None:
+    if probe_n is not None and probe_n < 1:
+        raise InputError(f"the probe's n must be a positive integer, got {probe_n}")
