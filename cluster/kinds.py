@@ -9,7 +9,7 @@ residues of all blocks become the result (`assemble`, the same function the in-p
 path uses).
 
 count   prepare `tasks.prepare_task`, shards `tasks.spectrum_task`, assembly
-        `count.assemble_count`
+        `count.assemble_count`, release `tasks.release_task` (the host's shared sweep)
 random  prepare `random_tasks.random_prepare_task`, shards `random_tasks.random_law_task`
         (length law) or `random_tasks.random_win_task` (winners only), assembly
         `randomplay.assemble_random`
@@ -29,7 +29,7 @@ from ..results import CountResult
 from ..rules import RuleSet
 from .plan import ShardPlan, make_plan, plan_from_primes
 from .random_tasks import RandomFacts, random_law_task, random_prepare_task, random_win_task
-from .tasks import Facts, prepare_task, spectrum_task
+from .tasks import Facts, prepare_task, release_task, spectrum_task
 
 
 @dataclass(frozen=True)
@@ -47,6 +47,8 @@ class ShardKind:
     columns       columns(facts): residues per prime of every shard
     assemble      assemble(facts, plan, residues of all blocks stacked, stats) -> result
     extra_stats   extra_stats(facts): the kind's own entries of the result's stats
+    release       release(ruleset, n), run on every Dask worker when n is done (frees what
+                  the workers keep of n), or None
     """
 
     name: str
@@ -62,6 +64,7 @@ class ShardKind:
     columns: Callable[[Any], int]
     assemble: Callable[[Any, ShardPlan, np.ndarray, dict], Any]
     extra_stats: Callable[[Any], dict]
+    release: Callable[..., Any] | None = None
 
 
 # ----------------------------------------------------------------------------- count
@@ -91,6 +94,7 @@ def count_kind(ruleset: RuleSet) -> ShardKind:
         assemble=assemble_count_shards,
         extra_stats=lambda facts: {"count_bits": facts.count_bits,
                                    "terminal_states": facts.terminals},
+        release=release_task,
     )
 
 

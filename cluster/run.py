@@ -31,6 +31,7 @@ there).
 
 from __future__ import annotations
 
+import logging
 import time
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
@@ -50,6 +51,8 @@ from .backend import DaskPool, Pool, ThreadPool, open_pool
 from .kinds import ShardKind, assemble_count_shards, count_kind, random_kind
 from .plan import ShardPlan, worker_bytes
 from .tasks import Facts
+
+log = logging.getLogger("zeckenum.cluster")
 
 
 @dataclass
@@ -192,6 +195,12 @@ def shards_on_pool(
         }
         residues = np.concatenate(job.residues, axis=0)
         results[job.n] = kind.assemble(job.facts, job.plan, residues, stats)
+        if kind.release is not None and isinstance(pool, DaskPool):
+            try:  # best effort: a leftover shared sweep is only disk space, reused or not
+                pool.client.run(kind.release, ruleset, job.n, on_error="ignore")
+            except Exception as exc:  # noqa: BLE001
+                log.warning("could not release the workers' first sweep of n=%s: %s",
+                            job.n, exc)
 
     def adopt(job: _Job, facts: Any) -> None:
         job.facts = facts

@@ -140,7 +140,11 @@ def first_sweep(
 
 
 def prepared(rules: str | RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
-    """The (cached) first sweep of (rules, n) in this process; built at most once at a time."""
+    """The (cached) first sweep of (rules, n) in this process; built at most once at a time.
+
+    In a Dask worker the sweep is shared with the other worker processes of the host
+    (`hostcache`): run once per host, its arrays memory-mapped by all.
+    """
     ruleset = get_rules(rules)
     key = (ruleset.content_hash(), int(n))
     with _cache_lock:
@@ -148,11 +152,37 @@ def prepared(rules: str | RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
         if hit is not None:
             _cache.move_to_end(key)
             return hit
-        entry = first_sweep(ruleset, int(n))
+        if worker_address():
+            entry = host_first_sweep(ruleset, int(n))
+        else:
+            entry = first_sweep(ruleset, int(n))
         _cache[key] = entry
         while len(_cache) > CACHE_ENTRIES:
             _cache.popitem(last=False)
         return entry
+
+
+def host_first_sweep(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
+    """`first_sweep` of (rules, n) through this host's shared cache (`hostcache`)."""
+    from .hostcache import shared_windows
+
+    def compute() -> tuple[Windows, dict]:
+        _, win, facts = first_sweep(ruleset, n)
+        return win, facts.to_dict()
+
+    win, facts, _ = shared_windows(ruleset.content_hash(), n, compute)
+    return build_space(ruleset.instantiate(n)), win, Facts(**facts)
+
+
+def release_task(rules: str | RuleSet, n: int) -> bool:
+    """Forget the first sweep of (rules, n) in this process and remove this host's shared
+    copy (run on every worker when the count of n is done); True if this call removed it."""
+    from .hostcache import release
+
+    ruleset = get_rules(rules)
+    with _cache_lock:
+        _cache.pop((ruleset.content_hash(), int(n)), None)
+    return release(ruleset.content_hash(), n)
 
 
 def clear_cache() -> None:
