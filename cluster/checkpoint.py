@@ -170,20 +170,13 @@ class Checkpoint:
         if not entry.get("sha256"):
             return None
         path = self.root / entry["file"]
-        problem = None
         residues = None
-        try:
-            data = path.read_bytes()
-        except OSError:
-            problem = "is missing"
-        else:
-            if sha256_bytes(data) != entry["sha256"]:
-                problem = "fails its SHA-256 check (corrupt, truncated or swapped)"
-            else:
-                try:
-                    residues = np.load(io.BytesIO(data), allow_pickle=False)
-                except (ValueError, OSError, EOFError):
-                    problem = "cannot be read as an array"
+        data, problem = read_verified(path, entry["sha256"])
+        if data is not None:
+            try:
+                residues = np.load(io.BytesIO(data), allow_pickle=False)
+            except (ValueError, OSError, EOFError):
+                problem = "cannot be read as an array"
         if residues is not None:
             block = np.asarray(self.plan.blocks[i], dtype=np.int64)
             shape = (block.size, self.shard_columns)
@@ -204,8 +197,22 @@ def blank_entry(i: int) -> dict:
     return {"index": i, "file": f"shard-{i:04d}.npy", "sha256": None, "word_updates": None}
 
 
-def read_manifest(root: Path) -> dict | None:
-    """The manifest of `root`, None if there is none; CheckpointRefused if unreadable."""
+def read_verified(path: Path, sha256: str) -> tuple[bytes | None, str | None]:
+    """(the bytes of `path`, None) when it exists and has this SHA-256, else (None, what is
+    wrong with it, as the end of a sentence)."""
+    try:
+        data = path.read_bytes()
+    except OSError:
+        return None, "is missing"
+    if sha256_bytes(data) != sha256:
+        return None, "fails its SHA-256 check (corrupt, truncated or swapped)"
+    return data, None
+
+
+def read_manifest(root: Path, fmt: str = FORMAT,
+                  what: str = "a zeckenum shard checkpoint") -> dict | None:
+    """The manifest of `root` in format `fmt`, None if there is none; CheckpointRefused if
+    it is unreadable or of another format (`what` names the expected kind of checkpoint)."""
     path = Path(root) / MANIFEST
     if not path.exists():
         return None
@@ -216,10 +223,8 @@ def read_manifest(root: Path) -> dict | None:
             f"checkpoint {path} cannot be read ({exc.__class__.__name__}); "
             "remove it or use another directory"
         ) from None
-    if not isinstance(data, dict) or data.get("format") != FORMAT:
-        raise CheckpointRefused(
-            f"{path} is not a zeckenum shard checkpoint; use another directory"
-        )
+    if not isinstance(data, dict) or data.get("format") != fmt:
+        raise CheckpointRefused(f"{path} is not {what}; use another directory")
     return data
 
 

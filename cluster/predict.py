@@ -37,7 +37,7 @@ from ..errors import InputError
 from ..memory import human
 from ..randomplay import validate, word_primes
 from ..rules import RuleSet, get_rules
-from ..solve import _check_players, needs_reach, solve, sweep_reach
+from ..solve import check_players, needs_reach, solve, sweep_reach
 from ..statespace import StateSpace, build_space
 from .kinds import random_kind
 from .plan import ShardPlan, make_plan, worker_bytes
@@ -293,7 +293,7 @@ def predict_solve(
     (`probe_solve_rate` at `probe_n`, default PROBE_SOLVE_N), whatever the workers.
     """
     n = check_n(n)
-    _check_players(players)
+    check_players(players)
     _check_workers(workers)
     ruleset = get_rules(rules)
     space = build_space(ruleset.instantiate(n))

@@ -40,7 +40,7 @@ from ..errors import InputError
 from ..rules import RuleSet, get_rules
 from ..solve import (
     SolveResult,
-    _check_players,
+    check_players,
     needs_reach,
     solve_result,
     sweep_classes,
@@ -48,7 +48,14 @@ from ..solve import (
 )
 from ..statespace import StateSpace, build_space
 from .backend import open_pool
-from .checkpoint import check_parameters, sha256_bytes, warn, write_atomic
+from .checkpoint import (
+    check_parameters,
+    read_manifest,
+    read_verified,
+    sha256_bytes,
+    warn,
+    write_atomic,
+)
 from .errors import CheckpointRefused
 
 FORMAT = "zeckenum-solve-chain/1"
@@ -169,19 +176,12 @@ class ChainCheckpoint:
         if not entry.get("sha256"):
             return None
         path = self.root / entry["file"]
-        try:
-            data = path.read_bytes()
-        except OSError:
-            problem = "is missing"
-        else:
-            problem = None
-            if sha256_bytes(data) != entry["sha256"]:
-                problem = "fails its SHA-256 check (corrupt, truncated or swapped)"
-            else:
-                try:
-                    return read_boundary(data)
-                except (ValueError, OSError, KeyError, EOFError):
-                    problem = "cannot be read"
+        data, problem = read_verified(path, entry["sha256"])
+        if data is not None:
+            try:
+                return read_boundary(data)
+            except (ValueError, OSError, KeyError, EOFError):
+                problem = "cannot be read"
         warn(f"checkpoint shard {path} {problem}; recomputing it")
         self.shards[i] = {"index": i, "file": entry.get("file"), "sha256": None}
         return None
@@ -193,18 +193,8 @@ def open_chain(root: Path, parameters: dict, ranges: list[tuple[int, int]] | Non
     (CheckpointRefused otherwise), else a new one for `ranges`."""
     root = Path(root)
     path = root / MANIFEST
-    if path.exists():
-        try:
-            data = json.loads(path.read_text())
-        except (OSError, ValueError) as exc:
-            raise CheckpointRefused(
-                f"checkpoint {path} cannot be read ({exc.__class__.__name__}); "
-                "remove it or use another directory"
-            ) from None
-        if not isinstance(data, dict) or data.get("format") != FORMAT:
-            raise CheckpointRefused(
-                f"{path} is not a checkpoint of a chained solve; use another directory"
-            )
+    data = read_manifest(root, FORMAT, "a checkpoint of a chained solve")
+    if data is not None:
         check_parameters(root, data.get("parameters", {}), parameters)
         try:
             stored = [(int(a), int(b)) for a, b in data["ranges"]]
@@ -261,7 +251,7 @@ def run_solve(
     backend.
     """
     n = check_n(n)
-    _check_players(players)
+    check_players(players)
     ruleset = get_rules(rules)
     t0 = time.perf_counter()
     space = build_space(ruleset.instantiate(n))

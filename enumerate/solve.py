@@ -592,7 +592,7 @@ class SolveResult:
         }
 
 
-def _check_players(players: int) -> None:
+def check_players(players: int) -> None:
     if not isinstance(players, int) or players < 2 or players > MAX_PLAYERS:
         raise InputError(f"players must be an integer from 2 to {MAX_PLAYERS}, got {players}")
 
@@ -770,7 +770,7 @@ def solve(
     (`sweep_reach`) and solve only those; None (default) does so for every rule set except
     the standard game, whose states of value n are all reachable (module docstring).
     """
-    _check_players(players)
+    check_players(players)
     rs = get_rules(rules)
     space = build_space(rs.instantiate(n))
     reach = needs_reach(rs) if reach is None else reach

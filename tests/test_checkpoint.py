@@ -9,13 +9,12 @@ from __future__ import annotations
 
 import hashlib
 import json
-import subprocess
-import sys
 import textwrap
 
 import numpy as np
 import pytest
 import zeckenum
+from killed_client import kill_after_marker
 from zeckenum.cluster import run_count
 from zeckenum.cluster.checkpoint import write_atomic
 from zeckenum.cluster.errors import CheckpointRefused
@@ -143,18 +142,7 @@ _CLIENT = textwrap.dedent(
 def test_killed_client_resumes_only_unfinished_shards(tmp_path) -> None:  # noqa: ANN001
     n = 70
     folder = tmp_path / "ck"
-    proc = subprocess.Popen([sys.executable, "-c", _CLIENT, str(n), str(folder)],
-                            stdout=subprocess.PIPE, text=True)
-    try:
-        line = proc.stdout.readline().strip()
-        assert line == "CHECKPOINTED"
-        proc.kill()  # SIGKILL: no cleanup runs in the client
-        proc.wait(timeout=30)
-    finally:
-        if proc.poll() is None:
-            proc.kill()
-            proc.wait(timeout=30)
-        proc.stdout.close()
+    kill_after_marker(_CLIENT, str(n), str(folder))
     done = [e for e in _manifest(folder)["shards"] if e["sha256"]]
     assert len(done) == 2
     res = run_count(n, checkpoint_dir=folder, max_primes_per_block=1)

@@ -13,14 +13,13 @@ from __future__ import annotations
 import json
 import os
 import signal
-import subprocess
-import sys
 import textwrap
 
 import minimax
 import pytest
 import rules_bruteforce as bf
 from click.testing import CliRunner
+from killed_client import kill_after_marker
 from zeckenum.cli import main
 from zeckenum.cluster.errors import CheckpointRefused
 from zeckenum.cluster.run import run_count
@@ -158,17 +157,7 @@ _CLIENT = textwrap.dedent(
 def test_killed_client_resumes_only_unfinished_shards(tmp_path) -> None:  # noqa: ANN001
     n = 60
     folder = tmp_path / "ck"
-    proc = subprocess.Popen([sys.executable, "-c", _CLIENT, str(n), str(folder)],
-                            stdout=subprocess.PIPE, text=True)
-    try:
-        assert proc.stdout.readline().strip() == "CHECKPOINTED"
-        proc.kill()  # SIGKILL: no cleanup runs in the client
-        proc.wait(timeout=30)
-    finally:
-        if proc.poll() is None:
-            proc.kill()
-            proc.wait(timeout=30)
-        proc.stdout.close()
+    kill_after_marker(_CLIENT, str(n), str(folder))
     res = run_solve(n, checkpoint_dir=folder)
     assert res.stats["shards_reused"] == 3
     assert res.stats["shards_computed"] == res.stats["shards_total"] - 3 == 3
