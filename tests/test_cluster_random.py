@@ -102,6 +102,31 @@ def test_dask_workers_equal_in_process(workers: int) -> None:
     _cluster_case(workers)
 
 
+def test_killing_a_worker_mid_run_gives_the_same_result() -> None:
+    import os
+    import signal
+
+    n = 60  # the length law at n = 60 needs 21 primes below 2**50 (with the check): 21 shards
+    killed: list[str] = []
+    with open_pool(workers=2, warm=("random",)) as pool:
+        client = pool.client
+        pids = client.run(os.getpid)
+
+        def kill_busy_worker(_n: int, _i: int) -> None:
+            if killed:
+                return
+            busy = [w for w, keys in client.processing().items() if keys and w in pids]
+            if busy:
+                os.kill(pids[busy[0]], signal.SIGKILL)
+                killed.append(busy[0])
+
+        res = random_on_pool(n, "standard", pool, max_primes_per_block=1,
+                             on_shard=kill_busy_worker)
+    assert killed, "no worker was busy after the first shard: the test did not kill one"
+    assert res.stats["shards_total"] > 10
+    assert res == random_play(n)
+
+
 # Source: common practice for checkpoints (a rerun reuses every verified shard; the stored
 # checksums are recomputed with hashlib).
 @pytest.mark.parametrize("winners_only", [False, True])
