@@ -24,3 +24,23 @@ def kill_after_marker(script: str, *args: str, marker: str = "CHECKPOINTED") -> 
             proc.kill()
             proc.wait(timeout=30)
         proc.stdout.close()
+
+
+def busy_worker_killer(client):  # noqa: ANN001, ANN201
+    """(on_shard callback, killed addresses): after the first shard, SIGKILL one Dask worker
+    that is busy with a task (once), so the run must recover a task in flight."""
+    import os
+    import signal
+
+    pids = client.run(os.getpid)
+    killed: list[str] = []
+
+    def kill(_n: int, _i: int) -> None:
+        if killed:
+            return
+        busy = [w for w, keys in client.processing().items() if keys and w in pids]
+        if busy:
+            os.kill(pids[busy[0]], signal.SIGKILL)
+            killed.append(busy[0])
+
+    return kill, killed

@@ -9,12 +9,12 @@ and closed in `finally` blocks (`open_pool` closes them on any exit).
 from __future__ import annotations
 
 import os
-import signal
 import threading
 
 import pytest
 import zeckenum
 from bruteforce import census
+from killed_client import busy_worker_killer
 from zeckenum.cluster import run_count
 from zeckenum.cluster.backend import open_pool
 from zeckenum.cluster.run import count_on_pool
@@ -64,19 +64,8 @@ def test_one_and_three_workers_equal_in_process(workers: int) -> None:
 
 def test_killing_a_worker_mid_run_gives_the_same_result() -> None:
     n = 110  # 9 primes: 9 shards of one prime
-    killed: list[str] = []
     with open_pool(workers=2) as pool:
-        client = pool.client
-        pids = client.run(os.getpid)
-
-        def kill_busy_worker(_n: int, _i: int) -> None:
-            if killed:
-                return
-            busy = [w for w, keys in client.processing().items() if keys and w in pids]
-            if busy:
-                os.kill(pids[busy[0]], signal.SIGKILL)
-                killed.append(busy[0])
-
+        kill_busy_worker, killed = busy_worker_killer(pool.client)
         res = count_on_pool([n], "standard", pool, max_primes_per_block=1,
                             on_shard=kill_busy_worker)[n]
     assert killed, "no worker was busy after the first shard: the test did not kill one"

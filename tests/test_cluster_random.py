@@ -23,6 +23,7 @@ from click.testing import CliRunner
 
 sys.path.insert(0, str(Path(__file__).parent))
 from fraction_bruteforce import length_law, win_law  # noqa: E402
+from killed_client import busy_worker_killer  # noqa: E402
 from zeckenum.cli_random import random_command  # noqa: E402
 from zeckenum.cluster import run_count, run_random  # noqa: E402
 from zeckenum.cluster.backend import open_pool  # noqa: E402
@@ -103,23 +104,9 @@ def test_dask_workers_equal_in_process(workers: int) -> None:
 
 
 def test_killing_a_worker_mid_run_gives_the_same_result() -> None:
-    import os
-    import signal
-
     n = 60  # the length law at n = 60 needs 21 primes below 2**50 (with the check): 21 shards
-    killed: list[str] = []
     with open_pool(workers=2, warm=("random",)) as pool:
-        client = pool.client
-        pids = client.run(os.getpid)
-
-        def kill_busy_worker(_n: int, _i: int) -> None:
-            if killed:
-                return
-            busy = [w for w, keys in client.processing().items() if keys and w in pids]
-            if busy:
-                os.kill(pids[busy[0]], signal.SIGKILL)
-                killed.append(busy[0])
-
+        kill_busy_worker, killed = busy_worker_killer(pool.client)
         res = random_on_pool(n, "standard", pool, max_primes_per_block=1,
                              on_shard=kill_busy_worker)
     assert killed, "no worker was busy after the first shard: the test did not kill one"
