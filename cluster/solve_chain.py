@@ -24,6 +24,7 @@ The result is `solve.solve_result` of the last boundary and the summed statistic
 
 from __future__ import annotations
 
+import contextlib
 import io
 import json
 import threading
@@ -280,14 +281,14 @@ def run_solve(
 
         bar = tqdm(total=len(ranges), initial=reused, unit="shard", desc=f"solve n={n}")
     try:
-        with open_pool(workers, scheduler, threads or 1, warm=("solve",)) as pool:
-            where = None
-            for i, (lo, hi) in enumerate(ranges):
-                if outputs[i] is not None:
-                    continue
+        todo = [i for i, out in enumerate(outputs) if out is None]
+        with contextlib.ExitStack() as stack:  # no pool (nor cluster) when all are reused
+            pool = stack.enter_context(open_pool(workers, scheduler, threads or 1,
+                                                 warm=("solve",))) if todo else None
+            for i in todo:
+                lo, hi = ranges[i]
                 prev = {} if i == 0 else outputs[i - 1][0]
-                fut = pool.submit(sweep_classes_task, ruleset, n, players, lo, hi, prev,
-                                  where=where)
+                fut = pool.submit(sweep_classes_task, ruleset, n, players, lo, hi, prev)
                 boundary, stats = fut.result()
                 outputs[i] = (boundary, stats)
                 computed += 1
