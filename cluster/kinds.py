@@ -24,7 +24,14 @@ from typing import Any
 import numpy as np
 
 from ..count import assemble_count
-from ..randomplay import RandomResult, assemble_random, check_random_primes, primes_exceeding
+from ..randomplay import (
+    LAW_PRIMES_PER_BLOCK,
+    WIN_PRIMES_PER_BLOCK,
+    RandomResult,
+    assemble_random,
+    check_random_primes,
+    primes_exceeding,
+)
 from ..results import CountResult
 from ..rules import RuleSet
 from .plan import ShardPlan, make_plan, plan_from_primes
@@ -107,11 +114,13 @@ def random_plan(
 ) -> ShardPlan:
     """The shard plan of exact random play: the primes below 2**50 whose product exceeds
     the denominator M (`randomplay.primes_exceeding`) plus the check prime, refused outside
-    the proved arithmetic ranges (`randomplay.check_random_primes`), in equal blocks."""
+    the proved arithmetic ranges (`randomplay.check_random_primes`), in equal blocks of
+    about `randomplay.LAW_PRIMES_PER_BLOCK` (or `WIN_PRIMES_PER_BLOCK`) primes."""
     primes, check = primes_exceeding(int(facts.denominator), prime_offset)
     check_random_primes([*primes, check], facts.max_indegree, facts.weight_bound)
+    per_block = WIN_PRIMES_PER_BLOCK if facts.winners_only else LAW_PRIMES_PER_BLOCK
     return plan_from_primes(facts, prime_offset, primes, check, workers, blocks,
-                            max_primes_per_block)
+                            max_primes_per_block, per_block)
 
 
 def assemble_random_shards(

@@ -67,9 +67,11 @@ class ShardPlan:
 
 def block_count(
     nprimes: int, workers: int = 1, blocks: int | None = None,
-    max_primes_per_block: int | None = None,
+    max_primes_per_block: int | None = None, per_block: int = PRIMES_PER_BLOCK,
 ) -> int:
-    """How many blocks `nprimes` primes are cut into (1 .. nprimes)."""
+    """How many blocks `nprimes` primes are cut into (1 .. nprimes): `blocks`, or enough
+    for `max_primes_per_block`, or by default about `per_block` primes each in a multiple
+    of the workers."""
     if blocks is not None:
         if blocks < 1:
             raise InputError(f"blocks must be >= 1, got {blocks}")
@@ -79,7 +81,7 @@ def block_count(
             raise InputError(f"max primes per block must be >= 1, got {max_primes_per_block}")
         return min(nprimes, math.ceil(nprimes / max_primes_per_block))
     workers = max(1, workers)
-    k = math.ceil(nprimes / PRIMES_PER_BLOCK)
+    k = math.ceil(nprimes / per_block)
     return min(nprimes, workers * math.ceil(k / workers))
 
 
@@ -108,11 +110,12 @@ def make_plan(
 def plan_from_primes(
     facts: Facts | RandomFacts, prime_offset: int, primes: list[int], check_prime: int,
     workers: int = 1, blocks: int | None = None, max_primes_per_block: int | None = None,
+    per_block: int = PRIMES_PER_BLOCK,
 ) -> ShardPlan:
     """The shard plan of any kind of run: `primes` + [check_prime] cut into equal blocks
     (`block_count`, `split_evenly`); `facts` names the game (rules, rules_hash, n)."""
     allp = (*primes, check_prime)
-    nblocks = block_count(len(allp), workers, blocks, max_primes_per_block)
+    nblocks = block_count(len(allp), workers, blocks, max_primes_per_block, per_block)
     return ShardPlan(
         rules=facts.rules,
         rules_hash=facts.rules_hash,

@@ -866,10 +866,23 @@ def _rebuild(rows: list[list[int]], check: list[int], primes: list[int], check_p
     return out
 
 
+LAW_PRIMES_PER_BLOCK = 8
+"""Most primes in one block of the length law.  Measured at n = 160, 2 threads, 100 primes:
+8 per block 56.3 s and 1.1 GiB; blocks as large as memory allowed (50) 55.0 s and 5.3 GiB;
+4 per block 64.5 s.  The winners-only sweep keeps large blocks: its buffers are small and
+it gains from them (n = 200: 68 per block 7.9 s, 8 per block 9.3 s)."""
+
+WIN_PRIMES_PER_BLOCK = 34
+"""Primes per shard of a sharded winners-only run (the in-process run takes blocks as large
+as memory allows); see `LAW_PRIMES_PER_BLOCK` for the measurements."""
+
+
 def _prime_blocks(
-    allp: list[int], threads: int | None, words_per_prime: int, what: str
+    allp: list[int], threads: int | None, words_per_prime: int, what: str,
+    most: int | None = None,
 ) -> tuple[list[np.ndarray], int]:
-    """(blocks of primes, threads to run them): as few blocks as the memory allows.
+    """(blocks of primes, threads to run them): as few blocks as the memory allows, of at
+    most `most` primes each (None: no limit but memory).
 
     A block of b primes holds b * words_per_prime int64 words at its peak; `threads`
     blocks run at once and must fit in the memory the machine has available (with a
@@ -881,6 +894,8 @@ def _prime_blocks(
     refuse_if_over(per_prime, budget, what)
     k = min(k, budget // per_prime)
     size = max(1, min(math.ceil(len(allp) / k), budget // (k * per_prime)))
+    if most is not None:
+        size = min(size, most)
     nblocks = math.ceil(len(allp) / size)
     nblocks = k * math.ceil(nblocks / k)
     blocks = [np.array(b, dtype=np.int64) for b in np.array_split(np.array(allp), nblocks)]
@@ -1006,7 +1021,8 @@ def random_residues(
         outs = _run_blocks(blocks, lambda b: random_win_residues(skel, b, unit, players), k)
     else:
         blocks, k = _prime_blocks(allp, threads, law_words_per_prime(skel),
-                                  f"the exact length law at n={space.spec.n}")
+                                  f"the exact length law at n={space.spec.n}",
+                                  LAW_PRIMES_PER_BLOCK)
         outs = _run_blocks(blocks, lambda b: random_law_residues(skel, b, unit), k)
     return np.concatenate(outs, axis=0), primes, check_prime
 
