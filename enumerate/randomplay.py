@@ -867,10 +867,12 @@ def _rebuild(rows: list[list[int]], check: list[int], primes: list[int], check_p
 
 
 LAW_PRIMES_PER_BLOCK = 8
-"""Most primes in one block of the length law.  Measured at n = 160, 2 threads, 100 primes:
-8 per block 56.3 s and 1.1 GiB; blocks as large as memory allowed (50) 55.0 s and 5.3 GiB;
-4 per block 64.5 s.  The winners-only sweep keeps large blocks: its buffers are small and
-it gains from them (n = 200: 68 per block 7.9 s, 8 per block 9.3 s)."""
+"""Most primes in one block of the length law, trading a little time for much memory.
+Measured with 2 threads: n = 160 (100 primes): 8 per block 56.3 s and 1.1 GiB, blocks as
+large as memory allowed (50) 55.0 s and 5.3 GiB, 4 per block 64.5 s; n = 200 (136
+primes): 8 per block 433 s and 4.0 GiB, memory-sized (68) 374 s and 15.3 GiB.  The
+winners-only sweep keeps large blocks: its buffers are small and it gains from them
+(n = 200: 68 per block 7.9 s, 8 per block 9.3 s)."""
 
 WIN_PRIMES_PER_BLOCK = 34
 """Primes per shard of a sharded winners-only run (the in-process run takes blocks as large
