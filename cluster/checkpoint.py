@@ -26,7 +26,6 @@ from __future__ import annotations
 import hashlib
 import io
 import json
-import os
 import sys
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -34,6 +33,7 @@ from pathlib import Path
 import numpy as np
 
 from .. import __version__
+from ..safeio import write_atomic  # noqa: F401 - re-exported for table and solve_chain
 from .errors import CheckpointRefused
 from .plan import ShardPlan
 
@@ -51,25 +51,6 @@ def sha256_file(path: Path) -> str:
         for chunk in iter(lambda: f.read(1 << 20), b""):
             h.update(chunk)
     return h.hexdigest()
-
-
-def write_atomic(path: Path, data: bytes) -> None:
-    """Write `data` to `path` atomically: temporary file, fsync, rename, fsync of the folder."""
-    path = Path(path)
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    with open(tmp, "wb") as f:
-        f.write(data)
-        f.flush()
-        os.fsync(f.fileno())
-    os.replace(tmp, path)
-    try:
-        fd = os.open(path.parent, os.O_RDONLY)
-    except OSError:  # pragma: no cover - folders that cannot be opened (some platforms)
-        return
-    try:
-        os.fsync(fd)
-    finally:
-        os.close(fd)
 
 
 def array_bytes(a: np.ndarray) -> bytes:

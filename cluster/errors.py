@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ..errors import InputError, ZeckenumError
+from ..errors import CheckFailed, InputError
 
 
 class CheckpointRefused(InputError):
@@ -11,7 +11,5 @@ class CheckpointRefused(InputError):
     exit_code = 2
 
 
-class TableCheckFailed(ZeckenumError):
-    """A published table failed `verify`: a checksum or a recomputed row disagrees."""
-
-    exit_code = 5
+class TableCheckFailed(CheckFailed):
+    """A published table failed `verify`: a checksum or a recomputed row disagrees (exit 5)."""

@@ -7,6 +7,7 @@ line on stderr and the error's exit status; click's own usage errors exit with s
 from __future__ import annotations
 
 import json
+import os
 import sys
 
 import click
@@ -19,7 +20,7 @@ from .cli_rules import rules_group
 from .cli_solve import check_strategy_command, solve_command
 from .cli_view import games_command, movestats_command, plot_command, report_command
 from .count import count
-from .errors import ZeckenumError
+from .errors import INTERNAL_ERROR_EXIT, MemoryRefused, ZeckenumError
 from .memory import parse_size
 from .results import CountResult
 
@@ -85,6 +86,16 @@ class OneLineGroup(click.Group):
             sys.exit(exc.exit_code)
         except ZeckenumError as exc:
             fail(exc)
+        except MemoryError:
+            click.echo("zeckenum: error: the machine ran out of memory (the forecast was too "
+                       "low; lower --max-memory or n)", err=True)
+            sys.exit(MemoryRefused.exit_code)
+        except Exception as exc:  # noqa: BLE001 - the one place a bug becomes one line
+            if os.environ.get("ZECKENUM_DEBUG"):
+                raise
+            click.echo(f"zeckenum: internal error: {exc.__class__.__name__}: {exc} "
+                       "(a bug; ZECKENUM_DEBUG=1 shows the traceback)", err=True)
+            sys.exit(INTERNAL_ERROR_EXIT)
 
 
 @click.group(cls=OneLineGroup, context_settings={"help_option_names": ["-h", "--help"]})

@@ -14,7 +14,7 @@ from pathlib import Path
 import click
 
 from .cli_errors import one_line_errors
-from .errors import InputError
+from .errors import CheckFailed, InputError
 
 
 def _frac(x: Fraction) -> str:
@@ -144,7 +144,7 @@ def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_ran
                 out["distribution"]["random"] = {str(k): _frac(v) for k, v in rdist.items()}
         click.echo(json.dumps(out, indent=1))
         if bad:
-            sys.exit(1)
+            sys.exit(CheckFailed.exit_code)
         return
     click.echo(f"zeckenum move-stats  rules={rs.name}  n={n}  games={totals.games}\n")
     w = max(len(m) for m in totals.move_names)
@@ -166,7 +166,7 @@ def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_ran
             extra = "" if rdist is None else f"  {float(rdist.get(k, 0)):.6f}"
             click.echo(f"  {k:>4}  {v}{extra}")
     if bad:
-        sys.exit(1)
+        sys.exit(CheckFailed.exit_code)
 
 
 def _load_data(table: str | None, lo_hi: tuple[int, int] | None, rules: str,

@@ -29,7 +29,7 @@ import gzip
 from dataclasses import dataclass
 from pathlib import Path
 
-from .errors import InputError, ZeckenumError
+from .errors import CheckFailed, InputError
 from .rules import RuleSet, get_rules
 from .solve import Strategy
 
@@ -44,11 +44,9 @@ HEADER_COMMENT = """\
 """
 
 
-class StrategyRejected(ZeckenumError):
+class StrategyRejected(CheckFailed):
     """The strategy file is well formed but does not win (illegal move, missing position,
-    a loser's answer that ends the game, or a cycle)."""
-
-    exit_code = 1
+    a loser's answer that ends the game, or a cycle); exit status 5, like every failed check."""
 
 
 def format_counts(counts: tuple[int, ...]) -> str:

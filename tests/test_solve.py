@@ -244,7 +244,7 @@ def test_corrupt_losing_move(tmp_path) -> None:
     path.write_text("\n".join(lines) + "\n")
     runner = CliRunner()
     res = runner.invoke(check_strategy_command, [str(path)])
-    assert res.exit_code == 1
+    assert res.exit_code == 5  # a failed check (errors.CheckFailed)
     assert res.output.startswith("zeckenum: error: ")
     assert len(res.output.strip().splitlines()) == 1
 
