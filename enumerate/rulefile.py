@@ -38,6 +38,7 @@ Termination is checked when the rule set is instantiated for an n (`validate`).
 
 from __future__ import annotations
 
+import json
 import re
 import sys
 from collections import Counter
@@ -280,3 +281,52 @@ def describe_template(tpl: MoveTemplate) -> str:
     else:
         rng = f"for {tpl.first} <= k <= {tpl.last}"
     return f"{tpl.name}: {side(tpl.takes)} -> {side(tpl.gives)} {rng}"
+
+
+def _bin_text(off: int) -> str:
+    return "k" if off == 0 else f"k{off:+d}"
+
+
+def format_rules(rules: RuleSet) -> str:
+    """The canonical rule-file text of `rules`: `parse_rules(format_rules(r))` has the same
+    content hash as `r` (tested for every shipped rule set and generated ones).
+
+    Tables, checkpoints, reports and strategy files embed this text, so a result carries
+    the exact game it was computed for and can be recomputed from the file alone.
+    """
+    lines = [f"name = {json.dumps(rules.name)}", f"about = {json.dumps(rules.description)}"]
+    if isinstance(rules.start, tuple):
+        lines.append(f"start = {{ vector = [{', '.join(str(c) for c in rules.start)}] }}")
+    else:
+        lines.append(f"start = {json.dumps(rules.start)}")
+    lines += [f"layering = {json.dumps(rules.level_weights)}", "", "[bins]"]
+    if rules.recurrence:
+        lines.append(f"initial = [{', '.join(str(v) for v in rules.initial)}]")
+        lines.append(f"recurrence = [{', '.join(str(c) for c in rules.recurrence)}]")
+    else:
+        lines.append(f"values = [{', '.join(str(v) for v in rules.initial)}]")
+    for tpl in rules.templates:
+        lines += ["", "[[move]]", f"name = {json.dumps(tpl.name)}"]
+        if tpl.last is not None and tpl.last == tpl.first:
+            lines.append(f"at = {tpl.first}")
+        else:
+            lines.append(f"from = {tpl.first}")
+            if tpl.last is not None:
+                lines.append(f"to = {tpl.last}")
+        for key, pairs in (("take", tpl.takes), ("give", tpl.gives)):
+            bins = [json.dumps(_bin_text(off)) for off, c in pairs for _ in range(c)]
+            lines.append(f"{key} = [{', '.join(bins)}]")
+    return "\n".join(lines) + "\n"
+
+
+def rules_from_text(text: str, expected_hash: str | None = None,
+                    where: str = "<embedded rules>") -> RuleSet:
+    """The rule set of an embedded rule-file text, refused (InputError) when its content hash
+    differs from `expected_hash` (the hash recorded beside it)."""
+    rules = parse_rules(text, where=where)
+    if expected_hash is not None and rules.content_hash() != expected_hash:
+        raise InputError(
+            f"{where}: the embedded rule file has content hash {rules.content_hash()}, "
+            f"but {expected_hash} is recorded beside it; the file was altered"
+        )
+    return rules

@@ -557,3 +557,24 @@ def test_vector_start_scales_with_n() -> None:
         assert spec.n == 2 * n and int(spec.start[1]) == n and int(spec.start.sum()) == n
         bins = [x for x in fib if x <= 2 * n]
         assert terminal_positions(BUILTIN["twos"], n) == [greedy(2 * n, bins)]
+
+
+@pytest.mark.parametrize("name", sorted(BUILTIN))
+def test_canonical_rule_text_round_trips(name: str) -> None:
+    """The embedded rule-file text parses back to the same game (same content hash) and a
+    one-character change to a move is caught by the recorded hash (common practice: a
+    digest binds a text to its recorded identity)."""
+    from zeckenum.rulefile import format_rules, rules_from_text
+
+    rs = BUILTIN[name]
+    text = format_rules(rs)
+    back = parse_rules(text)
+    assert back.content_hash() == rs.content_hash()
+    assert back.templates == rs.templates and back.start == rs.start
+    assert rules_from_text(text, rs.content_hash()).content_hash() == rs.content_hash()
+    # a valid game that differs only in its start position must not pass as this one
+    other = '"greedy"' if rs.start != "greedy" else '"ones"'
+    altered = "\n".join(f"start = {other}" if line.startswith("start =") else line
+                         for line in text.splitlines())
+    with pytest.raises(InputError, match="altered"):
+        rules_from_text(altered, rs.content_hash())
