@@ -54,6 +54,9 @@ class ShardKind:
     columns       columns(facts): residues per prime of every shard
     assemble      assemble(facts, plan, residues of all blocks stacked, stats) -> result
     extra_stats   extra_stats(facts): the kind's own entries of the result's stats
+    fact_keys     the facts a checkpoint's manifest must match exactly on resume (every
+                  one that reaches the result or the plan; timings, memory sizes and the
+                  worker's address are left out: they differ between machines)
     release       release(ruleset, n), run on every Dask worker when n is done (frees what
                   the workers keep of n), or None
     """
@@ -71,10 +74,22 @@ class ShardKind:
     columns: Callable[[Any], int]
     assemble: Callable[[Any, ShardPlan, np.ndarray, dict], Any]
     extra_stats: Callable[[Any], dict]
+    fact_keys: tuple[str, ...] = ()
     release: Callable[..., Any] | None = None
 
 
 # ----------------------------------------------------------------------------- count
+
+COUNT_FACT_KEYS = ("rules", "rules_hash", "n", "states", "transitions", "terminals",
+                   "shortest", "longest", "count_bits", "total_states")
+"""Facts of a count a checkpoint must match: the game, the census and the size bound that
+fixes the primes."""
+
+RANDOM_FACT_KEYS = ("rules", "rules_hash", "n", "model", "players", "winners_only",
+                    "denominator", "states", "transitions", "terminals", "shortest",
+                    "longest", "max_indegree", "weight_bound", "columns")
+"""Facts of random play a checkpoint must match: the kind parameters, the game, the
+denominator M that fixes the primes and the bounds that admit them."""
 
 
 def assemble_count_shards(
@@ -101,6 +116,7 @@ def count_kind(ruleset: RuleSet) -> ShardKind:
         assemble=assemble_count_shards,
         extra_stats=lambda facts: {"count_bits": facts.count_bits,
                                    "terminal_states": facts.terminals},
+        fact_keys=COUNT_FACT_KEYS,
         release=release_task,
     )
 
@@ -157,4 +173,5 @@ def random_kind(ruleset: RuleSet, model: str, players: int, winners_only: bool) 
             "terminal_states": facts.terminals,
             "denominator_bits": int(facts.denominator).bit_length(),
         },
+        fact_keys=RANDOM_FACT_KEYS,
     )
