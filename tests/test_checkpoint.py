@@ -17,6 +17,7 @@ import zeckenum
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from killed_client import kill_after_marker
+from manifest_mutations import draw_mutation
 from zeckenum.cluster import run_count
 from zeckenum.cluster.checkpoint import write_atomic
 from zeckenum.cluster.errors import CheckpointRefused
@@ -453,49 +454,6 @@ def test_disk_full_mid_run_keeps_written_shards(tmp_path, monkeypatch) -> None: 
 # (brute force, tests/bruteforce.py) or a ZeckenumError of one line -- never another
 # exception, never a wrong number.
 
-_JSON_LEAVES = st.one_of(
-    st.none(), st.booleans(), st.integers(min_value=-(2**70), max_value=2**70),
-    st.sampled_from([0, 1, -1, 2**63, 10**30, 29, 30, 31, 54, 55]),
-    st.floats(allow_nan=False), st.text(max_size=8),
-    st.sampled_from(["../x", "/dev/zero", "shard-0000.npy", "4611686018427387847", ""]),
-)
-_JSON = st.recursive(_JSON_LEAVES, lambda kids: st.one_of(
-    st.lists(kids, max_size=3), st.dictionaries(st.text(max_size=5), kids, max_size=3)),
-    max_leaves=6)
-
-
-def _paths(doc, prefix=()):  # noqa: ANN001, ANN202
-    yield prefix
-    if isinstance(doc, dict):
-        for k, v in doc.items():
-            yield from _paths(v, (*prefix, k))
-    elif isinstance(doc, list):
-        for i, v in enumerate(doc):
-            yield from _paths(v, (*prefix, i))
-
-
-def _mutate(doc, path, action: str, value):  # noqa: ANN001, ANN202
-    import copy
-
-    doc = copy.deepcopy(doc)
-    if not path:
-        return value
-    parent = doc
-    for k in path[:-1]:
-        parent = parent[k]
-    key = path[-1]
-    if action == "delete":
-        del parent[key]
-    elif action == "bump" and isinstance(parent[key], int) and not isinstance(
-            parent[key], bool):
-        parent[key] += 1
-    elif action == "digit" and isinstance(parent[key], str) and parent[key][-1:].isdigit():
-        parent[key] = parent[key][:-1] + str((int(parent[key][-1]) + 2) % 10)
-    else:
-        parent[key] = value
-    return doc
-
-
 def _pristine(kind: str):  # noqa: ANN202
     """A finished checkpoint directory (made once per session) and its manifest."""
     import tempfile
@@ -521,13 +479,7 @@ def _run_mutated(kind: str, data):  # noqa: ANN001, ANN202
     from pathlib import Path
 
     folder, manifest = _pristine(kind)
-    paths = list(_paths(manifest))
-    path = data.draw(st.sampled_from(paths), label="path")
-    action = data.draw(st.sampled_from(["set", "delete", "bump", "digit"]), label="action")
-    value = data.draw(_JSON, label="value")
-    if action == "delete" and not path:
-        action = "set"
-    mutated = _mutate(manifest, path, action, value)
+    mutated = draw_mutation(data, manifest)
     work = Path(tempfile.mkdtemp(prefix="zeckenum-mutated-"))
     try:
         target = work / "ck"
@@ -571,3 +523,25 @@ def test_mutated_random_manifests_give_the_exact_result_or_one_line(data) -> Non
         ref = length_law(14, "moves")
         assert res.length_probability == ref
         assert res.win_probability == win_law(ref, 3)
+
+
+def test_cluster_resume_recomputes_facts_on_workers(tmp_path) -> None:  # noqa: ANN001
+    # one small Dask cluster on 127.0.0.1 (closed by open_pool): the resume's first sweep
+    # runs on the workers and its answer is compared with the manifest before any shard
+    # is reused; reference: the brute force of tests/bruteforce.py
+    from zeckenum.cluster.backend import DaskPool, open_pool
+    from zeckenum.cluster.run import count_on_pool
+
+    with open_pool(2, None, None, warm=("count",)) as pool:
+        assert isinstance(pool, DaskPool)
+        first = count_on_pool([TRUST_N], "standard", pool, checkpoint_dir=tmp_path,
+                              max_primes_per_block=1)[TRUST_N]
+        _assert_exact(first, TRUST_N)
+        _edited(tmp_path, lambda m: _shift(m, "longest", -1))
+        _one_line_refusal(lambda: count_on_pool([TRUST_N], "standard", pool,
+                                                checkpoint_dir=tmp_path), "longest")
+        _edited(tmp_path, lambda m: _shift(m, "longest", 1))
+        again = count_on_pool([TRUST_N], "standard", pool, checkpoint_dir=tmp_path)[TRUST_N]
+    assert again.stats["shards_reused"] == again.stats["shards_total"] == 3
+    assert again.stats["backend"] == "dask"
+    _assert_exact(again, TRUST_N)

@@ -19,6 +19,8 @@ import minimax
 import pytest
 import rules_bruteforce as bf
 from click.testing import CliRunner
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from killed_client import kill_after_marker
 from zeckenum.cli import main
 from zeckenum.cluster.errors import CheckpointRefused
@@ -336,3 +338,45 @@ def test_unwritable_chain_checkpoint_is_refused(tmp_path) -> None:  # noqa: ANN0
         with pytest.raises(OutputError) as info:
             run_solve(20, checkpoint_dir=folder, shards=2)
         assert info.value.exit_code == 6
+
+
+_PRISTINE: dict = {}
+
+
+# A battery of generated chain-manifest mutations (hypothesis, tests/manifest_mutations.py):
+# each ends in the exact result (the memoised minimax of tests/minimax.py and the one-piece
+# solve) or a ZeckenumError of one line -- never another exception, never a wrong answer.
+@settings(max_examples=50, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+@given(data=st.data())
+def test_mutated_chain_manifests_give_the_exact_result_or_one_line(data) -> None:  # noqa: ANN001
+    import shutil
+    import tempfile
+    from pathlib import Path
+
+    from manifest_mutations import draw_mutation
+    from zeckenum.errors import ZeckenumError
+
+    n = 16
+    if not _PRISTINE:
+        folder = Path(tempfile.mkdtemp(prefix="zeckenum-pristine-chain-"))
+        run_solve(n, checkpoint_dir=folder, shards=4)
+        _PRISTINE["folder"] = folder
+        _PRISTINE["manifest"] = json.loads((folder / "manifest.json").read_text())
+        _PRISTINE["ref"] = solve(n)
+    mutated = draw_mutation(data, _PRISTINE["manifest"])
+    work = Path(tempfile.mkdtemp(prefix="zeckenum-mutated-chain-"))
+    try:
+        target = work / "ck"
+        shutil.copytree(_PRISTINE["folder"], target)
+        (target / "manifest.json").write_text(json.dumps(mutated))
+        try:
+            res = run_solve(n, checkpoint_dir=target)
+        except ZeckenumError as exc:
+            assert "\n" not in str(exc)
+            return
+    finally:
+        shutil.rmtree(work, ignore_errors=True)
+    assert (res.winner == 1) == minimax.mover_wins(minimax.start_state(n))
+    assert res.states == len(minimax.reachable(n))
+    assert same(res, _PRISTINE["ref"])
