@@ -381,6 +381,8 @@ def run_counts(
     (its blocks in threads); on a cluster, all (n, block) tasks are in flight at once.
     """
     ns = list(ns)
+    if checkpoint_dir is not None:  # refused before a cluster starts
+        check_output_dir(checkpoint_dir, "checkpoint directory")
     opts = dict(prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
                 max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard)
     with open_pool(workers, scheduler, threads, warm=("count",)) as pool:
@@ -454,6 +456,8 @@ def run_random(
     validate(n, players, model)
     if prime_offset < 0:  # refused before a cluster starts
         raise InputError(f"prime offset must be >= 0, got {prime_offset}")
+    if checkpoint_dir is not None:
+        check_output_dir(checkpoint_dir, "checkpoint directory")
     with open_pool(workers, scheduler, threads, warm=("random",)) as pool:
         return random_on_pool(
             n, rules, pool, players, model, winners_only=winners_only,

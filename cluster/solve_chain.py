@@ -309,7 +309,9 @@ def open_chain(root: Path, parameters: dict, space: StateSpace, shards: int | No
                 f"checkpoint {root} records ranges={short(stored)}, but the levels "
                 f"0..{space.spec.start_level} split as {short(want)}; use another directory"
             )
-        entries = check_entries(root, data.get("shards"), len(stored), chain_file)
+        entries = [e if e["sha256"] else {"index": i, "file": None, "sha256": None}
+                   for i, e in enumerate(check_entries(root, data.get("shards"),
+                                                       len(stored), chain_file))]
         remove_stale(root)
         return ChainCheckpoint(root, dict(parameters), stored, entries, text,
                                requested if shards is None else shards)
