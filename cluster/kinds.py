@@ -4,7 +4,8 @@ The driver (`run.shards_on_pool`) knows nothing about counting or probabilities.
 `ShardKind` tells it how to run the first sweep (`prepare_task`, returning a small facts
 object), how to plan the primes (`plan`), which task computes one prime block
 (`shard_task`, returning (residues [prime][column], word updates)), how many columns a
-shard has (for checkpoint checks), the parameters a checkpoint must match, and how the
+shard has (for checkpoint checks), the parameters and facts a checkpoint must match (a
+manifest's facts are only ever compared with the recomputed ones, never used), and how the
 residues of all blocks become the result (`assemble`, the same function the in-process
 path uses).
 
@@ -49,7 +50,6 @@ class ShardKind:
     shard_task    shard_task(ruleset, n, *shard_args, block) -> (residues, word updates),
                   residues int64 of shape (primes in block, columns)
     parameters    the kind parameters a checkpoint must match, "kind" first
-    facts_from_dict  facts back from a manifest's JSON form
     plan          plan(facts, prime_offset, workers, blocks, max_primes_per_block)
     columns       columns(facts): residues per prime of every shard
     assemble      assemble(facts, plan, residues of all blocks stacked, stats) -> result
@@ -69,7 +69,6 @@ class ShardKind:
     shard_task: Callable[..., tuple[np.ndarray, int]]
     shard_args: tuple
     parameters: dict
-    facts_from_dict: Callable[[dict], Any]
     plan: Callable[..., ShardPlan]
     columns: Callable[[Any], int]
     assemble: Callable[[Any, ShardPlan, np.ndarray, dict], Any]
@@ -110,7 +109,6 @@ def count_kind(ruleset: RuleSet) -> ShardKind:
         prepare_task=prepare_task, prepare_args=(),
         shard_task=spectrum_task, shard_args=(),
         parameters={"kind": "count"},
-        facts_from_dict=lambda d: Facts(**{**d, "where": ""}),  # not the old cluster's address
         plan=make_plan,
         columns=lambda facts: facts.longest + 1,
         assemble=assemble_count_shards,
@@ -165,7 +163,6 @@ def random_kind(ruleset: RuleSet, model: str, players: int, winners_only: bool) 
         shard_task=task, shard_args=args,
         parameters={"kind": "random", "model": model, "players": players,
                     "winners_only": winners_only},
-        facts_from_dict=lambda d: RandomFacts(**{**d, "where": ""}),
         plan=random_plan,
         columns=lambda facts: facts.columns,
         assemble=assemble_random_shards,
