@@ -159,7 +159,8 @@ def write_or_stop(root: Path, path: Path, data: bytes, kept: int) -> None:
     except OSError as exc:
         raise OutputError(
             f"could not write checkpoint file {path}: {exc.strerror or exc}; the {kept} "
-            f"finished shards in {root} are kept: free space and rerun to resume"
+            f"finished shards in {root} are kept: fix the cause (disk space?) and rerun "
+            "to resume"
         ) from None
 
 
@@ -403,11 +404,11 @@ def check_entries(root: Path, entries: object, count: int | None, name_of,  # no
         if not isinstance(sha, str) or not SHA_RE.match(sha):
             raise _damaged(root, f"shard {i} sha256={short(sha)}")
         name = e.get("file")
-        try:
-            member(root, name, "checkpoint shard")
-        except InputError as exc:
-            raise CheckpointRefused(f"{exc}; use another directory") from None
-        if name != name_of(i):
+        if name != name_of(i):  # the canonical name's file is checked when it is read
+            try:
+                member(root, name, "checkpoint shard")
+            except InputError as exc:
+                raise CheckpointRefused(f"{exc}; use another directory") from None
             raise CheckpointRefused(
                 f"checkpoint {root} names file {short(name)} for shard {i}, "
                 f"not {name_of(i)!r}; use another directory")
@@ -416,6 +417,19 @@ def check_entries(root: Path, entries: object, count: int | None, name_of,  # no
                 raise _damaged(root, f"shard {i} {key}={short(e.get(key))}")
         out.append(dict(e))
     return out
+
+
+def refuse_folders_in_the_way(root: Path, names: list[str]) -> None:
+    """CheckpointRefused when a shard's file name is taken by a directory (the shard could
+    be neither read nor written; a FIFO, device or symlink there is simply replaced)."""
+    for name in names:
+        try:
+            mode = os.lstat(Path(root) / name).st_mode
+        except OSError:
+            continue
+        if stat.S_ISDIR(mode):
+            raise CheckpointRefused(f"checkpoint shard {Path(root) / name} is a directory; "
+                                    "remove it or use another directory")
 
 
 def remove_stale(root: Path) -> None:
@@ -494,6 +508,7 @@ class Stored:
         shards = check_entries(root, self.shards, nb, shard_name,
                                {"word_updates": _word_updates_ok})
         shards = [e if e["sha256"] else blank_entry(i) for i, e in enumerate(shards)]
+        refuse_folders_in_the_way(root, [shard_name(i) for i in range(nb)])
         verified = ShardPlan(rules=fresh.rules, rules_hash=fresh.rules_hash, n=fresh.n,
                              prime_offset=fresh.prime_offset, primes=fresh.primes,
                              check_prime=fresh.check_prime, blocks=split)

@@ -68,6 +68,7 @@ from .checkpoint import (
     is_int,
     read_manifest,
     read_verified,
+    refuse_folders_in_the_way,
     remove_stale,
     rules_text,
     sha256_bytes,
@@ -312,6 +313,7 @@ def open_chain(root: Path, parameters: dict, space: StateSpace, shards: int | No
         entries = [e if e["sha256"] else {"index": i, "file": None, "sha256": None}
                    for i, e in enumerate(check_entries(root, data.get("shards"),
                                                        len(stored), chain_file))]
+        refuse_folders_in_the_way(root, [chain_file(i) for i in range(len(stored))])
         remove_stale(root)
         return ChainCheckpoint(root, dict(parameters), stored, entries, text,
                                requested if shards is None else shards)

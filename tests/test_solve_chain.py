@@ -380,3 +380,50 @@ def test_mutated_chain_manifests_give_the_exact_result_or_one_line(data) -> None
     assert (res.winner == 1) == minimax.mover_wins(minimax.start_state(n))
     assert res.states == len(minimax.reachable(n))
     assert same(res, _PRISTINE["ref"])
+
+
+@pytest.mark.parametrize("kind", ["fifo", "symlink-out", "symlink-dev-zero", "directory"])
+def test_non_regular_chain_files_are_never_read(tmp_path, capsys, kind: str) -> None:  # noqa: ANN001
+    # a FIFO or symlink under a range's own name: one warning line, the range recomputed
+    # (never opened blocking, never followed); a directory there: refused up front
+    import threading
+
+    folder = tmp_path / "ck"
+    run_solve(30, checkpoint_dir=folder, shards=3)
+    victim = folder / "levels-0001.npz"
+    outside = tmp_path / "outside.npz"
+    outside.write_bytes(victim.read_bytes())
+    victim.unlink()
+    if kind == "fifo":
+        os.mkfifo(victim)
+    elif kind == "symlink-out":
+        victim.symlink_to(outside)
+    elif kind == "symlink-dev-zero":
+        victim.symlink_to("/dev/zero")
+    else:
+        victim.mkdir()
+    capsys.readouterr()
+    box: dict = {}
+
+    def call() -> None:
+        try:
+            box["res"] = run_solve(30, checkpoint_dir=folder)
+        except Exception as exc:  # noqa: BLE001
+            box["err"] = exc
+
+    t = threading.Thread(target=call, daemon=True)
+    t.start()
+    t.join(120)
+    if t.is_alive():
+        os.close(os.open(victim, os.O_WRONLY | os.O_NONBLOCK))
+        t.join(30)
+        pytest.fail("the chain hung on a FIFO")
+    if kind == "directory":
+        assert isinstance(box.get("err"), CheckpointRefused) and "\n" not in str(box["err"])
+        return
+    assert "err" not in box, box.get("err")
+    res = box["res"]
+    assert res.stats["shards_rejected"] == 1 and res.stats["shards_reused"] == 2
+    assert "levels-0001.npz" in capsys.readouterr().err
+    assert same(res, solve(30))
+    assert res.states == len(minimax.reachable(30))
