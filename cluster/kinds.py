@@ -4,7 +4,8 @@ The driver (`run.shards_on_pool`) knows nothing about counting or probabilities.
 `ShardKind` tells it how to run the first sweep (`prepare_task`, returning a small facts
 object), how to plan the primes (`plan`), which task computes one prime block
 (`shard_task`, returning (residues [prime][column], word updates)), how many columns a
-shard has (for checkpoint checks), the parameters a checkpoint must match, and how the
+shard has (for checkpoint checks), the parameters and facts a checkpoint must match (a
+manifest's facts are only ever compared with the recomputed ones, never used), and how the
 residues of all blocks become the result (`assemble`, the same function the in-process
 path uses).
 
@@ -49,11 +50,13 @@ class ShardKind:
     shard_task    shard_task(ruleset, n, *shard_args, block) -> (residues, word updates),
                   residues int64 of shape (primes in block, columns)
     parameters    the kind parameters a checkpoint must match, "kind" first
-    facts_from_dict  facts back from a manifest's JSON form
     plan          plan(facts, prime_offset, workers, blocks, max_primes_per_block)
     columns       columns(facts): residues per prime of every shard
     assemble      assemble(facts, plan, residues of all blocks stacked, stats) -> result
     extra_stats   extra_stats(facts): the kind's own entries of the result's stats
+    fact_keys     the facts a checkpoint's manifest must match exactly on resume (every
+                  one that reaches the result or the plan; timings, memory sizes and the
+                  worker's address are left out: they differ between machines)
     release       release(ruleset, n), run on every Dask worker when n is done (frees what
                   the workers keep of n), or None
     """
@@ -66,15 +69,26 @@ class ShardKind:
     shard_task: Callable[..., tuple[np.ndarray, int]]
     shard_args: tuple
     parameters: dict
-    facts_from_dict: Callable[[dict], Any]
     plan: Callable[..., ShardPlan]
     columns: Callable[[Any], int]
     assemble: Callable[[Any, ShardPlan, np.ndarray, dict], Any]
     extra_stats: Callable[[Any], dict]
+    fact_keys: tuple[str, ...] = ()
     release: Callable[..., Any] | None = None
 
 
 # ----------------------------------------------------------------------------- count
+
+COUNT_FACT_KEYS = ("rules", "rules_hash", "n", "states", "transitions", "terminals",
+                   "shortest", "longest", "count_bits", "total_states")
+"""Facts of a count a checkpoint must match: the game, the census and the size bound that
+fixes the primes."""
+
+RANDOM_FACT_KEYS = ("rules", "rules_hash", "n", "model", "players", "winners_only",
+                    "denominator", "states", "transitions", "terminals", "shortest",
+                    "longest", "max_indegree", "weight_bound", "columns")
+"""Facts of random play a checkpoint must match: the kind parameters, the game, the
+denominator M that fixes the primes and the bounds that admit them."""
 
 
 def assemble_count_shards(
@@ -95,12 +109,12 @@ def count_kind(ruleset: RuleSet) -> ShardKind:
         prepare_task=prepare_task, prepare_args=(),
         shard_task=spectrum_task, shard_args=(),
         parameters={"kind": "count"},
-        facts_from_dict=lambda d: Facts(**{**d, "where": ""}),  # not the old cluster's address
         plan=make_plan,
         columns=lambda facts: facts.longest + 1,
         assemble=assemble_count_shards,
         extra_stats=lambda facts: {"count_bits": facts.count_bits,
                                    "terminal_states": facts.terminals},
+        fact_keys=COUNT_FACT_KEYS,
         release=release_task,
     )
 
@@ -149,7 +163,6 @@ def random_kind(ruleset: RuleSet, model: str, players: int, winners_only: bool) 
         shard_task=task, shard_args=args,
         parameters={"kind": "random", "model": model, "players": players,
                     "winners_only": winners_only},
-        facts_from_dict=lambda d: RandomFacts(**{**d, "where": ""}),
         plan=random_plan,
         columns=lambda facts: facts.columns,
         assemble=assemble_random_shards,
@@ -157,4 +170,5 @@ def random_kind(ruleset: RuleSet, model: str, players: int, winners_only: bool) 
             "terminal_states": facts.terminals,
             "denominator_bits": int(facts.denominator).bit_length(),
         },
+        fact_keys=RANDOM_FACT_KEYS,
     )

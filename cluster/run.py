@@ -21,9 +21,12 @@ flow for one n:
    with the same function as the in-process path (`count.assemble_count`,
    `randomplay.assemble_random`).
 
-With a checkpoint directory the plan and the first sweep's facts come from its manifest,
-verified shards are reused and only the others are computed (`stats["shards_reused"]`,
-`stats["shards_computed"]`); a directory of another kind or other parameters is refused.
+With a checkpoint directory (refused up front when it cannot be written) the first sweep
+still runs, as for a fresh run; its facts and the plan derived from them are compared with
+the manifest (`checkpoint.Stored.verify`) before any shard is reused, and only the
+recomputed values are used.  Verified shards are reused and only the others are computed
+(`stats["shards_reused"]`, `stats["shards_computed"]`); a directory of another kind, other
+parameters, another rule file or any edited fact, prime or block is refused.
 Ranges of n (`run_counts`) submit one task per (n, block); on a cluster the largest n go
 first and the blocks of one n prefer the worker that swept it (its windows are cached
 there).
@@ -46,6 +49,7 @@ from ..memory import available_bytes, refuse_if_over
 from ..randomplay import RandomResult, validate
 from ..results import CountResult
 from ..rules import RuleSet, get_rules
+from ..safeio import check_output_dir
 from . import checkpoint as ckpt
 from .backend import DaskPool, Pool, ThreadPool, open_pool
 from .kinds import ShardKind, assemble_count_shards, count_kind, random_kind
@@ -63,6 +67,7 @@ class _Job:
     facts: Any = None
     plan: ShardPlan | None = None
     cp: ckpt.Checkpoint | None = None
+    stored: ckpt.Stored | None = None  # a manifest to verify against the first sweep
     residues: list = field(default_factory=list)
     updates: list = field(default_factory=list)
     reused: int = 0
@@ -135,6 +140,11 @@ def shards_on_pool(
             return None
         return Path(checkpoint_dir) if single else Path(checkpoint_dir) / f"n-{n:05d}"
 
+    for n in ns:  # an unwritable checkpoint folder is refused before any first sweep runs
+        root = folder(n)
+        if root is not None:
+            check_output_dir(root, "checkpoint directory")
+
     bar = None
     if progress:
         from tqdm import tqdm
@@ -203,6 +213,9 @@ def shards_on_pool(
                             job.n, exc)
 
     def adopt(job: _Job, facts: Any) -> None:
+        if job.stored is not None:  # resume: the manifest is checked against these facts
+            resume(job, job.stored, facts)
+            return
         job.facts = facts
         job.plan = plan_for(facts)
         if limit is not None:
@@ -214,22 +227,26 @@ def shards_on_pool(
         root = folder(job.n)
         if root is not None:
             job.cp = ckpt.create(root, job.plan, facts.to_dict(), kind.parameters,
-                                 kind.columns(facts))
+                                 kind.columns(facts), ruleset)
         start_shards(job)
 
-    def resume(job: _Job, root: Path, cp: ckpt.Checkpoint) -> None:
-        try:
-            facts = kind.facts_from_dict(cp.facts)
-        except (TypeError, ValueError, KeyError):
+    def resume(job: _Job, stored: ckpt.Stored, facts: Any) -> None:
+        """Resume from a manifest: its facts, primes, blocks and columns must equal the
+        ones recomputed from this run's own first sweep (`facts`, on a worker on a
+        cluster), before any shard is reused; only the recomputed values are used."""
+        fresh = plan_for(facts)
+        cp = stored.verify(kind.parameters, facts.to_dict(), kind.fact_keys, fresh,
+                           kind.columns(facts), ruleset)
+        if explicit and fresh != cp.plan:
             raise ckpt.CheckpointRefused(
-                f"checkpoint {root / ckpt.MANIFEST} is damaged; remove it"
-            ) from None
-        if explicit and plan_for(facts) != cp.plan:
-            raise ckpt.CheckpointRefused(
-                f"checkpoint {root} was written for another shard plan "
-                f"({len(cp.plan.blocks)} blocks of primes); use another directory"
+                f"checkpoint {stored.root} was written for another shard plan "
+                f"({len(cp.plan.blocks)} blocks of primes, not {len(fresh.blocks)}); "
+                "use another directory"
             )
-        cp.columns = kind.columns(facts)
+        if limit is not None:
+            threads = nworkers if isinstance(pool, ThreadPool) else 1
+            refuse_if_over(worker_bytes(facts, cp.plan, threads), limit,
+                           f"the shards of n={job.n} in flight on one worker")
         job.facts, job.plan, job.cp = facts, cp.plan, cp
         nb = len(cp.plan.blocks)
         job.residues, job.updates = [None] * nb, [0] * nb
@@ -249,10 +266,8 @@ def shards_on_pool(
         for n in ns:
             job = jobs[n]
             root = folder(n)
-            cp = ckpt.open_existing(root, _wanted(kind, n, prime_offset)) if root else None
-            if cp is not None:
-                resume(job, root, cp)
-                continue
+            if root is not None:  # checked now; verified when the first sweep answers
+                job.stored = ckpt.open_existing(root, _wanted(kind, n, prime_offset), ruleset)
             targets = workers if (single and isinstance(pool, DaskPool)) else [None]
             for w in targets:
                 fut = pool.submit(kind.prepare_task, ruleset, n, *kind.prepare_args,
@@ -366,6 +381,8 @@ def run_counts(
     (its blocks in threads); on a cluster, all (n, block) tasks are in flight at once.
     """
     ns = list(ns)
+    if checkpoint_dir is not None:  # refused before a cluster starts
+        check_output_dir(checkpoint_dir, "checkpoint directory")
     opts = dict(prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
                 max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard)
     with open_pool(workers, scheduler, threads, warm=("count",)) as pool:
@@ -439,6 +456,8 @@ def run_random(
     validate(n, players, model)
     if prime_offset < 0:  # refused before a cluster starts
         raise InputError(f"prime offset must be >= 0, got {prime_offset}")
+    if checkpoint_dir is not None:
+        check_output_dir(checkpoint_dir, "checkpoint directory")
     with open_pool(workers, scheduler, threads, warm=("random",)) as pool:
         return random_on_pool(
             n, rules, pool, players, model, winners_only=winners_only,

@@ -20,6 +20,16 @@ computed from the boundary before it was damaged on disk).
 
 The result is `solve.solve_result` of the last boundary and the summed statistics: equal to
 `solve.solve(n, rules, players)` field by field (seconds and the peak bit memory aside).
+
+Trust rules of a chain checkpoint (as for shard checkpoints, `checkpoint`): the manifest is
+read with a size cap as a regular file; its parameters and its rule-file text must match
+the requested ones; its level ranges must equal `plan_ranges` recomputed from (rules, n)
+and the recorded number of shards asked for (`shards_requested`), so they tile the levels
+exactly -- a gap, an overlap or any edit refuses the directory (`CheckpointRefused`); a
+shard names its canonical file (`levels-<i>.npz`).  A stored boundary is read capped at its
+expected size and checked before use: exactly the non-empty levels of [hi - max_drop, hi],
+each a uint8 array of the layer's packed size (and players planes), statistics in range;
+anything else is reported with one warning line and recomputed.
 """
 
 from __future__ import annotations
@@ -29,6 +39,7 @@ import io
 import json
 import threading
 import time
+import zipfile
 from collections import OrderedDict
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -39,6 +50,7 @@ from .. import __version__
 from ..count import check_n
 from ..errors import InputError
 from ..rules import RuleSet, get_rules
+from ..safeio import check_output_dir
 from ..solve import (
     SolveResult,
     check_players,
@@ -50,12 +62,19 @@ from ..solve import (
 from ..statespace import StateSpace, build_space
 from .backend import open_pool
 from .checkpoint import (
+    check_entries,
     check_parameters,
+    check_rules_text,
+    is_int,
     read_manifest,
     read_verified,
+    refuse_folders_in_the_way,
+    remove_stale,
+    rules_text,
     sha256_bytes,
+    short,
     warn,
-    write_atomic,
+    write_or_stop,
 )
 from .errors import CheckpointRefused
 
@@ -141,83 +160,168 @@ def boundary_bytes(boundary: dict[int, np.ndarray], stats: dict) -> bytes:
     return buf.getvalue()
 
 
-def read_boundary(data: bytes) -> tuple[dict[int, np.ndarray], dict]:
-    """Inverse of `boundary_bytes` (ValueError / OSError / KeyError when unreadable)."""
+def read_boundary(data: bytes, max_bytes: int | None = None,
+                  ) -> tuple[dict[int, np.ndarray], dict]:
+    """Inverse of `boundary_bytes` (ValueError / OSError / KeyError when unreadable, or when
+    its members would expand beyond `max_bytes`)."""
+    if max_bytes is not None:
+        with zipfile.ZipFile(io.BytesIO(data)) as zf:
+            if sum(info.file_size for info in zf.infolist()) > max_bytes:
+                raise ValueError("members larger than a boundary")
     with np.load(io.BytesIO(data), allow_pickle=False) as z:
         stats = dict(zip(STAT_KEYS, (int(x) for x in z["stats"]), strict=True))
         boundary = {int(k[1:]): z[k] for k in z.files if k.startswith("L")}
     return boundary, stats
 
 
+def boundary_shapes(space: StateSpace, players: int, hi: int) -> dict[int, tuple[int, ...]]:
+    """{level: shape} of the boundary after level hi: the non-empty levels of
+    [hi - max_drop, hi], each ceil(size / 8) bytes (times `players` planes for P > 2)."""
+    out = {}
+    for lv in range(max(0, hi - space.max_drop), hi + 1):
+        size = space.layer_size(lv)
+        if size:
+            nbytes = (size + 7) // 8
+            out[lv] = (nbytes,) if players == 2 else (players, nbytes)
+    return out
+
+
+def boundary_problem(space: StateSpace, players: int, lo: int, hi: int,
+                     boundary: dict[int, np.ndarray], stats: dict) -> str | None:
+    """What is wrong with a stored boundary of levels lo .. hi (end of a sentence), or None
+    when its levels, dtypes and shapes are exactly the expected ones and its statistics
+    lie in range (layers exact, states at most the range's states)."""
+    shapes = boundary_shapes(space, players, hi)
+    if sorted(boundary) != sorted(shapes):
+        return f"holds levels {short(sorted(boundary))}, expected {sorted(shapes)}"
+    for lv, shape in shapes.items():
+        a = boundary[lv]
+        if a.dtype != np.uint8 or a.shape != shape:
+            return f"holds level {lv} as {a.dtype} {a.shape}, expected uint8 {shape}"
+    sizes = [space.layer_size(lv) for lv in range(lo, hi + 1)]
+    states = sum(sizes)
+    if any(not is_int(v) or v < 0 for v in stats.values()):
+        return "holds negative statistics"
+    if stats["layers"] != sum(1 for x in sizes if x) or stats["states"] > states or \
+            stats["p_positions"] > stats["states"] or stats["peak_bits_bytes"] >= 2**62:
+        return "holds statistics outside their range"
+    return None
+
+
+def chain_file(i: int) -> str:
+    """The only file name range i may have."""
+    return f"levels-{i:04d}.npz"
+
+
 @dataclass
 class ChainCheckpoint:
-    """A checkpoint directory of one chained solve: parameters, level ranges, shards."""
+    """A checkpoint directory of one chained solve: parameters, level ranges, shards.
+
+    Invariant: `ranges` equal `plan_ranges(space, requested)` of the run's own state
+    space (checked by `open_chain`); `rules_text` is the canonical rule-file text.
+    """
 
     root: Path
     parameters: dict
     ranges: list[tuple[int, int]]
     shards: list[dict] = field(default_factory=list)
+    rules_text: str = ""
+    requested: int | None = None
+
+    def finished(self) -> int:
+        return sum(1 for e in self.shards if e.get("sha256"))
 
     def save_manifest(self) -> None:
         data = {"format": FORMAT, "parameters": self.parameters,
+                "rules_text": self.rules_text, "shards_requested": self.requested,
                 "ranges": [list(r) for r in self.ranges], "shards": self.shards}
-        write_atomic(self.root / MANIFEST, (json.dumps(data, indent=1) + "\n").encode())
+        write_or_stop(self.root, self.root / MANIFEST,
+                      (json.dumps(data, indent=1) + "\n").encode(), self.finished())
 
     def save_shard(self, i: int, boundary: dict[int, np.ndarray], stats: dict) -> None:
         data = boundary_bytes(boundary, stats)
-        name = f"levels-{i:04d}.npz"
-        write_atomic(self.root / name, data)
+        name = chain_file(i)
+        write_or_stop(self.root, self.root / name, data, self.finished())
         self.shards[i] = {"index": i, "file": name, "sha256": sha256_bytes(data)}
         self.save_manifest()
 
-    def load_shard(self, i: int) -> tuple[dict[int, np.ndarray], dict] | None:
-        """Shard i's (boundary, stats) if its file passes every check, else None (a damaged
-        shard is reported with one warning line and forgotten)."""
+    def load_shard(self, i: int, space: StateSpace,
+                   players: int) -> tuple[dict[int, np.ndarray], dict] | None:
+        """Shard i's (boundary, stats) if its file passes every check (SHA-256, levels,
+        dtypes, shapes, statistics), else None (a damaged shard is reported with one
+        warning line and forgotten)."""
         entry = self.shards[i]
         if not entry.get("sha256"):
             return None
-        path = self.root / entry["file"]
-        data, problem = read_verified(path, entry["sha256"])
+        lo, hi = self.ranges[i]
+        name = chain_file(i)
+        shapes = boundary_shapes(space, players, hi)
+        payload = sum(int(np.prod(sh)) for sh in shapes.values()) + 8 * len(STAT_KEYS)
+        cap = payload + 1024 * (len(shapes) + 2)  # .npy headers and zip records
+        data, problem = read_verified(self.root, name, entry["sha256"], cap,
+                                      f"a boundary of levels {lo}..{hi}")
         if data is not None:
             try:
-                return read_boundary(data)
-            except (ValueError, OSError, KeyError, EOFError):
+                boundary, stats = read_boundary(data, cap)
+                problem = boundary_problem(space, players, lo, hi, boundary, stats)
+                if problem is None:
+                    return boundary, stats
+            except (ValueError, OSError, KeyError, EOFError, zipfile.BadZipFile):
                 problem = "cannot be read"
-        warn(f"checkpoint shard {path} {problem}; recomputing it")
-        self.shards[i] = {"index": i, "file": entry.get("file"), "sha256": None}
+        warn(f"checkpoint shard {self.root / name} {problem}; recomputing it")
+        self.shards[i] = {"index": i, "file": None, "sha256": None}
         return None
 
 
-def open_chain(root: Path, parameters: dict, ranges: list[tuple[int, int]] | None,
-               ) -> ChainCheckpoint:
-    """The chained-solve checkpoint in `root`: the existing one if its parameters match
-    (CheckpointRefused otherwise), else a new one for `ranges`."""
+def _ranges(root: Path, raw: object) -> list[tuple[int, int]]:
+    if not isinstance(raw, list) or not all(
+            isinstance(r, list) and len(r) == 2 and all(is_int(x) for x in r) for r in raw):
+        raise CheckpointRefused(f"checkpoint {root / MANIFEST} is damaged (ranges); remove it")
+    return [(r[0], r[1]) for r in raw]
+
+
+def open_chain(root: Path, parameters: dict, space: StateSpace, shards: int | None,
+               ruleset: RuleSet) -> ChainCheckpoint:
+    """The chained-solve checkpoint in `root`: the existing one if its parameters, rule
+    text and ranges match (CheckpointRefused otherwise), else a new one.
+
+    `shards` is the number of shards asked for now (None: the stored request, or the
+    default for a new checkpoint); the stored ranges must equal `plan_ranges(space,
+    shards or the recorded request)` exactly.
+    """
     root = Path(root)
-    path = root / MANIFEST
     data = read_manifest(root, FORMAT, "a checkpoint of a chained solve")
     if data is not None:
-        check_parameters(root, data.get("parameters", {}), parameters)
-        try:
-            stored = [(int(a), int(b)) for a, b in data["ranges"]]
-            shards = [dict(s) for s in data["shards"]]
-        except (KeyError, TypeError, ValueError):
-            raise CheckpointRefused(f"checkpoint {path} is damaged; remove it") from None
-        if ranges is not None and stored != ranges:
+        check_parameters(root, data.get("parameters"), parameters)
+        text = check_rules_text(root, data, ruleset)
+        requested = data.get("shards_requested")
+        if requested is not None and not (is_int(requested) and 1 <= requested <= 2**31):
+            raise CheckpointRefused(f"checkpoint {root} records shards_requested="
+                                    f"{short(requested)}; use another directory")
+        stored = _ranges(root, data.get("ranges"))
+        want = plan_ranges(space, shards if shards is not None else requested)
+        if stored != want:
+            if shards is not None:
+                raise CheckpointRefused(
+                    f"checkpoint {root} was written for {len(stored)} level ranges, not "
+                    f"{len(want)}; use another directory"
+                )
             raise CheckpointRefused(
-                f"checkpoint {root} was written for {len(stored)} level ranges, not "
-                f"{len(ranges)}; use another directory"
+                f"checkpoint {root} records ranges={short(stored)}, but the levels "
+                f"0..{space.spec.start_level} split as {short(want)}; use another directory"
             )
-        if len(shards) != len(stored):
-            raise CheckpointRefused(f"checkpoint {path} is damaged; remove it")
-        for stale in root.glob(".*.tmp"):
-            stale.unlink(missing_ok=True)
-        return ChainCheckpoint(root, dict(parameters), stored, shards)
-    if ranges is None:
-        raise InputError("internal: a new chained-solve checkpoint needs its ranges")
+        entries = [e if e["sha256"] else {"index": i, "file": None, "sha256": None}
+                   for i, e in enumerate(check_entries(root, data.get("shards"),
+                                                       len(stored), chain_file))]
+        refuse_folders_in_the_way(root, [chain_file(i) for i in range(len(stored))])
+        remove_stale(root)
+        return ChainCheckpoint(root, dict(parameters), stored, entries, text,
+                               requested if shards is None else shards)
     root.mkdir(parents=True, exist_ok=True)
-    cp = ChainCheckpoint(root, dict(parameters), list(ranges),
+    ranges = plan_ranges(space, shards)
+    cp = ChainCheckpoint(root, dict(parameters), ranges,
                          [{"index": i, "file": None, "sha256": None}
-                          for i in range(len(ranges))])
+                          for i in range(len(ranges))], rules_text(ruleset), shards)
     cp.save_manifest()
     return cp
 
@@ -254,24 +358,23 @@ def run_solve(
     n = check_n(n)
     check_players(players)
     ruleset = get_rules(rules)
+    if checkpoint_dir is not None:  # refused before any sweep when it cannot be written
+        check_output_dir(checkpoint_dir, "checkpoint directory")
     t0 = time.perf_counter()
     space = build_space(ruleset.instantiate(n))
     wanted = {"kind": "solve", "rules": ruleset.name, "rules_hash": ruleset.content_hash(),
               "n": n, "players": players, "version": __version__}
-    explicit = shards is not None
     ranges = plan_ranges(space, shards)
     cp = None
     if checkpoint_dir is not None:
-        root = Path(checkpoint_dir)
-        fresh = not (root / MANIFEST).exists()
-        cp = open_chain(root, wanted, ranges if (explicit or fresh) else None)
+        cp = open_chain(Path(checkpoint_dir), wanted, space, shards, ruleset)
         ranges = cp.ranges
     outputs: list[tuple[dict, dict] | None] = [None] * len(ranges)
     reused = rejected = computed = 0
     if cp is not None:
         for i in range(len(ranges)):
             had = bool(cp.shards[i].get("sha256"))
-            outputs[i] = cp.load_shard(i)
+            outputs[i] = cp.load_shard(i, space, players)
             reused += outputs[i] is not None
             rejected += had and outputs[i] is None
         cp.save_manifest()

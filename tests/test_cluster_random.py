@@ -264,3 +264,45 @@ def test_cli_refuses_sharding_outside_the_exact_mode(tmp_path: Path) -> None:
         assert len(lines) == 1 and "exact mode only" in lines[0], args
         assert "Traceback" not in out.output
     assert not (tmp_path / "x").exists()
+
+
+# Untrusted manifests of random play: the kind parameters and the first sweep's facts are
+# recomputed and compared, so an edit ends in one line, never a wrong probability.
+# Source: fractions.Fraction brute force (tests/fraction_bruteforce.py).
+@pytest.mark.parametrize(("where", "key", "value"), [
+    ("facts", "players", 2),
+    ("facts", "players", 4),
+    ("facts", "winners_only", False),
+    ("facts", "model", "pairs"),
+    ("facts", "denominator", None),
+    ("facts", "columns", 2),
+    ("facts", "longest", None),
+    ("parameters", "players", 2),
+    ("parameters", "players", 3.0),
+    ("parameters", "winners_only", 1),
+])
+def test_edited_random_manifest_is_refused(tmp_path: Path, where: str, key: str,
+                                           value: object) -> None:
+    n, players = 14, 3
+    run_random(n, "standard", players, winners_only=True, checkpoint_dir=tmp_path, blocks=2)
+    m = _manifest(tmp_path)
+    if value is None:  # a plausible neighbour of the true value
+        old = m[where][key]
+        value = str(int(old) * 3) if isinstance(old, str) else old + 1
+    m[where][key] = value
+    (tmp_path / "manifest.json").write_text(json.dumps(m))
+    try:
+        res = run_random(n, "standard", players, winners_only=True, checkpoint_dir=tmp_path)
+    except InputError as exc:
+        assert isinstance(exc, CheckpointRefused) and "\n" not in str(exc)
+        assert key in str(exc)
+        return
+    pytest.fail(f"an edited {where}.{key} was accepted: {res.win_probability}")
+
+
+def test_random_resume_with_true_manifest_is_exact(tmp_path: Path) -> None:
+    n, players = 14, 3
+    run_random(n, "standard", players, winners_only=True, checkpoint_dir=tmp_path, blocks=2)
+    res = run_random(n, "standard", players, winners_only=True, checkpoint_dir=tmp_path)
+    assert res.stats["shards_reused"] == 2
+    assert res.win_probability == win_law(length_law(n, "moves"), players)

@@ -19,6 +19,8 @@ import minimax
 import pytest
 import rules_bruteforce as bf
 from click.testing import CliRunner
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from killed_client import kill_after_marker
 from zeckenum.cli import main
 from zeckenum.cluster.errors import CheckpointRefused
@@ -202,3 +204,226 @@ def test_cli_solve_chain_equals_in_process(tmp_path) -> None:  # noqa: ANN001
         assert a[key] == b[key], key
     bad = runner.invoke(main, ["solve", "20", "--strategy", str(tmp_path / "s"), "--shards", "2"])
     assert bad.exit_code == 2 and "does not take" in bad.output
+
+
+# Untrusted chain manifests: the ranges must be exactly the ones `plan_ranges` recomputes,
+# and every stored boundary is checked before use.  An edit ends in the exact result or
+# one line (reference: tests/minimax.py and the one-piece solve).
+def _blank_all(m: dict) -> None:
+    for s in m["shards"]:
+        s["sha256"] = None
+
+
+def _gap(m: dict) -> None:
+    a, b = m["ranges"][1]
+    m["ranges"][1] = [a, b - 1]  # level b is in no range
+
+
+def _overlap(m: dict) -> None:
+    c, d = m["ranges"][2]
+    m["ranges"][2] = [c - 1, d]  # level c - 1 is in two ranges
+
+
+def _merged(m: dict) -> None:
+    (a, _), (_, d) = m["ranges"][1], m["ranges"][2]
+    m["ranges"][1:3] = [[a, d]]
+    m["shards"] = m["shards"][:-1]
+
+
+def _short_top(m: dict) -> None:
+    m["ranges"][-1][1] -= 1  # the start's level is never swept
+
+
+def _wrong_shards(m: dict) -> None:
+    m["shards_requested"] = 2
+
+
+@pytest.mark.parametrize("edit", [_gap, _overlap, _merged, _short_top, _wrong_shards])
+@pytest.mark.parametrize("blank", [False, True])
+def test_edited_ranges_are_refused(tmp_path, edit, blank: bool) -> None:  # noqa: ANN001
+    n = 14
+    run_solve(n, checkpoint_dir=tmp_path, shards=4)
+    m = json.loads((tmp_path / "manifest.json").read_text())
+    assert len(m["ranges"]) == 4
+    edit(m)
+    if blank:
+        _blank_all(m)  # every range recomputed from the (edited) ranges
+    (tmp_path / "manifest.json").write_text(json.dumps(m))
+    try:
+        res = run_solve(n, checkpoint_dir=tmp_path)
+    except CheckpointRefused as exc:
+        assert "\n" not in str(exc)
+        return
+    # accepted only when it still gives the exact answer
+    assert (res.winner == 1) == minimax.mover_wins(minimax.start_state(n))
+    assert res.states == len(minimax.reachable(n))
+    assert same(res, solve(n))
+    pytest.fail("an edited range list was accepted")
+
+
+@pytest.mark.parametrize("damage", ["dtype", "shape", "levels", "stats"])
+def test_boundary_of_the_wrong_shape_is_recomputed(tmp_path, capsys, damage: str) -> None:  # noqa: ANN001
+    # a boundary file with a valid checksum but the wrong contents is never used
+    import hashlib
+
+    import numpy as np
+    from zeckenum.cluster.solve_chain import boundary_bytes, read_boundary
+
+    n = 40
+    run_solve(n, checkpoint_dir=tmp_path, shards=4)
+    m = json.loads((tmp_path / "manifest.json").read_text())
+    path = tmp_path / m["shards"][1]["file"]
+    boundary, stats = read_boundary(path.read_bytes())
+    top = max(boundary)
+    if damage == "dtype":
+        boundary[top] = boundary[top].astype(np.uint16)
+    elif damage == "shape":
+        boundary[top] = boundary[top][:-1]
+    elif damage == "levels":
+        boundary[top + 1] = boundary[top]
+    else:
+        stats["layers"] += 1
+    data = boundary_bytes(boundary, stats)
+    path.write_bytes(data)
+    m["shards"][1]["sha256"] = hashlib.sha256(data).hexdigest()
+    (tmp_path / "manifest.json").write_text(json.dumps(m))
+    capsys.readouterr()
+    res = run_solve(n, checkpoint_dir=tmp_path)
+    assert "recomputing it" in capsys.readouterr().err
+    assert res.stats["shards_rejected"] == 1
+    assert same(res, solve(n))
+
+
+@pytest.mark.parametrize("name", ["../x.npz", "/dev/zero", "ABSOLUTE", "levels-0002.npz"])
+def test_chain_shard_names_outside_the_directory_are_refused(tmp_path, name: str) -> None:  # noqa: ANN001
+    folder = tmp_path / "ck"
+    run_solve(30, checkpoint_dir=folder, shards=3)
+    m = json.loads((folder / "manifest.json").read_text())
+    outside = tmp_path / "x.npz"
+    outside.write_bytes((folder / m["shards"][1]["file"]).read_bytes())
+    m["shards"][1]["file"] = str(outside) if name == "ABSOLUTE" else name
+    (folder / "manifest.json").write_text(json.dumps(m))
+    with pytest.raises(CheckpointRefused) as info:
+        run_solve(30, checkpoint_dir=folder)
+    assert "\n" not in str(info.value)
+
+
+def test_chain_rule_text_is_checked(tmp_path) -> None:  # noqa: ANN001
+    run_solve(20, "reversed", checkpoint_dir=tmp_path, shards=2)
+    m = json.loads((tmp_path / "manifest.json").read_text())
+    from zeckenum.rulefile import rules_from_text
+
+    assert rules_from_text(m["rules_text"]).content_hash() == get_rules("reversed").content_hash()
+    m["rules_text"] = m["rules_text"].replace("[[move]]", "[[move]]\n", 1) + "#"
+    (tmp_path / "manifest.json").write_text(json.dumps(m))
+    assert same(run_solve(20, "reversed", checkpoint_dir=tmp_path), solve(20, "reversed"))
+    m["rules_text"] = get_rules_text("standard")
+    (tmp_path / "manifest.json").write_text(json.dumps(m))
+    with pytest.raises(CheckpointRefused, match="rule"):
+        run_solve(20, "reversed", checkpoint_dir=tmp_path)
+
+
+def get_rules_text(name: str) -> str:
+    from zeckenum.rulefile import format_rules
+
+    return format_rules(get_rules(name))
+
+
+def test_unwritable_chain_checkpoint_is_refused(tmp_path) -> None:  # noqa: ANN001
+    from zeckenum.errors import OutputError
+
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    for folder in (blocker, blocker / "sub"):
+        with pytest.raises(OutputError) as info:
+            run_solve(20, checkpoint_dir=folder, shards=2)
+        assert info.value.exit_code == 6
+
+
+_PRISTINE: dict = {}
+
+
+# A battery of generated chain-manifest mutations (hypothesis, tests/manifest_mutations.py):
+# each ends in the exact result (the memoised minimax of tests/minimax.py and the one-piece
+# solve) or a ZeckenumError of one line -- never another exception, never a wrong answer.
+@settings(max_examples=50, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+@given(data=st.data())
+def test_mutated_chain_manifests_give_the_exact_result_or_one_line(data) -> None:  # noqa: ANN001
+    import shutil
+    import tempfile
+    from pathlib import Path
+
+    from manifest_mutations import draw_mutation
+    from zeckenum.errors import ZeckenumError
+
+    n = 16
+    if not _PRISTINE:
+        folder = Path(tempfile.mkdtemp(prefix="zeckenum-pristine-chain-"))
+        run_solve(n, checkpoint_dir=folder, shards=4)
+        _PRISTINE["folder"] = folder
+        _PRISTINE["manifest"] = json.loads((folder / "manifest.json").read_text())
+        _PRISTINE["ref"] = solve(n)
+    mutated = draw_mutation(data, _PRISTINE["manifest"])
+    work = Path(tempfile.mkdtemp(prefix="zeckenum-mutated-chain-"))
+    try:
+        target = work / "ck"
+        shutil.copytree(_PRISTINE["folder"], target)
+        (target / "manifest.json").write_text(json.dumps(mutated))
+        try:
+            res = run_solve(n, checkpoint_dir=target)
+        except ZeckenumError as exc:
+            assert "\n" not in str(exc)
+            return
+    finally:
+        shutil.rmtree(work, ignore_errors=True)
+    assert (res.winner == 1) == minimax.mover_wins(minimax.start_state(n))
+    assert res.states == len(minimax.reachable(n))
+    assert same(res, _PRISTINE["ref"])
+
+
+@pytest.mark.parametrize("kind", ["fifo", "symlink-out", "symlink-dev-zero", "directory"])
+def test_non_regular_chain_files_are_never_read(tmp_path, capsys, kind: str) -> None:  # noqa: ANN001
+    # a FIFO or symlink under a range's own name: one warning line, the range recomputed
+    # (never opened blocking, never followed); a directory there: refused up front
+    import threading
+
+    folder = tmp_path / "ck"
+    run_solve(30, checkpoint_dir=folder, shards=3)
+    victim = folder / "levels-0001.npz"
+    outside = tmp_path / "outside.npz"
+    outside.write_bytes(victim.read_bytes())
+    victim.unlink()
+    if kind == "fifo":
+        os.mkfifo(victim)
+    elif kind == "symlink-out":
+        victim.symlink_to(outside)
+    elif kind == "symlink-dev-zero":
+        victim.symlink_to("/dev/zero")
+    else:
+        victim.mkdir()
+    capsys.readouterr()
+    box: dict = {}
+
+    def call() -> None:
+        try:
+            box["res"] = run_solve(30, checkpoint_dir=folder)
+        except Exception as exc:  # noqa: BLE001
+            box["err"] = exc
+
+    t = threading.Thread(target=call, daemon=True)
+    t.start()
+    t.join(120)
+    if t.is_alive():
+        os.close(os.open(victim, os.O_WRONLY | os.O_NONBLOCK))
+        t.join(30)
+        pytest.fail("the chain hung on a FIFO")
+    if kind == "directory":
+        assert isinstance(box.get("err"), CheckpointRefused) and "\n" not in str(box["err"])
+        return
+    assert "err" not in box, box.get("err")
+    res = box["res"]
+    assert res.stats["shards_rejected"] == 1 and res.stats["shards_reused"] == 2
+    assert "levels-0001.npz" in capsys.readouterr().err
+    assert same(res, solve(30))
+    assert res.states == len(minimax.reachable(30))
