@@ -76,7 +76,8 @@ def report(tmp_path_factory: pytest.TempPathFactory) -> Path:
     table = write_fixed_table(tmp_path_factory.mktemp("rep") / "table")
     d = read_table(table)
     data = RunData(rules=d.rules, spectra=d.spectra, random=random_laws(), wins=d.wins,
-                   summary=d.summary, provenance=d.provenance)
+                   summary=d.summary, provenance=d.provenance, ruleset=d.ruleset,
+                   rules_text=d.rules_text)
     return write_report(data, table, detail_n=12)
 
 
