@@ -217,9 +217,10 @@ def plot_command(kind: str, table: str | None, lo_hi: tuple[int, int] | None, n:
       zeckenum plot moments --table tables/std --out figs/moments
     """
     from .plots import figure_paths, make_figure, save_figure
-    from .safeio import check_output_file
+    from .safeio import check_output_dir, check_output_file
 
     for path in figure_paths(out or kind):  # before computing: a typo costs nothing
+        check_output_dir(path.parent, "figure folder")
         check_output_file(path, "figure")
     data = _load_data(table, lo_hi, rules, random_upto)
     fig = make_figure(kind, data, n=n, source=source)

@@ -238,3 +238,36 @@ def test_plot_cli_from_table_and_fresh(table: Path, tmp_path: Path) -> None:
     assert (tmp_path / "d.svg").is_file()
     res = runner.invoke(plot_command, ["shape"])
     assert res.exit_code == 2 and res.output.startswith("zeckenum: error:")
+
+
+def test_plot_unwritable_output_exit_6(table: Path, tmp_path: Path, monkeypatch) -> None:  # noqa: ANN001
+    import errno
+    import os
+    import stat
+
+    import zeckenum.safeio as safeio
+
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    res = CliRunner().invoke(plot_command, ["wins", "--table", str(table), "--out",
+                                            str(blocker / "wins")])
+    assert res.exit_code == 6 and res.output.startswith("zeckenum: error:"), res.output
+    (tmp_path / "taken.png").mkdir()       # the output path is a folder
+    res = CliRunner().invoke(plot_command, ["wins", "--table", str(table), "--out",
+                                            str(tmp_path / "taken")])
+    assert res.exit_code == 6 and "not a regular file" in res.output, res.output
+    real = safeio.os.fsync
+
+    def full(fd: int) -> None:   # the disk fills up while the figure is written
+        if stat.S_ISREG(os.fstat(fd).st_mode):
+            raise OSError(errno.ENOSPC, "No space left on device")
+        real(fd)
+
+    out = tmp_path / "figs"
+    out.mkdir()
+    monkeypatch.setattr(safeio.os, "fsync", full)
+    res = CliRunner().invoke(plot_command, ["wins", "--table", str(table), "--out",
+                                            str(out / "wins")])
+    monkeypatch.setattr(safeio.os, "fsync", real)
+    assert res.exit_code == 6 and "could not write figure wins.png" in res.output
+    assert list(out.iterdir()) == []            # nothing torn, no .tmp left
