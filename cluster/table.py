@@ -115,6 +115,9 @@ MAX_ROW_BYTES = 64 << 20
 MAX_RANGE = 100_000
 """Most n one table may hold (a guard against a manifest declaring a huge range)."""
 MAX_PRIMES = 1 << 20
+MAX_N = 100_000
+"""Largest n a table row may hold (far beyond what any count, solve or random play
+reaches; a guard for the checks that cost O(n), such as the partitions of n)."""
 
 INT_RE = re.compile(r"-?(?:0|[1-9][0-9]{0,9999})")
 FRAC_RE = re.compile(r"-?(?:0|[1-9][0-9]{0,9999})/[1-9][0-9]{0,9999}")
@@ -245,17 +248,18 @@ def zeckendorf_terms(n: int) -> int:
     return terms
 
 
-def fibonacci_partitions(n: int) -> int:
-    """The number of ways to write n as a sum of the values 1, 2, 3, 5, 8, ... (order
-    ignored, repeats allowed): the states of the standard game (OEIS A003107).
-    A plain coin-change recursion, independent of the engine's ranking."""
-    ways = [1] + [0] * n
+def fibonacci_partitions(top: int) -> list[int]:
+    """ways[m] for 0 <= m <= top: the number of ways to write m as a sum of the values
+    1, 2, 3, 5, 8, ... (order ignored, repeats allowed), i.e. the states of the standard
+    game at m (OEIS A003107).  A plain coin-change recursion, independent of the engine's
+    ranking."""
+    ways = [1] + [0] * top
     a, b = 1, 2
-    while a <= n:
-        for v in range(a, n + 1):
+    while a <= top:
+        for v in range(a, top + 1):
             ways[v] += ways[v - a]
         a, b = b, a + b
-    return ways[n]
+    return ways
 
 
 # ------------------------------------------------------------------------------ reading
@@ -401,6 +405,8 @@ def _by_n(name: str, rows: list[list[str]]) -> dict[int, list[str]]:
     last = None
     for i, row in enumerate(rows, 2):
         n = _int(row[0], f"{name}:{i} n")
+        if not 1 <= n <= MAX_N:
+            raise _fail(f"{name}:{i}: n={n} is outside 1..{MAX_N}")
         if last is not None and n <= last:
             raise _fail(f"{name}:{i}: n={n} repeats or is out of order (one row per n, "
                         "ascending)")
@@ -416,6 +422,8 @@ def _long(name: str, rows: list[list[str]], value: Callable[[str, str], object],
     last = None
     for i, row in enumerate(rows, 2):
         n, L = _int(row[0], f"{name}:{i} n"), _int(row[1], f"{name}:{i} length")
+        if not 1 <= n <= MAX_N:
+            raise _fail(f"{name}:{i}: n={n} is outside 1..{MAX_N}")
         if last is not None and (n, L) <= last:
             raise _fail(f"{name}:{i}: (n={n}, length={L}) repeats or is out of order (one "
                         "row per (n, length), ascending)")
@@ -452,6 +460,7 @@ def _check_count(t: Table, texts: dict[str, str]) -> list[int]:
                                             SPECTRA_FIELDS), _int)  # type: ignore[assignment]
     if set(t.spectra) != set(t.summary):
         raise _fail("spectra.csv and summary.csv cover different n")
+    states = fibonacci_partitions(max(t.summary, default=0)) if t.is_standard else []
     for n, row in t.summary.items():
         where = f"summary.csv n={n}"
         spec = t.spectra[n]
@@ -474,9 +483,9 @@ def _check_count(t: Table, texts: dict[str, str]) -> list[int]:
                 raise _fail(f"{where} shortest={row['shortest']} but the shortest game of "
                             f"the standard game has n - Z(n) = {n - zeckendorf_terms(n)} "
                             "moves (arXiv:1809.04881)")
-            if row["states"] != fibonacci_partitions(n):
-                raise _fail(f"{where} states={row['states']} but n has "
-                            f"{fibonacci_partitions(n)} partitions into Fibonacci parts")
+            if row["states"] != states[n]:
+                raise _fail(f"{where} states={row['states']} but n has {states[n]} "
+                            "partitions into Fibonacci parts (OEIS A003107)")
     expect = count_texts(t.summary, t.spectra)
     _same_text("spectra.csv", texts["spectra.csv"], expect.pop("spectra.csv"), "spectra.csv")
     _same_texts(texts, expect, "summary.csv")
@@ -812,13 +821,17 @@ def _existing_table(out: Path, rows: _Rows) -> Table:
 
 def _take_over(t: Table, rows: _Rows) -> None:
     """Seed `rows` from the checked table `t`."""
-    primes = t.manifest.get("primes_per_n") or {}
-    rprimes = t.manifest.get("random_primes_per_n") or {}
+    def recorded(key: str) -> dict[str, int]:
+        got = t.manifest.get(key)
+        return {k: v for k, v in got.items() if type(v) is int and 0 <= v <= MAX_PRIMES} \
+            if isinstance(got, dict) else {}
+
+    primes, rprimes = recorded("primes_per_n"), recorded("random_primes_per_n")
     for n in t.ns:
         if "count" in t.kinds:
             rows.add("count", n, {"summary": t.summary[n],
                                   "spectrum": [[L, c] for L, c in t.spectra[n].items()],
-                                  "primes": int(primes.get(str(n), 0))})
+                                  "primes": primes.get(str(n), 0)})
         if "solve" in t.kinds:
             w = t.solve[n]["winner"]
             rows.add("solve", n, {"row": {"n": n, "winner": int(w) if w else None,
@@ -830,7 +843,7 @@ def _take_over(t: Table, rows: _Rows) -> None:
                 "row": {"n": n, **{k: frac_str(v) for k, v in t.random[n].items()}},
                 "lengths": [{"n": n, "length": L, "probability": frac_str(p)}
                             for L, p in t.laws[n].items()],
-                "primes": int(rprimes.get(str(n), 0))})
+                "primes": rprimes.get(str(n), 0)})
 
 
 def _prepare_out(out: Path, rows: _Rows) -> None:

@@ -80,6 +80,14 @@ def test_manifest_has_provenance_and_checksums(table) -> None:  # noqa: ANN001
     assert set(m["files"]) == names
     for name, entry in m["files"].items():
         assert hashlib.sha256((table / name).read_bytes()).hexdigest() == entry["sha256"]
+    # published files get the usual permissions of a new file (umask), not mkstemp's 0600
+    # (common practice)
+    import os
+
+    mask = os.umask(0o022)
+    os.umask(mask)
+    assert (table / "summary.csv").stat().st_mode & 0o777 == 0o666 & ~mask
+    assert "rules_text" in m     # the rule file itself travels with the table
 
 
 def test_verify_passes_on_a_fresh_table(table) -> None:  # noqa: ANN001
