@@ -344,6 +344,9 @@ def _read_listed(folder: Path, manifest: dict, mpath: Path) -> dict[str, str]:
     except OSError as exc:
         raise InputError(f"cannot list {folder}: {exc.strerror}") from None
     for name in sorted(present - set(files)):
+        if name == ROWS_DIR:
+            raise _fail(f"{folder / name} exists: a `zeckenum table` run into this directory "
+                        "has not finished (rerun it to complete the table)")
         raise _fail(f"{folder / name} is in the table directory but not listed in the manifest")
     texts: dict[str, str] = {}
     for name, entry in sorted(files.items()):
