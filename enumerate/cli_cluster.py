@@ -32,7 +32,8 @@ _backend_help = {
 @click.option("--what", default="count", show_default=True,
               help="Comma-separated: count, solve, random.")
 @click.option("--out", type=click.Path(file_okay=False), required=True,
-              help="Directory to publish (must be new or empty).")
+              help="Directory to publish: new, empty, or a partial/complete table of the "
+                   "same rules and kinds, which is resumed.")
 @click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
 @click.option("--workers", type=click.IntRange(min=1), default=None,
               help=_backend_help["workers"])
@@ -45,7 +46,11 @@ def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, 
 
     \b
     Writes summary.csv, spectra.csv (n,length,count), one "n value" .seq file per column,
-    and manifest.json (rule set, hashes, version, parameters, date, SHA-256 of each file).
+    and manifest.json (the rule file itself and its hash, version, parameters, date,
+    SHA-256 of each file).  --out is checked before anything is computed (exit 6 when it
+    cannot be written); finished rows are kept in DIR/.rows, so a rerun after a crash, or
+    with a larger range, computes only what is missing.  A directory written for other
+    rules or kinds is refused (exit 2).
     Example:
       zeckenum table --from 1 --to 80 --what count --out table80 --workers 2
     """
@@ -65,26 +70,37 @@ def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, 
 @click.command("verify")
 @click.argument("folder", type=click.Path(file_okay=False))
 @click.option("--sample", type=click.IntRange(min=0), default=3, show_default=True,
-              help="How many n to recompute with a disjoint prime set.")
-@click.option("--seed", type=int, default=0, show_default=True, help="Seed of the sample.")
-@click.option("--rules", default=None, help="Rule set (default: the one named in the table).")
+              help="How many n, drawn at random, to recompute (the largest n always is).")
+@click.option("--seed", type=click.IntRange(min=0), default=None,
+              help="Seed of the sample, to repeat a run (default: a fresh one, printed).")
+@click.option("--full", is_flag=True, help="Recompute every n of the table.")
 @click.option("--workers", type=click.IntRange(min=1), default=None,
               help=_backend_help["workers"])
 @click.option("--scheduler", default=None, help=_backend_help["scheduler"])
-def verify_command(folder, sample, seed, rules, workers, scheduler):  # noqa: ANN001
-    """Check a published table: checksums, consistency, and recomputed sample rows.
+def verify_command(folder, sample, seed, full, workers, scheduler):  # noqa: ANN001
+    """Check a published table: checksums, file list, row invariants, and recomputed rows.
 
-    Exits 0 when everything agrees, else prints one line naming the first disagreement.
+    \b
+    The rule set is rebuilt from the rule file embedded in the manifest (checked against
+    its hash); the range and kinds are read from the files and must match the manifest.
+    Recomputation (counts with a disjoint prime set, random play with other primes,
+    optimal play afresh) covers --sample n drawn with a fresh seed, printed so that
+    --seed S repeats the run, plus the largest n; --full covers every n.
+    Exit 0: the table passed; 5: a check failed; 2: not a readable table (one line).
     """
     from .cluster.table import verify_table
 
     try:
-        rep = verify_table(folder, sample, seed, rules, workers=workers, scheduler=scheduler)
+        rep = verify_table(folder, sample, seed, full=full, workers=workers,
+                           scheduler=scheduler)
     except ZeckenumError as exc:
         fail(exc)
     ns = ", ".join(str(n) for n in rep["recomputed"]) or "none"
-    click.echo(f"zeckenum verify: {folder} OK: {rep['files']} checksums, {rep['rows']} rows "
-               f"consistent, recomputed n = {ns} with disjoint primes")
+    lo, hi = rep["n_range"]
+    how = "--full" if rep["full"] else f"--seed {rep['seed']}"
+    click.echo(f"zeckenum verify: {folder} OK: n = {lo}..{hi} ({', '.join(rep['kinds'])}), "
+               f"{rep['files']} checksums, {rep['rows']} rows consistent; recomputed "
+               f"n = {ns} ({how})")
 
 
 @click.group("plan")

@@ -216,8 +216,12 @@ def plot_command(kind: str, table: str | None, lo_hi: tuple[int, int] | None, n:
       zeckenum plot distribution --range 1 40 --n 40
       zeckenum plot moments --table tables/std --out figs/moments
     """
-    from .plots import make_figure, save_figure
+    from .plots import figure_paths, make_figure, save_figure
+    from .safeio import check_output_dir, check_output_file
 
+    for path in figure_paths(out or kind):  # before computing: a typo costs nothing
+        check_output_dir(path.parent, "figure folder")
+        check_output_file(path, "figure")
     data = _load_data(table, lo_hi, rules, random_upto)
     fig = make_figure(kind, data, n=n, source=source)
     for path in save_figure(fig, out or kind):
@@ -229,7 +233,8 @@ def plot_command(kind: str, table: str | None, lo_hi: tuple[int, int] | None, n:
 @click.option("--range", "lo_hi", type=(int, int), default=None,
               help="No table in FOLDER: compute A <= n <= B afresh and write the page there.")
 @click.option("--rules", default="standard", show_default=True,
-              help="Built-in rule set name or a .toml rule file (with --range).")
+              help="Built-in rule set name or a .toml rule file (with --range; a table "
+                   "carries its own rule file).")
 @click.option("--random-upto", type=int, default=80, show_default=True,
               help="Compute random-play laws only for n up to this.")
 @click.option("--detail", "detail_n", type=int, default=None,
@@ -241,16 +246,26 @@ def report_command(folder: str, lo_hi: tuple[int, int] | None, rules: str, rando
     """Write FOLDER/report.html, one self-contained page (figures, tables, provenance, how
     to reproduce), from the table in FOLDER or from a fresh computation; prints its path.
 
+    A table is checked as `verify` does short of recomputing (exit 5 when it fails) and
+    its rule set is rebuilt from the rule file in its manifest.  The output is checked
+    before computing and written atomically; exit 6 when it cannot be written (a page
+    already rendered is printed on standard output instead).
+
     \b
     Examples:
       zeckenum report tables/std
       zeckenum report runs/small --range 1 40
     """
     from .plots import is_table
-    from .report import write_report
+    from .report import REPORT_NAME, write_report
+    from .safeio import check_output_dir, check_output_file
 
     table = folder if is_table(folder) else None
     if table is None and lo_hi is None:
         raise InputError(f"{folder}: not a zeckenum table; give --range A B to compute afresh")
+    # before computing: the page must be writable where it goes
+    if table is None:
+        check_output_dir(folder, "report folder")
+    check_output_file(Path(folder) / REPORT_NAME, "report")
     data = _load_data(table, None if table else lo_hi, rules, random_upto)
     click.echo(str(write_report(data, Path(folder), detail_n)))

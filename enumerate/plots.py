@@ -2,9 +2,14 @@
 
 The data (`RunData`) comes from a fresh computation (`collect`: `count` and `random_play`
 for every n of a range) or from a table directory written by `zeckenum table` (`read_table`:
-summary.csv, spectra.csv, random.csv and manifest.json).  Every figure function returns a
-`matplotlib.figure.Figure` built without pyplot (Agg canvas, no global state), so tests can
-inspect its axes and lines; `save_figure` writes it as PNG and SVG.
+read and checked by `zeckenum.cluster.table.load_table`, checksums and row invariants
+included).  `RunData` carries the rule set itself (`ruleset`, and its canonical rule-file
+text `rules_text`): a table's rule set is rebuilt from the rule file embedded in its
+manifest, checked against its hash, and never looked up by name, so anything computed
+later from the data (random play, extremal games, move statistics) is for the same game.
+Every figure function returns a `matplotlib.figure.Figure` built without pyplot (Agg
+canvas, no global state), so tests can inspect its axes and lines; `save_figure` writes it
+as PNG and SVG.
 
 Kinds (`KINDS`, the names `zeckenum plot KIND` takes):
 
@@ -20,8 +25,6 @@ gaussian      Kolmogorov and total-variation distances to the normal law, skewne
 
 from __future__ import annotations
 
-import csv
-import json
 import math
 from dataclasses import dataclass, field
 from fractions import Fraction
@@ -37,6 +40,7 @@ from matplotlib.figure import Figure  # noqa: E402
 
 from .errors import InputError  # noqa: E402
 from .moments import gaussian_diagnostics  # noqa: E402
+from .rules import RuleSet, get_rules  # noqa: E402
 
 SOURCES = ("games", "random")
 SOURCE_LABEL = {"games": "all games", "random": "random play"}
@@ -52,6 +56,9 @@ class RunData:
     wins[n]     probability that player 1 wins a random game (two players)
     summary[n]  states, transitions, games, shortest, longest, shortest_games, longest_games
     provenance  where the numbers came from (rule set, hash, version, parameters, files)
+    ruleset     the rule set the numbers are for (None only for hand-made data, whose
+                `rules` is then a built-in name or a rule file)
+    rules_text  its canonical rule-file text (`rulefile.format_rules`)
     """
 
     rules: str
@@ -60,10 +67,17 @@ class RunData:
     wins: dict[int, Fraction] = field(default_factory=dict)
     summary: dict[int, dict[str, int]] = field(default_factory=dict)
     provenance: dict = field(default_factory=dict)
+    ruleset: RuleSet | None = None
+    rules_text: str = ""
 
     @property
     def ns(self) -> list[int]:
         return sorted(self.spectra)
+
+    def rule_set(self) -> RuleSet:
+        """The rule set of the data: `ruleset` when known (always for tables and `collect`),
+        else `rules` resolved by `get_rules` (hand-made data only)."""
+        return self.ruleset if self.ruleset is not None else get_rules(self.rules)
 
     def law(self, source: str, n: int) -> dict[int, float]:
         """{length: probability} (floats) of all games or of random play at n."""
@@ -92,7 +106,7 @@ def collect(lo: int, hi: int, rules: str = "standard", random_upto: int | None =
     from . import __version__
     from .count import count
     from .randomplay import random_play
-    from .rules import get_rules
+    from .rulefile import format_rules
 
     if lo < 1 or hi < lo:
         raise InputError(f"need 1 <= A <= B for the range of n, got {lo}..{hi}")
@@ -111,7 +125,7 @@ def collect(lo: int, hi: int, rules: str = "standard", random_upto: int | None =
             "version": __version__, "range": [lo, hi], "random_upto": top,
             "random_model": "moves"}
     return RunData(rules=rs.name, spectra=spectra, random=random, wins=wins, summary=summary,
-                   provenance=prov)
+                   provenance=prov, ruleset=rs, rules_text=format_rules(rs))
 
 
 SUMMARY_KEYS = ("states", "transitions", "games", "shortest", "longest", "shortest_games",
@@ -124,44 +138,29 @@ def is_table(folder: str | Path) -> bool:
     return (folder / "manifest.json").is_file() and (folder / "summary.csv").is_file()
 
 
-def _rows(path: Path) -> list[dict]:
-    with path.open(newline="") as f:
-        return list(csv.DictReader(f))
-
-
 def read_table(folder: str | Path) -> RunData:
-    """A table directory (manifest.json, summary.csv, spectra.csv, and random.csv with
-    random_lengths.csv when the table has random play) as RunData; `add_random` fills in
-    random-play laws a table lacks."""
+    """A table directory as RunData, after every check of `verify` short of recomputing
+    (`zeckenum.cluster.table.load_table`: checksums, file list, canonical rows, row
+    invariants); the rule set is the one embedded in the manifest.  The table must hold
+    counts (summary.csv, spectra.csv); random play comes from random.csv and
+    random_lengths.csv when present, and `add_random` fills in what a table lacks."""
+    from .cluster.table import load_table
+
     folder = Path(folder)
     if not is_table(folder):
         raise InputError(f"{folder}: no manifest.json and summary.csv (not a zeckenum table)")
-    try:
-        manifest = json.loads((folder / "manifest.json").read_text())
-        summary = {int(r["n"]): {k: int(r[k]) for k in SUMMARY_KEYS}
-                   for r in _rows(folder / "summary.csv")}
-        spectra: dict[int, dict[int, int]] = {n: {} for n in summary}
-        if (folder / "spectra.csv").is_file():
-            for r in _rows(folder / "spectra.csv"):
-                spectra.setdefault(int(r["n"]), {})[int(r["length"])] = int(r["count"])
-        wins = {}
-        if (folder / "random.csv").is_file():
-            for r in _rows(folder / "random.csv"):
-                wins[int(r["n"])] = Fraction(r["player1_wins"])
-        random: dict[int, dict[int, Fraction]] = {}
-        if (folder / "random_lengths.csv").is_file():
-            for r in _rows(folder / "random_lengths.csv"):
-                random.setdefault(int(r["n"]), {})[int(r["length"])] = Fraction(r["probability"])
-    except (KeyError, ValueError, json.JSONDecodeError) as exc:
-        raise InputError(f"{folder}: malformed table ({exc})") from None
-    spectra = {n: dict(sorted(sp.items())) for n, sp in spectra.items() if sp}
+    t = load_table(folder)
+    spectra = {n: dict(sorted(t.spectra[n].items())) for n in t.ns if t.spectra.get(n)}
     if not spectra:
         raise InputError(f"{folder}: the table has no spectra")
-    prov = {"source": f"table {folder}", "manifest": manifest,
-            "rules": manifest.get("rules", "standard"),
-            "rules_hash": manifest.get("rules_hash", "")}
-    return RunData(rules=str(prov["rules"]), spectra=spectra, random=random, wins=wins,
-                   summary=summary, provenance=prov)
+    random = {n: dict(t.laws[n]) for n in t.ns if n in t.laws}
+    wins = {n: t.random[n]["player1_wins"] for n in t.ns if n in t.random}
+    summary = {n: {k: t.summary[n][k] for k in SUMMARY_KEYS} for n in t.ns}
+    prov = {"source": f"table {folder}", "manifest": t.manifest,
+            "rules": t.ruleset.name, "rules_hash": t.ruleset.content_hash()}
+    return RunData(rules=t.ruleset.name, spectra=spectra, random=random, wins=wins,
+                   summary=summary, provenance=prov, ruleset=t.ruleset,
+                   rules_text=t.rules_text)
 
 
 def add_random(data: RunData, upto: int, threads: int | None = None) -> RunData:
@@ -172,12 +171,13 @@ def add_random(data: RunData, upto: int, threads: int | None = None) -> RunData:
     random, wins = dict(data.random), dict(data.wins)
     for n in data.ns:
         if n <= upto and n not in random:
-            rr = random_play(n, data.rules, threads=threads)
+            rr = random_play(n, data.rule_set(), threads=threads)
             random[n] = dict(rr.length_probability or {})
             wins.setdefault(n, rr.win_probability[1])
     prov = {**data.provenance, "random_computed_upto": upto, "random_model": "moves"}
     return RunData(rules=data.rules, spectra=data.spectra, random=random, wins=wins,
-                   summary=data.summary, provenance=prov)
+                   summary=data.summary, provenance=prov, ruleset=data.ruleset,
+                   rules_text=data.rules_text)
 
 
 # ----------------------------------------------------------------------------- figures
@@ -384,15 +384,26 @@ def make_figure(kind: str, data: RunData, n: int | None = None,
     raise InputError(f"unknown plot kind {kind!r} (use one of: {', '.join(KINDS)})")
 
 
-def save_figure(fig: Figure, prefix: str | Path) -> list[Path]:
-    """Write `fig` as prefix.png and prefix.svg; returns the two paths."""
+def figure_paths(prefix: str | Path) -> list[Path]:
+    """prefix.png and prefix.svg (a .png/.svg suffix on the prefix is dropped)."""
     prefix = Path(prefix)
     if prefix.suffix.lower() in (".png", ".svg"):
         prefix = prefix.with_suffix("")
-    prefix.parent.mkdir(parents=True, exist_ok=True)
-    out = []
-    for ext in ("png", "svg"):
-        path = prefix.with_name(prefix.name + "." + ext)
-        fig.savefig(path, format=ext, dpi=110)
-        out.append(path)
+    return [prefix.with_name(prefix.name + "." + ext) for ext in ("png", "svg")]
+
+
+def save_figure(fig: Figure, prefix: str | Path) -> list[Path]:
+    """Write `fig` as prefix.png and prefix.svg (atomically, creating the folder); returns
+    the two paths.  A write that fails goes to `safeio.deliver`: the image is printed on
+    standard output and OutputError (exit 6) raised."""
+    import io
+
+    from .safeio import deliver
+
+    out = figure_paths(prefix)
+    out[0].parent.mkdir(parents=True, exist_ok=True)
+    for path in out:
+        buf = io.BytesIO()
+        fig.savefig(buf, format=path.suffix[1:], dpi=110)
+        deliver(path, buf.getvalue(), what=f"figure {path.name}")
     return out

@@ -7,7 +7,13 @@ games, extremes, exact mean and variance of the length of all games and of rando
 player 1's win probability); the fitted leading terms; at one detail n the explicit
 shortest and longest games, the greedy longest game, the number of games at the lengths
 near the extremes, the move totals and expected counts and the linear invariants with their
-verification; provenance; and the commands that reproduce every number.
+verification; provenance, including the rule file itself (canonical text and content
+hash); and the commands that reproduce every number.
+
+Everything computed here (extremal games, move statistics) is computed for `data`'s rule
+set object (`RunData.rule_set()`: for a table, the rule file embedded in its manifest),
+never for a rule set looked up by name; the greedy comparison, a statement about the
+standard game, is shown only when the rule set's content hash is the standard game's.
 """
 
 from __future__ import annotations
@@ -21,7 +27,7 @@ import shlex
 from fractions import Fraction
 from pathlib import Path
 
-from .errors import InputError
+from .errors import InputError, OutputError
 from .plots import (
     SOURCE_LABEL,
     RunData,
@@ -36,6 +42,8 @@ from .plots import (
 )
 
 REPORT_NAME = "report.html"
+RULE_FILE_NAME = "rules.toml"
+"""The name the reproduce section gives the embedded rule file of a non-standard game."""
 DETAIL_MAX_N = 60
 
 STYLE = """
@@ -143,9 +151,11 @@ def detail_sections(data: RunData, n: int) -> str:
         linear_invariants,
         move_totals,
     )
+    from .rules import STANDARD
 
+    rs = data.rule_set()
     parts = [f"<h2>Extremal games at n={n}</h2>"]
-    short, long = extremal_games(n, data.rules)
+    short, long = extremal_games(n, rs)
     near = lengths_near_extremes(data.spectra[n])
     parts.append("<p>Number of games at the lengths nearest the extremes:</p>")
     parts.append(html_table(["shortest lengths", "games"], near["shortest"]))
@@ -157,7 +167,7 @@ def detail_sections(data: RunData, n: int) -> str:
         parts.append(f"<h3>A {esc(g.kind)} game: {g.length} moves</h3>")
         parts.append(html_table(["#", "move", "state after (bin value x tokens)"], rows,
                                 "game", left=3))
-    if data.rules == "standard":
+    if rs.content_hash() == STANDARD.content_hash():
         greedy = greedy_longest_game(n)
         same = [s.move for s in greedy.steps] == [s.move for s in long.steps]
         verdict = "equal" if greedy.length == long.length else "DIFFERENT"
@@ -168,8 +178,8 @@ def detail_sections(data: RunData, n: int) -> str:
             f"longest: {long.length} moves ({verdict}); the greedy move list "
             f"{'is' if same else 'is not'} the one shown above.</p>")
     parts.append(f"<h2>Move statistics at n={n}</h2>")
-    totals = move_totals(n, data.rules)
-    expected = expected_counts(n, data.rules)
+    totals = move_totals(n, rs)
+    expected = expected_counts(n, rs)
     rows = [[m, t, f"{Fraction(t, totals.games) if totals.games else 0}",
              dec(Fraction(t, totals.games)), dec(expected[m])]
             for m, t in zip(totals.move_names, totals.totals, strict=True)]
@@ -179,7 +189,7 @@ def detail_sections(data: RunData, n: int) -> str:
     parts.append(html_table(["move", "total over all games", "mean per game (exact)",
                              "mean per game", "expected, random play"], rows, "movestats",
                             left=1))
-    inv = linear_invariants(n, data.rules)
+    inv = linear_invariants(n, rs)
     bad = check_on_totals(inv, totals) + check_on_expected(inv, expected)
     parts.append("<h3>Linear invariants of the move counts</h3>")
     parts.append("<p>#move is the number of times a game plays that move. Each form is "
@@ -194,10 +204,13 @@ def detail_sections(data: RunData, n: int) -> str:
 
 
 def reproduce_section(data: RunData, detail_n: int | None, folder: Path) -> str:
+    from .rules import STANDARD
+
     lo, hi = data.ns[0], data.ns[-1]
     q = shlex.quote(str(folder))
-    rules = "" if data.rules == "standard" else f" --rules {shlex.quote(data.rules)}"
-    lines = []
+    standard = data.rule_set().content_hash() == STANDARD.content_hash()
+    rules = "" if standard else f" --rules {RULE_FILE_NAME}"
+    lines = [] if standard else [f"# save the rule file shown above as {RULE_FILE_NAME}"]
     if "manifest" in data.provenance:
         lines.append(f"zeckenum report {q}{rules}            # this page, from the table")
     else:
@@ -211,8 +224,9 @@ def reproduce_section(data: RunData, detail_n: int | None, folder: Path) -> str:
     if detail_n is not None:
         lines += [f"zeckenum games {detail_n}{rules}             # extremal games, greedy",
                   f"zeckenum move-stats {detail_n}{rules}        # totals, invariants"]
+    arg = repr("standard" if standard else RULE_FILE_NAME)
     py = ("import zeckenum\nfrom zeckenum.plots import collect\n"
-          f"data = collect({lo}, {hi}, {data.rules!r})   # the numbers behind every figure\n"
+          f"data = collect({lo}, {hi}, {arg})   # the numbers behind every figure\n"
           "zeckenum.count(N).length_counts")
     return ("<h2>How to reproduce</h2><p>Every number on this page comes from these "
             "commands (exact integers and fractions; the decimals are rounded from them):</p>"
@@ -224,20 +238,28 @@ def provenance_section(data: RunData) -> str:
     import numpy
 
     from . import __version__
+    from .rulefile import format_rules
 
     prov = dict(data.provenance)
     manifest = prov.pop("manifest", None)
+    rs = data.rule_set()
+    prov["rules_hash"] = rs.content_hash()
     rows = [[k, v] for k, v in prov.items()]
     rows += [["zeckenum version", __version__], ["python", platform.python_version()],
              ["numpy", numpy.__version__], ["matplotlib", matplotlib.__version__],
              ["report written (UTC)",
               dt.datetime.now(dt.timezone.utc).isoformat(timespec="seconds")]]
     out = ["<h2>Provenance</h2>", html_table(["item", "value"], rows, "provenance", left=2)]
+    text = data.rules_text or format_rules(rs)
+    out.append(f"<h3>Rule file</h3><p>The game every number on this page is for: rule set "
+               f"{esc(rs.name)!s}, content hash <code>{esc(rs.content_hash())}</code>. "
+               "Canonical rule-file text:</p>"
+               f'<pre class="rulefile">{esc(text)}</pre>')
     if manifest:
         files = manifest.get("files", {})
         frows = [[name, e.get("sha256", ""), e.get("bytes", e.get("size", ""))]
                  for name, e in sorted(files.items()) if isinstance(e, dict)]
-        other = {k: v for k, v in manifest.items() if k != "files"}
+        other = {k: v for k, v in manifest.items() if k not in ("files", "rules_text")}
         out.append("<p>Table manifest:</p>")
         out.append(html_table(["key", "value"], [[k, v] for k, v in other.items()],
                               "manifest", left=2))
@@ -285,12 +307,16 @@ def render_report(data: RunData, folder: Path, detail_n: int | None = None) -> s
 
 
 def write_report(data: RunData, folder: str | Path, detail_n: int | None = None) -> Path:
-    """Write folder/report.html (atomically) and return its path."""
+    """Write folder/report.html atomically and return its path.  The folder must exist
+    (callers check it before computing: `safeio.check_output_dir`); a write that fails
+    after the page is rendered goes to `safeio.deliver` (the page is printed on standard
+    output) and raises OutputError (exit 6)."""
+    from .safeio import deliver
+
     folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
+    if not folder.is_dir():
+        raise OutputError(f"cannot write the report into {folder}: not a directory")
     text = render_report(data, folder, detail_n)
     path = folder / REPORT_NAME
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_text(text, encoding="utf-8")
-    tmp.replace(path)
+    deliver(path, text.encode("utf-8"), what="report")
     return path

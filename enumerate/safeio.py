@@ -103,6 +103,12 @@ def _fsync_dir(folder: Path) -> None:
         os.close(fd)
 
 
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
 def write_atomic(path: str | Path, data: bytes) -> None:
     """Write `data` to `path` atomically: temporary file, fsync, rename, fsync of the folder.
 
@@ -111,6 +117,7 @@ def write_atomic(path: str | Path, data: bytes) -> None:
     path = Path(path)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
+        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; results are shared files
         with os.fdopen(fd, "wb") as f:
             f.write(data)
             f.flush()

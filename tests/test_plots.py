@@ -48,43 +48,68 @@ def random_laws(ns: tuple[int, ...] = FIXED_NS) -> dict[int, dict[int, Fraction]
     return {n: dict(sorted(length_law(n, "moves").items())) for n in ns}
 
 
-def write_fixed_table(folder: Path, ns: tuple[int, ...] = FIXED_NS) -> Path:
-    """Write the table for `ns` into `folder` (created) and return it."""
+def _frac(x: Fraction) -> str:
+    """An exact rational as "p/q" (the table format, denominator always written)."""
+    return f"{x.numerator}/{x.denominator}"
+
+
+def _write_csv(path: Path, header: list[str], rows: list[list[object]]) -> None:
+    with path.open("w", newline="") as f:
+        w = csv.writer(f, lineterminator="\n")
+        w.writerow(header)
+        w.writerows(rows)
+
+
+def write_fixed_table(folder: Path, ns: tuple[int, ...] = FIXED_NS, random: bool = True,
+                      rules_text: str | None = None, rules_hash: str | None = None) -> Path:
+    """Write the table for `ns` into `folder` (created) and return it: the numbers come
+    from the brute forces, the layout is the one `zeckenum table` writes (manifest with
+    the embedded rule file and the SHA-256 of every file, from hashlib)."""
+    import hashlib
+
+    import zeckenum
+    from zeckenum.rulefile import format_rules
+
     folder.mkdir(parents=True, exist_ok=True)
     cens = {n: census(n) for n in ns}
-    with (folder / "summary.csv").open("w", newline="") as f:
-        w = csv.writer(f)
-        w.writerow(["n", "states", "transitions", "games", "shortest", "longest",
-                    "shortest_games", "longest_games"])
-        for n, c in cens.items():
-            lc = c["length_counts"]
-            w.writerow([n, c["states"], c["transitions"], c["games"], c["shortest"],
+    summary = []
+    for n, c in cens.items():
+        lc = c["length_counts"]
+        summary.append([n, c["states"], c["transitions"], c["games"], c["shortest"],
                         c["longest"], lc[c["shortest"]], lc[c["longest"]]])
-    with (folder / "spectra.csv").open("w", newline="") as f:
-        w = csv.writer(f)
-        w.writerow(["n", "length", "count"])
-        for n, c in cens.items():
-            for length, k in c["length_counts"].items():
-                w.writerow([n, length, k])
-    laws = random_laws(ns)
-    with (folder / "random.csv").open("w", newline="") as f:
-        w = csv.writer(f)
-        w.writerow(["n", "player1_wins", "player2_wins", "mean_length", "variance"])
+    fields = ["n", "states", "transitions", "games", "shortest", "longest",
+              "shortest_games", "longest_games"]
+    _write_csv(folder / "summary.csv", fields, summary)
+    for i, name in enumerate(fields[1:], 1):
+        (folder / f"{name}.seq").write_text("".join(f"{r[0]} {r[i]}\n" for r in summary))
+    _write_csv(folder / "spectra.csv", ["n", "length", "count"],
+               [[n, length, k] for n, c in cens.items()
+                for length, k in sorted(c["length_counts"].items())])
+    if random:
+        laws = random_laws(ns)
+        rows = []
         for n, law in laws.items():
             p1 = sum((p for length, p in law.items() if length % 2 == 1), Fraction(0))
             mean = sum(length * p for length, p in law.items())
             var = sum((length - mean) ** 2 * p for length, p in law.items())
-            w.writerow([n, str(p1), str(1 - p1), str(mean), str(var)])
-    with (folder / "random_lengths.csv").open("w", newline="") as f:
-        w = csv.writer(f)
-        w.writerow(["n", "length", "probability"])
-        for n, law in laws.items():
-            for length, p in sorted(law.items()):
-                w.writerow([n, length, str(p)])
+            rows.append([n, _frac(p1), _frac(1 - p1), _frac(mean), _frac(var)])
+        _write_csv(folder / "random.csv",
+                   ["n", "player1_wins", "player2_wins", "mean_length", "variance"], rows)
+        (folder / "player1_wins.seq").write_text("".join(f"{r[0]} {r[1]}\n" for r in rows))
+        (folder / "mean_length.seq").write_text("".join(f"{r[0]} {r[3]}\n" for r in rows))
+        _write_csv(folder / "random_lengths.csv", ["n", "length", "probability"],
+                   [[n, length, _frac(p)] for n, law in laws.items()
+                    for length, p in sorted(law.items())])
+    files = {}
+    for f in sorted(folder.iterdir()):
+        raw = f.read_bytes()
+        files[f.name] = {"sha256": hashlib.sha256(raw).hexdigest(), "bytes": len(raw)}
     manifest = {"format": "zeckenum-table/1", "tool": "zeckenum", "rules": "standard",
-                "rules_hash": "test-fixture", "parameters": {"from": ns[0], "to": ns[-1],
-                                                            "what": ["count", "random"]},
-                "files": {}}
+                "rules_text": rules_text or format_rules(zeckenum.STANDARD),
+                "rules_hash": rules_hash or zeckenum.STANDARD.content_hash(),
+                "parameters": {"from": ns[0], "to": ns[-1],
+                               "what": ["count", "random"] if random else ["count"]},
+                "files": files}
     (folder / "manifest.json").write_text(json.dumps(manifest, indent=1))
     return folder
 
@@ -98,7 +123,8 @@ def table(tmp_path_factory: pytest.TempPathFactory) -> Path:
 def data(table: Path) -> RunData:
     d = read_table(table)
     return RunData(rules=d.rules, spectra=d.spectra, random=random_laws(), wins=d.wins,
-                   summary=d.summary, provenance=d.provenance)
+                   summary=d.summary, provenance=d.provenance, ruleset=d.ruleset,
+                   rules_text=d.rules_text)
 
 
 def test_read_table(table: Path, data: RunData) -> None:
@@ -131,11 +157,7 @@ def test_distribution_figure(data: RunData) -> None:
 
 
 def test_distribution_without_random_has_one_panel(table: Path, tmp_path: Path) -> None:
-    bare = tmp_path / "bare"
-    bare.mkdir()
-    for f in table.iterdir():
-        if f.name not in ("random.csv", "random_lengths.csv"):
-            (bare / f.name).write_bytes(f.read_bytes())
+    bare = write_fixed_table(tmp_path / "bare", random=False)
     fig = figure_distribution(read_table(bare), 10)
     assert len(fig.axes) == 1 and len(fig.axes[0].lines) == 2
 
@@ -216,3 +238,36 @@ def test_plot_cli_from_table_and_fresh(table: Path, tmp_path: Path) -> None:
     assert (tmp_path / "d.svg").is_file()
     res = runner.invoke(plot_command, ["shape"])
     assert res.exit_code == 2 and res.output.startswith("zeckenum: error:")
+
+
+def test_plot_unwritable_output_exit_6(table: Path, tmp_path: Path, monkeypatch) -> None:  # noqa: ANN001
+    import errno
+    import os
+    import stat
+
+    import zeckenum.safeio as safeio
+
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    res = CliRunner().invoke(plot_command, ["wins", "--table", str(table), "--out",
+                                            str(blocker / "wins")])
+    assert res.exit_code == 6 and res.output.startswith("zeckenum: error:"), res.output
+    (tmp_path / "taken.png").mkdir()       # the output path is a folder
+    res = CliRunner().invoke(plot_command, ["wins", "--table", str(table), "--out",
+                                            str(tmp_path / "taken")])
+    assert res.exit_code == 6 and "not a regular file" in res.output, res.output
+    real = safeio.os.fsync
+
+    def full(fd: int) -> None:   # the disk fills up while the figure is written
+        if stat.S_ISREG(os.fstat(fd).st_mode):
+            raise OSError(errno.ENOSPC, "No space left on device")
+        real(fd)
+
+    out = tmp_path / "figs"
+    out.mkdir()
+    monkeypatch.setattr(safeio.os, "fsync", full)
+    res = CliRunner().invoke(plot_command, ["wins", "--table", str(table), "--out",
+                                            str(out / "wins")])
+    monkeypatch.setattr(safeio.os, "fsync", real)
+    assert res.exit_code == 6 and "could not write figure wins.png" in res.output
+    assert list(out.iterdir()) == []            # nothing torn, no .tmp left
