@@ -9,6 +9,9 @@ higher order", Fibonacci Quarterly, 1972, from memory), scipy/fractions as named
 from __future__ import annotations
 
 import math
+import os
+import shutil
+import subprocess
 import textwrap
 from fractions import Fraction
 from functools import cache
@@ -578,3 +581,109 @@ def test_canonical_rule_text_round_trips(name: str) -> None:
                          for line in text.splitlines())
     with pytest.raises(InputError, match="altered"):
         rules_from_text(altered, rs.content_hash())
+
+
+# ------------------------------------------------- hostile rule files (issue 11, part A)
+
+MAX_ERROR_LINE = 300
+"""Longest error line we accept for any malformed file (common practice: one short line)."""
+
+
+def assert_short_error(result, pattern: str | None = None) -> None:
+    """Exit 2, exactly one error line, at most MAX_ERROR_LINE characters, no traceback."""
+    assert result.exit_code == 2, result.output
+    assert isinstance(result.exception, SystemExit), result.exception
+    errors = [ln for ln in result.output.splitlines() if ln.startswith("zeckenum: error:")]
+    assert len(errors) == 1, result.output[:2000]
+    assert len(errors[0]) <= MAX_ERROR_LINE, (len(errors[0]), errors[0][:400])
+    if pattern is not None:
+        assert pattern in errors[0], errors[0]
+
+
+def shipped_text() -> str:
+    return (RULESETS_DIR / "standard.toml").read_text()
+
+
+def test_rule_file_not_utf8(tmp_path: Path) -> None:
+    path = tmp_path / "bad.toml"
+    path.write_bytes(shipped_text().encode() + b"\n# \xff\xfe\xc3\x28\n")
+    assert_short_error(run_check(path), "UTF-8")
+
+
+def test_rule_file_deep_nesting(tmp_path: Path) -> None:
+    """tomllib recurses once per nesting level; 100k levels overflow the Python stack."""
+    path = tmp_path / "deep.toml"
+    path.write_text("x = " + "[" * 100_000 + "]" * 100_000 + "\n")
+    assert_short_error(run_check(path), "nest")
+
+
+@pytest.mark.parametrize("edit, pattern", [
+    (("at = 1\ntake", "at = 100000\ntake"), "'at'"),
+    (("from = 2", "from = 1e20"), "'from'"),
+    (("from = 2", "from = 2\nto = 99999999999999999"), "'to'"),
+    (('give = ["k+1"]', 'give = ["k+99999999999999999999"]'), "k+99999999999999999999"),
+    (('give = ["k+1"]', 'give = ["k+' + "9" * 5000 + '"]'), "bin"),
+    (("start = \"ones\"", "start = { vector = [1" + "0" * 40 + "] }"), "vector"),
+    (("start = \"ones\"", "start = { vector = [1" + "0" * 5000 + "] }"), None),
+    (("initial = [1, 2]", "initial = [1, 1" + "0" * 40 + "]"), "bins.initial"),
+    (("recurrence = [1, 1]", "recurrence = [1, 1" + "0" * 40 + "]"), "bins.recurrence"),
+])
+def test_rule_file_numbers_out_of_range(tmp_path: Path, edit: tuple[str, str],
+                                        pattern: str | None) -> None:
+    """Every number in a rule file is bounded: one short line, never a hang or a traceback."""
+    old, new = edit
+    text = shipped_text()
+    assert old in text
+    path = tmp_path / "big.toml"
+    path.write_text(text.replace(old, new, 1))
+    assert_short_error(run_check(path), pattern)
+
+
+def test_rule_file_at_large_index_short_message(tmp_path: Path) -> None:
+    """A one-off move far past the bins used to print both Fibonacci numbers in full."""
+    path = tmp_path / "far.toml"
+    path.write_text(shipped_text().replace("at = 1\ntake", "at = 900\ntake", 1))
+    assert_short_error(run_check(path))
+
+
+def _run_script_check(path: Path) -> subprocess.CompletedProcess:
+    exe = shutil.which("zeckenum")
+    assert exe is not None
+    return subprocess.run([exe, "rules", "check", str(path)], capture_output=True, text=True,
+                          timeout=120, check=False)
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="needs FIFOs")
+def test_rule_file_fifo_does_not_block(tmp_path: Path) -> None:
+    path = tmp_path / "pipe.toml"
+    os.mkfifo(path)
+    res = _run_script_check(path)  # a blocking open would hit the timeout
+    assert res.returncode == 2, res.stderr
+    lines = res.stderr.strip().splitlines()
+    assert len(lines) == 1 and "not a regular file" in lines[0], res.stderr
+
+
+@pytest.mark.skipif(not Path("/dev/zero").exists(), reason="needs /dev/zero")
+def test_rule_file_symlink_to_dev_zero(tmp_path: Path) -> None:
+    path = tmp_path / "zero.toml"
+    path.symlink_to("/dev/zero")
+    res = _run_script_check(path)
+    assert res.returncode == 2, res.stderr
+    lines = res.stderr.strip().splitlines()
+    assert len(lines) == 1 and "not a regular file" in lines[0], res.stderr
+
+
+def test_rule_file_too_large(tmp_path: Path) -> None:
+    path = tmp_path / "huge.toml"
+    path.write_text(shipped_text() + ("# padding\n" * 200_000))
+    assert_short_error(run_check(path), "bytes")
+
+
+def test_rules_option_of_count_reads_file_safely(tmp_path: Path) -> None:
+    """`--rules FILE` of a computing command goes through the same reader."""
+    from zeckenum.cli import main
+
+    path = tmp_path / "bad.toml"
+    path.write_bytes(b"name = \"x\xff\"\n")
+    res = CliRunner().invoke(main, ["count", "5", "--rules", str(path)])
+    assert_short_error(res, "UTF-8")
