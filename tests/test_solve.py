@@ -14,6 +14,9 @@ from __future__ import annotations
 
 import gzip
 import json
+import os
+import shutil
+import subprocess
 
 import minimax
 import numpy as np
@@ -398,3 +401,191 @@ def test_layer_walk_lists_the_layer_in_descending_rank(name: str, n: int) -> Non
             continue
         walked = walk_layer(spec.n, level, size, space.tab, spec.values, spec.weights)
         assert np.array_equal(walked, space.states(level)[::-1]), level
+
+
+# --- hostile strategy files and embedded rule files (issue 11, part B) -------------------
+
+MAX_ERROR_LINE = 300  # common practice: one short line
+
+
+def _one_line(res, status: int = 2, pattern: str | None = None) -> str:
+    assert res.exit_code == status, res.output[:2000]
+    assert isinstance(res.exception, SystemExit), res.exception
+    lines = res.output.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("zeckenum: error: "), res.output[:2000]
+    assert len(lines[0]) <= MAX_ERROR_LINE, lines[0][:400]
+    if pattern is not None:
+        assert pattern in lines[0], lines[0]
+    return lines[0]
+
+
+def _check(path, *extra: str):
+    return CliRunner().invoke(check_strategy_command, [str(path), *extra])
+
+
+def _script_check(path) -> subprocess.CompletedProcess:
+    exe = shutil.which("zeckenum")
+    assert exe is not None
+    return subprocess.run([exe, "check-strategy", str(path)], capture_output=True, text=True,
+                          timeout=120, check=False)
+
+
+def test_corrupt_deflate_stream(tmp_path) -> None:
+    path, _ = _write(tmp_path, 20, gz=True)
+    data = bytearray(path.read_bytes())
+    for i in range(20, len(data) - 12, 7):  # keep the gzip header, wreck the deflate blocks
+        data[i] ^= 0x5A
+    path.write_bytes(bytes(data))
+    _one_line(_check(path), 2, "gzip")
+
+
+def test_truncated_gzip(tmp_path) -> None:
+    path, _ = _write(tmp_path, 20, gz=True)
+    path.write_bytes(path.read_bytes()[: len(path.read_bytes()) // 2])
+    _one_line(_check(path), 2, "gzip")
+
+
+def test_gzip_bomb_is_refused(tmp_path, monkeypatch) -> None:
+    """A small gzip file inflating past the cap is refused while inflating."""
+    import zeckenum.strategy as strategy_module
+
+    monkeypatch.setattr(strategy_module, "MAX_TEXT_BYTES", 1 << 20, raising=False)
+    path = tmp_path / "bomb.zst.gz"
+    path.write_bytes(gzip.compress(b"#" * (16 << 20)))
+    _one_line(_check(path), 2, "more than")
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="needs FIFOs")
+def test_strategy_fifo_does_not_block(tmp_path) -> None:
+    path = tmp_path / "pipe.zst"
+    os.mkfifo(path)
+    res = _script_check(path)
+    assert res.returncode == 2, res.stderr
+    assert "not a regular file" in res.stderr and len(res.stderr.strip().splitlines()) == 1
+
+
+@pytest.mark.skipif(not os.path.exists("/dev/zero"), reason="needs /dev/zero")
+def test_strategy_symlink_to_dev_zero(tmp_path) -> None:
+    path = tmp_path / "zero.zst"
+    path.symlink_to("/dev/zero")
+    res = _script_check(path)
+    assert res.returncode == 2, res.stderr
+    assert "not a regular file" in res.stderr and len(res.stderr.strip().splitlines()) == 1
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="needs FIFOs")
+def test_header_naming_a_fifo_is_never_opened(tmp_path) -> None:
+    """The header's rules= field is a name, never a path to open."""
+    pipe = tmp_path / "rules.toml"
+    os.mkfifo(pipe)
+    path, _ = _write(tmp_path, 10)
+    text = path.read_text()
+    header = next(ln for ln in text.splitlines() if ln.startswith("zstrat/1"))
+    fields = [f for f in header.split() if not f.startswith(("rules=", "rules_text="))]
+    new = " ".join(fields + [f"rules={pipe}"])
+    path.write_text(text.replace(header, new))
+    res = _script_check(path)  # opening the FIFO would block until the timeout
+    assert res.returncode == 2, res.stderr
+    assert "not built in" in res.stderr and len(res.stderr.strip().splitlines()) == 1
+
+
+def test_header_numbers_bounded(tmp_path) -> None:
+    path, strat = _write(tmp_path, 10)
+    text = path.read_text().replace(f" n={strat.n} ", " n=" + "9" * 15 + " ")
+    path.write_text(text)
+    _one_line(_check(path), 2, "n must be")
+
+
+CUSTOM_RULES = """\
+name = "two-start"
+about = "The standard moves, started from n tokens in bin 2."
+start = { vector = [0, 1] }
+layering = "tokens"
+
+[bins]
+initial = [1, 2]
+recurrence = [1, 1]
+
+[[move]]
+name = "combine-ones"
+at = 1
+take = ["k", "k"]
+give = ["k+1"]
+
+[[move]]
+name = "combine"
+from = 2
+take = ["k-1", "k"]
+give = ["k+1"]
+
+[[move]]
+name = "split-twos"
+at = 2
+take = ["k", "k"]
+give = ["k-1", "k+1"]
+
+[[move]]
+name = "split"
+from = 3
+take = ["k", "k"]
+give = ["k-2", "k+1"]
+"""
+
+
+def _custom_strategy(tmp_path, n: int = 6):
+    rules_path = tmp_path / "two-start.toml"
+    rules_path.write_text(CUSTOM_RULES)
+    path = tmp_path / "custom.zst"
+    res = CliRunner().invoke(solve_command, [str(n), "--rules", str(rules_path),
+                                             "--strategy", str(path)])
+    assert res.exit_code == 0, res.output
+    rules_path.unlink()  # the check must need nothing but the strategy file
+    return path
+
+
+def test_custom_rules_checked_from_the_file_alone(tmp_path) -> None:
+    """Source: the independent checker, on the game rebuilt from the embedded rule file;
+    the winner it confirms is compared with the template minimax of tests/minimax.py."""
+    from zeckenum.rulefile import parse_rules
+
+    path = _custom_strategy(tmp_path)
+    res = _check(path, "--json")
+    assert res.exit_code == 0, res.output
+    rep = json.loads(res.output)
+    assert rep["ok"] is True
+    game = minimax.TemplateGame(parse_rules(CUSTOM_RULES), 6)
+    assert rep["winner"] == (1 if game.mover_wins(game.start) else 2)
+
+
+def test_embedded_rules_with_another_hash_refused(tmp_path) -> None:
+    import base64
+
+    path = _custom_strategy(tmp_path)
+    text = path.read_text()
+    header = next(ln for ln in text.splitlines() if ln.startswith("zstrat/1"))
+    field = next(f for f in header.split() if f.startswith("rules_text="))
+    other = CUSTOM_RULES.replace("vector = [0, 1]", "vector = [1, 1]")
+    forged = "rules_text=" + base64.b64encode(other.encode()).decode()
+    path.write_text(text.replace(field, forged))
+    _one_line(_check(path), 2, "content hash")
+    path.write_text(text.replace(field, "rules_text=@@not-base64@@"))
+    _one_line(_check(path), 2, "base64")
+
+
+def test_files_without_embedded_rules_still_read(tmp_path) -> None:
+    """Files written before the rules_text field: a built-in name still checks."""
+    path, strat = _write(tmp_path, 14)
+    text = path.read_text()
+    header = next(ln for ln in text.splitlines() if ln.startswith("zstrat/1"))
+    old = " ".join(f for f in header.split() if not f.startswith("rules_text="))
+    path.write_text(text.replace(header, old))
+    res = _check(path, "--json")
+    assert res.exit_code == 0, res.output
+    assert json.loads(res.output)["winner_positions"] == strat.size
+
+
+def test_losing_strategy_exits_5(tmp_path) -> None:
+    path, strat = _write(tmp_path, 12)
+    text = path.read_text().replace(f"winner={strat.winner}", f"winner={3 - strat.winner}")
+    path.write_text(text)
+    _one_line(_check(path), 5)
