@@ -376,6 +376,13 @@ def _bin_text(off: int) -> str:
     return "k" if off == 0 else f"k{off:+d}"
 
 
+def _toml_str(text: str) -> str:
+    """A TOML basic string of `text`: JSON escaping, except that characters outside the
+    Basic Multilingual Plane stay literal (JSON writes them as surrogate pairs, which TOML
+    refuses) and DEL is escaped (TOML refuses it literal, JSON leaves it)."""
+    return json.dumps(text, ensure_ascii=False).replace("\x7f", "\\u007f")
+
+
 def format_rules(rules: RuleSet) -> str:
     """The canonical rule-file text of `rules`: `parse_rules(format_rules(r))` has the same
     content hash as `r` (tested for every shipped rule set and generated ones).
@@ -383,19 +390,19 @@ def format_rules(rules: RuleSet) -> str:
     Tables, checkpoints, reports and strategy files embed this text, so a result carries
     the exact game it was computed for and can be recomputed from the file alone.
     """
-    lines = [f"name = {json.dumps(rules.name)}", f"about = {json.dumps(rules.description)}"]
+    lines = [f"name = {_toml_str(rules.name)}", f"about = {_toml_str(rules.description)}"]
     if isinstance(rules.start, tuple):
         lines.append(f"start = {{ vector = [{', '.join(str(c) for c in rules.start)}] }}")
     else:
-        lines.append(f"start = {json.dumps(rules.start)}")
-    lines += [f"layering = {json.dumps(rules.level_weights)}", "", "[bins]"]
+        lines.append(f"start = {_toml_str(rules.start)}")
+    lines += [f"layering = {_toml_str(rules.level_weights)}", "", "[bins]"]
     if rules.recurrence:
         lines.append(f"initial = [{', '.join(str(v) for v in rules.initial)}]")
         lines.append(f"recurrence = [{', '.join(str(c) for c in rules.recurrence)}]")
     else:
         lines.append(f"values = [{', '.join(str(v) for v in rules.initial)}]")
     for tpl in rules.templates:
-        lines += ["", "[[move]]", f"name = {json.dumps(tpl.name)}"]
+        lines += ["", "[[move]]", f"name = {_toml_str(tpl.name)}"]
         if tpl.last is not None and tpl.last == tpl.first:
             lines.append(f"at = {tpl.first}")
         else:

@@ -8,8 +8,10 @@ higher order", Fibonacci Quarterly, 1972, from memory), scipy/fractions as named
 
 from __future__ import annotations
 
+import json
 import math
 import os
+import re
 import shutil
 import subprocess
 import textwrap
@@ -687,3 +689,134 @@ def test_rules_option_of_count_reads_file_safely(tmp_path: Path) -> None:
     path.write_bytes(b"name = \"x\xff\"\n")
     res = CliRunner().invoke(main, ["count", "5", "--rules", str(path)])
     assert_short_error(res, "UTF-8")
+
+
+# ------------------------------ generated hostile rule files (hypothesis, issue 11, part E)
+# Property (common practice for parsers of untrusted input): reading any text or bytes
+# either gives a rule set or raises a ZeckenumError with one line of at most
+# MAX_ERROR_LINE characters; never another exception, never a hang.  A rule set read
+# successfully also survives the canonical text round trip (`format_rules`).
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+from zeckenum.errors import ZeckenumError  # noqa: E402
+from zeckenum.rulefile import format_rules, rules_from_text  # noqa: E402
+
+HYPO = settings(max_examples=150, deadline=None,
+                suppress_health_check=[HealthCheck.function_scoped_fixture,
+                                       HealthCheck.too_slow])
+
+KEYS = ["name", "about", "start", "layering", "bins", "move", "values", "initial",
+        "recurrence", "at", "from", "to", "take", "give", "vector"]
+
+scalars = st.one_of(
+    st.integers(min_value=-(10**30), max_value=10**30),
+    st.integers(min_value=-3, max_value=40),
+    st.floats(allow_nan=False, allow_infinity=False),
+    st.booleans(),
+    st.sampled_from(["k", "k+1", "k-1", "k-2", "k+99999999999", "ones", "greedy", "tokens",
+                     "auto", "potential", "combine", ""]),
+    st.text(max_size=12),
+)
+toml_values = st.recursive(
+    scalars,
+    lambda inner: st.one_of(
+        st.lists(inner, max_size=5),
+        st.dictionaries(st.sampled_from(KEYS), inner, max_size=5),
+    ),
+    max_leaves=25,
+)
+
+
+def toml_value(v) -> str:
+    """A minimal TOML writer for the generated values (inline arrays and tables)."""
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, int):
+        return str(v)
+    if isinstance(v, float):
+        return repr(v)
+    if isinstance(v, str):
+        return json.dumps(v)
+    if isinstance(v, list):
+        return "[" + ", ".join(toml_value(x) for x in v) + "]"
+    return "{" + ", ".join(f"{json.dumps(k)} = {toml_value(x)}" for k, x in v.items()) + "}"
+
+
+toml_docs = st.dictionaries(st.sampled_from(KEYS), toml_values, max_size=7).map(
+    lambda d: "\n".join(f"{json.dumps(k)} = {toml_value(v)}" for k, v in d.items()) + "\n"
+)
+
+
+def read_or_one_line(path: Path) -> None:
+    try:
+        rules = read_rule_file(path)
+    except ZeckenumError as exc:
+        msg = str(exc)
+        assert "\n" not in msg and 0 < len(msg) <= MAX_ERROR_LINE, msg[:400]
+        return
+    again = rules_from_text(format_rules(rules), rules.content_hash())
+    assert again.content_hash() == rules.content_hash()
+
+
+@HYPO
+@given(text=toml_docs)
+def test_generated_toml_structures(tmp_path: Path, text: str) -> None:
+    path = tmp_path / "gen.toml"
+    path.write_text(text, encoding="utf-8", errors="surrogatepass")
+    read_or_one_line(path)
+
+
+@HYPO
+@given(data=st.binary(max_size=2000))
+def test_generated_random_bytes(tmp_path: Path, data: bytes) -> None:
+    path = tmp_path / "bytes.toml"
+    path.write_bytes(data)
+    read_or_one_line(path)
+
+
+mutation = st.tuples(
+    st.sampled_from(["delete", "insert", "number", "duplicate", "swap"]),
+    st.integers(min_value=0, max_value=10**6),
+    st.integers(min_value=0, max_value=60),
+    st.one_of(st.integers(min_value=-(10**25), max_value=10**25),
+              st.sampled_from([0, 1, 2, 3, 1023, 1024, 1025, 2**62, 2**63, 10**40])),
+    st.text(max_size=20),
+)
+
+
+def mutate(text: str, mutations: list[tuple]) -> str:
+    """Apply edits to a shipped rule file: cut or insert text, replace a number, duplicate
+    or swap lines."""
+    for kind, pos, width, number, extra in mutations:
+        if not text:
+            break
+        i = pos % len(text)
+        if kind == "delete":
+            text = text[:i] + text[i + width:]
+        elif kind == "insert":
+            text = text[:i] + extra + text[i:]
+        elif kind == "number":
+            spans = [m.span() for m in re.finditer(r"\d+", text)]
+            if spans:
+                a, b = spans[pos % len(spans)]
+                text = text[:a] + str(number) + text[b:]
+        else:
+            lines = text.split("\n")
+            j, k = pos % len(lines), (pos + width) % len(lines)
+            if kind == "duplicate":
+                lines.insert(j, lines[k])
+            else:
+                lines[j], lines[k] = lines[k], lines[j]
+            text = "\n".join(lines)
+    return text
+
+
+@HYPO
+@given(name=st.sampled_from(sorted(p.stem for p in RULESETS_DIR.glob("*.toml"))),
+       mutations=st.lists(mutation, min_size=1, max_size=4))
+def test_mutated_shipped_rule_files(tmp_path: Path, name: str, mutations: list[tuple]) -> None:
+    text = mutate((RULESETS_DIR / f"{name}.toml").read_text(), mutations)
+    path = tmp_path / "mut.toml"
+    path.write_text(text, encoding="utf-8", errors="surrogatepass")
+    read_or_one_line(path)
