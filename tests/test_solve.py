@@ -15,6 +15,7 @@ from __future__ import annotations
 import gzip
 import json
 import os
+import re
 import shutil
 import subprocess
 
@@ -589,3 +590,113 @@ def test_losing_strategy_exits_5(tmp_path) -> None:
     text = path.read_text().replace(f"winner={strat.winner}", f"winner={3 - strat.winner}")
     path.write_text(text)
     _one_line(_check(path), 5)
+
+
+# --------------------------- generated hostile strategy files (hypothesis, issue 11, part E)
+# Property (common practice for readers of untrusted files): reading and checking any bytes
+# ends in a report or a ZeckenumError with one line of at most MAX_ERROR_LINE characters;
+# never another exception, never a hang.
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+from zeckenum.errors import ZeckenumError  # noqa: E402
+
+HYPO = settings(max_examples=120, deadline=None,
+                suppress_health_check=[HealthCheck.function_scoped_fixture,
+                                       HealthCheck.too_slow])
+SMALL_N = 12
+
+
+def _real_strategy_text() -> str:
+    strat, _ = winning_strategy(SMALL_N)
+    return format_strategy(strat, STANDARD.bin_values(SMALL_N), STANDARD)
+
+
+REAL_TEXT = _real_strategy_text()
+
+
+def _read_and_check(tmp_path, data: bytes, suffix: str = ".zst") -> None:
+    path = tmp_path / f"gen{suffix}"
+    path.write_bytes(data)
+    try:
+        check_strategy(read_strategy(path))
+    except ZeckenumError as exc:
+        msg = str(exc)
+        assert "\n" not in msg and 0 < len(msg) <= MAX_ERROR_LINE, msg[:400]
+
+
+@HYPO
+@given(data=st.binary(max_size=3000), gz_magic=st.booleans())
+def test_generated_random_bytes(tmp_path, data: bytes, gz_magic: bool) -> None:
+    _read_and_check(tmp_path, (b"\x1f\x8b" + data) if gz_magic else data)
+
+
+@HYPO
+@given(cut=st.integers(min_value=0, max_value=10**6),
+       flips=st.lists(st.tuples(st.integers(min_value=0, max_value=10**6),
+                                st.integers(min_value=1, max_value=255)), max_size=4))
+def test_truncated_and_bit_flipped_gzip(tmp_path, cut: int, flips: list) -> None:
+    data = bytearray(gzip.compress(REAL_TEXT.encode(), mtime=0))
+    for pos, mask in flips:
+        data[pos % len(data)] ^= mask
+    data = data[: len(data) - cut % len(data)] if cut % 3 else data
+    _read_and_check(tmp_path, bytes(data), ".zst.gz")
+
+
+line_edit = st.tuples(
+    st.sampled_from(["replace", "delete", "duplicate", "number", "header", "swap"]),
+    st.integers(min_value=0, max_value=10**6),
+    st.one_of(st.text(max_size=30),
+              st.sampled_from(["0", "1", "2", "3", "12", "13", "99999999999999999999",
+                               "-1", "split@3", "combine@2", "combine-ones@1", "x=y", "=",
+                               "rules=standard", "rules=../../etc/passwd.toml",
+                               "rules_text=AAAA", "rules_hash=0000000000000000", "n=13",
+                               "winner=1", "players=3"])),
+)
+
+
+def _edit_lines(text: str, edits: list) -> str:
+    lines = text.split("\n")
+    header = next(i for i, ln in enumerate(lines) if ln.startswith("zstrat/1"))
+    for kind, pos, token in edits:
+        body = list(range(header + 1, len(lines))) or [header]
+        i = body[pos % len(body)]
+        if kind == "replace":
+            lines[i] = token
+        elif kind == "delete" and len(lines) > 1:
+            del lines[i]
+        elif kind == "duplicate":
+            lines.insert(i, lines[i])
+        elif kind == "swap":
+            j = body[(pos // 7) % len(body)]
+            a, b = lines[i].split(" "), lines[j].split(" ")
+            if len(a) == 2 and len(b) == 2:  # trade the moves of two positions
+                lines[i], lines[j] = f"{a[0]} {b[1]}", f"{b[0]} {a[1]}"
+        elif kind == "number":
+            nums = [m.span() for m in re.finditer(r"\d+", lines[i])]
+            if nums:
+                a, b = nums[pos % len(nums)]
+                lines[i] = lines[i][:a] + str(pos % 97) + lines[i][b:]
+        else:  # change or add a header field
+            fields = lines[header].split(" ")
+            key = token.partition("=")[0]
+            fields = [f for f in fields if f.partition("=")[0] != key] + [token]
+            lines[header] = " ".join(fields)
+        if header >= len(lines) or not lines[header].startswith("zstrat/1"):
+            break
+    return "\n".join(lines)
+
+
+@HYPO
+@given(edits=st.lists(line_edit, min_size=1, max_size=4), gz=st.booleans())
+def test_mutated_lines_of_a_real_strategy(tmp_path, edits: list, gz: bool) -> None:
+    data = _edit_lines(REAL_TEXT, edits).encode("utf-8", errors="surrogatepass")
+    if gz:
+        data = gzip.compress(data, mtime=0)
+    _read_and_check(tmp_path, data, ".zst.gz" if gz else ".zst")
+
+
+def test_real_strategy_text_passes() -> None:
+    """The unmutated file of the battery above is accepted (so the battery can fail)."""
+    rep = check_strategy(parse_strategy(REAL_TEXT))
+    assert rep.n == SMALL_N and rep.unused_lines == 0
