@@ -12,6 +12,7 @@ import json
 import click
 
 from .cli_errors import fail
+from .clifmt import plural
 from .errors import InputError, ZeckenumError
 from .randomplay import MODELS
 
@@ -59,7 +60,7 @@ def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, 
     except ZeckenumError as exc:
         fail(exc)
     click.echo(f"zeckenum table: n={lo}..{hi} ({', '.join(kinds)}) -> {out}: "
-               f"{len(manifest['files'])} files + manifest.json")
+               f"{plural(len(manifest['files']), 'file')} + manifest.json")
 
 
 @click.command("verify")
@@ -83,7 +84,8 @@ def verify_command(folder, sample, seed, rules, workers, scheduler):  # noqa: AN
     except ZeckenumError as exc:
         fail(exc)
     ns = ", ".join(str(n) for n in rep["recomputed"]) or "none"
-    click.echo(f"zeckenum verify: {folder} OK: {rep['files']} checksums, {rep['rows']} rows "
+    click.echo(f"zeckenum verify: {folder} OK: {plural(rep['files'], 'checksum')}, "
+               f"{plural(rep['rows'], 'row')} "
                f"consistent, recomputed n = {ns} with disjoint primes")
 
 

@@ -820,3 +820,10 @@ def test_mutated_shipped_rule_files(tmp_path: Path, name: str, mutations: list[t
     path = tmp_path / "mut.toml"
     path.write_text(text, encoding="utf-8", errors="surrogatepass")
     read_or_one_line(path)
+
+
+def test_cli_check_plurals() -> None:
+    """Common practice (English plurals): at n = 2 the standard game has one move."""
+    res = run_check(RULESETS_DIR / "standard.toml", "--n", "2")
+    assert res.exit_code == 0, res.output
+    assert "1 move," in res.output and "1 moves" not in res.output
