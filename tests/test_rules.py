@@ -827,3 +827,51 @@ def test_cli_check_plurals() -> None:
     res = run_check(RULESETS_DIR / "standard.toml", "--n", "2")
     assert res.exit_code == 0, res.output
     assert "1 move," in res.output and "1 moves" not in res.output
+
+
+wide_ints = st.one_of(st.integers(min_value=-3, max_value=12), st.integers(1, 4),
+                      st.sampled_from([1023, 1024, 1025, 2**31, 2**62, 2**63, 10**19, 10**40]))
+bin_exprs = st.one_of(wide_ints, st.builds(lambda s, v: f"k{s}{v}", st.sampled_from("+-"),
+                                          wide_ints.filter(lambda v: v >= 0)),
+                      st.just("k"))
+move_tables = st.fixed_dictionaries(
+    {"name": st.sampled_from(["a", "b", "c", "split"]),
+     "take": st.lists(bin_exprs, min_size=1, max_size=4),
+     "give": st.lists(bin_exprs, min_size=1, max_size=4)},
+    optional={"at": wide_ints, "from": wide_ints, "to": wide_ints},
+)
+rule_docs = st.fixed_dictionaries(
+    {"name": st.just("gen"),
+     "bins": st.one_of(
+         st.just({"initial": [1, 2], "recurrence": [1, 1]}),
+         st.just({"values": [1, 2, 3, 5, 8, 13, 21]}),
+         st.just({"initial": [1, 2, 4], "recurrence": [1, 1, 1]}),
+         st.fixed_dictionaries({"values": st.lists(wide_ints, min_size=1, max_size=8)}),
+         st.fixed_dictionaries({"initial": st.lists(wide_ints, min_size=1, max_size=4),
+                                "recurrence": st.lists(wide_ints, min_size=1, max_size=4)})),
+     "move": st.lists(move_tables, min_size=1, max_size=4, unique_by=lambda m: m["name"])},
+    optional={"start": st.one_of(st.sampled_from(["ones", "greedy"]),
+                                 st.fixed_dictionaries({"vector": st.lists(wide_ints,
+                                                                           max_size=4)})),
+              "layering": st.sampled_from(["auto", "tokens", "potential", "x"])},
+)
+
+
+def rule_doc_text(doc: dict) -> str:
+    lines = [f"{k} = {toml_value(v)}" for k, v in doc.items() if k not in ("bins", "move")]
+    lines.append("[bins]")
+    lines += [f"{k} = {toml_value(v)}" for k, v in doc["bins"].items()]
+    for mv in doc["move"]:
+        lines.append("[[move]]")
+        lines += [f"{json.dumps(k)} = {toml_value(v)}" for k, v in mv.items()]
+    return "\n".join(lines) + "\n"
+
+
+@HYPO
+@given(doc=rule_docs)
+def test_generated_rule_shaped_documents(tmp_path: Path, doc: dict) -> None:
+    """Documents shaped like rule files, with numbers from every range: past the parser's
+    syntax into the bounds and the value check."""
+    path = tmp_path / "shaped.toml"
+    path.write_text(rule_doc_text(doc))
+    read_or_one_line(path)
