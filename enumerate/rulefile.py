@@ -45,7 +45,7 @@ must be UTF-8, and every number in it is bounded before anything is computed fro
     bin indices (at, from, to) and offsets (k+N, k-N)      at most MAX_BIN_INDEX
     start vector entries                                   0 .. MAX_VECTOR_ENTRY
 
-Every error is one line of at most `MAX_MESSAGE` characters (long numbers in a message are
+Every error is one line of at most `MAX_MESSAGE` (280) characters (long numbers in a message are
 shortened to their leading digits and their length).
 """
 
@@ -84,8 +84,9 @@ MAX_COEFFICIENT = 2**31
 """Largest recurrence coefficient."""
 MAX_VECTOR_ENTRY = 2**31
 """Largest count of a start vector (the start holds n times it)."""
-MAX_MESSAGE = 300
-"""Longest error message (characters) a malformed rule file produces."""
+MAX_MESSAGE = 280
+"""Longest error message (characters) a malformed file produces: with the "zeckenum: error: "
+prefix the line stays within 300 characters."""
 _LONG_NUMBER = re.compile(r"\d{25,}")
 
 

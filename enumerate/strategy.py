@@ -296,7 +296,10 @@ def read_strategy(path: str | Path) -> StrategyFile:
     `safeio.read_regular` refuses FIFOs, devices and files over MAX_FILE_BYTES without
     blocking; a gzip stream is inflated by `gunzip_capped` up to MAX_TEXT_BYTES."""
     name = short_message(str(path), 120)
-    data = read_regular(path, MAX_FILE_BYTES, "strategy file")
+    try:
+        data = read_regular(path, MAX_FILE_BYTES, "strategy file")
+    except InputError as exc:
+        raise InputError(short_message(str(exc))) from None
     if data[:2] == b"\x1f\x8b":
         data = gunzip_capped(data, MAX_TEXT_BYTES, name)
     elif len(data) > MAX_TEXT_BYTES:
@@ -406,8 +409,11 @@ def resolve_rules(sf: StrategyFile, rules: str | RuleSet | None = None) -> RuleS
     if rules is not None:
         return get_rules(rules)
     if sf.rules_text is not None:
-        return rules_from_text(sf.rules_text, sf.rules_hash,
-                               where="the rule text embedded in the strategy")
+        try:
+            return rules_from_text(sf.rules_text, sf.rules_hash,
+                                   where="the rule text embedded in the strategy")
+        except InputError as exc:  # the recorded hash may be any length: keep one short line
+            raise InputError(short_message(str(exc))) from None
     if sf.rules in BUILTIN:
         return BUILTIN[sf.rules]
     raise InputError(

@@ -700,3 +700,11 @@ def test_real_strategy_text_passes() -> None:
     """The unmutated file of the battery above is accepted (so the battery can fail)."""
     rep = check_strategy(parse_strategy(REAL_TEXT))
     assert rep.n == SMALL_N and rep.unused_lines == 0
+
+
+def test_long_path_error_is_short(tmp_path) -> None:
+    deep = tmp_path
+    for _ in range(30):
+        deep = deep / ("d" * 60)
+    res = _check(str(deep / "missing.zst"))
+    _one_line(res, 2, "cannot read")
