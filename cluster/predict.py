@@ -32,6 +32,7 @@ import math
 import textwrap
 import time
 
+from ..clifmt import plural
 from ..count import check_n, count
 from ..errors import InputError
 from ..memory import human
@@ -354,7 +355,7 @@ def _shard_rows(p: dict) -> list[tuple[str, str]]:
         memory += f" (skeleton {human(p['skeleton_bytes'])} + one block's buffers)"
     rows = [
         ("primes (incl. check prime)", str(p["primes"])),
-        ("shards", f"{p['shards']} (up to {p['primes_per_shard']} primes each)"),
+        ("shards", f"{p['shards']} (up to {plural(p['primes_per_shard'], 'prime')} each)"),
         ("word updates (exact)", updates),
         ("memory per worker", memory),
         ("first sweep (measured)", f"{p['seconds_first_sweep']:.2f} s"),

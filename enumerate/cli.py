@@ -9,6 +9,7 @@ from __future__ import annotations
 import json
 import os
 import sys
+from pathlib import Path
 
 import click
 
@@ -19,10 +20,15 @@ from .cli_random import random_command
 from .cli_rules import rules_group
 from .cli_solve import check_strategy_command, solve_command
 from .cli_view import games_command, movestats_command, plot_command, report_command
+from .clifmt import deliver_result, plural
 from .count import count
-from .errors import INTERNAL_ERROR_EXIT, MemoryRefused, ZeckenumError
+from .errors import INTERNAL_ERROR_EXIT, InputError, MemoryRefused, OutputError, ZeckenumError
 from .memory import parse_size
 from .results import CountResult
+from .safeio import check_output_file
+
+OUT_SUFFIXES = (".csv", ".json")
+"""What `count --out FILE` writes: the spectrum as CSV, or the whole result as JSON."""
 
 
 class PositiveInt(click.ParamType):
@@ -119,8 +125,10 @@ def format_count(res: CountResult) -> str:
         f"  reachable states     {res.states:,}",
         f"  transitions (moves)  {res.transitions:,}",
         f"  games                {res.games}",
-        f"  shortest game        {res.shortest} moves ({res.shortest_games} games)",
-        f"  longest game         {res.longest} moves ({res.longest_games} games)",
+        f"  shortest game        {plural(res.shortest, 'move')} "
+        f"({plural(res.shortest_games, 'game')})",
+        f"  longest game         {plural(res.longest, 'move')} "
+        f"({plural(res.longest_games, 'game')})",
         "",
         "  length  games",
     ]
@@ -129,11 +137,27 @@ def format_count(res: CountResult) -> str:
         lines.append(f"  {length:>{max(6, width)}}  {c}")
     lines += [
         "",
-        f"  exact via {len(res.primes)} prime{'s' if len(res.primes) > 1 else ''} < 2^62 "
+        f"  exact via {plural(len(res.primes), 'prime')} < 2^62 "
         f"+ 1 check prime, CRT; "
         f"{s.get('word_updates', 0):,} word updates in {s.get('seconds_total', 0):.2f} s",
     ]
     return "\n".join(lines)
+
+
+def check_out_path(out: str) -> Path:
+    """Refuse a `--out` FILE before any computation: a suffix other than .csv or .json
+    (InputError, exit 2), or a path that cannot be written (OutputError, exit 6)."""
+    path = Path(out)
+    if path.suffix.lower() not in OUT_SUFFIXES:
+        raise InputError(f"--out {out}: use a .csv or .json file name")
+    return check_output_file(path, "--out file")
+
+
+def out_text(res: CountResult, path: Path) -> str:
+    """The text `count --out` writes: CSV spectrum for .csv, the JSON object for .json."""
+    if path.suffix.lower() == ".csv":
+        return res.spectrum_csv()
+    return json.dumps(res.to_dict(), indent=2) + "\n"
 
 
 @main.command("count")
@@ -141,7 +165,8 @@ def format_count(res: CountResult) -> str:
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of a table.")
 @click.option(
     "--out", type=click.Path(dir_okay=False), default=None,
-    help="Also write the spectrum to FILE: .csv (n,length,count) or .json.",
+    help="Also write the spectrum to FILE: .csv (n,length,count) or .json (checked before "
+         "counting; if the write fails the result goes to a rescue file, exit 6).",
 )
 @click.option("--threads", type=click.IntRange(min=1), default=None,
               help="Threads for the exact sweep (default: all cores).")
@@ -173,7 +198,9 @@ def count_command(
       zeckenum count 40 --rules reversed
       zeckenum count 180 --workers 2 --checkpoint ckpt180
     """
+    lost: OutputError | None = None
     try:
+        out_path = check_out_path(out) if out else None
         if workers or scheduler or checkpoint_dir:
             from .cluster.run import run_count
 
@@ -186,14 +213,19 @@ def count_command(
                 n, rules, threads=threads, prime_offset=prime_offset, max_memory=max_memory,
                 progress=progress,
             )
-        if out:
-            res.write(out)
+        if out_path is not None:
+            try:
+                deliver_result(out_path, out_text(res, out_path), "the spectrum")
+            except OutputError as exc:  # rescued; still print the result, then exit 6
+                lost = exc
     except ZeckenumError as exc:
         fail(exc)
     if as_json:
         click.echo(json.dumps(res.to_dict()))
     else:
         click.echo(format_count(res))
+    if lost is not None:
+        fail(lost)
 
 
 main.add_command(rules_group)

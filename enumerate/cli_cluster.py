@@ -12,6 +12,7 @@ import json
 import click
 
 from .cli_errors import fail
+from .clifmt import plural
 from .errors import InputError, ZeckenumError
 from .randomplay import MODELS
 
@@ -64,7 +65,7 @@ def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, 
     except ZeckenumError as exc:
         fail(exc)
     click.echo(f"zeckenum table: n={lo}..{hi} ({', '.join(kinds)}) -> {out}: "
-               f"{len(manifest['files'])} files + manifest.json")
+               f"{plural(len(manifest['files']), 'file')} + manifest.json")
 
 
 @click.command("verify")
@@ -99,7 +100,8 @@ def verify_command(folder, sample, seed, full, workers, scheduler):  # noqa: ANN
     lo, hi = rep["n_range"]
     how = "--full" if rep["full"] else f"--seed {rep['seed']}"
     click.echo(f"zeckenum verify: {folder} OK: n = {lo}..{hi} ({', '.join(rep['kinds'])}), "
-               f"{rep['files']} checksums, {rep['rows']} rows consistent; recomputed "
+               f"{plural(rep['files'], 'checksum')}, {plural(rep['rows'], 'row')} consistent; "
+               f"recomputed "
                f"n = {ns} ({how})")
 
 

@@ -1,46 +1,83 @@
-"""The `random` command: exact, float and Monte Carlo random play, and Gaussian diagnostics."""
+"""The `random` command: exact, float and Monte Carlo random play, and Gaussian diagnostics.
+
+Exact results are printed as decimals of `clifmt.DIGITS` (12) significant digits, each the
+exact rational correctly rounded (computed in integers, never through a float); `--exact`
+adds the exact reduced fractions, which `--json` always carries.
+"""
 
 from __future__ import annotations
 
 import json
+import math
 from fractions import Fraction
 
 import click
 
 from .cli_errors import fail
+from .clifmt import DIGITS, decimal, plural
 from .errors import InputError, ZeckenumError
 from .randomplay import MODELS, frac_str
 
 CONVENTION = "a game with no move (n = 1) counts as a win for player P (the last player)"
 
 
-def _dec(x: Fraction | float | None, digits: int = 15) -> str:
-    return "-" if x is None else f"{float(x):.{digits}g}"
+def sqrt_decimal(x: Fraction, digits: int = DIGITS) -> str:
+    """sqrt(x) for a rational x >= 0 to `digits` significant digits (integer square root of
+    x scaled far enough that the truncation lies below the last printed digit)."""
+    if x <= 0:
+        return "0"
+    e = (x.numerator.bit_length() - x.denominator.bit_length()) * 30103 // 100000
+    k = digits + 4 - e // 2
+    scaled = x * Fraction(10) ** (2 * k)
+    root = math.isqrt(scaled.numerator // scaled.denominator)
+    return decimal(Fraction(root, 10**k), digits)
 
 
-def _print_exact(res, winners_only: bool) -> None:
+def _value(x: Fraction | None, exact: bool) -> str:
+    """Decimal of an exact rational, with the reduced fraction after it when `exact`."""
+    if x is None:
+        return "undefined (variance 0)"
+    return f"{decimal(x)}    {frac_str(x)}" if exact else decimal(x)
+
+
+def _print_exact(res, winners_only: bool, exact: bool = False) -> None:
     click.echo(f"random play, rules {res.rules}, n = {res.n}, model {res.model}, "
-               f"{res.players} players (exact)")
+               f"{plural(res.players, 'player')} (exact)")
     click.echo(f"convention: {CONVENTION}")
+    how = ("decimals to 12 significant digits, then the exact fraction" if exact else
+           "decimals to 12 significant digits; --exact or --json give the exact fractions")
+    click.echo(f"values: {how}")
     for i, p in res.win_probability.items():
-        click.echo(f"P(player {i} wins) = {_dec(p)}    {frac_str(p)}")
+        click.echo(f"P(player {i} wins) = {_value(p, exact)}")
     if winners_only:
         return
     m = res.moments
-    click.echo(f"mean length = {_dec(m['mean'])}    {frac_str(m['mean'])}")
-    click.echo(f"variance    = {_dec(m['variance'])}    {frac_str(m['variance'])}")
-    click.echo(f"skewness    = {_dec(m['skewness'])}")
-    if m.get("excess_kurtosis") is not None:
-        click.echo(f"excess kurtosis = {_dec(m['excess_kurtosis'])}    "
-                   f"{frac_str(m['excess_kurtosis'])}")
+    sq = m.get("skewness_sq")
+    if sq is None:
+        skew = "undefined (variance 0)"
+    else:
+        skew = ("-" if m["mu3"] < 0 else "") + sqrt_decimal(sq)
+    rows = [
+        ("mean length", _value(m["mean"], exact)),
+        ("variance", _value(m["variance"], exact)),
+        ("third central moment", _value(m["mu3"], exact)),
+        ("fourth central moment", _value(m["mu4"], exact)),
+        ("skewness", skew + ("    (irrational in general; its square is exact)"
+                             if exact and sq is not None else "")),
+        ("skewness squared", _value(sq, exact)),
+        ("excess kurtosis", _value(m.get("excess_kurtosis"), exact)),
+    ]
+    width = max(len(k) for k, _ in rows)
+    for key, val in rows:
+        click.echo(f"{key.ljust(width)} = {val}")
     click.echo("length  probability")
     for L, p in res.length_probability.items():
-        click.echo(f"{L:6d}  {_dec(p)}    {frac_str(p)}")
+        click.echo(f"{L:6d}  {_value(p, exact)}")
 
 
 def _print_float(res) -> None:
     click.echo(f"random play, rules {res.rules}, n = {res.n}, model {res.model}, "
-               f"{res.players} players (float64)")
+               f"{plural(res.players, 'player')} (float64)")
     click.echo(f"convention: {CONVENTION}")
     click.echo(f"rounding error bound: every length probability within {res.max_error:.3e}; "
                f"all together within {res.total_error:.3e}")
@@ -56,7 +93,8 @@ def _print_float(res) -> None:
 
 def _print_sim(res) -> None:
     click.echo(f"random play, rules {res.rules}, n = {res.n}, model {res.model}, "
-               f"{res.players} players (Monte Carlo, {res.games} games, seed {res.seed})")
+               f"{plural(res.players, 'player')} (Monte Carlo, {plural(res.games, 'game')}, "
+               f"seed {res.seed})")
     click.echo(f"convention: {CONVENTION}; intervals are 95% (normal approximation)")
     for i, (p, lo, hi) in res.win_probability.items():
         click.echo(f"P(player {i} wins) ~ {p:.6f}  [{lo:.6f}, {hi:.6f}]")
@@ -108,7 +146,10 @@ def _refuse_sharding(sharded: dict, mode: str) -> None:
 @click.option("--seed", type=int, default=0, show_default=True, help="Seed for --simulate.")
 @click.option("--range", "nrange", type=int, nargs=2, default=None, metavar="A B",
               help="Gaussian diagnostics table for n = A..B.")
-@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+@click.option("--json", "as_json", is_flag=True,
+              help="Print one JSON object (exact fractions as \"num/den\" strings).")
+@click.option("--exact", "show_exact", is_flag=True,
+              help="Exact mode: print the exact fractions after the 12-digit decimals.")
 @click.option("--workers", type=click.IntRange(min=1), default=None,
               help="Exact mode: run the prime blocks on a local Dask cluster of K worker "
                    "processes.")
@@ -120,12 +161,13 @@ def _refuse_sharding(sharded: dict, mode: str) -> None:
 @click.option("--progress/--no-progress", default=False,
               help="Exact mode: show a progress bar of the prime blocks on stderr.")
 def random_command(n, players, model, rules, winners_only, use_float, games, seed, nrange,
-                   as_json, workers, scheduler, checkpoint_dir, progress) -> None:
+                   as_json, show_exact, workers, scheduler, checkpoint_dir, progress) -> None:
     """Random play at N: exact probability of every length and of each player winning.
 
     \b
     Examples:
       zeckenum random 40
+      zeckenum random 40 --exact
       zeckenum random 200 --winners-only --players 3
       zeckenum random 80 --model pairs --json
       zeckenum random 250 --float
@@ -137,14 +179,16 @@ def random_command(n, players, model, rules, winners_only, use_float, games, see
                "progress": progress}
     try:
         _run(n, players, model, rules, winners_only, use_float, games, seed, nrange, as_json,
-             sharded)
+             sharded, show_exact)
     except ZeckenumError as exc:
         fail(exc)
 
 
 def _run(n, players, model, rules, winners_only, use_float, games, seed, nrange,
-         as_json, sharded: dict | None = None) -> None:
+         as_json, sharded: dict | None = None, show_exact: bool = False) -> None:
     sharded = sharded or {}
+    if show_exact and (nrange is not None or use_float or games is not None):
+        raise InputError("--exact: exact mode only, not with --range, --float or --simulate")
     if nrange is not None:
         _refuse_sharding(sharded, "--range")
         lo, hi = nrange
@@ -183,9 +227,11 @@ def _run(n, players, model, rules, winners_only, use_float, games, seed, nrange,
         from .cluster.run import run_random
 
         res = run_random(n, rules, players, model, winners_only=winners_only, **sharded)
-        click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only)
+        click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only,
+                                                                            show_exact)
     else:
         from .randomplay import random_play
 
         res = random_play(n, rules, players, model, winners_only=winners_only)
-        click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only)
+        click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only,
+                                                                            show_exact)

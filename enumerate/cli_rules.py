@@ -14,6 +14,7 @@ from pathlib import Path
 import click
 
 from .cli_errors import one_line_errors
+from .clifmt import plural
 from .rulefile import describe_template, read_rule_file
 from .rules import BUILTIN, RuleSet, get_rules
 from .validate import format_state, layering_report, terminal_positions
@@ -52,8 +53,9 @@ def layering_lines(rules: RuleSet, n: int) -> list[str]:
     rep = layering_report(rules, n)
     return [
         f"layering at n={n} (value {rep.value}): {rep.method}",
-        f"  weights {list(rep.weights)}, start level {rep.start_level}, {rep.moves} moves, "
-        f"{rep.states} ranked states, rank table {rep.table_bytes} bytes",
+        f"  weights {list(rep.weights)}, start level {rep.start_level}, "
+        f"{plural(rep.moves, 'move')}, "
+        f"{plural(rep.states, 'ranked state')}, rank table {plural(rep.table_bytes, 'byte')}",
     ]
 
 
@@ -97,8 +99,8 @@ def check_command(file: str, n: int) -> None:
     """
     rules = read_rule_file(file)
     click.echo(f"{file}: rule set {rules.name!r} ({rules.content_hash()})")
-    click.echo(f"value: every move keeps the value for every index ({len(rules.templates)} "
-               "templates)")
+    click.echo("value: every move keeps the value for every index "
+               f"({plural(len(rules.templates), 'template')})")
     for line in layering_lines(rules, n):
         click.echo(line)
     click.echo("ok")

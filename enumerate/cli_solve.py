@@ -1,8 +1,10 @@
 """Command-line front ends of optimal play: `solve` and `check-strategy` (click commands).
 
 Both print a readable table on the terminal, or one JSON object with --json.  Errors a user
-can cause come out as one line on stderr with the error's exit code (2 for bad input, 1 for
-a strategy that does not win), never as a traceback.
+can cause come out as one line on stderr with the error's exit code (2 for bad input, 5 for
+a strategy that does not win, 6 for a strategy file that could not be written), never as a
+traceback.  `solve --strategy FILE` checks FILE can be written before solving; a write that
+still fails afterwards puts the strategy in a rescue file it names (exit 6).
 """
 
 from __future__ import annotations
@@ -11,9 +13,11 @@ import json
 
 import click
 
-from .cli_errors import one_line_errors
-from .errors import InputError
+from .cli_errors import fail, one_line_errors
+from .clifmt import plural
+from .errors import InputError, OutputError
 from .rules import get_rules
+from .safeio import check_output_file
 from .solve import MAX_PLAYERS, SolveResult, solve, winning_strategy
 from .strategy import check_strategy, read_strategy, write_strategy
 
@@ -49,8 +53,9 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
     rows.append(("time", f"{res.seconds:.3f} s ({res.states_per_second:,.0f} states/s)"))
     rows.append(("bit arrays", f"{res.peak_bits_bytes:,} bytes at peak"))
     if strategy_info:
-        rows.append(("strategy", f"{strategy_info['file']}: {strategy_info['positions']:,} "
-                     f"positions, {strategy_info['bytes']:,} bytes"))
+        rows.append(("strategy", f"{strategy_info['file']}: "
+                     f"{plural(strategy_info['positions'], 'position', sep=True)}, "
+                     f"{plural(strategy_info['bytes'], 'byte', sep=True)}"))
     return _table(rows)
 
 
@@ -91,6 +96,7 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
     """
     rules = get_rules(rules_name)
     info = None
+    lost: OutputError | None = None
     chained = workers or scheduler or checkpoint_dir or shards or progress
     if strategy_path is not None:
         if players != 2:
@@ -98,8 +104,12 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
         if chained:
             raise InputError("--strategy runs in-process; it does not take --workers, "
                              "--scheduler, --checkpoint, --shards or --progress")
+        check_output_file(strategy_path, "strategy file")
         strat, res = winning_strategy(n, rules)
-        nbytes = write_strategy(strategy_path, strat, rules.bin_values(n))
+        try:
+            nbytes = write_strategy(strategy_path, strat, rules.bin_values(n), rules)
+        except OutputError as exc:  # the strategy went to a rescue file; still report
+            lost, nbytes = exc, 0
         info = {"file": strategy_path, "positions": strat.size, "bytes": nbytes}
     elif chained:
         from .cluster.solve_chain import run_solve
@@ -115,12 +125,15 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
         click.echo(json.dumps(out, indent=2))
     else:
         click.echo(solve_table(res, info))
+    if lost is not None:
+        fail(lost)
 
 
 @click.command("check-strategy")
 @click.argument("file", type=click.Path(dir_okay=False))
 @click.option("--rules", "rules_name", default=None,
-              help="Rule set name or .toml rule file (default: the name in FILE's header).")
+              help="Rule set name or .toml rule file (default: the rule file embedded in "
+                   "FILE, else the built-in rule set its header names).")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
 @one_line_errors
 def check_strategy_command(file: str, rules_name: str | None, as_json: bool) -> None:
@@ -130,8 +143,9 @@ def check_strategy_command(file: str, rules_name: str | None, as_json: bool) -> 
     Example:
       zeckenum check-strategy n80.zstrat.gz
 
-    The check rebuilds the game's bins and moves from the rule set's definition and
-    replays every game; it does not use the solver.
+    The check rebuilds the game's bins and moves from the rule set's definition (the
+    rule file embedded in FILE, checked against its recorded hash) and replays every game;
+    it does not use the solver.  Exit status 5 when the strategy does not win.
     """
     rep = check_strategy(read_strategy(file), rules_name)
     if as_json:
@@ -142,6 +156,6 @@ def check_strategy_command(file: str, rules_name: str | None, as_json: bool) -> 
         ("result", f"OK: player {rep.winner} wins at n={rep.n} by following the strategy"),
         ("winner positions", f"{rep.winner_positions:,}"),
         ("loser positions", f"{rep.loser_positions:,}"),
-        ("longest game", f"{rep.longest_game} moves"),
+        ("longest game", plural(rep.longest_game, "move")),
         ("unused lines", str(rep.unused_lines)),
     ]))

@@ -14,6 +14,7 @@ from pathlib import Path
 import click
 
 from .cli_errors import one_line_errors
+from .clifmt import plural
 from .errors import CheckFailed, InputError
 
 
@@ -69,12 +70,13 @@ def games_command(n: int, rules: str, near: int, as_json: bool) -> None:
     click.echo(format_game(long) + "\n")
     click.echo("games at the lengths near the extremes")
     for label, items in (("shortest", ext["shortest"]), ("longest", ext["longest"])):
-        click.echo(f"  {label}: " + ", ".join(f"{k} moves: {v}" for k, v in items))
+        click.echo(f"  {label}: " + ", ".join(f"{plural(k, 'move')}: {v}" for k, v in items))
     if greedy is not None:
         verdict = "equals" if greedy.length == long.length else "DIFFERS FROM"
         click.echo(
             f"\ngreedy rule (split whenever possible, else combine the smallest pair; "
-            f"\"Bounds on Zeckendorf Games\", 2020, arXiv:2009.09510): {greedy.length} moves, "
+            f"\"Bounds on Zeckendorf Games\", 2020, arXiv:2009.09510): "
+            f"{plural(greedy.length, 'move')}, "
             f"{verdict} the longest ({long.length})")
 
 

@@ -23,6 +23,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .clifmt import plural
 from .count import check_n
 from .errors import InputError
 from .rules import STANDARD, GameSpec, RuleSet, get_rules
@@ -82,7 +83,7 @@ def format_counts(counts: tuple[int, ...] | np.ndarray, values: tuple[int, ...])
 
 def format_game(game: PlayedGame) -> str:
     """A readable move list: one numbered line per move with the state after it."""
-    lines = [f"{game.kind} game, n={game.n}, {game.length} moves",
+    lines = [f"{game.kind} game, n={game.n}, {plural(game.length, 'move')}",
              f"  start  {format_counts(game.start, game.values)}"]
     width = len(str(game.length))
     for i, s in enumerate(game.steps, 1):

@@ -27,6 +27,7 @@ import shlex
 from fractions import Fraction
 from pathlib import Path
 
+from .clifmt import plural
 from .errors import InputError, OutputError
 from .plots import (
     SOURCE_LABEL,
@@ -164,7 +165,7 @@ def detail_sections(data: RunData, n: int) -> str:
         rows = [[0, "(start)", format_counts(g.start, g.values)]]
         rows += [[i, s.move, format_counts(s.after, g.values)]
                  for i, s in enumerate(g.steps, 1)]
-        parts.append(f"<h3>A {esc(g.kind)} game: {g.length} moves</h3>")
+        parts.append(f"<h3>A {esc(g.kind)} game: {plural(g.length, 'move')}</h3>")
         parts.append(html_table(["#", "move", "state after (bin value x tokens)"], rows,
                                 "game", left=3))
     if rs.content_hash() == STANDARD.content_hash():
@@ -174,8 +175,9 @@ def detail_sections(data: RunData, n: int) -> str:
         parts.append(
             f"<p>Greedy rule (split whenever possible, on the smallest bin; otherwise "
             f"combine the smallest pair), published to reach the maximum in \"Bounds on "
-            f"Zeckendorf Games\" (2020, arXiv:2009.09510): {greedy.length} moves; computed "
-            f"longest: {long.length} moves ({verdict}); the greedy move list "
+            f"Zeckendorf Games\" (2020, arXiv:2009.09510): "
+            f"{plural(greedy.length, 'move')}; computed "
+            f"longest: {plural(long.length, 'move')} ({verdict}); the greedy move list "
             f"{'is' if same else 'is not'} the one shown above.</p>")
     parts.append(f"<h2>Move statistics at n={n}</h2>")
     totals = move_totals(n, rs)
@@ -183,7 +185,8 @@ def detail_sections(data: RunData, n: int) -> str:
     rows = [[m, t, f"{Fraction(t, totals.games) if totals.games else 0}",
              dec(Fraction(t, totals.games)), dec(expected[m])]
             for m, t in zip(totals.move_names, totals.totals, strict=True)]
-    parts.append(f"<p>{totals.games} games. Occurrences of each move summed over all games, "
+    parts.append(f"<p>{plural(totals.games, 'game')}. Occurrences of each move summed "
+                 "over all games, "
                  "their mean per game, and the exact expected count in a random game "
                  "(uniform over the legal moves).</p>")
     parts.append(html_table(["move", "total over all games", "mean per game (exact)",
@@ -194,7 +197,7 @@ def detail_sections(data: RunData, n: int) -> str:
     parts.append("<h3>Linear invariants of the move counts</h3>")
     parts.append("<p>#move is the number of times a game plays that move. Each form is "
                  "derived from the moves' effect vectors (E c = end - start) and checked "
-                 f"against the exact totals over all {totals.games} games and the exact "
+                 f"against the exact totals over all {plural(totals.games, 'game')} and the exact "
                  f"expected counts under random play: "
                  f"{'all hold' if not bad else 'FAILED: ' + esc('; '.join(bad))}.</p>")
     inv_rows = [[x.name, format_form(x.coeffs, inv.move_names), x.value] for x in inv.named]

@@ -34,6 +34,19 @@ the game's value is n, or n * value(vector) for a vector start.
 `read_rule_file` checks the syntax and the value of every move (`validate.check_values`)
 and raises InputError with one line naming the file and the offending key or move.
 Termination is checked when the rule set is instantiated for an n (`validate`).
+
+A rule file is untrusted input.  It is read with `safeio.read_regular` (a regular file of at
+most `MAX_RULE_FILE_BYTES`; FIFOs, devices and directories are refused without blocking),
+must be UTF-8, and every number in it is bounded before anything is computed from it:
+
+    bin lists (values, initial, recurrence, start vector)  at most MAX_LIST entries
+    bin values and initial values                          1 .. MAX_BIN_VALUE (2^62)
+    recurrence coefficients                                0 .. MAX_COEFFICIENT
+    bin indices (at, from, to) and offsets (k+N, k-N)      at most MAX_BIN_INDEX
+    start vector entries                                   0 .. MAX_VECTOR_ENTRY
+
+Every error is one line of at most `MAX_MESSAGE` (280) characters (long numbers in a message are
+shortened to their leading digits and their length).
 """
 
 from __future__ import annotations
@@ -47,6 +60,7 @@ from typing import Any
 
 from .errors import InputError
 from .rules import MoveTemplate, RuleSet
+from .safeio import MiB, read_regular
 from .validate import check_values
 
 if sys.version_info >= (3, 11):
@@ -57,26 +71,80 @@ else:  # pragma: no cover
 TOP_KEYS = ("name", "about", "start", "layering", "bins", "move")
 BIN_KEYS = ("values", "initial", "recurrence")
 MOVE_KEYS = ("name", "at", "from", "to", "take", "give")
-NAME_RE = re.compile(r"^[A-Za-z0-9_.-]+$")
+NAME_RE = re.compile(r"^[A-Za-z0-9_.-]{1,80}$")
 BIN_RE = re.compile(r"^\s*k\s*(?:([+-])\s*(\d+))?\s*$")
 MAX_BIN_VALUE = 2**62
+MAX_RULE_FILE_BYTES = 1 * MiB
+"""Largest rule file read (the shipped ones are about 1 KB)."""
+MAX_LIST = 512
+"""Most entries in a list of bins, initial values, coefficients or start counts."""
+MAX_BIN_INDEX = 1024
+"""Largest bin index (at, from, to) and largest offset N in "k+N" / "k-N"."""
+MAX_COEFFICIENT = 2**31
+"""Largest recurrence coefficient."""
+MAX_VECTOR_ENTRY = 2**31
+"""Largest count of a start vector (the start holds n times it)."""
+MAX_MESSAGE = 280
+"""Longest error message (characters) a malformed file produces: with the "zeckenum: error: "
+prefix the line stays within 300 characters."""
+_LONG_NUMBER = re.compile(r"\d{25,}")
+
+
+def short_message(text: str, limit: int = MAX_MESSAGE) -> str:
+    """`text` on one line of at most `limit` characters: numbers of 25 digits or more become
+    their first digits and their length, then the middle of an over-long line is cut."""
+    text = _LONG_NUMBER.sub(lambda m: f"{m.group()[:8]}...({len(m.group())} digits)", text)
+    text = " ".join(text.split())
+    if len(text) > limit:
+        keep = (limit - 5) // 2
+        text = f"{text[:keep]} ... {text[-keep:]}"
+    return text
+
+
+def _where_of(path: str | Path) -> str:
+    return short_message(str(path), 120)
 
 
 def read_rule_file(path: str | Path) -> RuleSet:
-    """The validated rule set of a rule file (InputError with one line on any problem)."""
-    path = Path(path)
+    """The validated rule set of a rule file (InputError with one line on any problem).
+
+    Read with `safeio.read_regular`: a regular file (symlinks followed) of at most
+    MAX_RULE_FILE_BYTES, never a FIFO or a device, so reading cannot block or run forever.
+    """
+    where = _where_of(path)
     try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise InputError(f"cannot read rule file {str(path)!r}: {exc.strerror}") from None
-    return parse_rules(text, where=str(path))
+        data = read_regular(path, MAX_RULE_FILE_BYTES, "rule file")
+    except InputError as exc:
+        raise InputError(short_message(str(exc))) from None
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise InputError(f"{where}: not UTF-8 text (bad byte at offset {exc.start})") from None
+    return parse_rules(text, where=where)
 
 
 def parse_rules(text: str, where: str = "<rules>") -> RuleSet:
-    """The validated rule set described by the TOML `text` (`where` names it in errors)."""
+    """The validated rule set described by the TOML `text` (`where` names it in errors).
+
+    Never raises anything but InputError for any text: every message is one short line.
+    """
+    try:
+        return _parse_rules(text, where)
+    except InputError as exc:
+        raise InputError(short_message(str(exc))) from None
+    except RecursionError:
+        raise InputError(f"{where}: arrays or tables nested too deeply") from None
+
+
+def _parse_rules(text: str, where: str) -> RuleSet:
+    if len(text) > MAX_RULE_FILE_BYTES:
+        raise InputError(f"{where}: rule text of {len(text)} characters, more than the "
+                         f"{MAX_RULE_FILE_BYTES} allowed")
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"{where}: not valid TOML: {exc}") from None
+    except ValueError as exc:  # e.g. an integer literal beyond int's digit limit
         raise InputError(f"{where}: not valid TOML: {exc}") from None
     pre = f"{where}: "
     _known(doc, TOP_KEYS, pre, "the file")
@@ -124,11 +192,16 @@ def _known(table: dict, keys: tuple[str, ...], pre: str, what: str) -> None:
             )
 
 
-def _ints(x: Any, what: str, pre: str, minimum: int) -> tuple[int, ...]:
+def _ints(x: Any, what: str, pre: str, minimum: int, maximum: int) -> tuple[int, ...]:
     if not isinstance(x, list) or not x or not all(
-        isinstance(v, int) and not isinstance(v, bool) and v >= minimum for v in x
+        isinstance(v, int) and not isinstance(v, bool) for v in x
     ):
-        raise InputError(f"{pre}{what} must be a non-empty list of integers >= {minimum}")
+        raise InputError(f"{pre}{what} must be a non-empty list of integers")
+    if len(x) > MAX_LIST:
+        raise InputError(f"{pre}{what} has {len(x)} entries, more than the {MAX_LIST} allowed")
+    for i, v in enumerate(x, start=1):
+        if not minimum <= v <= maximum:
+            raise InputError(f"{pre}{what}: entry {i} is {v}, outside {minimum}..{maximum}")
     return tuple(x)
 
 
@@ -140,13 +213,13 @@ def _bins(bins: Any, pre: str) -> tuple[tuple[int, ...], tuple[int, ...]]:
     if "values" in bins:
         if "initial" in bins or "recurrence" in bins:
             raise InputError(f"{pre}[bins] takes either 'values' or 'initial' and 'recurrence'")
-        vals = _ints(bins["values"], "bins.values", pre, 1)
+        vals = _ints(bins["values"], "bins.values", pre, 1, MAX_BIN_VALUE)
         _increasing(vals, pre, "bins.values")
         return vals, ()
     if "initial" not in bins or "recurrence" not in bins:
         raise InputError(f"{pre}[bins] needs 'values', or both 'initial' and 'recurrence'")
-    initial = _ints(bins["initial"], "bins.initial", pre, 1)
-    recurrence = _ints(bins["recurrence"], "bins.recurrence", pre, 0)
+    initial = _ints(bins["initial"], "bins.initial", pre, 1, MAX_BIN_VALUE)
+    recurrence = _ints(bins["recurrence"], "bins.recurrence", pre, 0, MAX_COEFFICIENT)
     if len(recurrence) > len(initial):
         raise InputError(
             f"{pre}bins.recurrence has {len(recurrence)} coefficients but only "
@@ -172,9 +245,15 @@ def _offsets(entries: Any, key: str, label: str, k_fixed: int | None, pre: str) 
     """(offset, tokens) pairs, sorted by offset, from a take/give list."""
     if not isinstance(entries, list) or not entries:
         raise InputError(f"{pre}move {label}: '{key}' must be a non-empty list of bins")
+    if len(entries) > MAX_LIST:
+        raise InputError(f"{pre}move {label}: '{key}' lists {len(entries)} tokens, more than "
+                         f"the {MAX_LIST} allowed")
     counts: Counter[int] = Counter()
     for e in entries:
         if isinstance(e, int) and not isinstance(e, bool):
+            if not 1 <= e <= MAX_BIN_INDEX:
+                raise InputError(f"{pre}move {label}: bin {e} in '{key}' is outside "
+                                 f"1..{MAX_BIN_INDEX}")
             if k_fixed is None:
                 raise InputError(
                     f"{pre}move {label}: plain bin number {e} in '{key}' is only allowed in "
@@ -182,11 +261,14 @@ def _offsets(entries: Any, key: str, label: str, k_fixed: int | None, pre: str) 
                 )
             counts[e - k_fixed] += 1
             continue
-        m = BIN_RE.match(e) if isinstance(e, str) else None
+        m = BIN_RE.match(e) if isinstance(e, str) and len(e) <= 40 else None
         if m is None:
             raise InputError(
                 f"{pre}move {label}: bad bin {e!r} in '{key}' (use \"k\", \"k+N\" or \"k-N\")"
             )
+        if len(m.group(2) or "") > 6 or int(m.group(2) or 0) > MAX_BIN_INDEX:
+            raise InputError(f"{pre}move {label}: bin {e!r} in '{key}' is more than "
+                             f"{MAX_BIN_INDEX} bins away from k")
         off = int(m.group(2) or 0) * (-1 if m.group(1) == "-" else 1)
         counts[off] += 1
     return tuple(sorted(counts.items()))
@@ -205,8 +287,9 @@ def _move(mv: Any, i: int, nlisted: int | None, pre: str) -> MoveTemplate:
         v = mv.get(key)
         if v is None:
             return None
-        if not isinstance(v, int) or isinstance(v, bool) or v < 1:
-            raise InputError(f"{pre}move {label}: '{key}' must be a bin index >= 1")
+        if not isinstance(v, int) or isinstance(v, bool) or not 1 <= v <= MAX_BIN_INDEX:
+            raise InputError(f"{pre}move {label}: '{key}' must be a bin index from 1 to "
+                             f"{MAX_BIN_INDEX}, got {str(v)[:40]}")
         return v
 
     at, first, last = index("at"), index("from"), index("to")
@@ -243,6 +326,13 @@ def _start(start: Any, nlisted: int | None, pre: str) -> str | tuple[int, ...]:
         return start
     if isinstance(start, dict) and set(start) == {"vector"}:
         vec = start["vector"]
+        if isinstance(vec, list) and len(vec) > MAX_LIST:
+            raise InputError(f"{pre}start vector has {len(vec)} entries, more than the "
+                             f"{MAX_LIST} allowed")
+        if isinstance(vec, list) and any(
+            isinstance(v, int) and not isinstance(v, bool) and v > MAX_VECTOR_ENTRY for v in vec
+        ):
+            raise InputError(f"{pre}start vector entries must be at most {MAX_VECTOR_ENTRY}")
         if (
             isinstance(vec, list) and vec and any(vec)
             and all(isinstance(v, int) and not isinstance(v, bool) and v >= 0 for v in vec)
@@ -287,6 +377,13 @@ def _bin_text(off: int) -> str:
     return "k" if off == 0 else f"k{off:+d}"
 
 
+def _toml_str(text: str) -> str:
+    """A TOML basic string of `text`: JSON escaping, except that characters outside the
+    Basic Multilingual Plane stay literal (JSON writes them as surrogate pairs, which TOML
+    refuses) and DEL is escaped (TOML refuses it literal, JSON leaves it)."""
+    return json.dumps(text, ensure_ascii=False).replace("\x7f", "\\u007f")
+
+
 def format_rules(rules: RuleSet) -> str:
     """The canonical rule-file text of `rules`: `parse_rules(format_rules(r))` has the same
     content hash as `r` (tested for every shipped rule set and generated ones).
@@ -294,19 +391,19 @@ def format_rules(rules: RuleSet) -> str:
     Tables, checkpoints, reports and strategy files embed this text, so a result carries
     the exact game it was computed for and can be recomputed from the file alone.
     """
-    lines = [f"name = {json.dumps(rules.name)}", f"about = {json.dumps(rules.description)}"]
+    lines = [f"name = {_toml_str(rules.name)}", f"about = {_toml_str(rules.description)}"]
     if isinstance(rules.start, tuple):
         lines.append(f"start = {{ vector = [{', '.join(str(c) for c in rules.start)}] }}")
     else:
-        lines.append(f"start = {json.dumps(rules.start)}")
-    lines += [f"layering = {json.dumps(rules.level_weights)}", "", "[bins]"]
+        lines.append(f"start = {_toml_str(rules.start)}")
+    lines += [f"layering = {_toml_str(rules.level_weights)}", "", "[bins]"]
     if rules.recurrence:
         lines.append(f"initial = [{', '.join(str(v) for v in rules.initial)}]")
         lines.append(f"recurrence = [{', '.join(str(c) for c in rules.recurrence)}]")
     else:
         lines.append(f"values = [{', '.join(str(v) for v in rules.initial)}]")
     for tpl in rules.templates:
-        lines += ["", "[[move]]", f"name = {json.dumps(tpl.name)}"]
+        lines += ["", "[[move]]", f"name = {_toml_str(tpl.name)}"]
         if tpl.last is not None and tpl.last == tpl.first:
             lines.append(f"at = {tpl.first}")
         else:

@@ -4,12 +4,32 @@ Format ("zstrat/1"), UTF-8 text, optionally gzip-compressed when the name ends i
 
     # comment lines start with '#', anywhere
     zstrat/1 rules=standard rules_hash=0123456789abcdef n=80 players=2 winner=2 positions=K
+        rules_text=<base64>             (the header is one line; wrapped here)
     <counts> <move>
     ...
 
-The first non-comment line is the header: the format tag, then key=value fields.  Every
-following line is one position the winner can face when following the strategy, and the
-move to play there:
+The first non-comment line is the header: the format tag, then key=value fields separated
+by spaces (a value runs from the first '=' to the next space).  Fields:
+
+    rules       the rule set's name
+    rules_hash  its content hash (`RuleSet.content_hash`)
+    n, players, winner, positions   the game's n, 2, the winning player, the number of lines
+    rules_text  the rule file itself: standard base64 (RFC 4648, with '=' padding, no line
+                breaks) of the UTF-8 canonical rule text `rulefile.format_rules(rules)`.
+                Written since the field was introduced; files without it are still read,
+                and then `rules` must be a built-in name (or the checker is given --rules).
+
+The checker rebuilds the game from `rules_text` when present (`rulefile.rules_from_text`,
+which refuses a text whose content hash is not `rules_hash`), so a strategy of a game from a
+rule file is checked from the strategy file alone.  No field names a file: nothing named
+in a strategy file is ever opened.
+
+A strategy file is untrusted: it is read with `safeio.read_regular` (a regular file of at
+most MAX_FILE_BYTES, never a FIFO or device), a gzip stream is inflated incrementally and
+refused past MAX_TEXT_BYTES (a gzip bomb costs at most that much), and n, the number of
+lines (at most `solve.STRATEGY_MAX_STATES`, the most positions a strategy can have) and the
+rule text are bounded.  Every following line is one position the winner can face when
+following the strategy, and the move to play there:
 
     counts  token counts of bins 1, 2, 3, ... (values 1, 2, 3, 5, 8, ...), comma-separated,
             trailing empty bins omitted ("0" for the empty position)
@@ -25,15 +45,29 @@ loser can make the last move, or when play can cycle.
 
 from __future__ import annotations
 
+import base64
+import binascii
 import gzip
+import zlib
 from dataclasses import dataclass
 from pathlib import Path
 
 from .errors import CheckFailed, InputError
-from .rules import RuleSet, get_rules
-from .solve import Strategy
+from .rulefile import MAX_RULE_FILE_BYTES, format_rules, rules_from_text, short_message
+from .rules import BUILTIN, RuleSet, get_rules
+from .safeio import MiB, read_regular
+from .solve import STRATEGY_MAX_STATES, Strategy
 
 FORMAT_TAG = "zstrat/1"
+MAX_FILE_BYTES = 1024 * MiB
+"""Largest strategy file read (compressed or not)."""
+MAX_TEXT_BYTES = 1024 * MiB
+"""Largest decompressed strategy text: at most STRATEGY_MAX_STATES lines of well under
+200 bytes each.  A gzip stream inflating past it is refused."""
+MAX_POSITIONS = STRATEGY_MAX_STATES
+"""Most position lines: a strategy never lists more positions than its game has states."""
+MAX_N = 10**6
+"""Largest n in a header (strategies exist only for games of at most STRATEGY_MAX_STATES)."""
 
 HEADER_COMMENT = """\
 # zeckenum winning strategy ({tag}).
@@ -57,31 +91,50 @@ def format_counts(counts: tuple[int, ...]) -> str:
     return ",".join(str(x) for x in c) if c else "0"
 
 
-def format_strategy(strategy: Strategy, values: list[int]) -> str:
-    """The whole file text of a strategy (see the module docstring)."""
+def encode_rules_text(rules: RuleSet) -> str:
+    """The `rules_text` header value: base64 of the UTF-8 canonical rule text."""
+    return base64.b64encode(format_rules(rules).encode()).decode("ascii")
+
+
+def format_strategy(strategy: Strategy, values: list[int], rules: RuleSet | None = None) -> str:
+    """The whole file text of a strategy (see the module docstring); with `rules` (the rule
+    set it was solved for) the header embeds its canonical rule text."""
+    if rules is not None and rules.content_hash() != strategy.rules_hash:
+        raise ValueError("the rule set given is not the one the strategy was solved for")
     shown = ", ".join(str(v) for v in values[:5])
     lines = [HEADER_COMMENT.format(tag=FORMAT_TAG, values=shown).rstrip("\n")]
-    lines.append(
+    header = (
         f"{FORMAT_TAG} rules={strategy.rules} rules_hash={strategy.rules_hash} "
         f"n={strategy.n} players=2 winner={strategy.winner} positions={strategy.size}"
     )
+    if rules is not None:
+        header += f" rules_text={encode_rules_text(rules)}"
+    lines.append(header)
     for counts, move in zip(strategy.positions, strategy.moves, strict=True):
         lines.append(f"{format_counts(counts)} {move}")
     return "\n".join(lines) + "\n"
 
 
-def write_strategy(path: str | Path, strategy: Strategy, values: list[int]) -> int:
-    """Write a strategy file (gzip when the name ends in .gz); returns its size in bytes."""
-    path = Path(path)
-    data = format_strategy(strategy, values).encode()
-    if path.suffix == ".gz":
+def strategy_bytes(path: str | Path, strategy: Strategy, values: list[int],
+                   rules: RuleSet | None = None) -> bytes:
+    """The bytes of the strategy file `path` (gzip-compressed when the name ends in .gz)."""
+    data = format_strategy(strategy, values, rules).encode()
+    if Path(path).suffix == ".gz":
         data = gzip.compress(data, mtime=0)
-    tmp = path.with_name(path.name + ".tmp")
-    try:
-        tmp.write_bytes(data)
-        tmp.replace(path)
-    except OSError as exc:
-        raise InputError(f"cannot write strategy file {path}: {exc.strerror}") from None
+    return data
+
+
+def write_strategy(path: str | Path, strategy: Strategy, values: list[int],
+                   rules: RuleSet | None = None) -> int:
+    """Write a strategy file (gzip when the name ends in .gz); returns its size in bytes.
+
+    Written atomically (`safeio.write_atomic` inside `clifmt.deliver_result`); when the
+    write fails the strategy goes to a rescue file and OutputError (exit 6) names it.
+    """
+    from .clifmt import deliver_result
+
+    data = strategy_bytes(path, strategy, values, rules)
+    deliver_result(path, data, "the strategy")
     return len(data)
 
 
@@ -95,6 +148,7 @@ class StrategyFile:
     winner: int
     declared_positions: int
     table: dict[tuple[int, ...], tuple[str, int]]  # counts (no trailing zeros) -> (move, line)
+    rules_text: str | None = None  # the embedded canonical rule text, decoded
 
 
 def _strip(counts: tuple[int, ...]) -> tuple[int, ...]:
@@ -105,7 +159,16 @@ def _strip(counts: tuple[int, ...]) -> tuple[int, ...]:
 
 
 def parse_strategy(text: str, name: str = "<strategy>") -> StrategyFile:
-    """Parse strategy text; InputError (one line, with the line number) when malformed."""
+    """Parse strategy text; InputError (one short line, with the line number) when malformed.
+
+    Never raises anything else, whatever the text."""
+    try:
+        return _parse_strategy(text, short_message(name, 120))
+    except InputError as exc:
+        raise InputError(short_message(str(exc))) from None
+
+
+def _parse_strategy(text: str, name: str) -> StrategyFile:
     header: dict[str, str] | None = None
     table: dict[tuple[int, ...], tuple[str, int]] = {}
     for lineno, raw in enumerate(text.splitlines(), start=1):
@@ -120,21 +183,26 @@ def parse_strategy(text: str, name: str = "<strategy>") -> StrategyFile:
             for field in parts[1:]:
                 key, sep, val = field.partition("=")
                 if not sep:
-                    raise InputError(f"{name}:{lineno}: header field {field!r} lacks '='")
+                    raise InputError(f"{name}:{lineno}: header field {field[:40]!r} lacks '='")
+                if key in header:
+                    raise InputError(f"{name}:{lineno}: header field {key[:40]!r} given twice")
                 header[key] = val
             continue
         if len(parts) != 2:
-            raise InputError(f"{name}:{lineno}: expected '<counts> <move>', got {line!r}")
+            raise InputError(f"{name}:{lineno}: expected '<counts> <move>', got {line[:60]!r}")
+        if len(table) >= MAX_POSITIONS:
+            raise InputError(f"{name}:{lineno}: more than {MAX_POSITIONS} positions")
         try:
             counts = tuple(int(x) for x in parts[0].split(","))
         except ValueError:
-            raise InputError(f"{name}:{lineno}: bad counts {parts[0]!r}") from None
+            raise InputError(f"{name}:{lineno}: bad counts {parts[0][:60]!r}") from None
         if any(x < 0 for x in counts):
-            raise InputError(f"{name}:{lineno}: negative count in {parts[0]!r}")
+            raise InputError(f"{name}:{lineno}: negative count in {parts[0][:60]!r}")
         key = _strip(counts)
         if key in table:
             raise InputError(
-                f"{name}:{lineno}: position {parts[0]} already listed on line {table[key][1]}"
+                f"{name}:{lineno}: position {parts[0][:60]} already listed on line "
+                f"{table[key][1]}"
             )
         table[key] = (parts[1], lineno)
     if header is None:
@@ -142,19 +210,24 @@ def parse_strategy(text: str, name: str = "<strategy>") -> StrategyFile:
     for key in ("rules", "n", "winner"):
         if key not in header:
             raise InputError(f"{name}: header lacks {key}=")
-    try:
-        n = int(header["n"])
-        winner = int(header["winner"])
-        players = int(header.get("players", "2"))
-        declared = int(header.get("positions", str(len(table))))
-    except ValueError:
-        raise InputError(f"{name}: header n, winner, players, positions must be integers") from None
+    fields = {"n": header["n"], "winner": header["winner"],
+              "players": header.get("players", "2"),
+              "positions": header.get("positions", str(len(table)))}
+    if any(len(v) > 20 or not v.isascii() or not v.isdigit() for v in fields.values()):
+        raise InputError(f"{name}: header n, winner, players, positions must be whole numbers")
+    n, winner, players, declared = (int(fields[k]) for k in ("n", "winner", "players",
+                                                              "positions"))
     if players != 2:
         raise InputError(f"{name}: only two-player strategies are defined (players={players})")
     if winner not in (1, 2):
         raise InputError(f"{name}: winner must be 1 or 2, got {winner}")
-    if n < 1:
-        raise InputError(f"{name}: n must be positive, got {n}")
+    if not 1 <= n <= MAX_N:
+        raise InputError(f"{name}: n must be from 1 to {MAX_N}, got {n}")
+    rules_text = None
+    if "rules_text" in header:
+        rules_text = _decode_rules_text(header["rules_text"], name)
+        if not header.get("rules_hash"):
+            raise InputError(f"{name}: the header embeds rules_text but no rules_hash")
     return StrategyFile(
         rules=header["rules"],
         rules_hash=header.get("rules_hash", ""),
@@ -162,26 +235,80 @@ def parse_strategy(text: str, name: str = "<strategy>") -> StrategyFile:
         winner=winner,
         declared_positions=declared,
         table=table,
+        rules_text=rules_text,
     )
 
 
-def read_strategy(path: str | Path) -> StrategyFile:
-    """Read and parse a strategy file (gzip-compressed when it starts with the gzip magic)."""
-    path = Path(path)
+def _decode_rules_text(value: str, name: str) -> str:
+    """The rule text of a `rules_text` header value (base64 of UTF-8), checked for size."""
+    if len(value) > 2 * MAX_RULE_FILE_BYTES:
+        raise InputError(f"{name}: the embedded rule text is longer than "
+                         f"{MAX_RULE_FILE_BYTES} bytes")
     try:
-        data = path.read_bytes()
-    except OSError as exc:
-        raise InputError(f"cannot read strategy file {path}: {exc.strerror}") from None
-    if data[:2] == b"\x1f\x8b":
+        raw = base64.b64decode(value, validate=True)
+    except (binascii.Error, ValueError):
+        raise InputError(f"{name}: header rules_text is not valid base64") from None
+    if len(raw) > MAX_RULE_FILE_BYTES:
+        raise InputError(f"{name}: the embedded rule text is longer than "
+                         f"{MAX_RULE_FILE_BYTES} bytes")
+    try:
+        return raw.decode("utf-8")
+    except UnicodeDecodeError:
+        raise InputError(f"{name}: the embedded rule text is not UTF-8") from None
+
+
+def gunzip_capped(data: bytes, cap: int, name: str = "<strategy>") -> bytes:
+    """Inflate gzip `data` (one or more members) incrementally, refusing (InputError) a
+    stream that is corrupt, truncated, or inflates to more than `cap` bytes: at most
+    cap + 1 MiB is ever held, whatever the compression ratio."""
+    out: list[bytes] = []
+    total = 0
+    rest = data
+    while rest:
+        if rest[:2] != b"\x1f\x8b":
+            if not rest.strip(b"\x00"):
+                break  # zero padding after the last member
+            raise InputError(f"{name}: trailing bytes after the gzip data")
+        inflater = zlib.decompressobj(16 + zlib.MAX_WBITS)
+        buf = rest
         try:
-            data = gzip.decompress(data)
-        except (OSError, EOFError):
-            raise InputError(f"{path}: corrupt gzip data") from None
+            while True:
+                piece = inflater.decompress(buf, min(MiB, cap + 1 - total))
+                total += len(piece)
+                if total > cap:
+                    raise InputError(f"{name}: the gzip data inflates to more than {cap} bytes")
+                out.append(piece)
+                buf = inflater.unconsumed_tail
+                if inflater.eof or (not buf and not piece):
+                    break
+        except zlib.error as exc:
+            raise InputError(f"{name}: corrupt gzip data ({short_message(str(exc), 80)})") \
+                from None
+        if not inflater.eof:
+            raise InputError(f"{name}: truncated gzip data")
+        rest = inflater.unused_data
+    return b"".join(out)
+
+
+def read_strategy(path: str | Path) -> StrategyFile:
+    """Read and parse a strategy file (gzip-compressed when it starts with the gzip magic).
+
+    `safeio.read_regular` refuses FIFOs, devices and files over MAX_FILE_BYTES without
+    blocking; a gzip stream is inflated by `gunzip_capped` up to MAX_TEXT_BYTES."""
+    name = short_message(str(path), 120)
+    try:
+        data = read_regular(path, MAX_FILE_BYTES, "strategy file")
+    except InputError as exc:
+        raise InputError(short_message(str(exc))) from None
+    if data[:2] == b"\x1f\x8b":
+        data = gunzip_capped(data, MAX_TEXT_BYTES, name)
+    elif len(data) > MAX_TEXT_BYTES:
+        raise InputError(f"{name}: more than {MAX_TEXT_BYTES} bytes of text")
     try:
         text = data.decode()
-    except UnicodeDecodeError:
-        raise InputError(f"{path}: not UTF-8 text") from None
-    return parse_strategy(text, str(path))
+    except UnicodeDecodeError as exc:
+        raise InputError(f"{name}: not UTF-8 text (bad byte at offset {exc.start})") from None
+    return parse_strategy(text, name)
 
 
 def _vector_len(start: object) -> int:
@@ -277,6 +404,24 @@ class ReferenceGame:
         return out
 
 
+def resolve_rules(sf: StrategyFile, rules: str | RuleSet | None = None) -> RuleSet:
+    """The rule set to check `sf` against (see `check_strategy`)."""
+    if rules is not None:
+        return get_rules(rules)
+    if sf.rules_text is not None:
+        try:
+            return rules_from_text(sf.rules_text, sf.rules_hash,
+                                   where="the rule text embedded in the strategy")
+        except InputError as exc:  # the recorded hash may be any length: keep one short line
+            raise InputError(short_message(str(exc))) from None
+    if sf.rules in BUILTIN:
+        return BUILTIN[sf.rules]
+    raise InputError(
+        f"the strategy is for rule set {short_message(sf.rules, 60)!r}, which is not built in, "
+        "and embeds no rule text; give the rule file with --rules FILE"
+    )
+
+
 @dataclass(frozen=True)
 class CheckReport:
     """What the checker replayed: winner positions visited, loser positions answered,
@@ -293,13 +438,16 @@ class CheckReport:
 def check_strategy(sf: StrategyFile, rules: str | RuleSet | None = None) -> CheckReport:
     """Replay every answer of the loser; StrategyRejected unless the winner always moves last.
 
-    `rules` (a name, a .toml rule file or a RuleSet) overrides the header's rule set name,
-    for strategies of games defined in a rule file; its rules_hash must still match.
+    The game: `rules` when given (a name, a .toml rule file the user names, or a RuleSet),
+    else the rule text embedded in the file (refused unless its content hash is the
+    recorded rules_hash), else the header's rule set name, which must be built in: a name
+    read from the file is never opened as a path.  The rules_hash must match in every case.
     """
-    rules = get_rules(sf.rules if rules is None else rules)
+    rules = resolve_rules(sf, rules)
     if sf.rules_hash and sf.rules_hash != rules.content_hash():
         raise InputError(
-            f"the strategy is for rules {sf.rules!r} with rules_hash {sf.rules_hash}, but rule "
+            f"the strategy is for rules {short_message(sf.rules, 60)!r} with rules_hash "
+            f"{short_message(sf.rules_hash, 40)}, but rule "
             f"set {rules.name!r} has rules_hash {rules.content_hash()}"
         )
     game = ReferenceGame(rules, sf.n)

@@ -6,7 +6,10 @@ Expected numbers come from the independent brute force in tests/bruteforce.py.
 from __future__ import annotations
 
 import csv
+import errno
 import json
+import os
+import re
 import shutil
 import subprocess
 from importlib.metadata import version
@@ -176,3 +179,131 @@ def test_click_memory_refused() -> None:
     code, out, err = run_click("count", "30", "--max-memory", "1K")
     assert_one_line_error(code, out, err, 3)
     assert "estimate" in err.lower()
+
+
+# ------------------------------------------- output files that cannot be written (issue 11)
+
+
+def _never_count(*args, **kwargs):  # noqa: ANN002, ANN003
+    raise AssertionError("the count ran although its output path was refused")
+
+
+def test_out_missing_folder_refused_before_counting(tmp_path: Path, monkeypatch) -> None:
+    import zeckenum.cli as cli
+
+    monkeypatch.setattr(cli, "count", _never_count)
+    code, out, err = run_click("count", "10", "--out", str(tmp_path / "no" / "dir" / "x.csv"))
+    assert_one_line_error(code, out, err, 6)
+    assert "does not exist" in err
+
+
+def test_out_is_a_directory_refused_before_counting(tmp_path: Path, monkeypatch) -> None:
+    import zeckenum.cli as cli
+
+    monkeypatch.setattr(cli, "count", _never_count)
+    (tmp_path / "d.csv").mkdir()
+    code, out, err = run_click("count", "10", "--out", str(tmp_path / "d.csv"))
+    assert_one_line_error(code, out, err, 2)  # click's own check of the path: a usage error
+    assert "directory" in err
+
+
+def test_out_bad_suffix_refused_before_counting(tmp_path: Path, monkeypatch) -> None:
+    import zeckenum.cli as cli
+
+    monkeypatch.setattr(cli, "count", _never_count)
+    assert_one_line_error(*run_click("count", "5", "--out", str(tmp_path / "x.txt")), 2)
+
+
+@pytest.mark.skipif(os.geteuid() == 0, reason="root writes into read-only folders")
+def test_out_read_only_folder_refused_before_counting(tmp_path: Path, monkeypatch) -> None:
+    import zeckenum.cli as cli
+
+    monkeypatch.setattr(cli, "count", _never_count)
+    folder = tmp_path / "ro"
+    folder.mkdir()
+    folder.chmod(0o500)
+    try:
+        code, out, err = run_click("count", "10", "--out", str(folder / "x.csv"))
+    finally:
+        folder.chmod(0o700)
+    assert_one_line_error(code, out, err, 6)
+
+
+def _fail_writes_in(folder: Path, monkeypatch) -> None:
+    """Every fsync of a file inside `folder` fails with ENOSPC (a disk that filled up after
+    the output path was checked); files elsewhere are written normally."""
+    real = os.fsync
+
+    def fsync(fd: int) -> None:
+        try:
+            where = os.readlink(f"/proc/self/fd/{fd}")
+        except OSError:
+            where = ""
+        if where.startswith(str(folder)) and not os.path.isdir(where):
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+        real(fd)
+
+    monkeypatch.setattr(os, "fsync", fsync)
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc/self/fd"), reason="needs /proc/self/fd")
+@pytest.mark.parametrize("suffix", [".csv", ".json"])
+def test_failed_write_after_count_rescues_result(tmp_path: Path, monkeypatch,
+                                                 suffix: str) -> None:
+    """Source: tests/bruteforce.py for the rescued spectrum.  Exit 6, one error line naming
+    the rescue file, the result intact there, no temporary file left beside the target."""
+    folder = tmp_path / "out"
+    folder.mkdir()
+    _fail_writes_in(folder, monkeypatch)
+    target = folder / f"x{suffix}"
+    code, out, err = run_click("count", str(N), "--out", str(target))
+    assert_one_line_error(code, out, err, 6)
+    assert str(census(N)["games"]) in out  # the table is still printed
+    assert list(folder.iterdir()) == []  # neither the file nor a .tmp
+    rescued = Path(re.search(r"written to (\S+) instead", err).group(1))
+    try:
+        if suffix == ".csv":
+            rows = list(csv.DictReader(rescued.open(newline="")))
+            got = {int(r["length"]): int(r["count"]) for r in rows}
+            assert got == census(N)["length_counts"]
+        else:
+            check_json(json.loads(rescued.read_text()), N)
+    finally:
+        rescued.unlink()
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc/self/fd"), reason="needs /proc/self/fd")
+def test_failed_strategy_write_rescues_strategy(tmp_path: Path, monkeypatch) -> None:
+    """solve --strategy: the same rescue, and the rescued file passes check-strategy."""
+    from zeckenum.cli_solve import check_strategy_command, solve_command
+
+    folder = tmp_path / "out"
+    folder.mkdir()
+    _fail_writes_in(folder, monkeypatch)
+    res = CliRunner().invoke(solve_command, ["12", "--strategy", str(folder / "s.zst")])
+    assert res.exit_code == 6, res.output
+    assert list(folder.iterdir()) == []
+    rescued = Path(re.search(r"written to (\S+) instead", res.output).group(1))
+    try:
+        check = CliRunner().invoke(check_strategy_command, [str(rescued)])
+        assert check.exit_code == 0, check.output
+    finally:
+        rescued.unlink()
+
+
+def test_strategy_path_refused_before_solving(tmp_path: Path, monkeypatch) -> None:
+    import zeckenum.cli_solve as cli_solve
+
+    monkeypatch.setattr(cli_solve, "winning_strategy", _never_count)
+    res = CliRunner().invoke(cli_solve.solve_command,
+                             ["12", "--strategy", str(tmp_path / "none" / "s.zst")])
+    assert res.exit_code == 6, res.output
+    assert res.output.startswith("zeckenum: error: ") and "does not exist" in res.output
+
+
+def test_count_table_plurals() -> None:
+    """n = 2: one game of one move (common practice: English plurals)."""
+    code, out, err = run_click("count", "2")
+    assert code == 0, err
+    assert "1 move (1 game)" in out, out
+    assert "1 moves" not in out and "1 games" not in out

@@ -330,3 +330,136 @@ def test_json_of_moments_with_thousands_of_digits() -> None:
     m4 = sum((k - mean) ** 4 * p for k, p in law.items())
     assert Fraction(d["central_moment_4"]) == m4
     assert len(d["central_moment_4"]) > 4300
+
+
+# --------------------------------------------- readable output of exact play (issue 11, D)
+
+DIGITS = 12
+PRINTED = {  # label on the terminal -> key of the exact value in --json
+    "mean length": "mean_length",
+    "variance": "variance",
+    "third central moment": "central_moment_3",
+    "fourth central moment": "central_moment_4",
+    "skewness squared": "skewness_squared",
+    "excess kurtosis": "excess_kurtosis",
+}
+
+
+def _exp10(x: Fraction) -> int:
+    """floor(log10(|x|)) by exact comparison (x != 0)."""
+    x = abs(x)
+    e = 0
+    while Fraction(10) ** e > x:
+        e -= 1
+    while Fraction(10) ** (e + 1) <= x:
+        e += 1
+    return e
+
+
+def _assert_rounded(printed: str, exact: Fraction, what: str) -> None:
+    """Source: fractions (exact comparison).  `printed` has at most DIGITS significant
+    digits and lies within half a unit of its last digit of `exact`."""
+    mant = printed.lstrip("-").split("e")[0].replace(".", "").lstrip("0")
+    assert len(mant) <= DIGITS, (what, printed)
+    got = Fraction(printed)
+    if exact == 0:
+        assert got == 0, (what, printed)
+        return
+    half_unit = Fraction(1, 2) * Fraction(10) ** (_exp10(exact) - DIGITS + 1)
+    assert abs(got - exact) <= half_unit, (what, printed, float(exact))
+
+
+@pytest.fixture(scope="module")
+def pairs40() -> tuple[str, dict]:
+    runner = CliRunner()
+    text = runner.invoke(random_command, ["40", "--model", "pairs"])
+    assert text.exit_code == 0, text.output
+    js = runner.invoke(random_command, ["40", "--model", "pairs", "--json"])
+    assert js.exit_code == 0, js.output
+    return text.output, json.loads(js.output)
+
+
+def test_terminal_lines_are_short(pairs40: tuple[str, dict]) -> None:
+    out, d = pairs40
+    assert max(len(line) for line in out.splitlines()) <= 200
+    assert len(out) < 10_000
+    assert max(len(v) for v in d["length_probability"].values()) > 1000  # exact is huge
+
+
+def test_printed_decimals_agree_with_exact_fractions(pairs40: tuple[str, dict]) -> None:
+    out, d = pairs40
+    lines = out.splitlines()
+    values = {}
+    for line in lines:
+        key, sep, val = line.partition(" = ")
+        if sep:
+            values[key.strip()] = val.split()[0]
+    for label, key in PRINTED.items():
+        assert label in values, (label, out)
+        _assert_rounded(values[label], Fraction(d[key]), label)
+    for i in (1, 2):
+        _assert_rounded(values[f"P(player {i} wins)"], Fraction(d["win_probability"][str(i)]),
+                        f"player {i}")
+    start = lines.index("length  probability")
+    table = {int(a): b for a, b in (ln.split() for ln in lines[start + 1:] if ln.strip())}
+    assert set(table) == {int(k) for k in d["length_probability"]}
+    for length, printed in table.items():
+        _assert_rounded(printed, Fraction(d["length_probability"][str(length)]), str(length))
+
+
+def test_printed_skewness_is_the_root_of_the_exact_square(pairs40: tuple[str, dict]) -> None:
+    """Source: the decimal module's square root at 60 digits of the exact skewness^2."""
+    import decimal
+
+    out, d = pairs40
+    line = next(ln for ln in out.splitlines() if ln.startswith("skewness "))
+    printed = line.split(" = ")[1].split()[0]
+    sq = Fraction(d["skewness_squared"])
+    with decimal.localcontext() as ctx:
+        ctx.prec = 60
+        root = (decimal.Decimal(sq.numerator) / decimal.Decimal(sq.denominator)).sqrt()
+    exact = Fraction(root) * (1 if Fraction(d["central_moment_3"]) >= 0 else -1)
+    got = Fraction(printed)
+    assert abs(got - exact) <= Fraction(10) ** (_exp10(exact) - DIGITS + 1)
+
+
+def test_exact_option_prints_the_fractions() -> None:
+    """Source: tests/fraction_bruteforce.py (every game walked with fractions)."""
+    res = CliRunner().invoke(random_command, ["9", "--exact"])
+    assert res.exit_code == 0, res.output
+    ref = length_law(9, "moves")
+    lines = res.output.splitlines()
+    start = lines.index("length  probability")
+    got = {int(ln.split()[0]): Fraction(ln.split()[2]) for ln in lines[start + 1:] if ln}
+    assert got == ref
+    plain = CliRunner().invoke(random_command, ["9"])
+    assert "/" not in plain.output.split("length  probability")[1]
+    bad = CliRunner().invoke(random_command, ["9", "--exact", "--float"])
+    assert bad.exit_code == 2
+
+
+def test_tiny_probabilities_do_not_underflow() -> None:
+    """Source: fractions.  A probability below 1e-308 (no float holds it) is still printed
+    to 12 significant digits."""
+    from zeckenum.clifmt import decimal
+
+    x = Fraction(2, 3) * Fraction(1, 10**400)
+    _assert_rounded(decimal(x), x, "tiny")
+    y = Fraction(10**500 + 1, 7)
+    _assert_rounded(decimal(y), y, "huge")
+    assert decimal(Fraction(999_999_999_999_6, 10**13)) == "1"  # rounding carries
+
+
+def test_plural_forms() -> None:
+    """Common practice: '1 game', '1 move', '1 position' in human output."""
+    from zeckenum.cli_solve import check_strategy_command, solve_command
+
+    sim = CliRunner().invoke(random_command, ["5", "--simulate", "1"])
+    assert sim.exit_code == 0 and "1 game," in sim.output and "1 games" not in sim.output
+    with CliRunner().isolated_filesystem():
+        solved = CliRunner().invoke(solve_command, ["2", "--strategy", "s.zst"])
+        assert solved.exit_code == 0, solved.output
+        assert "1 position," in solved.output, solved.output
+        checked = CliRunner().invoke(check_strategy_command, ["s.zst"])
+        assert checked.exit_code == 0, checked.output
+        assert "1 move" in checked.output and "1 moves" not in checked.output

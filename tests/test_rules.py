@@ -8,7 +8,12 @@ higher order", Fibonacci Quarterly, 1972, from memory), scipy/fractions as named
 
 from __future__ import annotations
 
+import json
 import math
+import os
+import re
+import shutil
+import subprocess
 import textwrap
 from fractions import Fraction
 from functools import cache
@@ -578,3 +583,295 @@ def test_canonical_rule_text_round_trips(name: str) -> None:
                          for line in text.splitlines())
     with pytest.raises(InputError, match="altered"):
         rules_from_text(altered, rs.content_hash())
+
+
+# ------------------------------------------------- hostile rule files (issue 11, part A)
+
+MAX_ERROR_LINE = 300
+"""Longest error line we accept for any malformed file (common practice: one short line)."""
+
+
+def assert_short_error(result, pattern: str | None = None) -> None:
+    """Exit 2, exactly one error line, at most MAX_ERROR_LINE characters, no traceback."""
+    assert result.exit_code == 2, result.output
+    assert isinstance(result.exception, SystemExit), result.exception
+    errors = [ln for ln in result.output.splitlines() if ln.startswith("zeckenum: error:")]
+    assert len(errors) == 1, result.output[:2000]
+    assert len(errors[0]) <= MAX_ERROR_LINE, (len(errors[0]), errors[0][:400])
+    if pattern is not None:
+        assert pattern in errors[0], errors[0]
+
+
+def shipped_text() -> str:
+    return (RULESETS_DIR / "standard.toml").read_text()
+
+
+def test_rule_file_not_utf8(tmp_path: Path) -> None:
+    path = tmp_path / "bad.toml"
+    path.write_bytes(shipped_text().encode() + b"\n# \xff\xfe\xc3\x28\n")
+    assert_short_error(run_check(path), "UTF-8")
+
+
+def test_rule_file_deep_nesting(tmp_path: Path) -> None:
+    """tomllib recurses once per nesting level; 100k levels overflow the Python stack."""
+    path = tmp_path / "deep.toml"
+    path.write_text("x = " + "[" * 100_000 + "]" * 100_000 + "\n")
+    assert_short_error(run_check(path), "nest")
+
+
+@pytest.mark.parametrize("edit, pattern", [
+    (("at = 1\ntake", "at = 100000\ntake"), "'at'"),
+    (("from = 2", "from = 1e20"), "'from'"),
+    (("from = 2", "from = 2\nto = 99999999999999999"), "'to'"),
+    (('give = ["k+1"]', 'give = ["k+99999999999999999999"]'), "k+99999999999999999999"),
+    (('give = ["k+1"]', 'give = ["k+' + "9" * 5000 + '"]'), "bin"),
+    (("start = \"ones\"", "start = { vector = [1" + "0" * 40 + "] }"), "vector"),
+    (("start = \"ones\"", "start = { vector = [1" + "0" * 5000 + "] }"), None),
+    (("initial = [1, 2]", "initial = [1, 1" + "0" * 40 + "]"), "bins.initial"),
+    (("recurrence = [1, 1]", "recurrence = [1, 1" + "0" * 40 + "]"), "bins.recurrence"),
+])
+def test_rule_file_numbers_out_of_range(tmp_path: Path, edit: tuple[str, str],
+                                        pattern: str | None) -> None:
+    """Every number in a rule file is bounded: one short line, never a hang or a traceback."""
+    old, new = edit
+    text = shipped_text()
+    assert old in text
+    path = tmp_path / "big.toml"
+    path.write_text(text.replace(old, new, 1))
+    assert_short_error(run_check(path), pattern)
+
+
+def test_rule_file_at_large_index_short_message(tmp_path: Path) -> None:
+    """A one-off move far past the bins used to print both Fibonacci numbers in full."""
+    path = tmp_path / "far.toml"
+    path.write_text(shipped_text().replace("at = 1\ntake", "at = 900\ntake", 1))
+    assert_short_error(run_check(path))
+
+
+def _run_script_check(path: Path) -> subprocess.CompletedProcess:
+    exe = shutil.which("zeckenum")
+    assert exe is not None
+    return subprocess.run([exe, "rules", "check", str(path)], capture_output=True, text=True,
+                          timeout=120, check=False)
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="needs FIFOs")
+def test_rule_file_fifo_does_not_block(tmp_path: Path) -> None:
+    path = tmp_path / "pipe.toml"
+    os.mkfifo(path)
+    res = _run_script_check(path)  # a blocking open would hit the timeout
+    assert res.returncode == 2, res.stderr
+    lines = res.stderr.strip().splitlines()
+    assert len(lines) == 1 and "not a regular file" in lines[0], res.stderr
+
+
+@pytest.mark.skipif(not Path("/dev/zero").exists(), reason="needs /dev/zero")
+def test_rule_file_symlink_to_dev_zero(tmp_path: Path) -> None:
+    path = tmp_path / "zero.toml"
+    path.symlink_to("/dev/zero")
+    res = _run_script_check(path)
+    assert res.returncode == 2, res.stderr
+    lines = res.stderr.strip().splitlines()
+    assert len(lines) == 1 and "not a regular file" in lines[0], res.stderr
+
+
+def test_rule_file_too_large(tmp_path: Path) -> None:
+    path = tmp_path / "huge.toml"
+    path.write_text(shipped_text() + ("# padding\n" * 200_000))
+    assert_short_error(run_check(path), "bytes")
+
+
+def test_rules_option_of_count_reads_file_safely(tmp_path: Path) -> None:
+    """`--rules FILE` of a computing command goes through the same reader."""
+    from zeckenum.cli import main
+
+    path = tmp_path / "bad.toml"
+    path.write_bytes(b"name = \"x\xff\"\n")
+    res = CliRunner().invoke(main, ["count", "5", "--rules", str(path)])
+    assert_short_error(res, "UTF-8")
+
+
+# ------------------------------ generated hostile rule files (hypothesis, issue 11, part E)
+# Property (common practice for parsers of untrusted input): reading any text or bytes
+# either gives a rule set or raises a ZeckenumError with one line of at most
+# MAX_ERROR_LINE characters; never another exception, never a hang.  A rule set read
+# successfully also survives the canonical text round trip (`format_rules`).
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+from zeckenum.errors import ZeckenumError  # noqa: E402
+from zeckenum.rulefile import format_rules, rules_from_text  # noqa: E402
+
+HYPO = settings(max_examples=150, deadline=None,
+                suppress_health_check=[HealthCheck.function_scoped_fixture,
+                                       HealthCheck.too_slow])
+
+KEYS = ["name", "about", "start", "layering", "bins", "move", "values", "initial",
+        "recurrence", "at", "from", "to", "take", "give", "vector"]
+
+scalars = st.one_of(
+    st.integers(min_value=-(10**30), max_value=10**30),
+    st.integers(min_value=-3, max_value=40),
+    st.floats(allow_nan=False, allow_infinity=False),
+    st.booleans(),
+    st.sampled_from(["k", "k+1", "k-1", "k-2", "k+99999999999", "ones", "greedy", "tokens",
+                     "auto", "potential", "combine", ""]),
+    st.text(max_size=12),
+)
+toml_values = st.recursive(
+    scalars,
+    lambda inner: st.one_of(
+        st.lists(inner, max_size=5),
+        st.dictionaries(st.sampled_from(KEYS), inner, max_size=5),
+    ),
+    max_leaves=25,
+)
+
+
+def toml_value(v) -> str:
+    """A minimal TOML writer for the generated values (inline arrays and tables)."""
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, int):
+        return str(v)
+    if isinstance(v, float):
+        return repr(v)
+    if isinstance(v, str):
+        return json.dumps(v)
+    if isinstance(v, list):
+        return "[" + ", ".join(toml_value(x) for x in v) + "]"
+    return "{" + ", ".join(f"{json.dumps(k)} = {toml_value(x)}" for k, x in v.items()) + "}"
+
+
+toml_docs = st.dictionaries(st.sampled_from(KEYS), toml_values, max_size=7).map(
+    lambda d: "\n".join(f"{json.dumps(k)} = {toml_value(v)}" for k, v in d.items()) + "\n"
+)
+
+
+def read_or_one_line(path: Path) -> None:
+    try:
+        rules = read_rule_file(path)
+    except ZeckenumError as exc:
+        msg = str(exc)
+        assert "\n" not in msg and 0 < len(msg) <= MAX_ERROR_LINE, msg[:400]
+        return
+    again = rules_from_text(format_rules(rules), rules.content_hash())
+    assert again.content_hash() == rules.content_hash()
+
+
+@HYPO
+@given(text=toml_docs)
+def test_generated_toml_structures(tmp_path: Path, text: str) -> None:
+    path = tmp_path / "gen.toml"
+    path.write_text(text, encoding="utf-8", errors="surrogatepass")
+    read_or_one_line(path)
+
+
+@HYPO
+@given(data=st.binary(max_size=2000))
+def test_generated_random_bytes(tmp_path: Path, data: bytes) -> None:
+    path = tmp_path / "bytes.toml"
+    path.write_bytes(data)
+    read_or_one_line(path)
+
+
+mutation = st.tuples(
+    st.sampled_from(["delete", "insert", "number", "duplicate", "swap"]),
+    st.integers(min_value=0, max_value=10**6),
+    st.integers(min_value=0, max_value=60),
+    st.one_of(st.integers(min_value=-(10**25), max_value=10**25),
+              st.sampled_from([0, 1, 2, 3, 1023, 1024, 1025, 2**62, 2**63, 10**40])),
+    st.text(max_size=20),
+)
+
+
+def mutate(text: str, mutations: list[tuple]) -> str:
+    """Apply edits to a shipped rule file: cut or insert text, replace a number, duplicate
+    or swap lines."""
+    for kind, pos, width, number, extra in mutations:
+        if not text:
+            break
+        i = pos % len(text)
+        if kind == "delete":
+            text = text[:i] + text[i + width:]
+        elif kind == "insert":
+            text = text[:i] + extra + text[i:]
+        elif kind == "number":
+            spans = [m.span() for m in re.finditer(r"\d+", text)]
+            if spans:
+                a, b = spans[pos % len(spans)]
+                text = text[:a] + str(number) + text[b:]
+        else:
+            lines = text.split("\n")
+            j, k = pos % len(lines), (pos + width) % len(lines)
+            if kind == "duplicate":
+                lines.insert(j, lines[k])
+            else:
+                lines[j], lines[k] = lines[k], lines[j]
+            text = "\n".join(lines)
+    return text
+
+
+@HYPO
+@given(name=st.sampled_from(sorted(p.stem for p in RULESETS_DIR.glob("*.toml"))),
+       mutations=st.lists(mutation, min_size=1, max_size=4))
+def test_mutated_shipped_rule_files(tmp_path: Path, name: str, mutations: list[tuple]) -> None:
+    text = mutate((RULESETS_DIR / f"{name}.toml").read_text(), mutations)
+    path = tmp_path / "mut.toml"
+    path.write_text(text, encoding="utf-8", errors="surrogatepass")
+    read_or_one_line(path)
+
+
+def test_cli_check_plurals() -> None:
+    """Common practice (English plurals): at n = 2 the standard game has one move."""
+    res = run_check(RULESETS_DIR / "standard.toml", "--n", "2")
+    assert res.exit_code == 0, res.output
+    assert "1 move," in res.output and "1 moves" not in res.output
+
+
+wide_ints = st.one_of(st.integers(min_value=-3, max_value=12), st.integers(1, 4),
+                      st.sampled_from([1023, 1024, 1025, 2**31, 2**62, 2**63, 10**19, 10**40]))
+bin_exprs = st.one_of(wide_ints, st.builds(lambda s, v: f"k{s}{v}", st.sampled_from("+-"),
+                                          wide_ints.filter(lambda v: v >= 0)),
+                      st.just("k"))
+move_tables = st.fixed_dictionaries(
+    {"name": st.sampled_from(["a", "b", "c", "split"]),
+     "take": st.lists(bin_exprs, min_size=1, max_size=4),
+     "give": st.lists(bin_exprs, min_size=1, max_size=4)},
+    optional={"at": wide_ints, "from": wide_ints, "to": wide_ints},
+)
+rule_docs = st.fixed_dictionaries(
+    {"name": st.just("gen"),
+     "bins": st.one_of(
+         st.just({"initial": [1, 2], "recurrence": [1, 1]}),
+         st.just({"values": [1, 2, 3, 5, 8, 13, 21]}),
+         st.just({"initial": [1, 2, 4], "recurrence": [1, 1, 1]}),
+         st.fixed_dictionaries({"values": st.lists(wide_ints, min_size=1, max_size=8)}),
+         st.fixed_dictionaries({"initial": st.lists(wide_ints, min_size=1, max_size=4),
+                                "recurrence": st.lists(wide_ints, min_size=1, max_size=4)})),
+     "move": st.lists(move_tables, min_size=1, max_size=4, unique_by=lambda m: m["name"])},
+    optional={"start": st.one_of(st.sampled_from(["ones", "greedy"]),
+                                 st.fixed_dictionaries({"vector": st.lists(wide_ints,
+                                                                           max_size=4)})),
+              "layering": st.sampled_from(["auto", "tokens", "potential", "x"])},
+)
+
+
+def rule_doc_text(doc: dict) -> str:
+    lines = [f"{k} = {toml_value(v)}" for k, v in doc.items() if k not in ("bins", "move")]
+    lines.append("[bins]")
+    lines += [f"{k} = {toml_value(v)}" for k, v in doc["bins"].items()]
+    for mv in doc["move"]:
+        lines.append("[[move]]")
+        lines += [f"{json.dumps(k)} = {toml_value(v)}" for k, v in mv.items()]
+    return "\n".join(lines) + "\n"
+
+
+@HYPO
+@given(doc=rule_docs)
+def test_generated_rule_shaped_documents(tmp_path: Path, doc: dict) -> None:
+    """Documents shaped like rule files, with numbers from every range: past the parser's
+    syntax into the bounds and the value check."""
+    path = tmp_path / "shaped.toml"
+    path.write_text(rule_doc_text(doc))
+    read_or_one_line(path)
