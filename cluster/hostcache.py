@@ -32,7 +32,8 @@ Nothing read back is trusted (the folder outlives the process that wrote it):
   folder into place.  A reader checks the seal, then maps each array file and hashes the
   very mapping the kernels will read (copy-on-write: pages stay shared).  Any mismatch,
   unparsable file or wrong dtype/shape: the folder is discarded with one warning and the
-  sweep recomputed (and shared again).
+  sweep recomputed (and shared again).  Only the writer, still holding the lock, maps the
+  folder it has just written without hashing or range checks (its counts are its own).
 * Ranges and facts.  After the digests, `check_windows` validates every array against
   the game's own state space (layer sizes, max drop) so no kernel can index out of
   bounds: inc_ptr runs from 0 to len(src) monotonically per layer; drops lie in
@@ -251,10 +252,11 @@ def save_windows(folder: Path, win: Windows, facts: dict) -> None:
 
 # ------------------------------------------------------------------------------ reading
 
-def _map_array(folder: Path, kind: str, record: dict, count: int) -> np.ndarray:
+def _map_array(folder: Path, kind: str, record: dict, count: int,
+               verify: bool = True) -> np.ndarray:
     """The array file `kind` of `folder`, memory-mapped copy-on-write, after checking that
-    it is a regular file of the recorded size and SHA-256 (hashing the mapping itself)
-    holding `count` values of the kind's dtype."""
+    it is a regular file of the recorded size and SHA-256 (hashing the mapping itself;
+    skipped when not `verify`) holding `count` values of the kind's dtype."""
     path = member(folder, f"{kind}.npy", "host-cache array")
     fd = os.open(path, os.O_RDONLY | os.O_NOFOLLOW | os.O_NONBLOCK)
     try:
@@ -268,7 +270,7 @@ def _map_array(folder: Path, kind: str, record: dict, count: int) -> np.ndarray:
                        prot=mmap.PROT_READ | mmap.PROT_WRITE)
     finally:
         os.close(fd)
-    if hashlib.sha256(mm).hexdigest() != record["sha256"]:
+    if verify and hashlib.sha256(mm).hexdigest() != record["sha256"]:
         raise Damaged(f"{path} does not match its SHA-256")
     head = io.BytesIO(mm[: min(size, 1 << 16)])
     try:
@@ -294,10 +296,17 @@ def _offsets(meta: dict, kind: str, nlevels: int) -> list[int]:
     return off
 
 
-def load_windows(folder: Path, space: StateSpace) -> tuple[Windows, dict]:
+def load_windows(
+    folder: Path, space: StateSpace, written: Windows | None = None
+) -> tuple[Windows, dict]:
     """(Windows whose arrays are copy-on-write maps of the files, recorded facts) of
     `folder`, the first sweep of `space`'s game: digests, shapes and ranges checked and
-    every count recomputed (module docstring); `Damaged` or OSError/InputError otherwise."""
+    every count recomputed (module docstring); `Damaged` or OSError/InputError otherwise.
+
+    `written`: the windows this process has just written into `folder` (under its lock):
+    the files are then only mapped (shapes checked, no hashing nor range checks) and the
+    counts are taken from `written`.
+    """
     check_private(folder, "sweep folder")
     sealed = read_regular(member(folder, SEAL, "host-cache seal"), SEAL_MAX_BYTES,
                           "host-cache seal").decode("ascii", "replace").strip()
@@ -318,7 +327,7 @@ def load_windows(folder: Path, space: StateSpace) -> tuple[Windows, dict]:
 
     def split(kind: str) -> dict[int, np.ndarray]:
         off = _offsets(meta, kind, len(levels))
-        data = _map_array(folder, kind, meta["files"][kind], off[-1])
+        data = _map_array(folder, kind, meta["files"][kind], off[-1], written is None)
         return {lv: data[off[i] : off[i + 1]] for i, lv in enumerate(levels)}
 
     lmin, win, term = split("lmin"), split("win"), split("term")
@@ -329,7 +338,10 @@ def load_windows(folder: Path, space: StateSpace) -> tuple[Windows, dict]:
     paths_log2 = meta["scalars"]["terminal_paths_log2"]
     if isinstance(paths_log2, bool) or not isinstance(paths_log2, (int, float)):
         raise Damaged(f"{folder}: terminal_paths_log2 is not a number")
-    counts = check_windows(space, lmin, win, term, incoming)
+    if written is None:
+        counts = check_windows(space, lmin, win, term, incoming)
+    else:
+        counts = {k: getattr(written, k) for k in SCALARS if k != "terminal_paths_log2"}
     paths_log2 = float(paths_log2)
     if not (math.isfinite(paths_log2)
             and math.log2(max(1, counts["terminals"])) - 1e-6 <= paths_log2 < 2**20):
@@ -402,7 +414,11 @@ def check_windows(
             d = int(d)
             sel = drop == d
             if level + d not in lmin:
-                raise Damaged(f"layer {level}: moves from layer {level + d}, not swept")
+                if kept is None:
+                    raise Damaged(f"layer {level}: moves from layer {level + d}, not swept")
+                kept[sel] = False  # derived moves from above the start: the sweeps skip them
+                a[sel], b[sel] = 0, 0
+                continue
             s = src64[sel]
             src_size = int(space.layer_size(level + d))
             if s.size and (s.min() < 0 or s.max() >= src_size):
@@ -579,7 +595,7 @@ def shared_windows(
             log.warning("first sweep of n=%s not shared on this host: %s", n, exc)
             return win, facts, False
         try:
-            mapped, facts = load_windows(folder, space)
+            mapped, facts = load_windows(folder, space, written=win)
         except (OSError, ValueError, KeyError, TypeError, InputError) as exc:
             log.warning("shared first sweep %s unreadable after writing (%s)", folder, exc)
             _discard(folder)

@@ -420,3 +420,78 @@ def test_folder_in_use_by_a_live_process_is_kept(cache_root: Path) -> None:
     finally:
         proc.stdin.close()
         proc.wait(timeout=120)
+
+
+def test_round_trip_without_kept_moves(cache_root: Path) -> None:
+    # the largest games keep no moves: the windows are then checked against moves derived
+    # again from the state space; reference: the in-process sweep and `zeckenum.count`
+    import json
+
+    from zeckenum.statespace import build_space
+    from zeckenum.windows import sweep_windows
+
+    rs = get_rules("standard")
+    space = build_space(rs.instantiate(45))
+    win = sweep_windows(space, keep_incoming=False)
+    _, full, facts = first_sweep(rs, 45)
+    got, _, shared = _share(rs, 45, lambda: (win, facts.to_dict()))
+    assert shared and got.incoming is None
+    for k in hostcache.SCALARS:
+        assert getattr(got, k) == getattr(full, k)
+    folder = hostcache.sweep_folder(rs.content_hash(), 45)
+    lmin = np.load(folder / "lmin.npy").copy()
+    reached = np.flatnonzero(np.load(folder / "win.npy") > 0)
+    lmin[reached[len(reached) // 2]] += 1  # a window the moves do not imply
+    np.save(folder / "lmin.npy", lmin)
+    _reseal(folder)
+    meta = json.loads((folder / "meta.json").read_text())
+    assert "inc_src" not in meta["offsets"]
+    calls = []
+
+    def compute():  # noqa: ANN202
+        calls.append(1)
+        return win, facts.to_dict()
+
+    again, _, _ = _share(rs, 45, compute)
+    assert calls == [1]
+    for k in hostcache.SCALARS:
+        assert getattr(again, k) == getattr(full, k)
+
+
+def test_any_changed_byte_is_refused_before_use(tmp_path_factory: pytest.TempPathFactory) -> None:
+    # generated damage (common practice): any one byte of any file of a sealed folder,
+    # changed in any way, makes the reader refuse the folder; never returns its arrays
+    import os
+
+    from hypothesis import HealthCheck, given, settings
+    from hypothesis import strategies as st
+    from zeckenum.errors import InputError
+    from zeckenum.statespace import build_space
+
+    rs = get_rules("standard")
+    space, win, facts = first_sweep(rs, 25)
+    root = tmp_path_factory.mktemp("sealed")
+    os.chmod(root, 0o700)
+    folder = root / "sweep"
+    hostcache.save_windows(folder, win, facts.to_dict())
+    names = sorted(p.name for p in folder.iterdir())
+    pristine = {name: (folder / name).read_bytes() for name in names}
+    space = build_space(rs.instantiate(25))
+
+    @settings(max_examples=150, deadline=None,
+              suppress_health_check=[HealthCheck.function_scoped_fixture])
+    @given(name=st.sampled_from(names), where=st.floats(0, 1, exclude_max=True),
+           mask=st.integers(1, 255))
+    def damaged(name: str, where: float, mask: int) -> None:
+        raw = bytearray(pristine[name])
+        raw[int(where * len(raw))] ^= mask
+        (folder / name).write_bytes(bytes(raw))
+        try:
+            with pytest.raises((hostcache.Damaged, ValueError, OSError, InputError)):
+                hostcache.load_windows(folder, space)
+        finally:
+            (folder / name).write_bytes(pristine[name])
+
+    damaged()
+    got, _ = hostcache.load_windows(folder, space)  # the pristine folder still loads
+    _same_windows(win, got)
