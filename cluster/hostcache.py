@@ -33,7 +33,10 @@ Nothing read back is trusted (the folder outlives the process that wrote it):
   very mapping the kernels will read (copy-on-write: pages stay shared).  Any mismatch,
   unparsable file or wrong dtype/shape: the folder is discarded with one warning and the
   sweep recomputed (and shared again).  Only the writer, still holding the lock, maps the
-  folder it has just written without hashing or range checks (its counts are its own).
+  folder it has just written without hashing or range checks (its counts are its own),
+  and a process mapping again the very files it checked before (same seal, and same
+  device, inode, size, mtime and ctime: the kernel moves ctime on any change) reuses
+  that check.
 * Ranges and facts.  After the digests, `check_windows` validates every array against
   the game's own state space (layer sizes, max drop) so no kernel can index out of
   bounds: inc_ptr runs from 0 to len(src) monotonically per layer; drops lie in
@@ -171,6 +174,7 @@ def private_root() -> Path:
 def _discard(folder: Path) -> None:
     """Remove a sweep folder (or whatever took its name: a symlink is unlinked, not
     followed)."""
+    _verified.pop(str(folder), None)
     with contextlib.suppress(FileNotFoundError):
         if os.path.islink(folder) or not os.path.isdir(folder):
             os.unlink(folder)
@@ -252,11 +256,20 @@ def save_windows(folder: Path, win: Windows, facts: dict) -> None:
 
 # ------------------------------------------------------------------------------ reading
 
+_verified: dict[str, tuple[str, dict[str, tuple[int, ...]], dict[str, int]]] = {}
+"""Folder path -> (seal, identity of each array file, counts) of the folder as this
+process last checked (or wrote) it.  A later map of the same sealed files skips hashing
+and range checks; identity = (device, inode, size, mtime_ns, ctime_ns) from `fstat`, and
+the kernel updates ctime on every change to a file, so changed files are checked again."""
+
+
 def _map_array(folder: Path, kind: str, record: dict, count: int,
-               verify: bool = True) -> np.ndarray:
-    """The array file `kind` of `folder`, memory-mapped copy-on-write, after checking that
-    it is a regular file of the recorded size and SHA-256 (hashing the mapping itself;
-    skipped when not `verify`) holding `count` values of the kind's dtype."""
+               verify: bool = True, known: tuple[int, ...] | None = None
+               ) -> tuple[np.ndarray, tuple[int, ...], bool]:
+    """(array, file identity, hashed) of the array file `kind` of `folder`, memory-mapped
+    copy-on-write, after checking that it is a regular file of the recorded size and
+    SHA-256 (hashing the mapping itself; skipped when not `verify` or when the file's
+    identity is `known`) holding `count` values of the kind's dtype."""
     path = member(folder, f"{kind}.npy", "host-cache array")
     fd = os.open(path, os.O_RDONLY | os.O_NOFOLLOW | os.O_NONBLOCK)
     try:
@@ -266,11 +279,13 @@ def _map_array(folder: Path, kind: str, record: dict, count: int,
         size = int(record["bytes"])
         if st.st_size != size or size <= 0:
             raise Damaged(f"{path} has {st.st_size} bytes, the seal records {size}")
+        ident = (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
         mm = mmap.mmap(fd, size, flags=mmap.MAP_PRIVATE,
                        prot=mmap.PROT_READ | mmap.PROT_WRITE)
     finally:
         os.close(fd)
-    if verify and hashlib.sha256(mm).hexdigest() != record["sha256"]:
+    hashed = verify and ident != known
+    if hashed and hashlib.sha256(mm).hexdigest() != record["sha256"]:
         raise Damaged(f"{path} does not match its SHA-256")
     head = io.BytesIO(mm[: min(size, 1 << 16)])
     try:
@@ -284,7 +299,7 @@ def _map_array(folder: Path, kind: str, record: dict, count: int,
     if (dtype != KINDS[kind] or tuple(shape) != (count,) or fortran
             or size != start + count * dtype.itemsize):
         raise Damaged(f"{path} holds {shape} {dtype}, expected ({count},) {KINDS[kind]}")
-    return np.frombuffer(mm, dtype=dtype, count=count, offset=start)
+    return np.frombuffer(mm, dtype=dtype, count=count, offset=start), ident, hashed
 
 
 def _offsets(meta: dict, kind: str, nlevels: int) -> list[int]:
@@ -325,9 +340,16 @@ def load_windows(
     if kinds not in ({"lmin", "win", "term"}, set(KINDS)) or set(meta["files"]) != kinds:
         raise Damaged(f"{folder} holds the arrays {sorted(kinds)}")
 
+    prior = _verified.pop(str(folder), None)
+    known = prior[1] if prior is not None and prior[0] == sealed else {}
+    idents: dict[str, tuple[int, ...]] = {}
+    hashed: list[bool] = []
+
     def split(kind: str) -> dict[int, np.ndarray]:
         off = _offsets(meta, kind, len(levels))
-        data = _map_array(folder, kind, meta["files"][kind], off[-1], written is None)
+        data, idents[kind], fresh = _map_array(folder, kind, meta["files"][kind], off[-1],
+                                               written is None, known.get(kind))
+        hashed.append(fresh)
         return {lv: data[off[i] : off[i + 1]] for i, lv in enumerate(levels)}
 
     lmin, win, term = split("lmin"), split("win"), split("term")
@@ -338,16 +360,19 @@ def load_windows(
     paths_log2 = meta["scalars"]["terminal_paths_log2"]
     if isinstance(paths_log2, bool) or not isinstance(paths_log2, (int, float)):
         raise Damaged(f"{folder}: terminal_paths_log2 is not a number")
-    if written is None:
-        counts = check_windows(space, lmin, win, term, incoming)
-    else:
+    if written is not None:
         counts = {k: getattr(written, k) for k in SCALARS if k != "terminal_paths_log2"}
+    elif prior is not None and known and not any(hashed):  # the very files checked before
+        counts = dict(prior[2])
+    else:
+        counts = check_windows(space, lmin, win, term, incoming)
     paths_log2 = float(paths_log2)
     if not (math.isfinite(paths_log2)
             and math.log2(max(1, counts["terminals"])) - 1e-6 <= paths_log2 < 2**20):
         raise Damaged(f"{folder}: terminal_paths_log2 {paths_log2} is out of range")
     out = Windows(lmin=lmin, win=win, terminal_ranks=term, incoming=incoming,
                   terminal_paths_log2=paths_log2, **counts)
+    _verified[str(folder)] = (sealed, idents, counts)
     facts = meta.get("facts")
     return out, dict(facts) if isinstance(facts, dict) else {}
 
@@ -480,6 +505,10 @@ def check_windows(
 
 # ------------------------------------------------------------------------------ sharing
 
+_UNREADABLE = (OSError, ValueError, KeyError, TypeError, AttributeError, RecursionError,
+               InputError)
+"""What reading a damaged folder may raise (Damaged is a ValueError)."""
+
 _held: dict[str, int] = {}
 """Folder path -> fd of its `.users` file, share-locked while this process uses it."""
 _held_lock = threading.Lock()
@@ -528,7 +557,11 @@ def _hold(folder: Path) -> None:
     with _held_lock:
         if str(folder) in _held:
             return
-        fd = _users_fd(folder)
+        try:
+            fd = _users_fd(folder)
+        except OSError as exc:  # then others may take the folder for a dead run's: correct
+            log.warning("cannot mark %s as in use: %s", folder, exc)
+            return
         fcntl.flock(fd, fcntl.LOCK_SH)
         _held[str(folder)] = fd
 
@@ -581,10 +614,11 @@ def shared_windows(
             if why is None:
                 try:
                     win, facts = load_windows(folder, space)
+                except _UNREADABLE as exc:
+                    why = f"damaged ({exc})"
+                else:
                     _hold(folder)
                     return win, facts, True
-                except (OSError, ValueError, KeyError, TypeError, InputError) as exc:
-                    why = f"damaged ({exc})"
             log.warning("shared first sweep %s %s; recomputing it", folder, why)
             _unhold(folder)
             _discard(folder)
@@ -596,7 +630,7 @@ def shared_windows(
             return win, facts, False
         try:
             mapped, facts = load_windows(folder, space, written=win)
-        except (OSError, ValueError, KeyError, TypeError, InputError) as exc:
+        except _UNREADABLE as exc:
             log.warning("shared first sweep %s unreadable after writing (%s)", folder, exc)
             _discard(folder)
             return win, facts, False

@@ -38,6 +38,9 @@ CACHE_ENTRIES = 2
 
 _cache: OrderedDict[tuple[str, int], tuple[StateSpace, Windows, Facts]] = OrderedDict()
 _cache_lock = threading.Lock()
+_facts_memo: dict[tuple[str, int, bool], Facts] = {}
+"""Facts of the games this worker process mapped from the host cache, until released."""
+_facts_lock = threading.Lock()
 
 
 @dataclass(frozen=True)
@@ -185,11 +188,18 @@ def host_first_sweep(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windows, Fac
         return win, facts.to_dict()
 
     win, recorded, _ = shared_windows(ruleset.content_hash(), n, compute, space)
-    seconds = recorded.get("seconds_windows")
-    if isinstance(seconds, bool) or not isinstance(seconds, (int, float)) or not (
-            0 <= seconds < 1e9):
-        seconds = 0.0
-    return space, win, facts_of(ruleset, n, space, win, float(seconds))
+    key = (ruleset.content_hash(), n, win.incoming is not None)
+    with _facts_lock:
+        facts = _facts_memo.get(key)
+    if facts is None:  # a pure function of the game (and of keeping the moves)
+        seconds = recorded.get("seconds_windows")
+        if isinstance(seconds, bool) or not isinstance(seconds, (int, float)) or not (
+                0 <= seconds < 1e9):
+            seconds = 0.0
+        facts = facts_of(ruleset, n, space, win, float(seconds))
+        with _facts_lock:
+            _facts_memo[key] = facts
+    return space, win, facts
 
 
 def release_task(rules: str | RuleSet, n: int) -> bool:
@@ -200,6 +210,9 @@ def release_task(rules: str | RuleSet, n: int) -> bool:
     ruleset = get_rules(rules)
     with _cache_lock:
         _cache.pop((ruleset.content_hash(), int(n)), None)
+    with _facts_lock:
+        for keep in (True, False):
+            _facts_memo.pop((ruleset.content_hash(), int(n), keep), None)
     return release(ruleset.content_hash(), n)
 
 
@@ -207,6 +220,8 @@ def clear_cache() -> None:
     """Forget every cached first sweep of this process."""
     with _cache_lock:
         _cache.clear()
+    with _facts_lock:
+        _facts_memo.clear()
 
 
 def worker_address() -> str:

@@ -495,3 +495,33 @@ def test_any_changed_byte_is_refused_before_use(tmp_path_factory: pytest.TempPat
     damaged()
     got, _ = hostcache.load_windows(folder, space)  # the pristine folder still loads
     _same_windows(win, got)
+
+
+def test_a_file_changed_after_a_check_is_checked_again(cache_root: Path) -> None:
+    # a process maps the same folder many times (its own cache keeps two games); reuse of
+    # an earlier check must not survive a change of the files (common practice)
+    import time
+
+    rs = get_rules("standard")
+    _, win, facts = first_sweep(rs, 30)
+    calls = []
+
+    def compute():  # noqa: ANN202
+        calls.append(1)
+        return win, facts.to_dict()
+
+    _share(rs, 30, compute)
+    _share(rs, 30, compute)  # mapped again, the earlier check reused
+    assert calls == [1]
+    folder = hostcache.sweep_folder(rs.content_hash(), 30)
+    src, start = _npy_data(folder / "inc_src.npy")
+    odd = np.flatnonzero(src % 2 == 1)
+    time.sleep(0.05)  # past the file-time granularity
+    with open(folder / "inc_src.npy", "r+b") as f:  # in place: same inode and size
+        f.seek(start + 4 * int(odd[0]))
+        byte = f.read(1)
+        f.seek(start + 4 * int(odd[0]))
+        f.write(bytes([byte[0] ^ 1]))
+    got, _, _ = _share(rs, 30, compute)
+    assert calls == [1, 1]  # refused and recomputed
+    _same_windows(win, got)
