@@ -519,7 +519,12 @@ def open_pool(
             raise InputError(f"cannot reach the Dask scheduler at {scheduler}: {exc}") from None
         try:
             if not client.scheduler_info(n_workers=-1)["workers"]:
-                client.wait_for_workers(1, timeout=60)
+                try:
+                    client.wait_for_workers(1, timeout=60)
+                except TimeoutError:
+                    raise ClusterStalled(
+                        f"no worker joined the Dask scheduler at {scheduler} within 60 s; "
+                        "nothing was computed") from None
             yield DaskPool(client)
         finally:
             client.close()
