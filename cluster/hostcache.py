@@ -587,8 +587,9 @@ def shared_windows(
     try:
         root = private_root()
     except Unsafe as exc:
-        log.warning("host cache refused (%s); first sweep of n=%s computed in this process",
-                    exc, n)
+        log.warning("host cache refused (%s); first sweep of n=%s computed in this process "
+                    "(remove that folder, or make it a mode 0700 folder of this user, to "
+                    "share sweeps again)", exc, n)
         win, facts = compute()
         return win, facts, False
     except OSError as exc:
