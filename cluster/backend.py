@@ -20,12 +20,13 @@ exclusive `flock` (the kernel drops the lock when its holder dies, even by SIGKI
   worker's own machine before the worker imports zeckenum (a worker started with
   NUMBA_CACHE_DIR already set keeps it).  Slots persist, so later runs load the kernels.
 
-Tasks are never pinned to workers: Dask places them and reschedules the tasks of a lost
-worker anywhere (restricted tasks whose allowed workers all died were never rescheduled,
-and a run hung forever).  The driver waits for results with a `Watchdog`: it wakes every
-few seconds and raises `ClusterStalled` (exit 7) once the cluster has had no worker and
-finished no task for the stall timeout (`stall_seconds`: the caller's value, else
-$ZECKENUM_STALL_TIMEOUT, else 600 s).
+Progress never depends on where a task runs: tasks are unrestricted, or carry at most a
+loose hint (`submit(..., prefer=ADDRESS)`) that the driver withdraws by resubmitting the
+task unhinted as soon as that worker is gone (Dask never rescheduled hinted tasks whose
+workers had all died, and a run hung forever).  The driver waits for results with a
+`Watchdog`: it wakes every few seconds and raises `ClusterStalled` (exit 7) once the
+cluster has had no worker and finished no task for the stall timeout (`stall_seconds`: the
+caller's value, else $ZECKENUM_STALL_TIMEOUT, else 600 s).
 """
 
 from __future__ import annotations
@@ -172,7 +173,11 @@ class Pool:
 
     kind = "pool"
 
-    def submit(self, fn: Callable, *args, priority: int = 0) -> Future:
+    def submit(self, fn: Callable, *args, priority: int = 0,
+               prefer: str | None = None) -> Future:
+        """Run fn(*args); `prefer`: a worker that should run it if it can (a loose hint,
+        never needed for progress: the driver resubmits unhinted a task whose preferred
+        worker is gone)."""
         raise NotImplementedError
 
     def completion(self) -> Completion:
@@ -312,7 +317,7 @@ class ThreadPool(Pool):
         self.threads = threads or os.cpu_count() or 1
         self._ex = ThreadPoolExecutor(max_workers=self.threads)
 
-    def submit(self, fn, *args, priority=0):  # noqa: ANN001, ANN002
+    def submit(self, fn, *args, priority=0, prefer=None):  # noqa: ANN001, ANN002
         return self._ex.submit(fn, *args)
 
     @property
@@ -331,8 +336,11 @@ class DaskPool(Pool):
     def __init__(self, client) -> None:  # noqa: ANN001
         self.client = client
 
-    def submit(self, fn, *args, priority=0):  # noqa: ANN001, ANN002
-        return self.client.submit(fn, *args, pure=False, priority=priority)
+    def submit(self, fn, *args, priority=0, prefer=None):  # noqa: ANN001, ANN002
+        if prefer is None:
+            return self.client.submit(fn, *args, pure=False, priority=priority)
+        return self.client.submit(fn, *args, pure=False, priority=priority,
+                                  workers=[prefer], allow_other_workers=True)
 
     def live_workers(self) -> int:
         """Workers the scheduler knows now; 0 when the scheduler cannot be asked."""

@@ -89,6 +89,32 @@ def test_all_workers_killed_at_once_the_run_recovers(reference: dict, host_cache
         reference["longest"])
 
 
+def test_all_workers_killed_in_a_range_the_run_recovers(reference: dict,
+                                                        host_cache: Path) -> None:
+    # the shards of a range prefer the worker that swept their n: when it is gone, the
+    # driver must resubmit them without that preference
+    ns = [72, 86, N]
+    with open_pool(workers=2) as pool:
+        client = pool.client
+        pids = client.run(os.getpid)
+        unfinished: list[int] = []
+
+        def kill_all(_n: int, _i: int) -> None:
+            if unfinished:
+                return
+            unfinished.append(client.run_on_scheduler(_unfinished_tasks))
+            for pid in pids.values():
+                os.kill(pid, signal.SIGKILL)
+
+        got = bounded(lambda: count_on_pool(ns, "standard", pool, max_primes_per_block=1,
+                                            on_shard=kill_all), 400)
+    assert unfinished and unfinished[0] > 0, "every shard had finished: the kill came too late"
+    for n in ns:
+        ref = reference if n == N else census(n)
+        assert got[n].games == ref["games"], n
+        assert got[n].length_counts == ref["length_counts"], n
+
+
 def test_workers_gone_for_good_stop_with_cluster_stalled(
     tmp_path: Path, host_cache: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
