@@ -19,26 +19,40 @@ exclusive `flock` (the kernel drops the lock when its holder dies, even by SIGKI
 * `--scheduler ADDRESS`: the `NumbaCacheSlot` worker plugin locks a free slot on the
   worker's own machine before the worker imports zeckenum (a worker started with
   NUMBA_CACHE_DIR already set keeps it).  Slots persist, so later runs load the kernels.
+
+Progress never depends on where a task runs: tasks are unrestricted, or carry at most a
+loose hint (`submit(..., prefer=ADDRESS)`) that the driver withdraws by resubmitting the
+task unhinted as soon as that worker is gone (Dask never rescheduled hinted tasks whose
+workers had all died, and a run hung forever).  The driver waits for results with a
+`Watchdog`: it wakes every few seconds and raises `ClusterStalled` (exit 7) once the
+cluster has had no worker and finished no task for the stall timeout (`stall_seconds`: the
+caller's value, else $ZECKENUM_STALL_TIMEOUT, else 600 s).
 """
 
 from __future__ import annotations
 
 import contextlib
 import logging
+import math
 import os
 import queue
 import tempfile
 import threading
+import time
 from collections.abc import Callable, Iterator
 from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
 
-from ..errors import InputError
+from ..errors import ClusterStalled, InputError
 
 log = logging.getLogger("zeckenum.cluster")
 
 _warm = threading.Lock()
 _warmed: set[str] = set()
+
+STALL_TIMEOUT = 600.0
+"""Default seconds without any worker and without a finished task before a run stops."""
+STALL_ENV = "ZECKENUM_STALL_TIMEOUT"
 
 WARM_KINDS = ("count", "random", "solve")
 """Kinds of run whose kernels `warm_up` knows how to compile."""
@@ -153,16 +167,25 @@ def _make_plugin():  # noqa: ANN202
 
 
 class Pool:
-    """Runs task functions somewhere and hands back their futures as they finish."""
+    """Runs task functions somewhere and hands back their futures as they finish.
+
+    Tasks are never restricted to workers (a lost worker's tasks must run elsewhere)."""
 
     kind = "pool"
 
     def submit(self, fn: Callable, *args, priority: int = 0,
-               where: list[str] | None = None) -> Future:
+               prefer: str | None = None) -> Future:
+        """Run fn(*args); `prefer`: a worker that should run it if it can (a loose hint,
+        never needed for progress: the driver resubmits unhinted a task whose preferred
+        worker is gone)."""
         raise NotImplementedError
 
     def completion(self) -> Completion:
-        raise NotImplementedError
+        return Completion()
+
+    def live_workers(self) -> int:
+        """Workers able to run tasks now (a pool in this process always has its threads)."""
+        return max(1, len(self.workers))
 
     @property
     def workers(self) -> list[str]:
@@ -170,7 +193,11 @@ class Pool:
 
 
 class Completion:
-    """Futures in the order they finish; more can be added while iterating."""
+    """Futures in the order they finish; more can be added while waiting.
+
+    Works for `concurrent.futures` and `distributed` futures alike (both call
+    `add_done_callback` once the future is finished, failed or cancelled).
+    """
 
     def __init__(self) -> None:
         self._q: queue.Queue = queue.Queue()
@@ -180,11 +207,105 @@ class Completion:
         self._pending += 1
         fut.add_done_callback(self._q.put)
 
+    @property
+    def pending(self) -> int:
+        """Futures added and not yet handed out by `next`."""
+        return self._pending
+
+    def next(self, timeout: float | None) -> Future | None:
+        """The next finished future, or None when none finished within `timeout` seconds
+        (or none is pending)."""
+        if not self._pending:
+            return None
+        try:
+            fut = self._q.get(timeout=timeout)
+        except queue.Empty:
+            return None
+        self._pending -= 1
+        return fut
+
     def __iter__(self) -> Iterator[Future]:
         while self._pending:
-            fut = self._q.get()
-            self._pending -= 1
-            yield fut
+            fut = self.next(None)
+            if fut is not None:
+                yield fut
+
+
+def stall_seconds(value: float | None = None) -> float:
+    """The watchdog's time in seconds: `value`, else $ZECKENUM_STALL_TIMEOUT, else 600.
+
+    InputError unless it is a finite number > 0.
+    """
+    where = "the stall timeout"
+    if value is None:
+        raw = os.environ.get(STALL_ENV, "").strip()
+        if not raw:
+            return STALL_TIMEOUT
+        where = f"{STALL_ENV}={raw!r}"
+        try:
+            value = float(raw)
+        except ValueError:
+            raise InputError(f"{where} is not a number of seconds") from None
+    try:
+        value = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"{where} is not a number of seconds") from None
+    if not (math.isfinite(value) and value > 0):
+        raise InputError(f"{where} must be a number of seconds > 0, got {value:g}")
+    return value
+
+
+class Watchdog:
+    """Stops a run whose cluster has had no worker and finished no task for `timeout` s.
+
+    Invariant: `last` is the latest moment a task finished or a worker was seen; the
+    driver calls `progress` on every finished task and `idle` whenever a wait timed out
+    (every `period` seconds), and `idle` raises `ClusterStalled` once now - last >=
+    timeout.  A pool in this process never stalls.  `kept` ends the message: what became
+    of the finished work (e.g. the checkpoint that was kept).
+    """
+
+    def __init__(self, pool: Pool, timeout: float, kept: str) -> None:
+        self.pool = pool
+        self.timeout = float(timeout)
+        self.kept = kept
+        self.last = time.monotonic()
+
+    @property
+    def period(self) -> float:
+        """Seconds between two looks at the cluster while nothing finishes."""
+        return max(0.05, min(5.0, self.timeout / 4))
+
+    def progress(self) -> None:
+        self.last = time.monotonic()
+
+    def idle(self) -> None:
+        now = time.monotonic()
+        if self.pool.live_workers() > 0:
+            self.last = now
+            return
+        waited = now - self.last
+        if waited >= self.timeout:
+            raise ClusterStalled(
+                f"the cluster stalled: no worker and no finished task for {waited:.0f} s "
+                f"(stall timeout {self.timeout:g} s); {self.kept}")
+
+    def result(self, fut: Future):  # noqa: ANN201
+        """`fut.result()`, waiting in periods (ClusterStalled if the cluster stalls)."""
+        done = Completion()
+        done.add(fut)
+        while done.next(self.period) is None:
+            self.idle()
+        self.progress()
+        return fut.result()
+
+
+def kept_note(checkpoint_dir: str | Path | None) -> str:
+    """How a stalled run's message ends: what was kept of its finished work."""
+    if checkpoint_dir is None:
+        return "no checkpoint was given, so finished shards were not kept"
+    return (f"the checkpoint {checkpoint_dir} was kept: rerun with the same checkpoint to "
+            "resume")
 
 
 class ThreadPool(Pool):
@@ -196,11 +317,8 @@ class ThreadPool(Pool):
         self.threads = threads or os.cpu_count() or 1
         self._ex = ThreadPoolExecutor(max_workers=self.threads)
 
-    def submit(self, fn, *args, priority=0, where=None):  # noqa: ANN001, ANN002
+    def submit(self, fn, *args, priority=0, prefer=None):  # noqa: ANN001, ANN002
         return self._ex.submit(fn, *args)
-
-    def completion(self) -> Completion:
-        return Completion()
 
     @property
     def workers(self) -> list[str]:
@@ -210,38 +328,53 @@ class ThreadPool(Pool):
         self._ex.shutdown(wait=True, cancel_futures=True)
 
 
-class DaskCompletion(Completion):
-    """`distributed.as_completed` (works the same against a remote scheduler)."""
-
-    def __init__(self, client) -> None:  # noqa: ANN001
-        from distributed import as_completed
-
-        self._ac = as_completed([], loop=client.loop, with_results=False)
-        self._client = client
-
-    def add(self, fut) -> None:  # noqa: ANN001
-        self._ac.add(fut)
-
-    def __iter__(self):
-        return iter(self._ac)
-
-
 class DaskPool(Pool):
-    """Shards as tasks of a Dask cluster."""
+    """Shards as tasks of a Dask cluster, placed (and re-placed) by its scheduler."""
 
     kind = "dask"
 
     def __init__(self, client) -> None:  # noqa: ANN001
         self.client = client
 
-    def submit(self, fn, *args, priority=0, where=None):  # noqa: ANN001, ANN002
-        return self.client.submit(
-            fn, *args, pure=False, priority=priority, workers=where,
-            allow_other_workers=where is not None,
-        )
+    def submit(self, fn, *args, priority=0, prefer=None):  # noqa: ANN001, ANN002
+        if prefer is None:
+            return self.client.submit(fn, *args, pure=False, priority=priority)
+        return self.client.submit(fn, *args, pure=False, priority=priority,
+                                  workers=[prefer], allow_other_workers=True)
 
-    def completion(self) -> Completion:
-        return DaskCompletion(self.client)
+    def live_workers(self) -> int:
+        """Workers the scheduler knows now; 0 when the scheduler cannot be asked."""
+        client = self.client
+        if client.status != "running":
+            return 0
+        try:
+            info = client.sync(client.scheduler.identity, n_workers=-1, callback_timeout=30)
+        except Exception:  # noqa: BLE001 - an unreachable scheduler has no workers for us
+            return 0
+        return len(info.get("workers") or {})
+
+    def run_everywhere(self, fn: Callable, *args, timeout: float = 30.0) -> bool:
+        """Run `fn(*args)` on every worker now (errors ignored), giving up after `timeout`
+        seconds; True if it returned in time.  Best effort: for clean-up."""
+        box: list = []
+
+        def go() -> None:
+            try:
+                self.client.run(fn, *args, on_error="ignore")
+                box.append(True)
+            except Exception as exc:  # noqa: BLE001
+                box.append(exc)
+
+        t = threading.Thread(target=go, daemon=True, name="zeckenum-release")
+        t.start()
+        t.join(timeout)
+        if not box:
+            log.warning("workers did not answer %s within %g s", fn.__name__, timeout)
+            return False
+        if box[0] is not True:
+            log.warning("could not run %s on the workers: %s", fn.__name__, box[0])
+            return False
+        return True
 
     @property
     def workers(self) -> list[str]:
@@ -394,7 +527,12 @@ def open_pool(
             raise InputError(f"cannot reach the Dask scheduler at {scheduler}: {exc}") from None
         try:
             if not client.scheduler_info(n_workers=-1)["workers"]:
-                client.wait_for_workers(1, timeout=60)
+                try:
+                    client.wait_for_workers(1, timeout=60)
+                except TimeoutError:
+                    raise ClusterStalled(
+                        f"no worker joined the Dask scheduler at {scheduler} within 60 s; "
+                        "nothing was computed") from None
             yield DaskPool(client)
         finally:
             client.close()

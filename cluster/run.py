@@ -28,8 +28,20 @@ recomputed values are used.  Verified shards are reused and only the others are 
 (`stats["shards_reused"]`, `stats["shards_computed"]`); a directory of another kind, other
 parameters, another rule file or any edited fact, prime or block is refused.
 Ranges of n (`run_counts`) submit one task per (n, block); on a cluster the largest n go
-first and the blocks of one n prefer the worker that swept it (its windows are cached
-there).
+first.  Placement: the shards of a single n are unrestricted (the scheduler deals them;
+measured as fast as dealing them round-robin).  The shards of an n of a range carry a loose
+hint for the worker that swept it (measured 10-13% faster on n = 100..130 with 2 workers:
+that worker has the windows at hand); the driver looks at the workers every few seconds
+and resubmits without hint every unfinished shard whose preferred worker is gone, so no
+run waits on a dead worker (hinted tasks whose workers had all died were never
+rescheduled by Dask, and the run hung).
+
+The driver waits with a `backend.Watchdog` (`stall_timeout`, default
+$ZECKENUM_STALL_TIMEOUT or 600 s): when the cluster has had no worker and finished no task
+for that long, the run stops with `ClusterStalled` (exit 7); every shard that finished is
+already in the checkpoint, whose manifest stays valid, so a rerun resumes.  However a run
+ends (result, error, interrupt, stall), the driver asks the workers to release the first
+sweeps of its n (best effort, `kind.release`).
 """
 
 from __future__ import annotations
@@ -51,7 +63,7 @@ from ..results import CountResult
 from ..rules import RuleSet, get_rules
 from ..safeio import check_output_dir
 from . import checkpoint as ckpt
-from .backend import DaskPool, Pool, ThreadPool, open_pool
+from .backend import DaskPool, Pool, ThreadPool, Watchdog, kept_note, open_pool, stall_seconds
 from .kinds import ShardKind, assemble_count_shards, count_kind, random_kind
 from .plan import ShardPlan, worker_bytes
 from .tasks import Facts
@@ -119,12 +131,16 @@ def shards_on_pool(
     max_primes_per_block: int | None = None,
     progress: bool = False,
     on_shard: Callable[[int, int], None] | None = None,
+    stall_timeout: float | None = None,
 ) -> dict[int, Any]:
     """The results of every n in `ns` for one kind of run, with shards on `pool`; {n: result}.
 
     checkpoint_dir  one folder per run of one n; with several n, sub-folders n-<n>
     on_shard(n, i)  called after shard i of n is stored (and checkpointed)
+    stall_timeout   seconds with no worker and no finished task before `ClusterStalled`
+                    (None: $ZECKENUM_STALL_TIMEOUT, else 600)
     """
+    stall = stall_seconds(stall_timeout)
     ns = sorted({check_n(n) for n in ns}, reverse=True)
     if prime_offset < 0:
         raise InputError(f"prime offset must be >= 0, got {prime_offset}")
@@ -153,8 +169,12 @@ def shards_on_pool(
         bar = tqdm(total=0, unit="shard", desc=label, leave=True)
 
     jobs = {n: _Job(n=n, t0=time.perf_counter()) for n in ns}
+    unreleased: list[int] = []  # n whose first sweep the workers may hold, in start order
     done = pool.completion()
+    watch = Watchdog(pool, stall, kept_note(checkpoint_dir))
     tags: dict = {}  # future -> ("prepare", n) | ("shard", n, i), until it is done
+    hints: dict = {}  # unfinished hinted shard future -> its preferred worker
+    hinted = isinstance(pool, DaskPool) and not single
     results: dict[int, Any] = {}
 
     def plan_for(facts: Any) -> ShardPlan:
@@ -166,27 +186,36 @@ def shards_on_pool(
         if bar is not None:
             bar.total += nb
             bar.update(job.reused)
-        # Placement: the blocks of one n of a range go to the worker that swept it (its
-        # first sweep is cached there); the blocks of a single n are dealt round-robin, so
-        # every worker gets the same number (the scheduler alone may hand one worker more
-        # when there are few blocks).  Restrictions are loose: a lost worker's blocks run
-        # elsewhere.
-        dask_workers = [w for w in workers if w] if isinstance(pool, DaskPool) else []
-        todo = [i for i in range(nb) if job.residues[i] is None]
-        for k, i in enumerate(todo):
-            if not single and job.facts.where:
-                where = [job.facts.where]
-            elif dask_workers:
-                where = [dask_workers[k % len(dask_workers)]]
-            else:
-                where = None
-            block = job.plan.blocks[i]
-            fut = pool.submit(kind.shard_task, ruleset, job.n, *kind.shard_args, block,
-                              priority=1, where=where)
-            tags[fut] = ("shard", job.n, i)
-            done.add(fut)
+        # Placement (module docstring): a range's shards prefer the worker that swept
+        # their n, a hint `unhint_orphans` withdraws when that worker is gone.
+        prefer = job.facts.where if (hinted and job.facts.where) else None
+        for i in [i for i in range(nb) if job.residues[i] is None]:
+            submit_shard(job.n, i, prefer)
         if all(r is not None for r in job.residues):
             finish(job)
+
+    def submit_shard(n: int, i: int, prefer: str | None) -> None:
+        fut = pool.submit(kind.shard_task, ruleset, n, *kind.shard_args,
+                          jobs[n].plan.blocks[i], priority=1, prefer=prefer)
+        tags[fut] = ("shard", n, i)
+        if prefer is not None:
+            hints[fut] = prefer
+        done.add(fut)
+
+    def unhint_orphans() -> None:
+        """Resubmit without hint every unfinished shard whose preferred worker is gone."""
+        try:
+            alive = set(pool.workers)
+        except Exception:  # noqa: BLE001 - the scheduler cannot be asked: look next time
+            return
+        for fut, prefer in list(hints.items()):
+            if fut.done():
+                continue
+            if prefer not in alive:
+                del hints[fut]
+                _, n, i = tags.pop(fut)
+                fut.cancel()  # its callback still arrives; the loop skips untagged futures
+                submit_shard(n, i, None)
 
     def finish(job: _Job) -> None:
         assert job.plan is not None and job.facts is not None
@@ -205,12 +234,15 @@ def shards_on_pool(
         }
         residues = np.concatenate(job.residues, axis=0)
         results[job.n] = kind.assemble(job.facts, job.plan, residues, stats)
-        if kind.release is not None and isinstance(pool, DaskPool):
-            try:  # best effort: a leftover shared sweep is only disk space, reused or not
-                pool.client.run(kind.release, ruleset, job.n, on_error="ignore")
-            except Exception as exc:  # noqa: BLE001
-                log.warning("could not release the workers' first sweep of n=%s: %s",
-                            job.n, exc)
+        release(job.n)
+
+    def release(n: int) -> None:
+        """Ask every worker to drop its first sweep of n (best effort: a leftover shared
+        sweep is only space, and the next run of n replaces it as a dead run's)."""
+        if n in unreleased:
+            unreleased.remove(n)
+            if kind.release is not None and isinstance(pool, DaskPool):
+                pool.run_everywhere(kind.release, ruleset, n)
 
     def adopt(job: _Job, facts: Any) -> None:
         if job.stored is not None:  # resume: the manifest is checked against these facts
@@ -268,14 +300,30 @@ def shards_on_pool(
             root = folder(n)
             if root is not None:  # checked now; verified when the first sweep answers
                 job.stored = ckpt.open_existing(root, _wanted(kind, n, prime_offset), ruleset)
-            targets = workers if (single and isinstance(pool, DaskPool)) else [None]
-            for w in targets:
-                fut = pool.submit(kind.prepare_task, ruleset, n, *kind.prepare_args,
-                                  where=[w] if w else None)
+            unreleased.append(n)
+            # a single n on a cluster: one prepare task per worker (unrestricted; the
+            # scheduler spreads them over the idle workers), so the workers sweep (or map
+            # their host's sweep) in parallel and the first answer plans the run (and, on
+            # resume, is what the manifest is checked against)
+            copies = nworkers if (single and isinstance(pool, DaskPool)) else 1
+            for _ in range(copies):
+                fut = pool.submit(kind.prepare_task, ruleset, n, *kind.prepare_args)
                 tags[fut] = ("prepare", n)
                 done.add(fut)
 
-        for fut in done:
+        looked = time.monotonic()
+        while done.pending:
+            fut = done.next(watch.period)
+            if hints and time.monotonic() - looked >= watch.period:
+                unhint_orphans()
+                looked = time.monotonic()
+            if fut is None:  # nothing finished for a while: is anybody still working?
+                watch.idle()
+                continue
+            hints.pop(fut, None)
+            if fut not in tags:  # a shard withdrawn and resubmitted by `unhint_orphans`
+                continue
+            watch.progress()
             tag = tags.pop(fut)
             value = fut.result()
             if tag[0] == "prepare":  # the first answer plans; the others only warmed caches
@@ -305,7 +353,17 @@ def shards_on_pool(
                 fut.release()
             else:
                 fut.cancel()
+        if unreleased:  # a failed, interrupted or stalled run releases too, in one call
+            left, unreleased[:] = list(unreleased), []
+            if kind.release is not None and isinstance(pool, DaskPool):
+                pool.run_everywhere(release_many, kind.release, ruleset, left)
     return results
+
+
+def release_many(release: Callable[[Any, int], Any], ruleset: RuleSet, ns: list[int]) -> None:
+    """Run `release(ruleset, n)` for every n (on a worker, when a run ends early)."""
+    for n in ns:
+        release(ruleset, n)
 
 
 def count_on_pool(
@@ -319,16 +377,19 @@ def count_on_pool(
     max_primes_per_block: int | None = None,
     progress: bool = False,
     on_shard: Callable[[int, int], None] | None = None,
+    stall_timeout: float | None = None,
 ) -> dict[int, CountResult]:
     """Exact counts of every n in `ns` with shards on `pool`; {n: CountResult}.
 
     checkpoint_dir  one folder per run of one n; with several n, sub-folders n-<n>
     on_shard(n, i)  called after shard i of n is stored (and checkpointed)
+    stall_timeout   see `shards_on_pool`
     """
     return shards_on_pool(
         count_kind(get_rules(rules)), ns, pool, prime_offset=prime_offset,
         checkpoint_dir=checkpoint_dir, blocks=blocks,
         max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
+        stall_timeout=stall_timeout,
     )
 
 
@@ -346,17 +407,19 @@ def random_on_pool(
     max_primes_per_block: int | None = None,
     progress: bool = False,
     on_shard: Callable[[int, int], None] | None = None,
+    stall_timeout: float | None = None,
 ) -> RandomResult:
     """Exact random play at n with shards on `pool` (equal to `random_play`, stats aside).
 
     on_shard(n, i)  called after shard i is stored (and checkpointed)
+    stall_timeout   see `shards_on_pool`
     """
     validate(n, players, model)
     kind = random_kind(get_rules(rules), model, players, bool(winners_only))
     return shards_on_pool(
         kind, [n], pool, prime_offset=prime_offset, checkpoint_dir=checkpoint_dir,
         blocks=blocks, max_primes_per_block=max_primes_per_block, progress=progress,
-        on_shard=on_shard,
+        on_shard=on_shard, stall_timeout=stall_timeout,
     )[n]
 
 
@@ -373,18 +436,23 @@ def run_counts(
     max_primes_per_block: int | None = None,
     threads: int | None = None,
     on_shard: Callable[[int, int], None] | None = None,
+    stall_timeout: float | None = None,
 ) -> dict[int, CountResult]:
     """Exact counts for every n in `ns` on the chosen backend ({n: CountResult}).
 
     Backends: in-process threads (default), `workers=K` (a LocalCluster started and closed
     here), `scheduler=ADDRESS` (an existing cluster).  In-process, one n runs at a time
     (its blocks in threads); on a cluster, all (n, block) tasks are in flight at once.
+    stall_timeout: seconds with no worker and no finished task before `ClusterStalled`
+    (exit 7; None: $ZECKENUM_STALL_TIMEOUT, else 600).
     """
     ns = list(ns)
     if checkpoint_dir is not None:  # refused before a cluster starts
         check_output_dir(checkpoint_dir, "checkpoint directory")
+    stall = stall_seconds(stall_timeout)
     opts = dict(prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
-                max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard)
+                max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
+                stall_timeout=stall)
     with open_pool(workers, scheduler, threads, warm=("count",)) as pool:
         if isinstance(pool, ThreadPool) and len(ns) > 1:
             out: dict[int, CountResult] = {}
@@ -408,17 +476,20 @@ def run_count(
     max_primes_per_block: int | None = None,
     threads: int | None = None,
     on_shard: Callable[[int, int], None] | None = None,
+    stall_timeout: float | None = None,
 ) -> CountResult:
     """`zeckenum.count(n)` computed shard by shard, optionally on Dask and checkpointed.
 
     Equal to `count(n, rules, prime_offset=prime_offset)` (stats aside).  stats adds
     shards_total / shards_computed / shards_reused / shards_rejected and the backend.
+    stall_timeout: as `run_counts`.
     """
     n = check_n(n)
     res = run_counts(
         [n], rules, workers=workers, scheduler=scheduler, checkpoint_dir=checkpoint_dir,
         progress=progress, prime_offset=prime_offset, blocks=blocks,
         max_primes_per_block=max_primes_per_block, threads=threads, on_shard=on_shard,
+        stall_timeout=stall_timeout,
     )
     return res[n]
 
@@ -443,6 +514,7 @@ def run_random(
     max_primes_per_block: int | None = None,
     threads: int | None = None,
     on_shard: Callable[[int, int], None] | None = None,
+    stall_timeout: float | None = None,
 ) -> RandomResult:
     """`randomplay.random_play(n, ...)` computed shard by shard, optionally on Dask and
     checkpointed.
@@ -451,18 +523,21 @@ def run_random(
     prime_offset=prime_offset)` (stats aside).  Backends as `run_counts`: in-process threads
     (default), `workers=K` (a LocalCluster started and closed here), `scheduler=ADDRESS`.
     stats: shards_total / shards_computed / shards_reused / shards_rejected, the backend,
-    word updates, terminal states and the denominator's bits.
+    word updates, terminal states and the denominator's bits.  stall_timeout: as
+    `run_counts`.
     """
     validate(n, players, model)
     if prime_offset < 0:  # refused before a cluster starts
         raise InputError(f"prime offset must be >= 0, got {prime_offset}")
     if checkpoint_dir is not None:
         check_output_dir(checkpoint_dir, "checkpoint directory")
+    stall = stall_seconds(stall_timeout)
     with open_pool(workers, scheduler, threads, warm=("random",)) as pool:
         return random_on_pool(
             n, rules, pool, players, model, winners_only=winners_only,
             prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
             max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
+            stall_timeout=stall,
         )
 
 

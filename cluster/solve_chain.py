@@ -60,7 +60,7 @@ from ..solve import (
     sweep_reach,
 )
 from ..statespace import StateSpace, build_space
-from .backend import open_pool
+from .backend import Watchdog, kept_note, open_pool, stall_seconds
 from .checkpoint import (
     check_entries,
     check_parameters,
@@ -349,12 +349,16 @@ def run_solve(
     progress: bool = False,
     threads: int | None = None,
     on_shard=None,  # noqa: ANN001 - callable(i) after shard i is stored
+    stall_timeout: float | None = None,
 ) -> SolveResult:
     """`solve.solve(n, rules, players)` as a chain of level-range shards (module docstring).
 
     stats adds shards_total / shards_computed / shards_reused / shards_rejected and the
-    backend.
+    backend.  Each shard is awaited with a `backend.Watchdog`: no worker and no finished
+    shard for `stall_timeout` seconds (None: $ZECKENUM_STALL_TIMEOUT, else 600) raises
+    `ClusterStalled` (exit 7), the checkpoint kept.
     """
+    stall = stall_seconds(stall_timeout)
     n = check_n(n)
     check_players(players)
     ruleset = get_rules(rules)
@@ -388,11 +392,12 @@ def run_solve(
         with contextlib.ExitStack() as stack:  # no pool (nor cluster) when all are reused
             pool = stack.enter_context(open_pool(workers, scheduler, threads or 1,
                                                  warm=("solve",))) if todo else None
+            watch = Watchdog(pool, stall, kept_note(checkpoint_dir)) if todo else None
             for i in todo:
                 lo, hi = ranges[i]
                 prev = {} if i == 0 else outputs[i - 1][0]
                 fut = pool.submit(sweep_classes_task, ruleset, n, players, lo, hi, prev)
-                boundary, stats = fut.result()
+                boundary, stats = watch.result(fut)
                 outputs[i] = (boundary, stats)
                 computed += 1
                 if cp is not None:

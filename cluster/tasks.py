@@ -38,6 +38,9 @@ CACHE_ENTRIES = 2
 
 _cache: OrderedDict[tuple[str, int], tuple[StateSpace, Windows, Facts]] = OrderedDict()
 _cache_lock = threading.Lock()
+_facts_memo: dict[tuple[str, int, bool], Facts] = {}
+"""Facts of the games this worker process mapped from the host cache, until released."""
+_facts_lock = threading.Lock()
 
 
 @dataclass(frozen=True)
@@ -114,11 +117,19 @@ def first_sweep(
     keep = first + incoming_bytes_estimate(space) <= limit // 4
     windows = sweep_windows(space, keep_incoming=keep, threads=threads)
     seconds = time.perf_counter() - t0
+    facts = facts_of(ruleset, n, space, windows, seconds)
+    return space, windows, facts
+
+
+def facts_of(
+    ruleset: RuleSet, n: int, space: StateSpace, windows: Windows, seconds: float
+) -> Facts:
+    """The `Facts` of one game, every number derived from its state space and windows."""
     largest = max(space.layer_size(lv) for lv in space.levels)
     fixed = largest * (space.spec.mv_bins.shape[0] * 24 + 8 * space.spec.nbins)
     if windows.incoming is not None:
         fixed = largest * 16
-    facts = Facts(
+    return Facts(
         rules=ruleset.name,
         rules_hash=ruleset.content_hash(),
         n=n,
@@ -136,7 +147,6 @@ def first_sweep(
         updates_one=updates_per_prime(space, windows),
         seconds_windows=round(seconds, 3),
     )
-    return space, windows, facts
 
 
 def prepared(rules: str | RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
@@ -163,15 +173,33 @@ def prepared(rules: str | RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
 
 
 def host_first_sweep(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
-    """`first_sweep` of (rules, n) through this host's shared cache (`hostcache`)."""
+    """`first_sweep` of (rules, n) through this host's shared cache (`hostcache`).
+
+    The cached arrays are checked against the game's state space when mapped, and the
+    `Facts` are recomputed from the space and the checked arrays: only the sweep's time is
+    taken from the cache's record (a statistic, never used to compute).
+    """
     from .hostcache import shared_windows
+
+    space = build_space(ruleset.instantiate(n))
 
     def compute() -> tuple[Windows, dict]:
         _, win, facts = first_sweep(ruleset, n)
         return win, facts.to_dict()
 
-    win, facts, _ = shared_windows(ruleset.content_hash(), n, compute)
-    return build_space(ruleset.instantiate(n)), win, Facts(**facts)
+    win, recorded, _ = shared_windows(ruleset.content_hash(), n, compute, space)
+    key = (ruleset.content_hash(), n, win.incoming is not None)
+    with _facts_lock:
+        facts = _facts_memo.get(key)
+    if facts is None:  # a pure function of the game (and of keeping the moves)
+        seconds = recorded.get("seconds_windows")
+        if isinstance(seconds, bool) or not isinstance(seconds, (int, float)) or not (
+                0 <= seconds < 1e9):
+            seconds = 0.0
+        facts = facts_of(ruleset, n, space, win, float(seconds))
+        with _facts_lock:
+            _facts_memo[key] = facts
+    return space, win, facts
 
 
 def release_task(rules: str | RuleSet, n: int) -> bool:
@@ -182,6 +210,9 @@ def release_task(rules: str | RuleSet, n: int) -> bool:
     ruleset = get_rules(rules)
     with _cache_lock:
         _cache.pop((ruleset.content_hash(), int(n)), None)
+    with _facts_lock:
+        for keep in (True, False):
+            _facts_memo.pop((ruleset.content_hash(), int(n), keep), None)
     return release(ruleset.content_hash(), n)
 
 
@@ -189,6 +220,8 @@ def clear_cache() -> None:
     """Forget every cached first sweep of this process."""
     with _cache_lock:
         _cache.clear()
+    with _facts_lock:
+        _facts_memo.clear()
 
 
 def worker_address() -> str:
