@@ -31,6 +31,8 @@ caller's value, else $ZECKENUM_STALL_TIMEOUT, else 600 s).
 
 from __future__ import annotations
 
+import asyncio
+import concurrent.futures
 import contextlib
 import logging
 import math
@@ -255,6 +257,11 @@ def stall_seconds(value: float | None = None) -> float:
     return value
 
 
+_WAIT_TIMEOUTS = tuple({TimeoutError, concurrent.futures.TimeoutError, asyncio.TimeoutError})
+"""What `Future.result(timeout=...)` raises when the time runs out (one class on Python
+3.11+, three on 3.10), for concurrent.futures and distributed futures alike."""
+
+
 class Watchdog:
     """Stops a run whose cluster has had no worker and finished no task for `timeout` s.
 
@@ -291,13 +298,20 @@ class Watchdog:
                 f"(stall timeout {self.timeout:g} s); {self.kept}")
 
     def result(self, fut: Future):  # noqa: ANN201
-        """`fut.result()`, waiting in periods (ClusterStalled if the cluster stalls)."""
-        done = Completion()
-        done.add(fut)
-        while done.next(self.period) is None:
-            self.idle()
-        self.progress()
-        return fut.result()
+        """`fut.result()`, waiting in periods (ClusterStalled if the cluster stalls).
+
+        Also for a future that was reported finished: a Dask result lives on a worker, and
+        when that worker dies before the client has fetched it the task runs again, so the
+        fetch itself may wait for a worker (and must not wait forever when none comes).
+        """
+        while True:
+            try:
+                value = fut.result(timeout=self.period)
+            except _WAIT_TIMEOUTS:
+                self.idle()
+                continue
+            self.progress()
+            return value
 
 
 def kept_note(checkpoint_dir: str | Path | None) -> str:

@@ -325,7 +325,7 @@ def shards_on_pool(
                 continue
             watch.progress()
             tag = tags.pop(fut)
-            value = fut.result()
+            value = watch.result(fut)  # bounded: a lost result is recomputed
             if tag[0] == "prepare":  # the first answer plans; the others only warmed caches
                 job = jobs[tag[1]]
                 if job.facts is None:

@@ -880,7 +880,7 @@ def build_table(
     complete table of the same rule set, kinds and prime offset in it is resumed
     (module docstring).  A final write that fails prints the table's files as one JSON
     object on standard output and raises OutputError (exit 6)."""
-    from .backend import open_pool
+    from .backend import Completion, Watchdog, open_pool, stall_seconds
     from .run import count_on_pool
 
     if isinstance(what, str):
@@ -918,9 +918,25 @@ def build_table(
             if kind not in what:
                 continue
             todo = rows.missing(kind, ns)
-            futs = [(n, pool.submit(TASKS[kind], ruleset, n)) for n in todo]
-            for n, f in futs:
-                res = f.result()
+            # one task per n, kept as each finishes; waited on through the watchdog, so
+            # a cluster that lost every worker stops with ClusterStalled (exit 7) and a
+            # rerun resumes from the rows kept so far
+            watch = Watchdog(pool, stall_seconds(None),
+                             f"the finished rows were kept in {out / '.rows'}: rerun the "
+                             "same command to resume")
+            done, which = Completion(), {}
+            for n in todo:
+                fut = pool.submit(TASKS[kind], ruleset, n)
+                which[fut] = n
+                done.add(fut)
+            while done.pending:
+                f = done.next(watch.period)
+                if f is None:
+                    watch.idle()
+                    continue
+                watch.progress()
+                n = which.pop(f)
+                res = watch.result(f)  # bounded: a lost result is recomputed
                 if kind == "solve":
                     rows.add(kind, n, {"row": res})
                 else:

@@ -220,3 +220,49 @@ def test_a_failed_run_releases_the_host_cache(host_cache: Path, stop: type) -> N
                                           on_shard=fail), 300)
         assert seen == [True]  # the workers shared the sweep while the run lived ...
         assert not folder.exists()  # ... and were asked to drop it when it failed
+
+
+def test_table_on_a_cluster_that_loses_every_worker_stops_and_resumes(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """`table` waits on its per-n tasks through the watchdog: workers gone for good give
+    ClusterStalled (exit 7) naming the kept rows, and a rerun computes only the rest.
+    Reference: player 2 wins the standard game for every n > 2 ("The Zeckendorf Game",
+    2018, arXiv:1809.04881)."""
+    from zeckenum.cluster.table import build_table, load_table
+
+    monkeypatch.setenv("ZECKENUM_STALL_TIMEOUT", "3")
+    out = tmp_path / "t"
+    rows = out / ".rows"
+    cluster = start_local_cluster(1)
+    try:
+        box: dict[str, Any] = {}
+
+        def run() -> None:
+            try:
+                build_table(3, 70, "solve", out, scheduler=cluster.scheduler_address)
+            except BaseException as exc:  # noqa: BLE001 - checked below
+                box["error"] = exc
+
+        t = threading.Thread(target=run, daemon=True)
+        t.start()
+        deadline = time.monotonic() + 240
+        while time.monotonic() < deadline and not (
+            rows.is_dir() and any(p.name.startswith("solve-") for p in rows.iterdir())
+        ):
+            time.sleep(0.05)
+        cluster.scale(0)  # the first rows are in; the worker goes for good
+        t.join(240)
+        assert not t.is_alive(), "table did not stop: it hangs"
+    finally:
+        close_cluster(cluster)
+    err = box.get("error")
+    assert isinstance(err, ClusterStalled), err
+    assert err.exit_code == 7 and ".rows" in str(err) and "\n" not in str(err)
+    kept = {p.name for p in rows.iterdir() if p.name.startswith("solve-")}
+    assert 1 <= len(kept) < 68
+    # the rerun in-process keeps those rows and completes the table
+    bounded(lambda: build_table(3, 70, "solve", out), 300)
+    table = load_table(out)
+    assert table.ns == list(range(3, 71))
+    assert [str(table.solve[n]["winner"]) for n in table.ns] == ["2"] * 68
