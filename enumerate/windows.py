@@ -25,6 +25,7 @@ from dataclasses import dataclass
 import numba as nb
 import numpy as np
 
+from .rules import GameSpec
 from .statespace import LayerMoves, StateSpace
 
 UNREACHED = np.iinfo(np.int32).max
@@ -133,10 +134,29 @@ def bits_bound(paths_log2: float, depth: int) -> int:
     return max(1, math.floor(paths_log2) + 2)
 
 
+def length_bound(spec: GameSpec) -> int | None:
+    """A proven bound on the number of moves of any game of `spec`, or None when the only
+    one known is the number of states.
+
+    The standard game: a game lasts at most ((3 + sqrt 5) / 2) n - IZ(n) - ((1 + sqrt 5) /
+    2) Z(n) < 2.6181 n moves ("Bounds on Zeckendorf Games", 2020, arXiv:2009.09510).  A
+    game whose moves all lower the level lasts at most the start's level moves.
+    """
+    from .rules import STANDARD
+
+    if spec.rules.content_hash() == STANDARD.content_hash():
+        return math.floor(2.6181 * spec.n) + 1
+    if spec.mv_drop.size == 0 or int(spec.mv_drop.min()) >= 1:
+        return int(spec.start_level)
+    return None
+
+
 def incoming_bytes_estimate(space: StateSpace) -> int:
-    """Rough bytes of all layers' `Incoming` lists: about half the moves apply per state."""
-    per_state = 8 + 5 * max(1, space.spec.mv_bins.shape[0] // 2)
-    return per_state * space.total_states()
+    """Bytes of all layers' `Incoming` lists if every move into every state were kept (an
+    upper bound: only moves from reachable states are): int64 ptr per state, int8 drop and
+    int32 source per move (counted exactly by `StateSpace.moves_by_level`)."""
+    moves = float(space.moves_by_level(-1).sum())
+    return 8 * (space.total_states() + len(space.levels)) + math.ceil(5 * moves)
 
 
 def prefetch_listings(
