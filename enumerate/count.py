@@ -115,7 +115,8 @@ def windows_bytes(space: StateSpace, windows: Windows) -> int:
 
 
 def plan_blocks(
-    space: StateSpace, windows: Windows, primes: list[int], threads: int, limit: int
+    space: StateSpace, windows: Windows, primes: list[int], threads: int, limit: int,
+    first_bytes: int = 0,
 ) -> BlockPlan:
     """Cut `primes` into blocks so that `threads` blocks in flight fit under `limit` bytes.
 
@@ -123,10 +124,11 @@ def plan_blocks(
     aim at PRIMES_PER_BLOCK primes, come in a multiple of `threads` so the threads finish
     together, and shrink (down to one prime) until `threads` of them fit the limit; what
     the first sweep left (`windows_bytes`: rank table, windows, kept moves) is shared by
-    all blocks and counted once.
+    all blocks and counted once, or `first_bytes` (the first sweep's forecast peak) when
+    larger: the allocator may keep what the first sweep touched.
     """
     words_one = peak_words(space, windows, 1)
-    shared = windows_bytes(space, windows)
+    shared = max(windows_bytes(space, windows), int(first_bytes))
     largest = space.largest_layer()
     per_block_fixed = listing_bytes(space) + largest * 8
     if windows.incoming is not None:
@@ -206,7 +208,8 @@ def count(
 
     primes, check_prime = primes_for_bits(windows.count_bits, prime_offset)
     all_primes = [*primes, check_prime]
-    plan = plan_blocks(space, windows, all_primes, nthreads, limit)
+    first_peak = first + (incoming_bytes_estimate(space) if keep else 0)
+    plan = plan_blocks(space, windows, all_primes, nthreads, limit, first_peak)
 
     bar = None
     if progress:
@@ -240,6 +243,7 @@ def count(
             "threads": plan.threads,
             "prime_blocks": len(plan.blocks),
             "planned_peak_bytes": int(plan.peak_bytes),
+            "forecast_peak_bytes": int(max(plan.peak_bytes, first_peak)),
             "count_bits": windows.count_bits,
             "terminal_states": windows.terminals,
         },

@@ -56,7 +56,7 @@ from .randomplay import (
 )
 from .rules import get_rules
 from .statespace import StateSpace, build_space, refuse_space
-from .windows import length_bound
+from .windows import window_bound
 
 U = Fraction(1, 2**53)
 ETA = Fraction(1, 2**1074)
@@ -229,7 +229,7 @@ RING_GROWTH = 1.25
 def float_sweep_bytes(space: StateSpace, model: str, threads: int) -> tuple[int, int]:
     """(forecast peak bytes of `float_play`, the part of it in value buffers).
 
-    An upper bound when the game has a proven length bound (`windows.length_bound`: the
+    An upper bound when the game has a proven window bound (`windows.window_bound`: the
     standard game, or every move lowering the level), else a bound on everything but the
     value buffers, which `float_sweep` then
     checks layer by layer before it allocates them.
@@ -239,8 +239,8 @@ def float_sweep_bytes(space: StateSpace, model: str, threads: int) -> tuple[int,
     queued between the two threads and held live by the float sweep (max_drop + 4 of the
     largest: SKELETON_PER_STATE bytes per state and the kept moves in, counted by
     `StateSpace.moves_by_level`, plus kfin int64); and the float sweep's ring of
-    max_drop + 1 value buffers, each up to RING_GROWTH x (largest layer x (length bound +
-    1)) doubles.
+    max_drop + 1 value buffers, each up to RING_GROWTH x (largest layer x window bound)
+    doubles.
     """
     spec = space.spec
     per_move = 5 + (8 if model == "pairs" else 0)
@@ -248,8 +248,7 @@ def float_sweep_bytes(space: StateSpace, model: str, threads: int) -> tuple[int,
     listing = space.listing_peak(8 * spec.nbins + 16 + 1, 8 + 8 + 4 + 8 + 1 + 8 + 8)
     first = (space.max_drop + 1) * largest * 8 + (threads + 2) * listing
     layers = (space.max_drop + 4) * space.listing_peak(SKELETON_PER_STATE + 8, per_move)
-    bound = length_bound(spec)
-    window = 1 if bound is None else bound + 1
+    window = window_bound(spec) or 1
     ring = (space.max_drop + 1) * math.ceil(RING_GROWTH * largest * window) * 8
     return int(space.tab.nbytes) + first + layers + ring, ring
 
@@ -339,7 +338,7 @@ def float_play(
     q: queue.Queue = queue.Queue(maxsize=2)
     th = threading.Thread(target=_producer, args=(layers, q), daemon=True)
     th.start()
-    budget = limit - (forecast - ring_bytes) if length_bound(spec) is None else None
+    budget = limit - (forecast - ring_bytes) if window_bound(spec) is None else None
     out, acc = float_sweep(_queued(q), start_level, start_rank, model == "moves",
                            space.max_drop, budget)
     th.join()
@@ -368,5 +367,5 @@ def float_play(
         total_error=total_err, max_error=max(err.values()),
         moments=float_moments(ks, ps), gaussian=gaussian_diagnostics(dist),
         stats={"sweep_s": round(t1 - t0, 3),
-               "k_end": k_end, "products": int(acc[2])},
+               "k_end": k_end, "products": int(acc[2]), "forecast_peak_bytes": forecast},
     )

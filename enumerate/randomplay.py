@@ -1072,6 +1072,7 @@ def _run_blocks(
 def random_residues(
     space: StateSpace, skel: Skeleton, model: str, players: int, winners_only: bool,
     prime_offset: int = 0, threads: int | None = None, max_memory: int | None = None,
+    planned: list[int] | None = None,
 ) -> tuple[np.ndarray, list[int], int]:
     """(residues, primes, check prime) of the exact sweep run in-process, block by block in
     threads.
@@ -1079,7 +1080,8 @@ def random_residues(
     residues has one row per prime, in the order primes + [check prime]: the columns of
     `random_law_residues` (lengths 0 .. longest), or with `winners_only` those of
     `random_win_residues` (length mod players).  The primes are the fewest below 2**50
-    whose product exceeds the denominator M (`primes_exceeding`).
+    whose product exceeds the denominator M (`primes_exceeding`).  `planned`, if given,
+    receives the forecast bytes of the blocks running at once.
     """
     primes, check_prime = primes_exceeding(skel.denominator, prime_offset)
     allp = primes + [check_prime]
@@ -1087,21 +1089,28 @@ def random_residues(
     unit = model == "moves"
     budget = None
     if max_memory is not None:
-        held = skeleton_nbytes(skel) + int(space.tab.nbytes)
+        # what the first sweep touched may stay with the process: its forecast bounds it
+        held = max(skeleton_nbytes(skel) + int(space.tab.nbytes),
+                   skeleton_bytes_bound(space, model, True, threads))
         budget = int(max_memory) - held
         refuse_if_over(held, int(max_memory), f"random play at n={space.spec.n} (first sweep)")
     # per prime besides the ring: the inverse table column and the output row
     extra = 8 * (max(skel.max_weight, 1) + 1) + 8 * (skel.longest + 1 + players)
     if winners_only:
-        blocks, k = _prime_blocks(allp, threads, win_words_per_prime(skel, players),
+        words = win_words_per_prime(skel, players)
+        blocks, k = _prime_blocks(allp, threads, words,
                                   f"the exact win probabilities at n={space.spec.n}",
                                   budget=budget, extra_per_prime=extra)
         outs = _run_blocks(blocks, lambda b: random_win_residues(skel, b, unit, players), k)
     else:
-        blocks, k = _prime_blocks(allp, threads, law_words_per_prime(skel),
+        words = law_words_per_prime(skel)
+        blocks, k = _prime_blocks(allp, threads, words,
                                   f"the exact length law at n={space.spec.n}",
                                   LAW_PRIMES_PER_BLOCK, budget=budget, extra_per_prime=extra)
         outs = _run_blocks(blocks, lambda b: random_law_residues(skel, b, unit), k)
+    if planned is not None:
+        biggest = sorted((b.size for b in blocks), reverse=True)[:k]
+        planned.append(sum(biggest) * (words * 8 + extra))
     return np.concatenate(outs, axis=0), primes, check_prime
 
 
@@ -1327,9 +1336,15 @@ def random_play(
     space = random_space(rs.instantiate(n), model, limit, what, threads=threads)
     skel = first_sweep(space, model, threads=threads)
     t1 = time.perf_counter()
+    first_bytes = skeleton_bytes_bound(space, model, True, threads)
+    block_bytes: list[int] = []
     residues, primes, check = random_residues(space, skel, model, players, winners_only,
-                                              prime_offset, threads, max_memory)
-    stats: dict = {"first_sweep_s": round(t1 - t0, 3)}
+                                              prime_offset, threads, max_memory, block_bytes)
+    # the allocator may keep what the first sweep touched: count its forecast, not the
+    # skeleton's nbytes, under the exact sweep's blocks
+    block_bytes = [sum(block_bytes) + max(first_bytes, skeleton_nbytes(skel))]
+    stats: dict = {"first_sweep_s": round(t1 - t0, 3),
+                   "forecast_peak_bytes": max(first_bytes, block_bytes[0])}
     res = assemble_random(
         rules=rs.name, rules_hash=rs.content_hash(), n=n, players=players, model=model,
         winners_only=winners_only, denominator=skel.denominator, states=skel.states,

@@ -844,6 +844,7 @@ def solve(
     reach_bits = sweep_reach(space)[0] if reach else None
     held, stats = sweep_classes(space, players, keep=keep_classes, reach=reach_bits)
     stats["reach_pass"] = bool(reach)
+    stats["forecast_peak_bytes"] = solve_bytes(space, players, reach, keep_classes)
     return solve_result(n, space, players, held, stats, time.perf_counter() - t0,
                         keep_classes=keep_classes)
 
@@ -911,7 +912,9 @@ def solve_result(
         seconds=seconds,
         peak_bits_bytes=stats["peak_bits_bytes"],
         classes=classes,
-        stats={"layers": stats["layers"], "reach_pass": bool(stats.get("reach_pass"))},
+        stats={"layers": stats["layers"], "reach_pass": bool(stats.get("reach_pass")),
+               **({"forecast_peak_bytes": stats["forecast_peak_bytes"]}
+                  if "forecast_peak_bytes" in stats else {})},
     )
 
 

@@ -151,6 +151,25 @@ def length_bound(spec: GameSpec) -> int | None:
     return None
 
 
+def window_bound(spec: GameSpec) -> int | None:
+    """A proven bound on every state's length window (lmax - lmin + 1), or None.
+
+    The standard game: every combine lowers the token count by one and a split keeps it,
+    so all paths from the start to a state with t tokens hold n - t combines and differ
+    only in their splits; a whole game holds n - Z(n) combines, so at most
+    `length_bound` - (n - Z(n)) splits, and Z(n) <= bins.  A game whose moves all lower
+    the level: the start's level + 1.
+    """
+    from .rules import STANDARD
+
+    bound = length_bound(spec)
+    if bound is None:
+        return None
+    if spec.rules.content_hash() == STANDARD.content_hash():
+        return bound - spec.n + spec.nbins + 1
+    return bound + 1
+
+
 def incoming_bytes_estimate(space: StateSpace) -> int:
     """Bytes of all layers' `Incoming` lists if every move into every state were kept (an
     upper bound: only moves from reachable states are): int64 ptr per state, int8 drop and
