@@ -40,10 +40,10 @@ from typing import Any
 
 import numpy as np
 
-from ..count import check_n
+from ..count import check_n, refuse_count
 from ..errors import InputError
 from ..memory import available_bytes, refuse_if_over
-from ..randomplay import RandomResult, validate
+from ..randomplay import RandomResult, refuse_random, validate
 from ..results import CountResult
 from ..rules import RuleSet, get_rules
 from . import checkpoint as ckpt
@@ -114,11 +114,13 @@ def shards_on_pool(
     max_primes_per_block: int | None = None,
     progress: bool = False,
     on_shard: Callable[[int, int], None] | None = None,
+    max_memory: int | None = None,
 ) -> dict[int, Any]:
     """The results of every n in `ns` for one kind of run, with shards on `pool`; {n: result}.
 
     checkpoint_dir  one folder per run of one n; with several n, sub-folders n-<n>
     on_shard(n, i)  called after shard i of n is stored (and checkpointed)
+    max_memory      bytes one worker may use (at most the workers' own limit)
     """
     ns = sorted({check_n(n) for n in ns}, reverse=True)
     if prime_offset < 0:
@@ -129,6 +131,8 @@ def shards_on_pool(
     nworkers = max(1, len(workers))
     single = len(ns) == 1
     limit = _worker_limit(pool)
+    if max_memory is not None:
+        limit = int(max_memory) if limit is None else min(limit, int(max_memory))
 
     def folder(n: int) -> Path | None:
         if checkpoint_dir is None:
@@ -304,6 +308,7 @@ def count_on_pool(
     max_primes_per_block: int | None = None,
     progress: bool = False,
     on_shard: Callable[[int, int], None] | None = None,
+    max_memory: int | None = None,
 ) -> dict[int, CountResult]:
     """Exact counts of every n in `ns` with shards on `pool`; {n: CountResult}.
 
@@ -314,6 +319,7 @@ def count_on_pool(
         count_kind(get_rules(rules)), ns, pool, prime_offset=prime_offset,
         checkpoint_dir=checkpoint_dir, blocks=blocks,
         max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
+        max_memory=max_memory,
     )
 
 
@@ -331,6 +337,7 @@ def random_on_pool(
     max_primes_per_block: int | None = None,
     progress: bool = False,
     on_shard: Callable[[int, int], None] | None = None,
+    max_memory: int | None = None,
 ) -> RandomResult:
     """Exact random play at n with shards on `pool` (equal to `random_play`, stats aside).
 
@@ -341,7 +348,7 @@ def random_on_pool(
     return shards_on_pool(
         kind, [n], pool, prime_offset=prime_offset, checkpoint_dir=checkpoint_dir,
         blocks=blocks, max_primes_per_block=max_primes_per_block, progress=progress,
-        on_shard=on_shard,
+        on_shard=on_shard, max_memory=max_memory,
     )[n]
 
 
@@ -358,6 +365,7 @@ def run_counts(
     max_primes_per_block: int | None = None,
     threads: int | None = None,
     on_shard: Callable[[int, int], None] | None = None,
+    max_memory: int | None = None,
 ) -> dict[int, CountResult]:
     """Exact counts for every n in `ns` on the chosen backend ({n: CountResult}).
 
@@ -367,7 +375,8 @@ def run_counts(
     """
     ns = list(ns)
     opts = dict(prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
-                max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard)
+                max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
+                max_memory=max_memory)
     with open_pool(workers, scheduler, threads, warm=("count",)) as pool:
         if isinstance(pool, ThreadPool) and len(ns) > 1:
             out: dict[int, CountResult] = {}
@@ -391,17 +400,24 @@ def run_count(
     max_primes_per_block: int | None = None,
     threads: int | None = None,
     on_shard: Callable[[int, int], None] | None = None,
+    max_memory: int | None = None,
 ) -> CountResult:
     """`zeckenum.count(n)` computed shard by shard, optionally on Dask and checkpointed.
 
     Equal to `count(n, rules, prime_offset=prime_offset)` (stats aside).  stats adds
     shards_total / shards_computed / shards_reused / shards_rejected and the backend.
+    `max_memory`: the first sweep's forecast is refused here, before any worker starts
+    (`count.refuse_count`; default limit: what this machine has available, not applied
+    to a remote scheduler's workers, whose own limits the driver checks).
     """
     n = check_n(n)
+    if max_memory is not None or scheduler is None:
+        refuse_count(n, rules, max_memory=max_memory)
     res = run_counts(
         [n], rules, workers=workers, scheduler=scheduler, checkpoint_dir=checkpoint_dir,
         progress=progress, prime_offset=prime_offset, blocks=blocks,
         max_primes_per_block=max_primes_per_block, threads=threads, on_shard=on_shard,
+        max_memory=max_memory,
     )
     return res[n]
 
@@ -426,6 +442,7 @@ def run_random(
     max_primes_per_block: int | None = None,
     threads: int | None = None,
     on_shard: Callable[[int, int], None] | None = None,
+    max_memory: int | None = None,
 ) -> RandomResult:
     """`randomplay.random_play(n, ...)` computed shard by shard, optionally on Dask and
     checkpointed.
@@ -439,11 +456,16 @@ def run_random(
     validate(n, players, model)
     if prime_offset < 0:  # refused before a cluster starts
         raise InputError(f"prime offset must be >= 0, got {prime_offset}")
+    # the first sweep's forecast, before any worker starts (`max_memory`, default: what
+    # this machine has available, not applied to a remote scheduler's workers)
+    if max_memory is not None or scheduler is None:
+        refuse_random(n, rules, players, model, max_memory=max_memory)
     with open_pool(workers, scheduler, threads, warm=("random",)) as pool:
         return random_on_pool(
             n, rules, pool, players, model, winners_only=winners_only,
             prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
             max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
+            max_memory=max_memory,
         )
 
 

@@ -174,6 +174,20 @@ def count_space(spec, limit: int) -> StateSpace:  # noqa: ANN001 - a GameSpec
     return build_space(spec, limit)
 
 
+def refuse_count(
+    n: int, rules: str | RuleSet = "standard", *, max_memory: int | None = None,
+    threads: int = 1,
+) -> None:
+    """The up-front refusals of `count` (rank table, states bound, first sweep forecast),
+    without running it: the client of a sharded count calls it before any worker starts.
+    Each worker's first sweep is the same as this forecast; the exact sweep's blocks are
+    sized by the shard plan (`cluster.plan.worker_bytes`)."""
+    n = check_n(n)
+    limit = resolve_limit(max_memory)
+    space = count_space(get_rules(rules).instantiate(n), limit)
+    refuse_if_over(windows_pass_bytes(space, threads), limit, f"counting n={n} (first sweep)")
+
+
 def count(
     n: int,
     rules: str | RuleSet = "standard",

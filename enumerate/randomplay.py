@@ -1306,6 +1306,18 @@ def assemble_random(
     )
 
 
+def refuse_random(
+    n: int, rules: str = "standard", players: int = 2, model: str = "moves", *,
+    max_memory: int | None = None, threads: int | None = None,
+) -> None:
+    """The up-front refusals of `random_play` (`random_space`: rank table, states bound,
+    first sweep forecast) without running it: the client of a sharded run calls it before
+    any worker starts."""
+    validate(n, players, model)
+    random_space(get_rules(rules).instantiate(n), model, resolve_limit(max_memory),
+                 f"random play at n={n}", threads=threads)
+
+
 def random_play(
     n: int, rules: str = "standard", players: int = 2, model: str = "moves", *,
     winners_only: bool = False, prime_offset: int = 0, threads: int | None = None,
