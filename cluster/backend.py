@@ -368,7 +368,7 @@ def check_scheduler_address(address: object) -> str:
     import re
 
     text = str(address).strip()
-    bad = f"--scheduler {text!r}: "
+    bad = f"scheduler address {text!r}: "
     scheme, sep, rest = text.partition("://")
     if not sep:
         scheme, rest = "tcp", text

@@ -45,6 +45,7 @@ from __future__ import annotations
 
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numba as nb
@@ -676,6 +677,7 @@ def sweep_classes(
     reach: dict[int, np.ndarray] | None = None,
     levels: range | None = None,
     held: dict[int, np.ndarray] | None = None,
+    on_layer: Callable[[int], None] | None = None,
 ) -> tuple[dict[int, np.ndarray], dict]:
     """Run the upward sweep; returns (packed bits of the retained layers, statistics).
 
@@ -689,6 +691,7 @@ def sweep_classes(
     levels this call classifies and `held` the bits returned by the call that swept the
     levels just below them.  Pieces chained this way return exactly the bits of one whole
     sweep; their statistics add up to its statistics (the peak is a maximum).
+    `on_layer(states)` is called after each layer with its number of states (progress).
     """
     spec = space.spec
     top = spec.start_level
@@ -730,6 +733,8 @@ def sweep_classes(
             stats["states"] += int(np.bitwise_count(reach[level]).sum())
         stats["moves_examined"] += int(ex)
         stats["layers"] += 1
+        if on_layer is not None:
+            on_layer(size)
         if not keep:
             for old in [lv for lv in held if lv < level - span]:
                 del held[old]
@@ -821,6 +826,7 @@ def solve(
     keep_classes: bool = False,
     reach: bool | None = None,
     max_memory: int | None = None,
+    progress: bool = False,
 ) -> SolveResult:
     """Solve the game for n: outcome classes (two players) or coalition wins (P players).
 
@@ -830,7 +836,8 @@ def solve(
     (`sweep_reach`) and solve only those; None (default) does so for every rule set except
     the standard game, whose states of value n are all reachable (module docstring).
     `max_memory` (default: what the machine has available): the run is refused up front
-    when `solve_bytes` exceeds it (`solve_space`).
+    when `solve_bytes` exceeds it (`solve_space`).  `progress`: a bar of the states
+    classified on stderr.
     """
     from .count import check_n
 
@@ -842,7 +849,18 @@ def solve(
                         keep_classes, f"solving n={n}")
     t0 = time.perf_counter()
     reach_bits = sweep_reach(space)[0] if reach else None
-    held, stats = sweep_classes(space, players, keep=keep_classes, reach=reach_bits)
+    bar = None
+    if progress:
+        from tqdm import tqdm
+
+        bar = tqdm(total=space.total_states(), unit="state", unit_scale=True,
+                   desc=f"solve n={n}")
+    try:
+        held, stats = sweep_classes(space, players, keep=keep_classes, reach=reach_bits,
+                                    on_layer=bar.update if bar is not None else None)
+    finally:
+        if bar is not None:
+            bar.close()
     stats["reach_pass"] = bool(reach)
     stats["forecast_peak_bytes"] = solve_bytes(space, players, reach, keep_classes)
     return solve_result(n, space, players, held, stats, time.perf_counter() - t0,
