@@ -21,6 +21,7 @@ from .cli_options import (
     THREADS,
     WORKERS,
     MemorySize,  # noqa: F401 - part of this module's interface
+    OneLineCommand,
     PositiveInt,  # noqa: F401 - part of this module's interface
     max_memory_option,
     progress_option,
@@ -115,7 +116,7 @@ def format_count(res: CountResult) -> str:
     return "\n".join(lines)
 
 
-@main.command("count")
+@main.command("count", cls=OneLineCommand)
 @click.argument("n", type=POSITIVE)
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of a table.")
 @click.option(

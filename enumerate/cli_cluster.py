@@ -14,6 +14,7 @@ import click
 from .cli_errors import fail
 from .cli_options import (
     WORKERS,
+    OneLineCommand,
     PositiveInt,
     bounded,
     max_memory_option,
@@ -38,7 +39,7 @@ _backend_help = {
 }
 
 
-@click.command("table")
+@click.command("table", cls=OneLineCommand)
 @click.option("--from", "lo", type=POSITIVE, required=True, help="First n.")
 @click.option("--to", "hi", type=POSITIVE, required=True, help="Last n (inclusive).")
 @click.option("--what", default="count", show_default=True,
@@ -100,7 +101,7 @@ def refuse_table(hi: int, kinds: list[str], rules: str, max_memory: int | None) 
                         needs_reach(ruleset), False, f"solving n={hi}")
 
 
-@click.command("verify")
+@click.command("verify", cls=OneLineCommand)
 @click.argument("folder", type=click.Path(file_okay=False))
 @click.option("--sample", type=click.IntRange(min=0), default=3, show_default=True,
               help="How many n to recompute with a disjoint prime set.")
@@ -145,7 +146,7 @@ def _echo_prediction(p: dict, as_json: bool) -> None:
     click.echo(json.dumps(p) if as_json else format_prediction(p))
 
 
-@plan_command.command("count")
+@plan_command.command("count", cls=OneLineCommand)
 @click.argument("n", type=POSITIVE)
 @click.option("--workers", type=WORKERS, default=1, show_default=True,
               help="Workers the run would use.")
@@ -172,7 +173,7 @@ def plan_count_command(n, workers, rules, probe_n, as_json, max_memory):  # noqa
     _echo_prediction(p, as_json)
 
 
-@plan_command.command("random")
+@plan_command.command("random", cls=OneLineCommand)
 @click.argument("n", type=POSITIVE)
 @click.option("--model", type=click.Choice(MODELS), default="moves", show_default=True,
               help="Random model: uniform over legal moves, or over token pairs.")
@@ -209,7 +210,7 @@ def plan_random_command(n, model, players, winners_only, workers, rules, probe_n
     _echo_prediction(p, as_json)
 
 
-@plan_command.command("solve")
+@plan_command.command("solve", cls=OneLineCommand)
 @click.argument("n", type=POSITIVE)
 @click.option("--players", "-p", type=bounded(2, SOLVE_MAX_PLAYERS), default=2,
               show_default=True, help=f"Number of players P (2..{SOLVE_MAX_PLAYERS}).")

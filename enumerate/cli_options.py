@@ -24,6 +24,26 @@ MAX_SHARDS = 10**6
 """Most level ranges of a chained solve."""
 
 
+class OneLineCommand(click.Command):
+    """A command whose usage errors print one line `zeckenum: error: ...` and exit 2 also
+    when it is run on its own (tests, notebooks), as under the `zeckenum` group."""
+
+    def main(self, *args, **kwargs):  # noqa: ANN002, ANN003, ANN201
+        if not kwargs.pop("standalone_mode", True):
+            return super().main(*args, standalone_mode=False, **kwargs)
+        try:
+            rv = super().main(*args, standalone_mode=False, **kwargs)
+        except click.UsageError as exc:
+            click.echo(f"zeckenum: error: {exc.format_message()}", err=True)
+            sys.exit(2)
+        except click.exceptions.Abort:
+            click.echo("zeckenum: aborted", err=True)
+            sys.exit(130)
+        if isinstance(rv, int) and not isinstance(rv, bool) and rv:
+            sys.exit(rv)
+        sys.exit(0)
+
+
 class PositiveInt(click.ParamType):
     """A whole number from 1 to `most` (rejects 2.5, abc, 0, negatives and n > 2^62)."""
 

@@ -10,6 +10,7 @@ import click
 from .cli_errors import fail
 from .cli_options import (
     WORKERS,
+    OneLineCommand,
     PositiveInt,
     bounded,
     max_memory_option,
@@ -110,7 +111,7 @@ def _refuse_sharding(sharded: dict, mode: str) -> None:
         raise InputError(f"{', '.join(given)}: exact mode only, not with {mode}")
 
 
-@click.command("random")
+@click.command("random", cls=OneLineCommand)
 @click.argument("n", type=PositiveInt(), required=False)
 @click.option("--players", "-p", type=bounded(2, MAX_PLAYERS), default=2, show_default=True,
               help=f"Number of players P (2..{MAX_PLAYERS}).")

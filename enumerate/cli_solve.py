@@ -15,6 +15,7 @@ from .cli_errors import one_line_errors
 from .cli_options import (
     SHARDS,
     WORKERS,
+    OneLineCommand,
     PositiveInt,
     bounded,
     max_memory_option,
@@ -64,7 +65,7 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
     return _table(rows)
 
 
-@click.command("solve")
+@click.command("solve", cls=OneLineCommand)
 @click.argument("n", type=PositiveInt())
 @click.option("--rules", "rules_name", default="standard", show_default=True,
               help="Rule set: a built-in name or a .toml rule file.")

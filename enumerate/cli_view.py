@@ -14,7 +14,7 @@ from pathlib import Path
 import click
 
 from .cli_errors import one_line_errors
-from .cli_options import PositiveInt, max_memory_option
+from .cli_options import OneLineCommand, PositiveInt, max_memory_option
 from .errors import CheckFailed, InputError
 
 
@@ -22,7 +22,7 @@ def _frac(x: Fraction) -> str:
     return f"{x.numerator}/{x.denominator}" if x.denominator != 1 else str(x.numerator)
 
 
-@click.command("games")
+@click.command("games", cls=OneLineCommand)
 @click.argument("n", type=PositiveInt())
 @click.option("--rules", default="standard", show_default=True,
               help="Built-in rule set name or a .toml rule file.")
@@ -80,7 +80,7 @@ def games_command(n: int, rules: str, near: int, as_json: bool, max_memory: int 
             f"{verdict} the longest ({long.length})")
 
 
-@click.command("move-stats")
+@click.command("move-stats", cls=OneLineCommand)
 @click.argument("n", type=PositiveInt())
 @click.option("--rules", default="standard", show_default=True,
               help="Built-in rule set name or a .toml rule file.")
