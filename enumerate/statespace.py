@@ -30,6 +30,7 @@ from .rules import GameSpec
 
 OVERFLOW = -1
 """Entry of the rank table whose count does not fit int64 (see `rank_table`)."""
+INT64_MAX = np.iinfo(np.int64).max
 
 
 @nb.njit(cache=True, nogil=True)
@@ -37,8 +38,8 @@ def rank_table(values: np.ndarray, weights: np.ndarray, n: int, max_level: int) 
     """tab[k, v, t]: count vectors over bins 0..k-1 of value v and level t (int64).
 
     A count of 2**63 or more is stored as OVERFLOW (-1), and so is every entry built from
-    one: both terms of each sum are below 2**63, so their int64 sum wraps to a negative
-    number exactly when it overflows.  `build_space` refuses a table holding OVERFLOW.
+    one: each sum x + y of two non-negative terms is checked as y > INT64_MAX - x before it
+    is formed.  `build_space` refuses a table holding OVERFLOW.
     """
     nbins = values.size
     tab = np.zeros((nbins + 1, n + 1, max_level + 1), dtype=np.int64)
@@ -51,9 +52,8 @@ def rank_table(values: np.ndarray, weights: np.ndarray, n: int, max_level: int) 
                 x = tab[k, v, t]
                 if v >= vk and t >= wk and x >= 0:
                     y = tab[k + 1, v - vk, t - wk]
-                    x = OVERFLOW if y < 0 else x + y
-                    if x < 0:
-                        x = OVERFLOW
+                    # compare before adding: a wrapped sum is undefined to the compiler
+                    x = OVERFLOW if y < 0 or y > INT64_MAX - x else x + y
                 tab[k + 1, v, t] = x
     return tab
 
