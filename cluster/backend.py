@@ -501,13 +501,47 @@ def close_cluster(cluster) -> None:  # noqa: ANN001
             os.close(fd)
 
 
+SCHEDULER_SCHEMES = ("tcp", "tls", "inproc", "ucx", "ws", "wss")
+"""Address schemes of a Dask scheduler that `check_scheduler_address` accepts."""
+
+CONNECT_TIMEOUT = 5
+"""Seconds to reach a scheduler before giving up (a wrong address fails fast)."""
+
+
+def check_scheduler_address(address: object) -> str:
+    """A Dask scheduler address, checked without connecting: SCHEME://HOST:PORT with a
+    scheme of SCHEDULER_SCHEMES (or HOST:PORT, meaning tcp), a host name or IPv4 / [IPv6]
+    address and a port 1..65535 (inproc://... takes any non-empty rest).  InputError."""
+    import re
+
+    text = str(address).strip()
+    bad = f"scheduler address {text!r}: "
+    scheme, sep, rest = text.partition("://")
+    if not sep:
+        scheme, rest = "tcp", text
+    if scheme.lower() not in SCHEDULER_SCHEMES:
+        raise InputError(bad + f"unknown scheme {scheme!r} (use one of "
+                         f"{', '.join(SCHEDULER_SCHEMES)}, e.g. tcp://host:8786)")
+    if scheme.lower() == "inproc":
+        if not rest or any(c.isspace() for c in rest):
+            raise InputError(bad + "an inproc address needs a name after inproc://")
+        return text
+    m = re.fullmatch(r"(\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9](?:[A-Za-z0-9.-]{0,252}))"
+                     r":(\d{1,5})/?", rest)
+    if not m or not 1 <= int(m.group(2)) <= 65535:
+        raise InputError(bad + "expected SCHEME://HOST:PORT with a port from 1 to 65535, "
+                         "e.g. tcp://127.0.0.1:8786")
+    return text
+
+
 def connect(address_or_cluster, workers: int | None = None, plugin: bool = True,  # noqa: ANN001, ANN201
             warm: tuple[str, ...] = ("count",)):
     """A Client (with the numba cache slot plugin unless `plugin` is False); waits for
     `workers` workers and loads the kernels of the kinds of run `warm` on each."""
     from distributed import Client
 
-    client = Client(address_or_cluster, set_as_default=False, timeout=15)
+    timeout = CONNECT_TIMEOUT if isinstance(address_or_cluster, str) else 15
+    client = Client(address_or_cluster, set_as_default=False, timeout=timeout)
     try:
         if plugin:
             client.register_plugin(_make_plugin())
@@ -533,6 +567,8 @@ def open_pool(
         raise InputError("give either --workers or --scheduler, not both")
     if workers is not None and workers < 1:
         raise InputError(f"workers must be >= 1, got {workers}")
+    if scheduler is not None:
+        scheduler = check_scheduler_address(scheduler)
     warm_up(tuple(warm))
     if scheduler is not None:
         try:

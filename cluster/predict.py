@@ -33,12 +33,20 @@ import textwrap
 import time
 
 from ..clifmt import plural
-from ..count import check_n, count
+from ..count import check_n, count, refuse_count
 from ..errors import InputError
-from ..memory import human
-from ..randomplay import validate, word_primes
+from ..memory import human, resolve_limit
+from ..randomplay import refuse_random, validate, word_primes
 from ..rules import RuleSet, get_rules
-from ..solve import check_players, needs_reach, solve, sweep_reach
+from ..solve import (
+    check_players,
+    layer_bytes,
+    needs_reach,
+    solve,
+    solve_peak_bits,
+    solve_space,
+    sweep_reach,
+)
 from ..statespace import StateSpace, build_space
 from .kinds import random_kind
 from .plan import ShardPlan, make_plan, worker_bytes
@@ -58,30 +66,55 @@ PROBE_MIN_SECONDS = 0.25
 PROBE_MAX_REPEATS times), so a fast shard (winners only) is still timed reliably."""
 PROBE_MAX_REPEATS = 50
 
+PROBE_MIN_N = 20
+"""Smallest probe n: a smaller game does too little work to time (n = 1 does none)."""
+PROBE_MAX_N = 400
+"""Largest probe n: a probe is a calibration, meant to take about a second."""
+
+
+def check_probe(probe_n: object) -> int:
+    """A probe's n as an int in PROBE_MIN_N..PROBE_MAX_N, else InputError."""
+    if isinstance(probe_n, bool) or not isinstance(probe_n, int) or not (
+        PROBE_MIN_N <= probe_n <= PROBE_MAX_N
+    ):
+        raise InputError(f"the probe's n must be an integer from {PROBE_MIN_N} to "
+                         f"{PROBE_MAX_N}, got {probe_n!r}")
+    return probe_n
+
+
+def _rate(work: float, seconds: float, what: str) -> float:
+    """work / seconds, or InputError when the probe did no measurable work."""
+    if work <= 0 or seconds <= 0:
+        raise InputError(f"the probe did no measurable work ({what}); use a larger --probe")
+    return work / seconds
+
+
 SOLVE_NOTE = ("the chain runs one level range at a time: workers do not speed up one n "
               "(they speed up ranges of n, one task per n in `table`)")
 
 
 def _check_workers(workers: int) -> int:
-    if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
-        raise InputError(f"workers must be a positive integer, got {workers!r}")
+    if isinstance(workers, bool) or not isinstance(workers, int) or not 1 <= workers <= 10**6:
+        raise InputError(f"workers must be an integer from 1 to 1,000,000, got {workers!r}")
     return workers
 
 
 # ----------------------------------------------------------------------------- count
 
 
-def probe_rate(probe_n: int = PROBE_N, rules: str | RuleSet = "standard") -> dict:
+def probe_rate(probe_n: int = PROBE_N, rules: str | RuleSet = "standard",
+               max_memory: int | None = None) -> dict:
     """Word updates per second of the exact sweep on one thread of this machine."""
+    check_probe(probe_n)
     count(5, rules, threads=1)  # compile / load kernels outside the measurement
     t0 = time.perf_counter()
-    r = count(probe_n, rules, threads=1)
+    r = count(probe_n, rules, threads=1, max_memory=max_memory)
     wall = time.perf_counter() - t0
     exact = max(float(r.stats["seconds_exact"]), 1e-6)
     return {
         "probe_n": probe_n,
         "probe_seconds": round(wall, 3),
-        "updates_per_second": r.stats["word_updates"] / exact,
+        "updates_per_second": _rate(r.stats["word_updates"], exact, f"count n={probe_n}"),
     }
 
 
@@ -120,11 +153,18 @@ def shard_forecast(facts: Facts | RandomFacts, plan: ShardPlan, workers: int, ra
 
 def predict_count(
     n: int, rules: str | RuleSet = "standard", workers: int = 1, *,
-    blocks: int | None = None, probe_n: int = PROBE_N,
+    blocks: int | None = None, probe_n: int = PROBE_N, max_memory: int | None = None,
 ) -> dict:
-    """Forecast of `run_count(n, workers=workers)`: exact sizes, shards, memory, time."""
+    """Forecast of `run_count(n, workers=workers)`: exact sizes, shards, memory, time.
+
+    Runs the first sweep of n, so it is refused first, like the count itself
+    (`count.refuse_count`), against `max_memory` (default: what is available)."""
+    n = check_n(n)
+    _check_workers(workers)
+    check_probe(probe_n)
     ruleset = get_rules(rules)
-    rate = probe_rate(probe_n, ruleset)
+    refuse_count(n, ruleset, max_memory=max_memory)
+    rate = probe_rate(probe_n, ruleset, max_memory)
     space, windows, facts = first_sweep(ruleset, n)
     plan = make_plan(facts, 0, workers, blocks)
     return {
@@ -167,14 +207,14 @@ def probe_random_rate(
     return {
         "probe_n": probe_n,
         "probe_seconds": round(time.perf_counter() - t0, 3),
-        "updates_per_second": max(updates, 1) / max(spent, 1e-6),
+        "updates_per_second": _rate(updates, max(spent, 1e-6), f"random play n={probe_n}"),
     }
 
 
 def predict_random(
     n: int, rules: str | RuleSet = "standard", workers: int = 1, *,
     model: str = "moves", players: int = 2, winners_only: bool = False,
-    blocks: int | None = None, probe_n: int | None = None,
+    blocks: int | None = None, probe_n: int | None = None, max_memory: int | None = None,
 ) -> dict:
     """Forecast of `run_random(n, rules, players, model, winners_only=..., workers=workers)`.
 
@@ -184,10 +224,15 @@ def predict_random(
     (`plan.worker_bytes`).  Time from `probe_random_rate` at `probe_n` (default
     PROBE_RANDOM_N) with blocks as large as the plan's largest.  `workers` are K Dask
     workers (`workers=K`) or K threads in-process (`threads=K`): the driver plans both alike.
+    The first sweeps of n and of the probe are refused up front against `max_memory`.
     """
     validate(n, players, model)
     _check_workers(workers)
+    check_probe(probe_n or PROBE_RANDOM_N)
     ruleset = get_rules(rules)
+    # it runs the first sweep of n: refused first, like the run (default: what is available)
+    refuse_random(n, ruleset, players, model, max_memory=max_memory)
+    refuse_random(probe_n or PROBE_RANDOM_N, ruleset, players, model, max_memory=max_memory)
     kind = random_kind(ruleset, model, players, bool(winners_only))
     # compile / load the kernels outside every measurement
     kind.prepare_task(ruleset, 5, *kind.prepare_args)
@@ -220,13 +265,6 @@ def predict_random(
 # ----------------------------------------------------------------------------- solve
 
 
-def layer_bytes(space: StateSpace, level: int) -> int:
-    """Bytes of one bit plane of a layer (one bit per state, packed); 0 outside 0..top."""
-    if level < 0 or level > space.top:
-        return 0
-    return (space.layer_size(level) + 7) // 8
-
-
 def in_flight_bits(space: StateSpace, players: int = 2) -> int:
     """Bytes of the largest window of max_drop + 1 consecutive layers, x bit planes (1 for
     two players, else `players`): what any sweep of this space must hold at once."""
@@ -236,33 +274,11 @@ def in_flight_bits(space: StateSpace, players: int = 2) -> int:
                         for lv in space.levels)
 
 
-def solve_peak_bits(space: StateSpace, players: int = 2) -> int:
-    """Peak bytes of outcome bits `solve.sweep_classes` reports (`peak_bits_bytes`), from
-    the layer sizes alone.
-
-    Replays the sweep's accounting, level by level upward: the layers it holds from the
-    levels below (the last max_drop + 1 swept), the flight buffer of the level's window
-    (itself and the max_drop levels below) and the copy of the finished layer, each one
-    bit per state per plane.  The chain (`solve_chain.run_solve`) holds the same layers at
-    every level, so its peak is the same.  Bounds: in_flight_bits <= peak <=
-    3 x in_flight_bits (each of the three parts fits in the largest window).
-    """
-    planes = 1 if players == 2 else players
-    span = space.max_drop
-    held: list[int] = []
-    peak = 0
-    for level in sorted(space.levels):
-        window = sum(layer_bytes(space, level - d) for d in range(span + 1))
-        held_bytes = sum(layer_bytes(space, lv) for lv in held)
-        peak = max(peak, planes * (held_bytes + window + layer_bytes(space, level)))
-        held = [lv for lv in (*held, level) if lv >= level - span]
-    return peak
-
-
 def probe_solve_rate(probe_n: int = PROBE_SOLVE_N, rules: str | RuleSet = "standard",
                      players: int = 2) -> dict:
     """States of the space walked per second by `solve.solve` on one thread of this machine
     (its reachability sweep included, for the rule sets that need one)."""
+    check_probe(probe_n)
     ruleset = get_rules(rules)
     solve(5, ruleset, players)  # compile / load kernels outside the measurement
     t0 = time.perf_counter()
@@ -272,14 +288,14 @@ def probe_solve_rate(probe_n: int = PROBE_SOLVE_N, rules: str | RuleSet = "stand
     return {
         "probe_n": probe_n,
         "probe_seconds": round(wall, 3),
-        "states_per_second": walked / max(res.seconds, 1e-6),
+        "states_per_second": _rate(walked, max(res.seconds, 1e-6), f"solve n={probe_n}"),
     }
 
 
 def predict_solve(
     n: int, rules: str | RuleSet = "standard", workers: int = 1, *,
     players: int = 2, shards: int | None = None, reach: bool = False,
-    probe_n: int | None = None,
+    probe_n: int | None = None, max_memory: int | None = None,
 ) -> dict:
     """Forecast of `run_solve(n, rules, players, shards=shards, workers=workers)`.
 
@@ -296,8 +312,11 @@ def predict_solve(
     n = check_n(n)
     check_players(players)
     _check_workers(workers)
+    check_probe(probe_n or PROBE_SOLVE_N)
     ruleset = get_rules(rules)
-    space = build_space(ruleset.instantiate(n))
+    # the rank table of n (and with `reach` the reachability bits) are refused first
+    space = solve_space(ruleset.instantiate(n), resolve_limit(max_memory), players,
+                        bool(reach and needs_reach(ruleset)), False, f"planning solve n={n}")
     ranges = plan_ranges(space, shards)
     total = space.total_states()
     reach_pass = needs_reach(ruleset)

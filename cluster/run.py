@@ -55,10 +55,10 @@ from typing import Any
 
 import numpy as np
 
-from ..count import check_n
+from ..count import check_n, refuse_count
 from ..errors import InputError
 from ..memory import available_bytes, refuse_if_over
-from ..randomplay import RandomResult, validate
+from ..randomplay import RandomResult, refuse_random, validate
 from ..results import CountResult
 from ..rules import RuleSet, get_rules
 from ..safeio import check_output_dir
@@ -132,6 +132,7 @@ def shards_on_pool(
     progress: bool = False,
     on_shard: Callable[[int, int], None] | None = None,
     stall_timeout: float | None = None,
+    max_memory: int | None = None,
 ) -> dict[int, Any]:
     """The results of every n in `ns` for one kind of run, with shards on `pool`; {n: result}.
 
@@ -139,6 +140,7 @@ def shards_on_pool(
     on_shard(n, i)  called after shard i of n is stored (and checkpointed)
     stall_timeout   seconds with no worker and no finished task before `ClusterStalled`
                     (None: $ZECKENUM_STALL_TIMEOUT, else 600)
+    max_memory      bytes one worker may use (at most the workers' own limit)
     """
     stall = stall_seconds(stall_timeout)
     ns = sorted({check_n(n) for n in ns}, reverse=True)
@@ -150,6 +152,8 @@ def shards_on_pool(
     nworkers = max(1, len(workers))
     single = len(ns) == 1
     limit = _worker_limit(pool)
+    if max_memory is not None:
+        limit = int(max_memory) if limit is None else min(limit, int(max_memory))
 
     def folder(n: int) -> Path | None:
         if checkpoint_dir is None:
@@ -378,6 +382,7 @@ def count_on_pool(
     progress: bool = False,
     on_shard: Callable[[int, int], None] | None = None,
     stall_timeout: float | None = None,
+    max_memory: int | None = None,
 ) -> dict[int, CountResult]:
     """Exact counts of every n in `ns` with shards on `pool`; {n: CountResult}.
 
@@ -390,6 +395,7 @@ def count_on_pool(
         checkpoint_dir=checkpoint_dir, blocks=blocks,
         max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
         stall_timeout=stall_timeout,
+        max_memory=max_memory,
     )
 
 
@@ -408,6 +414,7 @@ def random_on_pool(
     progress: bool = False,
     on_shard: Callable[[int, int], None] | None = None,
     stall_timeout: float | None = None,
+    max_memory: int | None = None,
 ) -> RandomResult:
     """Exact random play at n with shards on `pool` (equal to `random_play`, stats aside).
 
@@ -419,7 +426,7 @@ def random_on_pool(
     return shards_on_pool(
         kind, [n], pool, prime_offset=prime_offset, checkpoint_dir=checkpoint_dir,
         blocks=blocks, max_primes_per_block=max_primes_per_block, progress=progress,
-        on_shard=on_shard, stall_timeout=stall_timeout,
+        on_shard=on_shard, stall_timeout=stall_timeout, max_memory=max_memory,
     )[n]
 
 
@@ -437,6 +444,7 @@ def run_counts(
     threads: int | None = None,
     on_shard: Callable[[int, int], None] | None = None,
     stall_timeout: float | None = None,
+    max_memory: int | None = None,
 ) -> dict[int, CountResult]:
     """Exact counts for every n in `ns` on the chosen backend ({n: CountResult}).
 
@@ -452,7 +460,7 @@ def run_counts(
     stall = stall_seconds(stall_timeout)
     opts = dict(prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
                 max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
-                stall_timeout=stall)
+                stall_timeout=stall, max_memory=max_memory)
     with open_pool(workers, scheduler, threads, warm=("count",)) as pool:
         if isinstance(pool, ThreadPool) and len(ns) > 1:
             out: dict[int, CountResult] = {}
@@ -477,19 +485,26 @@ def run_count(
     threads: int | None = None,
     on_shard: Callable[[int, int], None] | None = None,
     stall_timeout: float | None = None,
+    max_memory: int | None = None,
 ) -> CountResult:
     """`zeckenum.count(n)` computed shard by shard, optionally on Dask and checkpointed.
 
     Equal to `count(n, rules, prime_offset=prime_offset)` (stats aside).  stats adds
     shards_total / shards_computed / shards_reused / shards_rejected and the backend.
     stall_timeout: as `run_counts`.
+    `max_memory`: the first sweep's forecast is refused here, before any worker starts
+    (`count.refuse_count`; default limit: what this machine has available, not applied
+    to a remote scheduler's workers, whose own limits the driver checks).
     """
     n = check_n(n)
+    if max_memory is not None or scheduler is None:
+        refuse_count(n, rules, max_memory=max_memory)
     res = run_counts(
         [n], rules, workers=workers, scheduler=scheduler, checkpoint_dir=checkpoint_dir,
         progress=progress, prime_offset=prime_offset, blocks=blocks,
         max_primes_per_block=max_primes_per_block, threads=threads, on_shard=on_shard,
         stall_timeout=stall_timeout,
+        max_memory=max_memory,
     )
     return res[n]
 
@@ -515,6 +530,7 @@ def run_random(
     threads: int | None = None,
     on_shard: Callable[[int, int], None] | None = None,
     stall_timeout: float | None = None,
+    max_memory: int | None = None,
 ) -> RandomResult:
     """`randomplay.random_play(n, ...)` computed shard by shard, optionally on Dask and
     checkpointed.
@@ -532,12 +548,17 @@ def run_random(
     if checkpoint_dir is not None:
         check_output_dir(checkpoint_dir, "checkpoint directory")
     stall = stall_seconds(stall_timeout)
+    # the first sweep's forecast, before any worker starts (`max_memory`, default: what
+    # this machine has available, not applied to a remote scheduler's workers)
+    if max_memory is not None or scheduler is None:
+        refuse_random(n, rules, players, model, max_memory=max_memory)
     with open_pool(workers, scheduler, threads, warm=("random",)) as pool:
         return random_on_pool(
             n, rules, pool, players, model, winners_only=winners_only,
             prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
             max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
             stall_timeout=stall,
+            max_memory=max_memory,
         )
 
 

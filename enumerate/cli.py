@@ -16,6 +16,19 @@ import click
 from . import __version__
 from .cli_cluster import plan_command, table_command, verify_command
 from .cli_errors import fail
+from .cli_options import (
+    POSITIVE,
+    PRIME_OFFSET,
+    THREADS,
+    WORKERS,
+    MemorySize,  # noqa: F401 - part of this module's interface
+    OneLineCommand,
+    PositiveInt,  # noqa: F401 - part of this module's interface
+    max_memory_option,
+    progress_option,
+    resolve_progress,
+    scheduler_option,
+)
 from .cli_random import random_command
 from .cli_rules import rules_group
 from .cli_solve import check_strategy_command, solve_command
@@ -23,44 +36,11 @@ from .cli_view import games_command, movestats_command, plot_command, report_com
 from .clifmt import deliver_result, plural
 from .count import count
 from .errors import INTERNAL_ERROR_EXIT, InputError, MemoryRefused, OutputError, ZeckenumError
-from .memory import parse_size
 from .results import CountResult
 from .safeio import check_output_file
 
 OUT_SUFFIXES = (".csv", ".json")
 """What `count --out FILE` writes: the spectrum as CSV, or the whole result as JSON."""
-
-
-class PositiveInt(click.ParamType):
-    """A whole number >= 1 (rejects 2.5, abc, 0 and negatives with one line)."""
-
-    name = "N"
-
-    def convert(self, value, param, ctx):  # noqa: ANN001 - click's signature
-        if isinstance(value, int) and not isinstance(value, bool):
-            n = value
-        else:
-            text = str(value).strip()
-            if not text.lstrip("+-").isdigit():
-                self.fail(f"{value!r} is not a whole number", param, ctx)
-            n = int(text)
-        if n < 1:
-            self.fail(f"n must be at least 1, got {n}", param, ctx)
-        return n
-
-
-POSITIVE = PositiveInt()
-
-
-class MemorySize(click.ParamType):
-    name = "SIZE"
-
-    def convert(self, value, param, ctx):  # noqa: ANN001
-        try:
-            return parse_size(str(value))
-        except ZeckenumError as exc:
-            self.fail(str(exc), param, ctx)
-
 
 RULES_OPTION = click.option(
     "--rules", default="standard", show_default=True, metavar="NAME|FILE",
@@ -160,7 +140,7 @@ def out_text(res: CountResult, path: Path) -> str:
     return json.dumps(res.to_dict(), indent=2) + "\n"
 
 
-@main.command("count")
+@main.command("count", cls=OneLineCommand)
 @click.argument("n", type=POSITIVE)
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of a table.")
 @click.option(
@@ -168,18 +148,16 @@ def out_text(res: CountResult, path: Path) -> str:
     help="Also write the spectrum to FILE: .csv (n,length,count) or .json (checked before "
          "counting; if the write fails the result goes to a rescue file, exit 6).",
 )
-@click.option("--threads", type=click.IntRange(min=1), default=None,
+@click.option("--threads", type=THREADS, default=None,
               help="Threads for the exact sweep (default: all cores).")
-@click.option("--prime-offset", type=click.IntRange(min=0), default=0, show_default=True,
+@click.option("--prime-offset", type=PRIME_OFFSET, default=0, show_default=True,
               help="Skip this many primes below 2^62 (use another prime set to re-check).")
-@click.option("--max-memory", type=MemorySize(), default=None,
-              help="Memory limit, e.g. 4G (default: what the machine has available).")
-@click.option("--progress/--no-progress", default=False, help="Show a progress bar on stderr.")
+@max_memory_option
+@progress_option()
 @RULES_OPTION
-@click.option("--workers", type=click.IntRange(min=1), default=None,
+@click.option("--workers", type=WORKERS, default=None,
               help="Run the prime blocks on a local Dask cluster of K worker processes.")
-@click.option("--scheduler", default=None, metavar="ADDRESS",
-              help="Run the prime blocks on an existing Dask cluster (e.g. tcp://host:8786).")
+@scheduler_option("Run the prime blocks on an existing Dask cluster (e.g. tcp://host:8786).")
 @click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False), default=None,
               help="Keep each finished block in DIR; rerunning resumes from it.")
 def count_command(
@@ -199,6 +177,7 @@ def count_command(
       zeckenum count 180 --workers 2 --checkpoint ckpt180
     """
     lost: OutputError | None = None
+    progress = resolve_progress(progress)
     try:
         out_path = check_out_path(out) if out else None
         if workers or scheduler or checkpoint_dir:
@@ -207,6 +186,7 @@ def count_command(
             res = run_count(
                 n, rules, workers=workers, scheduler=scheduler, checkpoint_dir=checkpoint_dir,
                 progress=progress, prime_offset=prime_offset, threads=threads,
+                max_memory=max_memory,
             )
         else:
             res = count(

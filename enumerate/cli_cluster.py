@@ -12,12 +12,25 @@ import json
 import click
 
 from .cli_errors import fail
+from .cli_options import (
+    WORKERS,
+    OneLineCommand,
+    PositiveInt,
+    bounded,
+    max_memory_option,
+    progress_option,
+    resolve_progress,
+    scheduler_option,
+)
 from .clifmt import plural
 from .errors import InputError, ZeckenumError
-from .randomplay import MODELS
+from .randomplay import MAX_PLAYERS, MODELS
+from .solve import MAX_PLAYERS as SOLVE_MAX_PLAYERS
 
 # No import from `cli` at module level: `cli` imports this module to register the commands.
-POSITIVE = click.IntRange(min=1)
+POSITIVE = PositiveInt()
+PROBE = bounded(20, 400)
+"""A probe's n (`cluster.predict.check_probe`): enough work to time, about a second."""
 
 
 
@@ -27,7 +40,7 @@ _backend_help = {
 }
 
 
-@click.command("table")
+@click.command("table", cls=OneLineCommand)
 @click.option("--from", "lo", type=POSITIVE, required=True, help="First n.")
 @click.option("--to", "hi", type=POSITIVE, required=True, help="Last n (inclusive).")
 @click.option("--what", default="count", show_default=True,
@@ -36,13 +49,15 @@ _backend_help = {
               help="Directory to publish: new, empty, or a partial/complete table of the "
                    "same rules and kinds, which is resumed.")
 @click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
-@click.option("--workers", type=click.IntRange(min=1), default=None,
+@click.option("--workers", type=WORKERS, default=None,
               help=_backend_help["workers"])
-@click.option("--scheduler", default=None, help=_backend_help["scheduler"])
+@scheduler_option(_backend_help["scheduler"])
 @click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False), default=None,
               help="Keep finished shards here; a rerun resumes from them.")
-@click.option("--progress/--no-progress", default=False, help="Progress bar on stderr.")
-def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, progress):  # noqa: ANN001
+@progress_option()
+@max_memory_option
+def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, progress,  # noqa: ANN001
+                  max_memory):
     """Publish exact tables for every n from --from to --to into a directory.
 
     \b
@@ -59,25 +74,49 @@ def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, 
 
     try:
         kinds = parse_what(what)
+        if hi < lo:
+            raise InputError(f"--to must be at least --from, got --from {lo} --to {hi}")
+        if max_memory is not None or scheduler is None:
+            refuse_table(hi, kinds, rules, max_memory)
         manifest = build_table(lo, hi, kinds, out, rules, workers=workers,
                                scheduler=scheduler, checkpoint_dir=checkpoint_dir,
-                               progress=progress)
+                               progress=resolve_progress(progress))
     except ZeckenumError as exc:
         fail(exc)
     click.echo(f"zeckenum table: n={lo}..{hi} ({', '.join(kinds)}) -> {out}: "
                f"{plural(len(manifest['files']), 'file')} + manifest.json")
 
 
-@click.command("verify")
+def refuse_table(hi: int, kinds: list[str], rules: str, max_memory: int | None) -> None:
+    """The up-front refusals of the largest n of a table, for each kind it computes (the
+    forecasts grow with n): a table that cannot reach its last n does not start."""
+    from .count import refuse_count
+    from .memory import resolve_limit
+    from .randomplay import refuse_random
+    from .rules import get_rules
+    from .solve import needs_reach, solve_space
+
+    ruleset = get_rules(rules)
+    for kind in kinds:
+        if kind == "count":
+            refuse_count(hi, ruleset, max_memory=max_memory)
+        elif kind == "random":
+            refuse_random(hi, ruleset, max_memory=max_memory)
+        elif kind == "solve":
+            solve_space(ruleset.instantiate(hi), resolve_limit(max_memory), 2,
+                        needs_reach(ruleset), False, f"solving n={hi}")
+
+
+@click.command("verify", cls=OneLineCommand)
 @click.argument("folder", type=click.Path(file_okay=False))
 @click.option("--sample", type=click.IntRange(min=0), default=3, show_default=True,
               help="How many n, drawn at random, to recompute (the largest n always is).")
-@click.option("--seed", type=click.IntRange(min=0), default=None,
+@click.option("--seed", type=bounded(0, 2**63 - 1), default=None,
               help="Seed of the sample, to repeat a run (default: a fresh one, printed).")
 @click.option("--full", is_flag=True, help="Recompute every n of the table.")
-@click.option("--workers", type=click.IntRange(min=1), default=None,
+@click.option("--workers", type=WORKERS, default=None,
               help=_backend_help["workers"])
-@click.option("--scheduler", default=None, help=_backend_help["scheduler"])
+@scheduler_option(_backend_help["scheduler"])
 def verify_command(folder, sample, seed, full, workers, scheduler):  # noqa: ANN001
     """Check a published table: checksums, file list, row invariants, and recomputed rows.
 
@@ -125,15 +164,16 @@ def _echo_prediction(p: dict, as_json: bool) -> None:
     click.echo(json.dumps(p) if as_json else format_prediction(p))
 
 
-@plan_command.command("count")
+@plan_command.command("count", cls=OneLineCommand)
 @click.argument("n", type=POSITIVE)
-@click.option("--workers", type=click.IntRange(min=1), default=1, show_default=True,
+@click.option("--workers", type=WORKERS, default=1, show_default=True,
               help="Workers the run would use.")
 @click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
-@click.option("--probe", "probe_n", type=POSITIVE, default=90, show_default=True,
-              help="n of the calibration count on this machine.")
+@click.option("--probe", "probe_n", type=PROBE, default=90, show_default=True,
+              help="n of the calibration count on this machine (20..400).")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
-def plan_count_command(n, workers, rules, probe_n, as_json):  # noqa: ANN001
+@max_memory_option
+def plan_count_command(n, workers, rules, probe_n, as_json, max_memory):  # noqa: ANN001
     """Forecast an exact count: sizes, shards, memory, time.
 
     Runs the first sweep of N (exact sizes and word updates) and a small calibration count.
@@ -145,28 +185,29 @@ def plan_count_command(n, workers, rules, probe_n, as_json):  # noqa: ANN001
     from .cluster.predict import predict_count
 
     try:
-        p = predict_count(n, rules, workers, probe_n=probe_n)
+        p = predict_count(n, rules, workers, probe_n=probe_n, max_memory=max_memory)
     except ZeckenumError as exc:
         fail(exc)
     _echo_prediction(p, as_json)
 
 
-@plan_command.command("random")
-@click.argument("n", type=int)
+@plan_command.command("random", cls=OneLineCommand)
+@click.argument("n", type=POSITIVE)
 @click.option("--model", type=click.Choice(MODELS), default="moves", show_default=True,
               help="Random model: uniform over legal moves, or over token pairs.")
-@click.option("--players", "-p", type=int, default=2, show_default=True,
-              help="Number of players P (>= 2).")
+@click.option("--players", "-p", type=bounded(2, MAX_PLAYERS), default=2, show_default=True,
+              help=f"Number of players P (2..{MAX_PLAYERS}).")
 @click.option("--winners-only", is_flag=True,
               help="Forecast the win probabilities only (no length law).")
-@click.option("--workers", type=int, default=1, show_default=True,
+@click.option("--workers", type=WORKERS, default=1, show_default=True,
               help="Workers the run would use.")
 @click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
-@click.option("--probe", "probe_n", type=int, default=None,
-              help="n of the calibration run on this machine (default 100).")
+@click.option("--probe", "probe_n", type=PROBE, default=None,
+              help="n of the calibration run on this machine (20..400, default 100).")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+@max_memory_option
 def plan_random_command(n, model, players, winners_only, workers, rules, probe_n,  # noqa: ANN001
-                        as_json):
+                        as_json, max_memory):
     """Forecast exact random play: sizes, primes, shards, memory, time.
 
     Runs random play's first sweep of N (exact states, transitions, denominator, primes,
@@ -181,29 +222,30 @@ def plan_random_command(n, model, players, winners_only, workers, rules, probe_n
     try:
         _check_probe(probe_n)
         p = predict_random(n, rules, workers, model=model, players=players,
-                           winners_only=winners_only, probe_n=probe_n)
+                           winners_only=winners_only, probe_n=probe_n, max_memory=max_memory)
     except ZeckenumError as exc:
         fail(exc)
     _echo_prediction(p, as_json)
 
 
-@plan_command.command("solve")
-@click.argument("n", type=int)
-@click.option("--players", "-p", type=int, default=2, show_default=True,
-              help="Number of players P (>= 2).")
-@click.option("--workers", type=int, default=1, show_default=True,
+@plan_command.command("solve", cls=OneLineCommand)
+@click.argument("n", type=POSITIVE)
+@click.option("--players", "-p", type=bounded(2, SOLVE_MAX_PLAYERS), default=2,
+              show_default=True, help=f"Number of players P (2..{SOLVE_MAX_PLAYERS}).")
+@click.option("--workers", type=WORKERS, default=1, show_default=True,
               help="Workers the run would use (the chain runs one range at a time).")
-@click.option("--shards", type=int, default=None,
+@click.option("--shards", type=bounded(1, 10**6), default=None,
               help="Level ranges of the chain (default: one per 2e7 states).")
 @click.option("--reach", is_flag=True,
               help="Run the reachability sweep for an exact state count (rule sets other "
                    "than the standard game; else the count is an upper bound).")
 @click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
-@click.option("--probe", "probe_n", type=int, default=None,
-              help="n of the calibration solve on this machine (default 160).")
+@click.option("--probe", "probe_n", type=PROBE, default=None,
+              help="n of the calibration solve on this machine (20..400, default 160).")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+@max_memory_option
 def plan_solve_command(n, players, workers, shards, reach, rules, probe_n,  # noqa: ANN001
-                       as_json):
+                       as_json, max_memory):
     """Forecast optimal play: states, level ranges, bit memory, time.
 
     Reads the exact sizes off the rank table and times a small calibration solve.  The
@@ -218,7 +260,7 @@ def plan_solve_command(n, players, workers, shards, reach, rules, probe_n,  # no
     try:
         _check_probe(probe_n)
         p = predict_solve(n, rules, workers, players=players, shards=shards, reach=reach,
-                          probe_n=probe_n)
+                          probe_n=probe_n, max_memory=max_memory)
     except ZeckenumError as exc:
         fail(exc)
     _echo_prediction(p, as_json)

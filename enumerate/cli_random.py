@@ -14,9 +14,20 @@ from fractions import Fraction
 import click
 
 from .cli_errors import fail
+from .cli_options import (
+    WORKERS,
+    OneLineCommand,
+    PositiveInt,
+    bounded,
+    max_memory_option,
+    progress_option,
+    resolve_progress,
+    scheduler_option,
+)
 from .clifmt import DIGITS, decimal, plural
 from .errors import InputError, ZeckenumError
-from .randomplay import MODELS, frac_str
+from .randomplay import MAX_PLAYERS, MODELS, frac_str
+from .simulate import MAX_GAMES
 
 CONVENTION = "a game with no move (n = 1) counts as a win for player P (the last player)"
 
@@ -103,24 +114,32 @@ def _print_sim(res) -> None:
                f"{res.variance[2]:.6f}]")
 
 
-def gaussian_table(lo: int, hi: int, rules: str, model: str, use_float: bool) -> list[dict]:
-    """One row of Gaussian diagnostics per n in lo..hi (exact or float distribution)."""
-    from .floatplay import float_play
-    from .randomplay import random_play
+def gaussian_table(lo: int, hi: int, rules: str, model: str, use_float: bool,
+                   max_memory: int | None = None) -> list[dict]:
+    """One row of Gaussian diagnostics per n in lo..hi (exact or float distribution).
 
+    The largest n's memory forecast is checked before any n runs (the forecasts grow with
+    n), so a range that cannot finish is refused up front."""
+    from .floatplay import float_play
+    from .randomplay import random_play, refuse_random
+
+    if not use_float:
+        refuse_random(hi, rules, 2, model, max_memory=max_memory)
     rows = []
     for n in range(lo, hi + 1):
         if use_float:
-            g = float_play(n, rules, 2, model).gaussian
+            g = float_play(n, rules, 2, model, max_memory=max_memory).gaussian
         else:
-            g = random_play(n, rules, 2, model).gaussian
+            g = random_play(n, rules, 2, model, max_memory=max_memory).gaussian
         rows.append({"n": n, **g})
     return rows
 
 
 SHARD_OPTIONS = {"workers": "--workers", "scheduler": "--scheduler",
                  "checkpoint_dir": "--checkpoint", "progress": "--progress"}
-"""Exact mode only: with any of them the prime blocks run sharded (`cluster.run.run_random`)."""
+"""Exact mode only: with any of them (or the default --progress on a terminal) the prime
+blocks run through the sharded driver (`cluster.run.run_random`), which shows a progress
+bar; an explicit --progress is refused in the other modes."""
 
 
 def _refuse_sharding(sharded: dict, mode: str) -> None:
@@ -130,10 +149,10 @@ def _refuse_sharding(sharded: dict, mode: str) -> None:
         raise InputError(f"{', '.join(given)}: exact mode only, not with {mode}")
 
 
-@click.command("random")
-@click.argument("n", type=int, required=False)
-@click.option("--players", "-p", type=int, default=2, show_default=True,
-              help="Number of players P (>= 2).")
+@click.command("random", cls=OneLineCommand)
+@click.argument("n", type=PositiveInt(), required=False)
+@click.option("--players", "-p", type=bounded(2, MAX_PLAYERS), default=2, show_default=True,
+              help=f"Number of players P (2..{MAX_PLAYERS}).")
 @click.option("--model", type=click.Choice(MODELS), default="moves", show_default=True,
               help="moves: uniform over legal moves; pairs: uniform over movable token pairs.")
 @click.option("--rules", default="standard", show_default=True, help="Rule set name.")
@@ -141,27 +160,28 @@ def _refuse_sharding(sharded: dict, mode: str) -> None:
               help="Exact win probabilities only (residues of the length mod P; much faster).")
 @click.option("--float", "use_float", is_flag=True,
               help="float64 sweep with a rigorous rounding-error bound.")
-@click.option("--simulate", "games", type=int, default=None, metavar="K",
+@click.option("--simulate", "games", type=bounded(1, MAX_GAMES), default=None, metavar="K",
               help="Monte Carlo: play K random games.")
-@click.option("--seed", type=int, default=0, show_default=True, help="Seed for --simulate.")
-@click.option("--range", "nrange", type=int, nargs=2, default=None, metavar="A B",
+@click.option("--seed", type=bounded(0, 2**63 - 1), default=0, show_default=True,
+              help="Seed for --simulate.")
+@click.option("--range", "nrange", type=PositiveInt(), nargs=2, default=None, metavar="A B",
               help="Gaussian diagnostics table for n = A..B.")
 @click.option("--json", "as_json", is_flag=True,
               help="Print one JSON object (exact fractions as \"num/den\" strings).")
 @click.option("--exact", "show_exact", is_flag=True,
               help="Exact mode: print the exact fractions after the 12-digit decimals.")
-@click.option("--workers", type=click.IntRange(min=1), default=None,
+@click.option("--workers", type=WORKERS, default=None,
               help="Exact mode: run the prime blocks on a local Dask cluster of K worker "
                    "processes.")
-@click.option("--scheduler", default=None, metavar="ADDRESS",
-              help="Exact mode: run the prime blocks on an existing Dask cluster "
-                   "(e.g. tcp://host:8786).")
+@scheduler_option("Exact mode: run the prime blocks on an existing Dask cluster "
+                  "(e.g. tcp://host:8786).")
 @click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False), default=None,
               help="Exact mode: keep each finished block in DIR; rerunning resumes from it.")
-@click.option("--progress/--no-progress", default=False,
-              help="Exact mode: show a progress bar of the prime blocks on stderr.")
+@progress_option("Sharded exact mode: show a progress bar of the prime blocks on stderr")
+@max_memory_option
 def random_command(n, players, model, rules, winners_only, use_float, games, seed, nrange,
-                   as_json, show_exact, workers, scheduler, checkpoint_dir, progress) -> None:
+                   as_json, show_exact, workers, scheduler, checkpoint_dir, progress,
+                   max_memory) -> None:
     """Random play at N: exact probability of every length and of each player winning.
 
     \b
@@ -176,16 +196,18 @@ def random_command(n, players, model, rules, winners_only, use_float, games, see
       zeckenum random 300 --workers 2 --checkpoint ckpt-random300
     """
     sharded = {"workers": workers, "scheduler": scheduler, "checkpoint_dir": checkpoint_dir,
-               "progress": progress}
+               "progress": progress is True}
     try:
         _run(n, players, model, rules, winners_only, use_float, games, seed, nrange, as_json,
-             sharded, show_exact)
+             sharded, show_exact, max_memory=max_memory,
+             progress=resolve_progress(progress))
     except ZeckenumError as exc:
         fail(exc)
 
 
 def _run(n, players, model, rules, winners_only, use_float, games, seed, nrange,
-         as_json, sharded: dict | None = None, show_exact: bool = False) -> None:
+         as_json, sharded: dict | None = None, show_exact: bool = False, *,
+         max_memory: int | None = None, progress: bool = False) -> None:
     sharded = sharded or {}
     if show_exact and (nrange is not None or use_float or games is not None):
         raise InputError("--exact: exact mode only, not with --range, --float or --simulate")
@@ -194,7 +216,7 @@ def _run(n, players, model, rules, winners_only, use_float, games, seed, nrange,
         lo, hi = nrange
         if lo < 1 or hi < lo:
             raise InputError(f"--range needs 1 <= A <= B, got {lo} {hi}")
-        rows = gaussian_table(lo, hi, rules, model, use_float)
+        rows = gaussian_table(lo, hi, rules, model, use_float, max_memory)
         if as_json:
             click.echo(json.dumps({"rules": rules, "model": model,
                                    "mode": "float" if use_float else "exact",
@@ -215,23 +237,28 @@ def _run(n, players, model, rules, winners_only, use_float, games, seed, nrange,
         _refuse_sharding(sharded, "--simulate")
         from .simulate import simulate
 
-        res = simulate(n, games, seed, rules, players, model)
+        res = simulate(n, games, seed, rules, players, model, max_memory=max_memory)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_sim(res)
     elif use_float:
         _refuse_sharding(sharded, "--float")
         from .floatplay import float_play
 
-        res = float_play(n, rules, players, model)
+        res = float_play(n, rules, players, model, max_memory=max_memory)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_float(res)
-    elif any(sharded.values()):
+    elif progress or any(sharded.values()):
+        # the sharded driver (in-process threads without --workers/--scheduler) is the one
+        # that shows a progress bar of the prime blocks
         from .cluster.run import run_random
 
-        res = run_random(n, rules, players, model, winners_only=winners_only, **sharded)
+        opts = {k: v for k, v in sharded.items() if k != "progress"}
+        res = run_random(n, rules, players, model, winners_only=winners_only,
+                         max_memory=max_memory, progress=progress, **opts)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only,
                                                                             show_exact)
     else:
         from .randomplay import random_play
 
-        res = random_play(n, rules, players, model, winners_only=winners_only)
+        res = random_play(n, rules, players, model, winners_only=winners_only,
+                          max_memory=max_memory)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only,
                                                                             show_exact)

@@ -14,6 +14,17 @@ import json
 import click
 
 from .cli_errors import fail, one_line_errors
+from .cli_options import (
+    SHARDS,
+    WORKERS,
+    OneLineCommand,
+    PositiveInt,
+    bounded,
+    max_memory_option,
+    progress_option,
+    resolve_progress,
+    scheduler_option,
+)
 from .clifmt import plural
 from .errors import InputError, OutputError
 from .rules import get_rules
@@ -59,32 +70,32 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
     return _table(rows)
 
 
-@click.command("solve")
-@click.argument("n", type=int)
+@click.command("solve", cls=OneLineCommand)
+@click.argument("n", type=PositiveInt())
 @click.option("--rules", "rules_name", default="standard", show_default=True,
               help="Rule set: a built-in name or a .toml rule file.")
-@click.option("--players", type=int, default=2, show_default=True,
+@click.option("--players", type=bounded(2, MAX_PLAYERS), default=2, show_default=True,
               help=f"Number of players (2..{MAX_PLAYERS}); with 3 or more, each player against "
                    "the coalition of all others.")
 @click.option("--strategy", "strategy_path", type=click.Path(dir_okay=False), default=None,
               help="Write a winning strategy for the winner to this file (two players; "
                    "gzip-compressed when the name ends in .gz).")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
-@click.option("--workers", type=click.IntRange(min=1), default=None,
+@click.option("--workers", type=WORKERS, default=None,
               help="Run the level-range shards on a local Dask cluster of K worker processes "
                    "(one shard at a time: they form a chain).")
-@click.option("--scheduler", default=None, metavar="ADDRESS",
-              help="Run the level-range shards on an existing Dask cluster.")
+@scheduler_option("Run the level-range shards on an existing Dask cluster.")
 @click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False), default=None,
               help="Keep each finished level range in DIR; rerunning resumes from it.")
-@click.option("--shards", type=click.IntRange(min=1), default=None,
+@click.option("--shards", type=SHARDS, default=None,
               help="Cut the levels into this many ranges (default: about 2e7 states each).")
-@click.option("--progress/--no-progress", default=False,
-              help="Show a progress bar of the level ranges on stderr.")
+@progress_option("Show a progress bar of the states (or level ranges) on stderr")
+@max_memory_option
 @one_line_errors
 def solve_command(n: int, rules_name: str, players: int, strategy_path: str | None,
                   as_json: bool, workers: int | None, scheduler: str | None,
-                  checkpoint_dir: str | None, shards: int | None, progress: bool) -> None:
+                  checkpoint_dir: str | None, shards: int | None, progress: bool | None,
+                  max_memory: int | None) -> None:
     """Who wins the game for N under optimal play (the last player to move wins).
 
     \b
@@ -97,15 +108,16 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
     rules = get_rules(rules_name)
     info = None
     lost: OutputError | None = None
-    chained = workers or scheduler or checkpoint_dir or shards or progress
+    chained = workers or scheduler or checkpoint_dir or shards
+    show = resolve_progress(progress)
     if strategy_path is not None:
         if players != 2:
             raise InputError("--strategy is defined for two players only")
-        if chained:
+        if chained or progress:
             raise InputError("--strategy runs in-process; it does not take --workers, "
                              "--scheduler, --checkpoint, --shards or --progress")
         check_output_file(strategy_path, "strategy file")
-        strat, res = winning_strategy(n, rules)
+        strat, res = winning_strategy(n, rules, max_memory=max_memory)
         try:
             nbytes = write_strategy(strategy_path, strat, rules.bin_values(n), rules)
         except OutputError as exc:  # the strategy went to a rescue file; still report
@@ -113,11 +125,16 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
         info = {"file": strategy_path, "positions": strat.size, "bytes": nbytes}
     elif chained:
         from .cluster.solve_chain import run_solve
+        from .memory import resolve_limit
+        from .solve import needs_reach, solve_space
 
+        if max_memory is not None or scheduler is None:  # refused before any worker starts
+            solve_space(rules.instantiate(n), resolve_limit(max_memory), players,
+                        needs_reach(rules), False, f"solving n={n}")
         res = run_solve(n, rules, players, workers=workers, scheduler=scheduler,
-                        checkpoint_dir=checkpoint_dir, shards=shards, progress=progress)
+                        checkpoint_dir=checkpoint_dir, shards=shards, progress=show)
     else:
-        res = solve(n, rules, players)
+        res = solve(n, rules, players, max_memory=max_memory, progress=show)
     if as_json:
         out = res.to_dict()
         if info is not None:

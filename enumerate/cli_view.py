@@ -14,6 +14,7 @@ from pathlib import Path
 import click
 
 from .cli_errors import one_line_errors
+from .cli_options import OneLineCommand, PositiveInt, max_memory_option
 from .clifmt import plural
 from .errors import CheckFailed, InputError
 
@@ -22,15 +23,16 @@ def _frac(x: Fraction) -> str:
     return f"{x.numerator}/{x.denominator}" if x.denominator != 1 else str(x.numerator)
 
 
-@click.command("games")
-@click.argument("n", type=int)
+@click.command("games", cls=OneLineCommand)
+@click.argument("n", type=PositiveInt())
 @click.option("--rules", default="standard", show_default=True,
               help="Built-in rule set name or a .toml rule file.")
 @click.option("--near", default=3, show_default=True, type=click.IntRange(1, 100),
               help="How many lengths next to each extreme to list with their game counts.")
 @click.option("--json", "as_json", is_flag=True, help="One JSON object instead of text.")
+@max_memory_option
 @one_line_errors
-def games_command(n: int, rules: str, near: int, as_json: bool) -> None:
+def games_command(n: int, rules: str, near: int, as_json: bool, max_memory: int | None) -> None:
     """An explicit shortest and longest game at N, as move lists with the state after each
     move; the number of games at the lengths near the extremes; and (standard game) the
     greedy rule "split whenever possible, otherwise combine the smallest pair".
@@ -50,8 +52,8 @@ def games_command(n: int, rules: str, near: int, as_json: bool) -> None:
     from .rules import get_rules
 
     rs = get_rules(rules)
-    short, long = extremal_games(n, rs)
-    res = count(n, rs)
+    short, long = extremal_games(n, rs, max_memory=max_memory)
+    res = count(n, rs, max_memory=max_memory)
     ext = lengths_near_extremes(res.length_counts, near)
     greedy = greedy_longest_game(n) if rs.name == "standard" else None
     if as_json:
@@ -80,8 +82,8 @@ def games_command(n: int, rules: str, near: int, as_json: bool) -> None:
             f"{verdict} the longest ({long.length})")
 
 
-@click.command("move-stats")
-@click.argument("n", type=int)
+@click.command("move-stats", cls=OneLineCommand)
+@click.argument("n", type=PositiveInt())
 @click.option("--rules", default="standard", show_default=True,
               help="Built-in rule set name or a .toml rule file.")
 @click.option("--move", "chosen", default=None,
@@ -93,9 +95,10 @@ def games_command(n: int, rules: str, near: int, as_json: bool) -> None:
               help="Random model for the expected counts.")
 @click.option("--no-random", is_flag=True, help="Skip the random-play expected counts.")
 @click.option("--json", "as_json", is_flag=True, help="One JSON object instead of text.")
+@max_memory_option
 @one_line_errors
 def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_random: bool,
-                      as_json: bool) -> None:
+                      as_json: bool, max_memory: int | None) -> None:
     """For every move at N: its total number of occurrences over all games and its exact
     expected count in a random game; the linear invariants of the move counts, derived from
     the moves' effect vectors and verified on the exact totals.
@@ -118,14 +121,15 @@ def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_ran
     from .rules import get_rules
 
     rs = get_rules(rules)
-    totals = move_totals(n, rs)
-    expected = None if no_random else expected_counts(n, rs, model)
-    inv = linear_invariants(n, rs)
+    mem = {"max_memory": max_memory}
+    totals = move_totals(n, rs, **mem)
+    expected = None if no_random else expected_counts(n, rs, model, **mem)
+    inv = linear_invariants(n, rs, **mem)
     bad = check_on_totals(inv, totals) + (check_on_expected(inv, expected) if expected else [])
     dist = None
     if chosen:
-        dist = move_count_distribution(n, chosen, rs, "games")
-        rdist = None if no_random else move_count_distribution(n, chosen, rs, model)
+        dist = move_count_distribution(n, chosen, rs, "games", **mem)
+        rdist = None if no_random else move_count_distribution(n, chosen, rs, model, **mem)
     if as_json:
         out: dict = {
             "rules": rs.name, "n": n, "games": str(totals.games),
@@ -149,7 +153,7 @@ def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_ran
             sys.exit(CheckFailed.exit_code)
         return
     click.echo(f"zeckenum move-stats  rules={rs.name}  n={n}  games={totals.games}\n")
-    w = max(len(m) for m in totals.move_names)
+    w = max((len(m) for m in totals.move_names), default=4)
     click.echo(f"  {'move'.ljust(w)}  {'total over all games':>26}  {'per game':>10}"
                + ("" if expected is None else f"  {'expected (' + model + ')':>18}"))
     for m, t in totals.as_dict().items():

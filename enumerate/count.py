@@ -26,31 +26,64 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import InputError
-from .memory import available_bytes, refuse_if_over
+from .memory import refuse_if_over, resolve_limit
 from .modular import primes_for_bits, reconstruct
 from .results import CountResult
 from .rules import RuleSet, get_rules
 from .spectrum import peak_words, spectrum_residues
-from .statespace import StateSpace, build_space
+from .statespace import StateSpace, build_space, refuse_space
 from .windows import Windows, incoming_bytes_estimate, sweep_windows
+
+MAX_N = 2**62
+"""Largest n any command accepts: counts of bins stay int64.  Far below it every run is
+refused by its memory forecast (the rank table alone holds more than 8 n^2 bytes)."""
+
+MAX_THREADS = 4096
+"""Most threads a run accepts (each may hold a layer in flight)."""
 
 
 def check_n(n: object) -> int:
-    """n as a positive int, or InputError."""
+    """n as a positive int no larger than MAX_N, or InputError."""
     if isinstance(n, bool) or not isinstance(n, (int, np.integer)):
         raise InputError(f"n must be a positive integer, got {n!r}")
     if n < 1:
         raise InputError(f"n must be a positive integer, got {n}")
+    if n > MAX_N:
+        raise InputError(f"n must be at most 2^62, got {n}")
     return int(n)
 
 
-def windows_pass_bytes(space: StateSpace) -> int:
-    """Estimated peak bytes of the first sweep: per-state windows plus the largest layers."""
-    per_state_kept = 8  # lmin and win, int32 each, for every state
-    largest = max(space.layer_size(lv) for lv in space.levels)
-    moves = space.spec.mv_bins.shape[0]
-    in_flight = (space.max_drop + 1) * largest * 16 + largest * (moves * 24 + 8 * space.spec.nbins)
-    return per_state_kept * space.total_states() + in_flight
+def check_threads(threads: object) -> int | None:
+    """threads as None (all cores) or an int in 1..MAX_THREADS, else InputError."""
+    if threads is None:
+        return None
+    if isinstance(threads, bool) or not isinstance(threads, (int, np.integer)) or not (
+        1 <= threads <= MAX_THREADS
+    ):
+        raise InputError(f"threads must be an integer from 1 to {MAX_THREADS}, got {threads!r}")
+    return int(threads)
+
+
+def listing_bytes(space: StateSpace) -> int:
+    """Bytes of the largest layer's move listing (`StateSpace.predecessors`): its states
+    (int64 per bin), ptr and terminal ranks (int64 per state), and per move into the layer
+    (exactly counted, `StateSpace.moves_by_level`) drop, dest (int64), move (int32) and
+    the first sweep's keep flag."""
+    return space.listing_peak(8 * space.spec.nbins + 16, 8 + 8 + 4 + 1)
+
+
+def windows_pass_bytes(space: StateSpace, threads: int = 1) -> int:
+    """Forecast peak bytes of the first sweep (`windows.sweep_windows`), an upper bound.
+
+    Counts the rank table, lmin and win (int32 each) for every state of the space, the
+    working arrays (lmin, lmax int32, log2 paths float64) of the max_drop + 1 live layers,
+    and `threads` + 2 move listings of the largest layer (the prefetched ones, the one being
+    swept, one being built).  The kept incoming moves are not counted here (see
+    `incoming_bytes_estimate`).
+    """
+    largest = space.largest_layer()
+    in_flight = (space.max_drop + 1) * largest * 16 + (threads + 2) * listing_bytes(space)
+    return int(space.tab.nbytes) + 8 * space.total_states() + in_flight
 
 
 @dataclass(frozen=True)
@@ -73,20 +106,31 @@ PRIMES_PER_BLOCK = 4
 enough that the layers in flight of `threads` blocks stay a fraction of the memory."""
 
 
+def windows_bytes(space: StateSpace, windows: Windows) -> int:
+    """Bytes the first sweep leaves held through the exact sweep: the rank table, every
+    layer's lmin, win and terminal ranks, and the kept incoming moves."""
+    arrays = [*windows.lmin.values(), *windows.win.values(), *windows.terminal_ranks.values()]
+    kept = sum(inc.nbytes for inc in (windows.incoming or {}).values())
+    return int(space.tab.nbytes) + sum(int(a.nbytes) for a in arrays) + kept
+
+
 def plan_blocks(
-    space: StateSpace, windows: Windows, primes: list[int], threads: int, limit: int
+    space: StateSpace, windows: Windows, primes: list[int], threads: int, limit: int,
+    first_bytes: int = 0,
 ) -> BlockPlan:
     """Cut `primes` into blocks so that `threads` blocks in flight fit under `limit` bytes.
 
     A block of b primes holds b words per (state, length) of the layers in flight.  Blocks
     aim at PRIMES_PER_BLOCK primes, come in a multiple of `threads` so the threads finish
-    together, and shrink (down to one prime) until `threads` of them fit the limit; the
-    moves kept by the first sweep are shared by all blocks.
+    together, and shrink (down to one prime) until `threads` of them fit the limit; what
+    the first sweep left (`windows_bytes`: rank table, windows, kept moves) is shared by
+    all blocks and counted once, or `first_bytes` (the first sweep's forecast peak) when
+    larger: the allocator may keep what the first sweep touched.
     """
     words_one = peak_words(space, windows, 1)
-    shared = sum(inc.nbytes for inc in (windows.incoming or {}).values())
-    largest = max(space.layer_size(lv) for lv in space.levels)
-    per_block_fixed = largest * (space.spec.mv_bins.shape[0] * 24 + 8 * space.spec.nbins)
+    shared = max(windows_bytes(space, windows), int(first_bytes))
+    largest = space.largest_layer()
+    per_block_fixed = listing_bytes(space) + largest * 8
     if windows.incoming is not None:
         per_block_fixed = largest * 16
     threads = max(1, min(threads, len(primes)))
@@ -102,6 +146,46 @@ def plan_blocks(
     blocks = tuple(tuple(int(p) for p in b) for b in np.array_split(primes, nblocks))
     sizes = tuple(words_one * 8 * len(b) + per_block_fixed for b in blocks)
     return BlockPlan(blocks=blocks, threads=threads, bytes_per_block=sizes, shared_bytes=shared)
+
+
+MAX_PRIME_OFFSET = 2000
+"""Largest --prime-offset: the primes below 2**62 are found by a sieve-free downward search,
+about 21 Miller-Rabin tests per prime (2000 primes: about 0.4 s per search, repeated
+once per prime the run adds); far larger offsets would run for minutes before any work."""
+
+
+def check_prime_offset(prime_offset: object) -> int:
+    """prime_offset as an int in 0..MAX_PRIME_OFFSET, else InputError."""
+    if isinstance(prime_offset, bool) or not isinstance(prime_offset, (int, np.integer)) or not (
+        0 <= prime_offset <= MAX_PRIME_OFFSET
+    ):
+        raise InputError(
+            f"the prime offset must be an integer from 0 to {MAX_PRIME_OFFSET:,}, "
+            f"got {prime_offset!r}"
+        )
+    return int(prime_offset)
+
+
+def count_space(spec, limit: int) -> StateSpace:  # noqa: ANN001 - a GameSpec
+    """The state space of a count after the up-front refusals: first the rank table's
+    exact size plus 8 bytes (lmin, win) for each of up to `states_upper_bound` states,
+    without allocating anything (`refuse_space`), then the rank table."""
+    refuse_space(spec, limit, f"counting n={spec.n}", per_state=8)
+    return build_space(spec, limit)
+
+
+def refuse_count(
+    n: int, rules: str | RuleSet = "standard", *, max_memory: int | None = None,
+    threads: int = 1,
+) -> None:
+    """The up-front refusals of `count` (rank table, states bound, first sweep forecast),
+    without running it: the client of a sharded count calls it before any worker starts.
+    Each worker's first sweep is the same as this forecast; the exact sweep's blocks are
+    sized by the shard plan (`cluster.plan.worker_bytes`)."""
+    n = check_n(n)
+    limit = resolve_limit(max_memory)
+    space = count_space(get_rules(rules).instantiate(n), limit)
+    refuse_if_over(windows_pass_bytes(space, threads), limit, f"counting n={n} (first sweep)")
 
 
 def count(
@@ -122,18 +206,15 @@ def count(
                   whose estimate exceeds it is refused before the heavy work starts
     """
     n = check_n(n)
-    if prime_offset < 0:
-        raise InputError(f"prime offset must be >= 0, got {prime_offset}")
+    check_prime_offset(prime_offset)
     ruleset = get_rules(rules)
-    limit = available_bytes() if max_memory is None else int(max_memory)
-    nthreads = threads if threads is not None else (os.cpu_count() or 1)
-    if nthreads < 1:
-        raise InputError(f"threads must be >= 1, got {nthreads}")
+    limit = resolve_limit(max_memory)
+    nthreads = check_threads(threads) or (os.cpu_count() or 1)
 
     t0 = time.perf_counter()
     spec = ruleset.instantiate(n)
-    space = build_space(spec)
-    first = windows_pass_bytes(space)
+    space = count_space(spec, limit)
+    first = windows_pass_bytes(space, nthreads)
     refuse_if_over(first, limit, f"counting n={n} (first sweep)")
     keep = first + incoming_bytes_estimate(space) <= limit // 4
     windows = sweep_windows(space, keep_incoming=keep, threads=nthreads)
@@ -141,7 +222,8 @@ def count(
 
     primes, check_prime = primes_for_bits(windows.count_bits, prime_offset)
     all_primes = [*primes, check_prime]
-    plan = plan_blocks(space, windows, all_primes, nthreads, limit)
+    first_peak = first + (incoming_bytes_estimate(space) if keep else 0)
+    plan = plan_blocks(space, windows, all_primes, nthreads, limit, first_peak)
 
     bar = None
     if progress:
@@ -175,6 +257,7 @@ def count(
             "threads": plan.threads,
             "prime_blocks": len(plan.blocks),
             "planned_peak_bytes": int(plan.peak_bytes),
+            "forecast_peak_bytes": int(max(plan.peak_bytes, first_peak)),
             "count_bits": windows.count_bits,
             "terminal_states": windows.terminals,
         },

@@ -27,7 +27,7 @@ from .clifmt import plural
 from .count import check_n
 from .errors import InputError
 from .rules import STANDARD, GameSpec, RuleSet, get_rules
-from .statespace import StateSpace, build_space
+from .statespace import StateSpace
 from .windows import Windows, sweep_windows
 
 
@@ -198,11 +198,22 @@ def terminal_states(space: StateSpace, windows: Windows) -> list[tuple[np.ndarra
     return out
 
 
-def extremal_games(n: int, rules: str | RuleSet = "standard") -> tuple[PlayedGame, PlayedGame]:
-    """(a shortest game, a longest game) of the game for n, as checked move lists."""
+def extremal_games(
+    n: int, rules: str | RuleSet = "standard", *, max_memory: int | None = None
+) -> tuple[PlayedGame, PlayedGame]:
+    """(a shortest game, a longest game) of the game for n, as checked move lists.
+
+    Memory: the first sweep of a count without kept moves, refused up front as `count`
+    refuses it (`count.count_space`, then `count.windows_pass_bytes`) against `max_memory`
+    (default: what the machine has available)."""
+    from .count import count_space, windows_pass_bytes
+    from .memory import refuse_if_over, resolve_limit
+
     n = check_n(n)
+    limit = resolve_limit(max_memory)
     spec = get_rules(rules).instantiate(n)
-    space = build_space(spec)
+    space = count_space(spec, limit)
+    refuse_if_over(windows_pass_bytes(space), limit, f"the extremal games of n={n}")
     windows = sweep_windows(space, keep_incoming=False)
     ends = terminal_states(space, windows)
     short_end = min(ends, key=lambda t: t[1])

@@ -42,8 +42,11 @@ from fractions import Fraction
 import numba as nb
 import numpy as np
 
+from .errors import MemoryRefused
+from .memory import human, refuse_if_over, resolve_limit
 from .moments import float_moments, gaussian_diagnostics
 from .randomplay import (
+    SKELETON_PER_STATE,
     SweptLayer,
     drop_stale,
     gather_passes,
@@ -52,7 +55,8 @@ from .randomplay import (
     winner_of_length,
 )
 from .rules import get_rules
-from .statespace import build_space
+from .statespace import StateSpace, build_space, refuse_space
+from .windows import window_bound
 
 U = Fraction(1, 2**53)
 ETA = Fraction(1, 2**1074)
@@ -218,9 +222,40 @@ def _queued(out_q: queue.Queue) -> Iterator[SweptLayer]:
         yield item
 
 
+RING_GROWTH = 1.25
+"""A ring buffer too small for a layer is replaced by one at least this much larger."""
+
+
+def float_sweep_bytes(space: StateSpace, model: str, threads: int) -> tuple[int, int]:
+    """(forecast peak bytes of `float_play`, the part of it in value buffers).
+
+    An upper bound when the game has a proven window bound (`windows.window_bound`: the
+    standard game, or every move lowering the level), else a bound on everything but the
+    value buffers, which `float_sweep` then
+    checks layer by layer before it allocates them.
+
+    Counts: the rank table; the first sweep's layers in flight without exponents (live
+    lmin, lmax int32; threads + 2 listings of the largest layer); the finished layers
+    queued between the two threads and held live by the float sweep (max_drop + 4 of the
+    largest: SKELETON_PER_STATE bytes per state and the kept moves in, counted by
+    `StateSpace.moves_by_level`, plus kfin int64); and the float sweep's ring of
+    max_drop + 1 value buffers, each up to RING_GROWTH x (largest layer x window bound)
+    doubles.
+    """
+    spec = space.spec
+    per_move = 5 + (8 if model == "pairs" else 0)
+    largest = space.largest_layer()
+    listing = space.listing_peak(8 * spec.nbins + 16 + 1, 8 + 8 + 4 + 8 + 1 + 8 + 8)
+    first = (space.max_drop + 1) * largest * 8 + (threads + 2) * listing
+    layers = (space.max_drop + 4) * space.listing_peak(SKELETON_PER_STATE + 8, per_move)
+    window = window_bound(spec) or 1
+    ring = (space.max_drop + 1) * math.ceil(RING_GROWTH * largest * window) * 8
+    return int(space.tab.nbytes) + first + layers + ring, ring
+
+
 def float_sweep(
     layers: Iterable[SweptLayer], start_level: int, start_rank: int, unit: bool,
-    max_drop: int = 1,
+    max_drop: int = 1, budget: int | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """(out, acc): out[L] = computed probability of length L, acc = [largest terminal K,
     terminal states, products done].
@@ -229,7 +264,9 @@ def float_sweep(
     max_drop stay live, in a ring of max_drop + 1 reused buffers (the layers still read are
     among the max_drop swept just before the current one, so none shares its slot).
     Memory traffic bounds this sweep (every move streams its source's window), so it runs
-    in one thread; `float_play` overlaps it with the first sweep instead.
+    in one thread; `float_play` overlaps it with the first sweep instead.  `budget`: most
+    bytes the ring may hold; a layer whose buffer would exceed it is refused
+    (MemoryRefused) before the buffer is allocated.
     """
     out = np.zeros(64, dtype=np.float64)
     acc = np.zeros(3, dtype=np.int64)
@@ -246,7 +283,15 @@ def float_sweep(
         np.cumsum(win.astype(np.int64), out=off[1:])
         need = int(off[-1])
         if ring[k % span].size < need:
-            ring[k % span] = np.empty(max(need, int(1.25 * ring[k % span].size)))
+            grown = max(need, int(RING_GROWTH * ring[k % span].size))
+            held = 8 * (sum(r.size for r in ring) - ring[k % span].size + grown)
+            if budget is not None and held > budget:
+                raise MemoryRefused(
+                    f"the float sweep needs {human(held)} for its layers in flight at level "
+                    f"{level} but {human(budget)} is left under the limit; raise it with "
+                    "--max-memory SIZE if the machine really has more"
+                )
+            ring[k % span] = np.empty(grown)
         vals = ring[k % span][:need]
         vals[:] = 0.0
         if level == start_level:
@@ -266,25 +311,36 @@ def float_sweep(
 
 def float_play(
     n: int, rules: str = "standard", players: int = 2, model: str = "moves",
-    threads: int | None = None,
+    threads: int | None = None, max_memory: int | None = None,
 ) -> FloatResult:
     """The length distribution and win probabilities in float64, with error bounds.
 
     The first sweep runs one or two layers ahead in a background thread (kernels release
-    the GIL), so the two sweeps overlap.
+    the GIL), so the two sweeps overlap.  Memory (`max_memory`, default what the machine
+    has available): refused up front from the rank table's size, then from
+    `float_sweep_bytes`; the value buffers are checked again as each layer arrives.
     """
+    from .count import check_threads
+
     validate(n, players, model)
+    threads = check_threads(threads)
     rs = get_rules(rules)
+    limit = resolve_limit(max_memory)
     t0 = time.perf_counter()
-    space = build_space(rs.instantiate(n))
+    spec = rs.instantiate(n)
+    refuse_space(spec, limit, f"float random play at n={n}")
+    space = build_space(spec, limit)
     nthreads = max(1, threads or os.cpu_count() or 1)
+    forecast, ring_bytes = float_sweep_bytes(space, model, nthreads)
+    refuse_if_over(forecast, limit, f"float random play at n={n}")
     start_level, start_rank = space.rank(space.spec.start)
     layers = skeleton_layers(space, model, exponents=False, threads=nthreads)
     q: queue.Queue = queue.Queue(maxsize=2)
     th = threading.Thread(target=_producer, args=(layers, q), daemon=True)
     th.start()
+    budget = limit - (forecast - ring_bytes) if window_bound(spec) is None else None
     out, acc = float_sweep(_queued(q), start_level, start_rank, model == "moves",
-                           space.max_drop)
+                           space.max_drop, budget)
     th.join()
     t1 = time.perf_counter()
     lengths = [int(L) for L in np.nonzero(out)[0]]
@@ -311,5 +367,5 @@ def float_play(
         total_error=total_err, max_error=max(err.values()),
         moments=float_moments(ks, ps), gaussian=gaussian_diagnostics(dist),
         stats={"sweep_s": round(t1 - t0, 3),
-               "k_end": k_end, "products": int(acc[2])},
+               "k_end": k_end, "products": int(acc[2]), "forecast_peak_bytes": forecast},
     )

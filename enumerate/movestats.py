@@ -27,6 +27,7 @@ n up to a few hundred thousand states (Python integers per state).
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from fractions import Fraction
 from math import comb
@@ -35,11 +36,44 @@ import numpy as np
 
 from .count import check_n
 from .errors import InputError
-from .randomplay import check_model
+from .memory import refuse_if_over, resolve_limit
+from .randomplay import check_model, max_weight_bound
 from .rules import GameSpec, RuleSet, get_rules
-from .statespace import build_space
+from .statespace import build_space, refuse_space, states_upper_bound
+from .windows import length_bound
 
 GRAPH_MAX_STATES = 3_000_000
+
+PY_INT = 32
+"""Bytes of a small Python int object (28) rounded up; a list slot adds 8."""
+PY_FRACTION = 56
+"""Bytes of a Fraction object besides its two ints."""
+
+
+def graph_bytes(spec: GameSpec, states: int, model: str | None = "moves") -> int:
+    """Forecast peak bytes of the move statistics at most `states` states: the explicit
+    graph and the Python numbers walked over it, with `model` (None: totals only).
+
+    Per state: its counts (int64 per bin), the row pointer as an array and a Python list,
+    the two path counts (Python ints of at most L log2(moves + 1) bits, L the game length
+    bound of `windows.length_bound`, else the states), the visit probability (a Fraction
+    whose denominator has at most L log2(max D) bits) and one small dict of the --move
+    distribution in flight.  Per move, at most one per move type and state: dest and move
+    as arrays (twice while the layers are joined), as Python lists, the listing's int64
+    arrays, and the step probability (a Fraction of small ints).
+    """
+    moves = len(spec.move_names)
+    length = length_bound(spec) or states
+    count_bits = length * math.log2(moves + 1)
+    dmax = max_weight_bound(spec, model or "moves")
+    prob_bits = length * math.log2(max(dmax, 2))
+    big = PY_INT + 8 + count_bits / 8
+    per_state = 8 * spec.nbins + 16 + (8 + PY_INT) + 2 * big + 232
+    per_move = 2 * 16 + 2 * (8 + PY_INT) + 28
+    if model is not None:
+        per_state += 8 + PY_FRACTION + 2 * (PY_INT + prob_bits / 8)
+        per_move += 8 + PY_FRACTION + 2 * PY_INT + 8 + PY_INT
+    return math.ceil(states * (per_state + moves * per_move))
 
 
 @dataclass(frozen=True, eq=False)
@@ -64,9 +98,28 @@ class MoveGraph:
         return int(self.counts.shape[0])
 
 
-def explicit_graph(spec: GameSpec) -> MoveGraph:
-    """Every state of value n at the start's level or below, with all moves between them."""
-    space = build_space(spec)
+def refuse_graph(spec: GameSpec, max_memory: int | None = None,
+                 model: str | None = "moves") -> None:
+    """Refuse, before anything is built, a game of more than GRAPH_MAX_STATES states
+    (InputError; `statespace.states_upper_bound`, exact for the standard game) or whose
+    `graph_bytes` exceed `max_memory` (default: what the machine has available)."""
+    limit = resolve_limit(max_memory)
+    refuse_space(spec, limit, f"the move statistics of n={spec.n}")
+    upper = states_upper_bound(spec.values, spec.n)
+    if upper > GRAPH_MAX_STATES:
+        raise InputError(
+            f"n={spec.n}: up to {upper:,} states, more than {GRAPH_MAX_STATES:,}; move "
+            "statistics walk the whole move graph in Python and are meant for smaller n"
+        )
+    refuse_if_over(graph_bytes(spec, upper, model), limit,
+                   f"the move statistics of n={spec.n}")
+
+
+def explicit_graph(spec: GameSpec, max_memory: int | None = None) -> MoveGraph:
+    """Every state of value n at the start's level or below, with all moves between them
+    (refused first by `refuse_graph`)."""
+    refuse_graph(spec, max_memory)
+    space = build_space(spec, max_memory)
     levels = [lv for lv in space.levels if lv <= spec.start_level]
     if sum(space.layer_size(lv) for lv in levels) > GRAPH_MAX_STATES:
         raise InputError(
@@ -99,8 +152,10 @@ def explicit_graph(spec: GameSpec) -> MoveGraph:
                      counts=counts, start=offset[slv] + srk, terminal=np.diff(ptr) == 0)
 
 
-def graph_for(n: int, rules: str | RuleSet = "standard") -> MoveGraph:
-    return explicit_graph(get_rules(rules).instantiate(check_n(n)))
+def graph_for(n: int, rules: str | RuleSet = "standard",
+              max_memory: int | None = None) -> MoveGraph:
+    """The explicit move graph of the game for n (`explicit_graph`)."""
+    return explicit_graph(get_rules(rules).instantiate(check_n(n)), max_memory)
 
 
 # ------------------------------------------------------------------ totals over all games
@@ -138,9 +193,10 @@ class MoveTotals:
         return dict(zip(self.move_names, self.totals, strict=True))
 
 
-def move_totals(n: int, rules: str | RuleSet = "standard") -> MoveTotals:
+def move_totals(n: int, rules: str | RuleSet = "standard", *,
+                max_memory: int | None = None) -> MoveTotals:
     """Exact total occurrences of every move over all games (module docstring)."""
-    g = graph_for(n, rules)
+    g = graph_for(n, rules, max_memory)
     fwd, bwd = path_counts(g)
     tot = [0] * len(g.spec.move_names)
     ptr, dest, move = g.ptr.tolist(), g.dest.tolist(), g.move.tolist()
@@ -196,9 +252,11 @@ def visit_probabilities(g: MoveGraph, model: str) -> tuple[list[Fraction], list[
 
 
 def expected_counts(n: int, rules: str | RuleSet = "standard",
-                    model: str = "moves") -> dict[str, Fraction]:
+                    model: str = "moves", *, max_memory: int | None = None,
+                    ) -> dict[str, Fraction]:
     """Exact expected number of times each move is played by a random game."""
-    g = graph_for(n, rules)
+    check_model(model)
+    g = graph_for(n, rules, max_memory)
     visit, step = visit_probabilities(g, model)
     out = [Fraction(0)] * len(g.spec.move_names)
     ptr, move = g.ptr.tolist(), g.move.tolist()
@@ -210,7 +268,8 @@ def expected_counts(n: int, rules: str | RuleSet = "standard",
 
 
 def move_count_distribution(
-    n: int, move: str, rules: str | RuleSet = "standard", weighting: str = "games"
+    n: int, move: str, rules: str | RuleSet = "standard", weighting: str = "games", *,
+    max_memory: int | None = None,
 ) -> dict[int, int | Fraction]:
     """Distribution of the number of times `move` is played in a game: a move name
     ("combine@3"), a move type (template) name ("split": all its bins), or a prefix ending
@@ -219,7 +278,7 @@ def move_count_distribution(
     weighting "games": {j: number of games playing it exactly j times} (Python ints);
     "moves" / "pairs": {j: probability} under that random model (Fractions).
     """
-    g = graph_for(n, rules)
+    g = graph_for(n, rules, max_memory)
     names = g.spec.move_names
     if move.endswith("*"):
         chosen = {m for m, x in enumerate(names) if x.startswith(move[:-1])}
@@ -338,12 +397,13 @@ class Invariants:
         return len(rref([*rows, [Fraction(x) for x in coeffs]])[0]) == len(rows)
 
 
-def linear_invariants(n: int, rules: str | RuleSet = "standard") -> Invariants:
+def linear_invariants(n: int, rules: str | RuleSet = "standard", *,
+                      max_memory: int | None = None) -> Invariants:
     """The linear forms in the move counts that the effect vectors force to be constant
     over all games (module docstring), as an exact RREF basis with constants."""
     n = check_n(n)
     spec = get_rules(rules).instantiate(n)
-    g = explicit_graph(spec)
+    g = explicit_graph(spec, max_memory)
     fwd, _ = path_counts(g)
     ends = [g.counts[u] for u in range(g.size) if g.terminal[u] and fwd[u]]
     start = spec.start

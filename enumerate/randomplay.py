@@ -75,10 +75,10 @@ import numba as nb
 import numpy as np
 
 from .errors import CheckPrimeMismatch, InputError
-from .memory import available_bytes, refuse_if_over
+from .memory import available_bytes, refuse_if_over, resolve_limit
 from .modular import crt, descending_primes
 from .rules import GameSpec, get_rules
-from .statespace import LayerMoves, StateSpace, build_space, move_applies
+from .statespace import LayerMoves, StateSpace, build_space, move_applies, refuse_space
 from .windows import compact_rows
 
 MODELS = ("moves", "pairs")
@@ -879,20 +879,88 @@ WIN_PRIMES_PER_BLOCK = 34
 as memory allows); see `LAW_PRIMES_PER_BLOCK` for the measurements."""
 
 
+SKELETON_PER_STATE = 24
+"""Bytes the first sweep keeps for every state of the space whatever its moves: lmin and
+win (int32), D(s) (int64) and the incoming row pointer (int64)."""
+
+
+def _exponent_primes(spec: GameSpec, model: str, exponents: bool) -> tuple[int, int]:
+    """(bound on D(s), number of primes up to it) of the first sweep's exponent arrays."""
+    if not exponents:
+        return 0, 0
+    dbound = max_weight_bound(spec, model)
+    # pi(x) < 1.26 x / ln x for x > 1 (Rosser and Schoenfeld, 1962)
+    return dbound, (int(1.26 * dbound / math.log(dbound)) + 1) if dbound > 1 else 0
+
+
+def skeleton_bytes_bound(space: StateSpace, model: str, exponents: bool = True,
+                         threads: int | None = None) -> int:
+    """Forecast peak bytes of random play's first sweep (`skeleton_layers` kept as a
+    `Skeleton`), an upper bound.
+
+    Counts: the rank table; for every state of the space SKELETON_PER_STATE bytes, and for
+    every move into a state (counted exactly by `StateSpace.moves_by_level`; only those
+    from reachable states are kept) int8 drop, int32 source, and in the model "pairs" an
+    int64 weight; for the layers in flight (max_drop + 1 live ones: lmin, lmax int32 and
+    one int32 exponent per prime up to the bound on D(s); threads + 2 listings of the
+    largest layer: states int64 per bin, ptr and D int64, reached flag, per move drop,
+    source (int64), move (int32), weight (int64), keep flag and its compacted copy); the
+    smallest-prime-factor tables.
+    """
+    spec = space.spec
+    per_move = 5 + (8 if model == "pairs" else 0)
+    dbound, nbp = _exponent_primes(spec, model, exponents)
+    largest = space.largest_layer()
+    moves_in = float(space.moves_by_level(-1).sum())
+    kept = space.total_states() * SKELETON_PER_STATE + math.ceil(moves_in * per_move)
+    live = (space.max_drop + 1) * largest * (8 + 4 * nbp)
+    listing = space.listing_peak(8 * spec.nbins + 16 + 1, 8 + 8 + 4 + 8 + 1 + 8 + 8)
+    return int(space.tab.nbytes) + kept + live + (_threads(threads) + 2) * listing + 16 * (
+        dbound + 1)
+
+
+def skeleton_nbytes(skel: Skeleton) -> int:
+    """Bytes a finished `Skeleton` holds (its arrays' nbytes)."""
+    total = 0
+    for lv in skel.levels:
+        inc = skel.incoming[lv]
+        total += skel.lmin[lv].nbytes + skel.win[lv].nbytes + skel.dsum[lv].nbytes
+        total += inc.ptr.nbytes + inc.drop.nbytes + inc.src.nbytes + inc.w.nbytes
+    return int(total)
+
+
+def random_space(spec: GameSpec, model: str, limit: int, what: str, exponents: bool = True,
+                 threads: int | None = None) -> StateSpace:
+    """The state space of random play after its up-front refusals.
+
+    First, without allocating anything, the rank table's exact size plus
+    SKELETON_PER_STATE bytes for each of up to `statespace.states_upper_bound` states
+    (`refuse_space`); then the rank table; then the first sweep's forecast from the exact
+    layer sizes (`skeleton_bytes_bound`).  MemoryRefused when any exceeds `limit`.
+    """
+    refuse_space(spec, limit, what, per_state=SKELETON_PER_STATE)
+    space = build_space(spec, limit)
+    refuse_if_over(skeleton_bytes_bound(space, model, exponents, threads), limit,
+                   f"{what} (first sweep)")
+    return space
+
+
 def _prime_blocks(
     allp: list[int], threads: int | None, words_per_prime: int, what: str,
-    most: int | None = None,
+    most: int | None = None, budget: int | None = None, extra_per_prime: int = 0,
 ) -> tuple[list[np.ndarray], int]:
     """(blocks of primes, threads to run them): as few blocks as the memory allows, of at
     most `most` primes each (None: no limit but memory).
 
-    A block of b primes holds b * words_per_prime int64 words at its peak; `threads`
-    blocks run at once and must fit in the memory the machine has available (with a
-    margin for the kept first sweep).  MemoryRefused when even one prime does not fit.
+    A block of b primes holds b * (words_per_prime int64 words + `extra_per_prime` bytes)
+    at its peak; `threads` blocks run at once and must fit in `budget` bytes (default: 80%
+    of the memory the machine has available now, i.e. after the first sweep).
+    MemoryRefused when even one prime does not fit.
     """
     k = max(1, min(_threads(threads), len(allp)))
-    budget = int(available_bytes() * 0.8)
-    per_prime = max(1, words_per_prime) * 8
+    if budget is None:
+        budget = int(available_bytes() * 0.8)
+    per_prime = max(1, words_per_prime) * 8 + extra_per_prime
     refuse_if_over(per_prime, budget, what)
     k = min(k, budget // per_prime)
     size = max(1, min(math.ceil(len(allp) / k), budget // (k * per_prime)))
@@ -1003,7 +1071,8 @@ def _run_blocks(
 
 def random_residues(
     space: StateSpace, skel: Skeleton, model: str, players: int, winners_only: bool,
-    prime_offset: int = 0, threads: int | None = None,
+    prime_offset: int = 0, threads: int | None = None, max_memory: int | None = None,
+    planned: list[int] | None = None,
 ) -> tuple[np.ndarray, list[int], int]:
     """(residues, primes, check prime) of the exact sweep run in-process, block by block in
     threads.
@@ -1011,21 +1080,37 @@ def random_residues(
     residues has one row per prime, in the order primes + [check prime]: the columns of
     `random_law_residues` (lengths 0 .. longest), or with `winners_only` those of
     `random_win_residues` (length mod players).  The primes are the fewest below 2**50
-    whose product exceeds the denominator M (`primes_exceeding`).
+    whose product exceeds the denominator M (`primes_exceeding`).  `planned`, if given,
+    receives the forecast bytes of the blocks running at once.
     """
     primes, check_prime = primes_exceeding(skel.denominator, prime_offset)
     allp = primes + [check_prime]
     check_random_primes(allp, skel.max_indegree, weight_bound(space, skel, model))
     unit = model == "moves"
+    budget = None
+    if max_memory is not None:
+        # what the first sweep touched may stay with the process: its forecast bounds it
+        held = max(skeleton_nbytes(skel) + int(space.tab.nbytes),
+                   skeleton_bytes_bound(space, model, True, threads))
+        budget = int(max_memory) - held
+        refuse_if_over(held, int(max_memory), f"random play at n={space.spec.n} (first sweep)")
+    # per prime besides the ring: the inverse table column and the output row
+    extra = 8 * (max(skel.max_weight, 1) + 1) + 8 * (skel.longest + 1 + players)
     if winners_only:
-        blocks, k = _prime_blocks(allp, threads, win_words_per_prime(skel, players),
-                                  f"the exact win probabilities at n={space.spec.n}")
+        words = win_words_per_prime(skel, players)
+        blocks, k = _prime_blocks(allp, threads, words,
+                                  f"the exact win probabilities at n={space.spec.n}",
+                                  budget=budget, extra_per_prime=extra)
         outs = _run_blocks(blocks, lambda b: random_win_residues(skel, b, unit, players), k)
     else:
-        blocks, k = _prime_blocks(allp, threads, law_words_per_prime(skel),
+        words = law_words_per_prime(skel)
+        blocks, k = _prime_blocks(allp, threads, words,
                                   f"the exact length law at n={space.spec.n}",
-                                  LAW_PRIMES_PER_BLOCK)
+                                  LAW_PRIMES_PER_BLOCK, budget=budget, extra_per_prime=extra)
         outs = _run_blocks(blocks, lambda b: random_law_residues(skel, b, unit), k)
+    if planned is not None:
+        biggest = sorted((b.size for b in blocks), reverse=True)[:k]
+        planned.append(sum(biggest) * (words * 8 + extra))
     return np.concatenate(outs, axis=0), primes, check_prime
 
 
@@ -1165,11 +1250,21 @@ def frac_str(x: Fraction) -> str:
     return f"{x.numerator}/{x.denominator}"
 
 
+MAX_PLAYERS = 1024
+"""Most players random play accepts: every state carries one residue per player."""
+
+
 def validate(n: int, players: int, model: str) -> None:
-    if not isinstance(n, int) or n < 1:
-        raise InputError(f"n must be a positive integer, got {n}")
-    if not isinstance(players, int) or players < 2:
-        raise InputError(f"the number of players must be at least 2, got {players}")
+    """InputError unless n is a valid n (`count.check_n`), 2 <= players <= MAX_PLAYERS and
+    the model is known."""
+    from .count import check_n
+
+    check_n(n)
+    if isinstance(players, bool) or not isinstance(players, int) or not (
+        2 <= players <= MAX_PLAYERS
+    ):
+        raise InputError(f"the number of players must be an integer from 2 to {MAX_PLAYERS}, "
+                         f"got {players}")
     check_model(model)
 
 
@@ -1211,27 +1306,57 @@ def assemble_random(
     )
 
 
+def refuse_random(
+    n: int, rules: str = "standard", players: int = 2, model: str = "moves", *,
+    max_memory: int | None = None, threads: int | None = None,
+) -> None:
+    """The up-front refusals of `random_play` (`random_space`: rank table, states bound,
+    first sweep forecast) without running it: the client of a sharded run calls it before
+    any worker starts."""
+    validate(n, players, model)
+    random_space(get_rules(rules).instantiate(n), model, resolve_limit(max_memory),
+                 f"random play at n={n}", threads=threads)
+
+
 def random_play(
     n: int, rules: str = "standard", players: int = 2, model: str = "moves", *,
     winners_only: bool = False, prime_offset: int = 0, threads: int | None = None,
+    max_memory: int | None = None,
 ) -> RandomResult:
     """Exact random play at n: the length distribution (unless `winners_only`) and the
     probability that each of `players` players wins, under random model `model`.
 
     In-process: the first sweep, then the prime blocks in threads (`random_residues`),
     then `assemble_random`.  `zeckenum.cluster.run.run_random` shards the same blocks
-    across Dask workers, with checkpoints, and gives an equal result."""
+    across Dask workers, with checkpoints, and gives an equal result.
+
+    Memory (`max_memory`, default what the machine has available): refused up front by
+    `random_space` (rank table, then the first sweep's bound `skeleton_bytes_bound`), then
+    the exact sweep's blocks are sized to what is left after the first sweep and refused
+    when one prime does not fit (`_prime_blocks`)."""
     import time
 
+    from .count import check_prime_offset, check_threads
+
     validate(n, players, model)
+    check_prime_offset(prime_offset)
+    threads = check_threads(threads)
     rs = get_rules(rules)
+    limit = resolve_limit(max_memory)
     t0 = time.perf_counter()
-    space = build_space(rs.instantiate(n))
+    what = f"random play at n={n}"
+    space = random_space(rs.instantiate(n), model, limit, what, threads=threads)
     skel = first_sweep(space, model, threads=threads)
     t1 = time.perf_counter()
+    first_bytes = skeleton_bytes_bound(space, model, True, threads)
+    block_bytes: list[int] = []
     residues, primes, check = random_residues(space, skel, model, players, winners_only,
-                                              prime_offset, threads)
-    stats: dict = {"first_sweep_s": round(t1 - t0, 3)}
+                                              prime_offset, threads, max_memory, block_bytes)
+    # the allocator may keep what the first sweep touched: count its forecast, not the
+    # skeleton's nbytes, under the exact sweep's blocks
+    block_bytes = [sum(block_bytes) + max(first_bytes, skeleton_nbytes(skel))]
+    stats: dict = {"first_sweep_s": round(t1 - t0, 3),
+                   "forecast_peak_bytes": max(first_bytes, block_bytes[0])}
     res = assemble_random(
         rules=rs.name, rules_hash=rs.content_hash(), n=n, players=players, model=model,
         winners_only=winners_only, denominator=skel.denominator, states=skel.states,

@@ -22,10 +22,28 @@ import numba as nb
 import numpy as np
 
 from .errors import InputError
+from .memory import refuse_if_over, resolve_limit
 from .randomplay import take_arrays, validate, winner_of_length
 from .rules import get_rules
 
 Z95 = 1.959963984540054
+
+MAX_GAMES = 2**62
+"""Most games one simulation accepts (the game index is an int64 in the kernel)."""
+
+BYTES_PER_GAME = 48
+"""Forecast bytes per simulated game: the int64 lengths, their float64 copy, the
+deviations and two temporaries of the moments (five arrays of K words), plus a margin."""
+
+
+def check_games(games: object) -> int:
+    """The number of games as an int in 1..MAX_GAMES, else InputError."""
+    if isinstance(games, bool) or not isinstance(games, (int, np.integer)) or not (
+        1 <= games <= MAX_GAMES
+    ):
+        raise InputError(f"the number of simulated games must be an integer from 1 to 2^62, "
+                         f"got {games!r}")
+    return int(games)
 
 
 @nb.njit(cache=True, nogil=True, inline="always")
@@ -145,9 +163,10 @@ def simulate_lengths(
     n: int, games: int, seed: int, rules: str = "standard", model: str = "moves"
 ) -> np.ndarray:
     """The lengths of `games` random games at n (int64 array, deterministic in seed)."""
-    if games < 1:
-        raise InputError(f"the number of simulated games must be positive, got {games}")
-    if seed < 0 or seed >= 2**63:
+    games = check_games(games)
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or not (
+        0 <= seed < 2**63
+    ):
         raise InputError(f"the seed must be in [0, 2**63), got {seed}")
     spec = get_rules(rules).instantiate(n)
     _bins, tk_cnt = take_arrays(spec)
@@ -159,12 +178,18 @@ def simulate_lengths(
 
 def simulate(
     n: int, games: int, seed: int = 0, rules: str = "standard", players: int = 2,
-    model: str = "moves",
+    model: str = "moves", max_memory: int | None = None,
 ) -> SimulationResult:
-    """Monte Carlo estimates of the length law, win probabilities, mean and variance."""
+    """Monte Carlo estimates of the length law, win probabilities, mean and variance.
+
+    Memory: BYTES_PER_GAME per game (no state space is built), refused up front against
+    `max_memory` (default: what the machine has available)."""
     import time
 
     validate(n, players, model)
+    games = check_games(games)
+    refuse_if_over(BYTES_PER_GAME * games, resolve_limit(max_memory),
+                   f"simulating {games} games")
     t0 = time.perf_counter()
     lengths = simulate_lengths(n, games, seed, rules, model)
     t1 = time.perf_counter()

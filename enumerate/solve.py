@@ -45,14 +45,16 @@ from __future__ import annotations
 
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numba as nb
 import numpy as np
 
 from .errors import InputError
+from .memory import refuse_if_over, resolve_limit
 from .rules import STANDARD, GameSpec, RuleSet, get_rules
-from .statespace import StateSpace, build_space
+from .statespace import StateSpace, build_space, refuse_space
 
 MAX_PLAYERS = 64
 
@@ -675,6 +677,7 @@ def sweep_classes(
     reach: dict[int, np.ndarray] | None = None,
     levels: range | None = None,
     held: dict[int, np.ndarray] | None = None,
+    on_layer: Callable[[int], None] | None = None,
 ) -> tuple[dict[int, np.ndarray], dict]:
     """Run the upward sweep; returns (packed bits of the retained layers, statistics).
 
@@ -688,6 +691,7 @@ def sweep_classes(
     levels this call classifies and `held` the bits returned by the call that swept the
     levels just below them.  Pieces chained this way return exactly the bits of one whole
     sweep; their statistics add up to its statistics (the peak is a maximum).
+    `on_layer(states)` is called after each layer with its number of states (progress).
     """
     spec = space.spec
     top = spec.start_level
@@ -729,6 +733,8 @@ def sweep_classes(
             stats["states"] += int(np.bitwise_count(reach[level]).sum())
         stats["moves_examined"] += int(ex)
         stats["layers"] += 1
+        if on_layer is not None:
+            on_layer(size)
         if not keep:
             for old in [lv for lv in held if lv < level - span]:
                 del held[old]
@@ -754,6 +760,64 @@ def successors(spec: GameSpec, counts: np.ndarray) -> list[tuple[int, np.ndarray
     return out
 
 
+def layer_bytes(space: StateSpace, level: int) -> int:
+    """Bytes of one bit plane of a layer (one bit per state, packed); 0 outside 0..top."""
+    if level < 0 or level > space.top:
+        return 0
+    return (space.layer_size(level) + 7) // 8
+
+
+def solve_peak_bits(space: StateSpace, players: int = 2) -> int:
+    """Peak bytes of outcome bits `sweep_classes` reports (`peak_bits_bytes`), from the
+    layer sizes alone.
+
+    Replays the sweep's accounting, level by level upward: the layers it holds from the
+    levels below (the last max_drop + 1 swept), the flight buffer of the level's window
+    (itself and the max_drop levels below) and the copy of the finished layer, each one
+    bit per state per plane.  The chain (`cluster.solve_chain.run_solve`) holds the same
+    layers at every level, so its peak is the same.
+    """
+    planes = 1 if players == 2 else players
+    span = space.max_drop
+    held: list[int] = []
+    peak = 0
+    for level in sorted(space.levels):
+        window = sum(layer_bytes(space, level - d) for d in range(span + 1))
+        held_bytes = sum(layer_bytes(space, lv) for lv in held)
+        peak = max(peak, planes * (held_bytes + window + layer_bytes(space, level)))
+        held = [lv for lv in (*held, level) if lv >= level - span]
+    return peak
+
+
+def solve_bytes(space: StateSpace, players: int, reach: bool, keep_classes: bool) -> int:
+    """Forecast peak bytes of `solve`, an upper bound up to the kernels' O(bins) scratch.
+
+    Counts the rank table, the outcome bits (`solve_peak_bits`), and with `reach` the
+    reachability sweep: one bit per state kept for the whole solve, the largest layer's
+    states (int64 per bin) and its flight buffer; with `keep_classes` every layer's bits
+    (per plane) and their unpacked bool copies.
+    """
+    planes = 1 if players == 2 else players
+    total_bits = sum(layer_bytes(space, lv) for lv in space.levels)
+    need = int(space.tab.nbytes) + solve_peak_bits(space, players)
+    if reach:
+        largest = space.largest_layer()
+        need += total_bits + largest * 8 * space.spec.nbins + 2 * solve_peak_bits(space, 2)
+    if keep_classes:
+        need += planes * total_bits + space.total_states()
+    return need
+
+
+def solve_space(spec: GameSpec, limit: int, players: int, reach: bool, keep_classes: bool,
+                what: str) -> StateSpace:
+    """The state space of a solve after its refusals: the rank table's exact size before
+    it is allocated (`statespace.refuse_space`), then `solve_bytes` from the layer sizes."""
+    refuse_space(spec, limit, what, per_state=1 / 8 if (reach or keep_classes) else 0.0)
+    space = build_space(spec, limit)
+    refuse_if_over(solve_bytes(space, players, reach, keep_classes), limit, what)
+    return space
+
+
 def solve(
     n: int,
     rules: str | RuleSet = "standard",
@@ -761,6 +825,8 @@ def solve(
     *,
     keep_classes: bool = False,
     reach: bool | None = None,
+    max_memory: int | None = None,
+    progress: bool = False,
 ) -> SolveResult:
     """Solve the game for n: outcome classes (two players) or coalition wins (P players).
 
@@ -769,15 +835,34 @@ def solve(
     state space, for small n only.  `reach`: first find the states reachable from the start
     (`sweep_reach`) and solve only those; None (default) does so for every rule set except
     the standard game, whose states of value n are all reachable (module docstring).
+    `max_memory` (default: what the machine has available): the run is refused up front
+    when `solve_bytes` exceeds it (`solve_space`).  `progress`: a bar of the states
+    classified on stderr.
     """
+    from .count import check_n
+
+    check_n(n)
     check_players(players)
     rs = get_rules(rules)
-    space = build_space(rs.instantiate(n))
     reach = needs_reach(rs) if reach is None else reach
+    space = solve_space(rs.instantiate(n), resolve_limit(max_memory), players, reach,
+                        keep_classes, f"solving n={n}")
     t0 = time.perf_counter()
     reach_bits = sweep_reach(space)[0] if reach else None
-    held, stats = sweep_classes(space, players, keep=keep_classes, reach=reach_bits)
+    bar = None
+    if progress:
+        from tqdm import tqdm
+
+        bar = tqdm(total=space.total_states(), unit="state", unit_scale=True,
+                   desc=f"solve n={n}")
+    try:
+        held, stats = sweep_classes(space, players, keep=keep_classes, reach=reach_bits,
+                                    on_layer=bar.update if bar is not None else None)
+    finally:
+        if bar is not None:
+            bar.close()
     stats["reach_pass"] = bool(reach)
+    stats["forecast_peak_bytes"] = solve_bytes(space, players, reach, keep_classes)
     return solve_result(n, space, players, held, stats, time.perf_counter() - t0,
                         keep_classes=keep_classes)
 
@@ -845,7 +930,9 @@ def solve_result(
         seconds=seconds,
         peak_bits_bytes=stats["peak_bits_bytes"],
         classes=classes,
-        stats={"layers": stats["layers"], "reach_pass": bool(stats.get("reach_pass"))},
+        stats={"layers": stats["layers"], "reach_pass": bool(stats.get("reach_pass")),
+               **({"forecast_peak_bytes": stats["forecast_peak_bytes"]}
+                  if "forecast_peak_bytes" in stats else {})},
     )
 
 
@@ -992,7 +1079,8 @@ def move_graph(space: StateSpace, classes: dict[int, np.ndarray]) -> dict[str, n
 
 
 def winning_strategy(
-    n: int, rules: str | RuleSet = "standard", *, prefer_shared: bool = True
+    n: int, rules: str | RuleSet = "standard", *, prefer_shared: bool = True,
+    max_memory: int | None = None,
 ) -> tuple[Strategy, SolveResult]:
     """Solve a small game and extract a compact winning strategy for its winner.
 
@@ -1003,15 +1091,17 @@ def winning_strategy(
     The move graph of the whole game is held (about 20 bytes per move), so n is limited to
     games of at most STRATEGY_MAX_STATES states.
     """
+    from .count import check_n
+
     rs = get_rules(rules)
-    spec = rs.instantiate(n)
-    space = build_space(spec)
+    spec = rs.instantiate(check_n(n))
+    space = build_space(spec, max_memory)
     if space.total_states() > STRATEGY_MAX_STATES:
         raise InputError(
             f"strategy export holds the whole move graph: n={n} has {space.total_states()} "
             f"states, the limit is {STRATEGY_MAX_STATES}"
         )
-    result = solve(n, rs, 2, keep_classes=True)
+    result = solve(n, rs, 2, keep_classes=True, max_memory=max_memory)
     g = move_graph(space, result.classes)
     order, ptr, dest, move, is_n, counts = (
         g["order"], g["ptr"], g["dest"], g["move"], g["is_n"], g["counts"]

@@ -25,6 +25,7 @@ from dataclasses import dataclass
 import numba as nb
 import numpy as np
 
+from .rules import GameSpec
 from .statespace import LayerMoves, StateSpace
 
 UNREACHED = np.iinfo(np.int32).max
@@ -133,10 +134,48 @@ def bits_bound(paths_log2: float, depth: int) -> int:
     return max(1, math.floor(paths_log2) + 2)
 
 
+def length_bound(spec: GameSpec) -> int | None:
+    """A proven bound on the number of moves of any game of `spec`, or None when the only
+    one known is the number of states.
+
+    The standard game: a game lasts at most ((3 + sqrt 5) / 2) n - IZ(n) - ((1 + sqrt 5) /
+    2) Z(n) < 2.6181 n moves ("Bounds on Zeckendorf Games", 2020, arXiv:2009.09510).  A
+    game whose moves all lower the level lasts at most the start's level moves.
+    """
+    from .rules import STANDARD
+
+    if spec.rules.content_hash() == STANDARD.content_hash():
+        return math.floor(2.6181 * spec.n) + 1
+    if spec.mv_drop.size == 0 or int(spec.mv_drop.min()) >= 1:
+        return int(spec.start_level)
+    return None
+
+
+def window_bound(spec: GameSpec) -> int | None:
+    """A proven bound on every state's length window (lmax - lmin + 1), or None.
+
+    The standard game: every combine lowers the token count by one and a split keeps it,
+    so all paths from the start to a state with t tokens hold n - t combines and differ
+    only in their splits; a whole game holds n - Z(n) combines, so at most
+    `length_bound` - (n - Z(n)) splits, and Z(n) <= bins.  A game whose moves all lower
+    the level: the start's level + 1.
+    """
+    from .rules import STANDARD
+
+    bound = length_bound(spec)
+    if bound is None:
+        return None
+    if spec.rules.content_hash() == STANDARD.content_hash():
+        return bound - spec.n + spec.nbins + 1
+    return bound + 1
+
+
 def incoming_bytes_estimate(space: StateSpace) -> int:
-    """Rough bytes of all layers' `Incoming` lists: about half the moves apply per state."""
-    per_state = 8 + 5 * max(1, space.spec.mv_bins.shape[0] // 2)
-    return per_state * space.total_states()
+    """Bytes of all layers' `Incoming` lists if every move into every state were kept (an
+    upper bound: only moves from reachable states are): int64 ptr per state, int8 drop and
+    int32 source per move (counted exactly by `StateSpace.moves_by_level`)."""
+    moves = float(space.moves_by_level(-1).sum())
+    return 8 * (space.total_states() + len(space.levels)) + math.ceil(5 * moves)
 
 
 def prefetch_listings(
