@@ -257,7 +257,7 @@ def stall_seconds(value: float | None = None) -> float:
     return value
 
 
-_WAIT_TIMEOUTS = tuple({TimeoutError, concurrent.futures.TimeoutError, asyncio.TimeoutError})
+WAIT_TIMEOUTS = tuple({TimeoutError, concurrent.futures.TimeoutError, asyncio.TimeoutError})
 """What `Future.result(timeout=...)` raises when the time runs out (one class on Python
 3.11+, three on 3.10), for concurrent.futures and distributed futures alike."""
 
@@ -307,7 +307,7 @@ class Watchdog:
         while True:
             try:
                 value = fut.result(timeout=self.period)
-            except _WAIT_TIMEOUTS:
+            except WAIT_TIMEOUTS:
                 self.idle()
                 continue
             self.progress()

@@ -63,7 +63,16 @@ from ..results import CountResult
 from ..rules import RuleSet, get_rules
 from ..safeio import check_output_dir
 from . import checkpoint as ckpt
-from .backend import DaskPool, Pool, ThreadPool, Watchdog, kept_note, open_pool, stall_seconds
+from .backend import (
+    WAIT_TIMEOUTS,
+    DaskPool,
+    Pool,
+    ThreadPool,
+    Watchdog,
+    kept_note,
+    open_pool,
+    stall_seconds,
+)
 from .kinds import ShardKind, assemble_count_shards, count_kind, random_kind
 from .plan import ShardPlan, worker_bytes
 from .tasks import Facts
@@ -324,12 +333,21 @@ def shards_on_pool(
             if fut is None:  # nothing finished for a while: is anybody still working?
                 watch.idle()
                 continue
-            hints.pop(fut, None)
+            prefer = hints.pop(fut, None)
             if fut not in tags:  # a shard withdrawn and resubmitted by `unhint_orphans`
+                continue
+            try:
+                value = fut.result(timeout=watch.period)
+            except WAIT_TIMEOUTS:
+                # reported finished, but its result died with its worker and the task runs
+                # again: wait for it like any unfinished task (with its hint, so that
+                # `unhint_orphans` resubmits it if that worker is gone too)
+                if prefer is not None:
+                    hints[fut] = prefer
+                done.add(fut)
                 continue
             watch.progress()
             tag = tags.pop(fut)
-            value = watch.result(fut)  # bounded: a lost result is recomputed
             if tag[0] == "prepare":  # the first answer plans; the others only warmed caches
                 job = jobs[tag[1]]
                 if job.facts is None:
@@ -545,13 +563,14 @@ def run_random(
     validate(n, players, model)
     if prime_offset < 0:  # refused before a cluster starts
         raise InputError(f"prime offset must be >= 0, got {prime_offset}")
+    # the first sweep's forecast, before any worker starts or any folder is made
+    # (`max_memory`, default: what this machine has available, not applied to a remote
+    # scheduler's workers)
+    if max_memory is not None or scheduler is None:
+        refuse_random(n, rules, players, model, max_memory=max_memory)
     if checkpoint_dir is not None:
         check_output_dir(checkpoint_dir, "checkpoint directory")
     stall = stall_seconds(stall_timeout)
-    # the first sweep's forecast, before any worker starts (`max_memory`, default: what
-    # this machine has available, not applied to a remote scheduler's workers)
-    if max_memory is not None or scheduler is None:
-        refuse_random(n, rules, players, model, max_memory=max_memory)
     with open_pool(workers, scheduler, threads, warm=("random",)) as pool:
         return random_on_pool(
             n, rules, pool, players, model, winners_only=winners_only,

@@ -297,6 +297,13 @@ def _fail(msg: str) -> TableCheckFailed:
     return TableCheckFailed(msg)
 
 
+MANIFEST_KEYS = frozenset({"format", "tool", "version", "created", "rules", "rules_hash",
+                           "rules_text", "parameters", "primes_per_n", "random_primes_per_n",
+                           "files"})
+"""Every key a table manifest written by `build_table` has (`random_primes_per_n` only with
+random play); any other key refuses the table."""
+
+
 def _manifest_of(folder: Path) -> tuple[Path, dict]:
     if not folder.is_dir():
         raise InputError(f"{folder}: not a directory (not a zeckenum table)")
@@ -312,6 +319,14 @@ def _manifest_of(folder: Path) -> tuple[Path, dict]:
         raise InputError(f"{mpath} is not a JSON object (not a zeckenum table manifest)")
     if manifest.get("format") != FORMAT:
         raise InputError(f"{mpath} is not a {FORMAT} manifest")
+    unknown = sorted(set(manifest) - MANIFEST_KEYS)
+    if unknown:  # a renamed or added key is an edit, not a table this version wrote
+        raise _fail(f"{mpath}: unknown key {unknown[0][:60]!r} (not a manifest "
+                    f"zeckenum writes)")
+    params = manifest.get("parameters")
+    what = params.get("what") if isinstance(params, dict) else None
+    if isinstance(what, list) and "random" in what and "random_primes_per_n" not in manifest:
+        raise _fail(f"{mpath}: 'random_primes_per_n' is missing for a table with random play")
     return mpath, manifest
 
 

@@ -637,7 +637,9 @@ def test_table_resumes_a_partial_directory(tmp_path, monkeypatch) -> None:  # no
         table_mod.build_table(3, 10, ("count", "solve"), part)
     assert not (part / "manifest.json").exists()
     kept = sorted(p.name for p in (part / ".rows").iterdir())
-    assert "solve-8.json" in kept and "solve-9.json" not in kept and "count-10.json" in kept
+    # rows finish in any order in the pool: some solve rows before 9 are kept, 9 is not
+    assert "solve-9.json" not in kept and "count-10.json" in kept
+    assert any(f"solve-{n}.json" in kept for n in range(3, 9))
     # a damaged row is computed again, not trusted
     (part / ".rows" / "solve-5.json").write_text('{"sha256": "0", "payload": {}}')
 
@@ -661,7 +663,11 @@ def test_table_resumes_a_partial_directory(tmp_path, monkeypatch) -> None:  # no
     r = CliRunner().invoke(table_command, ["--from", "3", "--to", "10", "--what",
                                            "count,solve", "--out", str(part)])
     assert r.exit_code == 0, r.output
-    assert counted == [] and sorted(solved) == [5, 9, 10]
+    # only the rows that were not kept (rows finish in any order in the pool) and the
+    # damaged one are computed again
+    missing = {n for n in range(3, 11) if f"solve-{n}.json" not in kept} - {5}
+    assert {9, 10} <= missing
+    assert counted == [] and sorted(solved) == sorted(missing | {5})
     assert not (part / ".rows").exists()
     for name in json.loads((whole / "manifest.json").read_text())["files"]:
         assert (part / name).read_bytes() == (whole / name).read_bytes(), name
