@@ -36,6 +36,7 @@ from ..randomplay import (
     law_words_per_prime,
     random_law_residues,
     random_win_residues,
+    skeleton_nbytes,
     weight_bound,
     win_words_per_prime,
 )
@@ -104,16 +105,6 @@ class _Swept:
 
 _cache: OrderedDict[tuple[str, int, str], _Swept] = OrderedDict()
 _cache_lock = threading.Lock()
-
-
-def skeleton_bytes(skel: Skeleton) -> int:
-    """Bytes of a skeleton's arrays: windows, D per state and the kept moves in."""
-    total = 0
-    for lv in skel.levels:
-        inc = skel.incoming[lv]
-        total += skel.lmin[lv].nbytes + skel.win[lv].nbytes + skel.dsum[lv].nbytes
-        total += inc.ptr.nbytes + inc.drop.nbytes + inc.src.nbytes + inc.w.nbytes
-    return total
 
 
 def law_updates_per_prime(skel: Skeleton) -> int:
@@ -193,7 +184,7 @@ def random_prepare_task(
         weight_bound=swept.weight_bound,
         columns=columns,
         words_one=ring + columns + max(skel.max_weight, 1) + 1,
-        window_bytes=skeleton_bytes(skel),
+        window_bytes=skeleton_nbytes(skel),
         shared_bytes=0,
         fixed_bytes=0,
         updates_one=updates,
