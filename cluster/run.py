@@ -28,13 +28,15 @@ recomputed values are used.  Verified shards are reused and only the others are 
 (`stats["shards_reused"]`, `stats["shards_computed"]`); a directory of another kind, other
 parameters, another rule file or any edited fact, prime or block is refused.
 Ranges of n (`run_counts`) submit one task per (n, block); on a cluster the largest n go
-first.  Placement: the shards of a single n are unrestricted (the scheduler deals them;
-measured as fast as dealing them round-robin).  The shards of an n of a range carry a loose
-hint for the worker that swept it (measured 10-13% faster on n = 100..130 with 2 workers:
-that worker has the windows at hand); the driver looks at the workers every few seconds
-and resubmits without hint every unfinished shard whose preferred worker is gone, so no
-run waits on a dead worker (hinted tasks whose workers had all died were never
-rescheduled by Dask, and the run hung).
+first.  Placement is by loose hints only (`allow_other_workers`): a single n's prepare
+tasks (one per worker) and its shards are dealt round-robin over the workers (left to the
+scheduler, both prepare tasks queued on one worker and the shards piled up on the worker
+that answered first: n = 150 on 2 workers took 5.1-5.4 s instead of 3.8 s); the shards of
+an n of a range prefer the worker that swept it (measured 10-13% faster on n = 100..130
+with 2 workers: that worker has the windows at hand).  The driver looks at the workers
+every few seconds and resubmits without hint every unfinished task whose preferred worker
+is gone, so no run waits on a dead worker (hinted tasks whose workers had all died were
+never rescheduled by Dask, and the run hung).
 
 The driver waits with a `backend.Watchdog` (`stall_timeout`, default
 $ZECKENUM_STALL_TIMEOUT or 600 s): when the cluster has had no worker and finished no task
