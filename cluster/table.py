@@ -323,10 +323,6 @@ def _manifest_of(folder: Path) -> tuple[Path, dict]:
     if unknown:  # a renamed or added key is an edit, not a table this version wrote
         raise _fail(f"{mpath}: unknown key {unknown[0][:60]!r} (not a manifest "
                     f"zeckenum writes)")
-    params = manifest.get("parameters")
-    what = params.get("what") if isinstance(params, dict) else None
-    if isinstance(what, list) and "random" in what and "random_primes_per_n" not in manifest:
-        raise _fail(f"{mpath}: 'random_primes_per_n' is missing for a table with random play")
     return mpath, manifest
 
 
