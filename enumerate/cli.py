@@ -36,11 +36,8 @@ from .cli_view import games_command, movestats_command, plot_command, report_com
 from .clifmt import deliver_result, plural
 from .count import count
 from .errors import INTERNAL_ERROR_EXIT, InputError, MemoryRefused, OutputError, ZeckenumError
-from .results import CountResult
+from .results import OUT_SUFFIXES, CountResult
 from .safeio import check_output_file
-
-OUT_SUFFIXES = (".csv", ".json")
-"""What `count --out FILE` writes: the spectrum as CSV, or the whole result as JSON."""
 
 RULES_OPTION = click.option(
     "--rules", default="standard", show_default=True, metavar="NAME|FILE",
@@ -133,13 +130,6 @@ def check_out_path(out: str) -> Path:
     return check_output_file(path, "--out file")
 
 
-def out_text(res: CountResult, path: Path) -> str:
-    """The text `count --out` writes: CSV spectrum for .csv, the JSON object for .json."""
-    if path.suffix.lower() == ".csv":
-        return res.spectrum_csv()
-    return json.dumps(res.to_dict(), indent=2) + "\n"
-
-
 @main.command("count", cls=OneLineCommand)
 @click.argument("n", type=POSITIVE)
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of a table.")
@@ -195,7 +185,7 @@ def count_command(
             )
         if out_path is not None:
             try:
-                deliver_result(out_path, out_text(res, out_path), "the spectrum")
+                deliver_result(out_path, res.file_text(out_path), "the spectrum")
             except OutputError as exc:  # rescued; still print the result, then exit 6
                 lost = exc
     except ZeckenumError as exc:

@@ -13,9 +13,9 @@ import click
 
 from .cli_errors import fail
 from .cli_options import (
+    POSITIVE,
     WORKERS,
     OneLineCommand,
-    PositiveInt,
     bounded,
     max_memory_option,
     progress_option,
@@ -28,7 +28,6 @@ from .randomplay import MAX_PLAYERS, MODELS
 from .solve import MAX_PLAYERS as SOLVE_MAX_PLAYERS
 
 # No import from `cli` at module level: `cli` imports this module to register the commands.
-POSITIVE = PositiveInt()
 PROBE = bounded(20, 400)
 """A probe's n (`cluster.predict.check_probe`): enough work to time, about a second."""
 

@@ -9,6 +9,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .errors import InputError
+from .safeio import write_atomic
+
+OUT_SUFFIXES = (".csv", ".json")
+"""The files `CountResult.write` (and `count --out FILE`) writes."""
 
 
 @dataclass(frozen=True)
@@ -71,16 +75,17 @@ class CountResult:
             w.writerow([self.n, length, c])
         return buf.getvalue()
 
-    def write(self, path: str | Path) -> None:
-        """Write the spectrum to `path`: CSV for .csv, the full JSON object for .json."""
-        path = Path(path)
-        suffix = path.suffix.lower()
+    def file_text(self, path: str | Path) -> str:
+        """What `write(path)` writes: the spectrum as CSV for .csv, the full JSON object for
+        .json; InputError for any other suffix (`OUT_SUFFIXES`)."""
+        suffix = Path(path).suffix.lower()
         if suffix == ".csv":
-            text = self.spectrum_csv()
-        elif suffix == ".json":
-            text = json.dumps(self.to_dict(), indent=2) + "\n"
-        else:
-            raise InputError(f"--out {path}: use a .csv or .json file name")
-        tmp = path.with_name(path.name + ".tmp")
-        tmp.write_text(text)
-        tmp.replace(path)
+            return self.spectrum_csv()
+        if suffix == ".json":
+            return json.dumps(self.to_dict(), indent=2) + "\n"
+        raise InputError(f"--out {path}: use a .csv or .json file name")
+
+    def write(self, path: str | Path) -> None:
+        """Write the spectrum to `path` atomically (`file_text`; no partial or temporary
+        file is left when the write fails)."""
+        write_atomic(path, self.file_text(path).encode())

@@ -307,3 +307,23 @@ def test_count_table_plurals() -> None:
     assert code == 0, err
     assert "1 move (1 game)" in out, out
     assert "1 moves" not in out and "1 games" not in out
+
+
+def test_count_result_write_is_atomic_and_checks_the_suffix(tmp_path: Path) -> None:
+    """The API's `CountResult.write` writes what `count --out` writes, refuses other
+    suffixes and leaves no temporary file when the write fails (common practice: atomic
+    replace).  Reference for the spectrum: the brute force of tests/bruteforce.py."""
+    import zeckenum
+    from zeckenum.errors import InputError
+
+    res = zeckenum.count(9)
+    res.write(tmp_path / "s.csv")
+    rows = (tmp_path / "s.csv").read_text().splitlines()[1:]
+    got = {int(r.split(",")[1]): int(r.split(",")[2]) for r in rows}
+    assert got == census(9)["length_counts"]
+    with pytest.raises(InputError):
+        res.write(tmp_path / "s.txt")
+    (tmp_path / "d.json").mkdir()  # a directory in the way: the rename fails
+    with pytest.raises(OSError):
+        res.write(tmp_path / "d.json")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["d.json", "s.csv"]
