@@ -4,7 +4,7 @@ Each task runs in a fresh subprocess; the time is measured inside the child (imp
 compilation excluded), both wall-clock and CPU (user + system of all the child's threads,
 from resource.getrusage): the machine may be shared, and CPU seconds are the steadier
 figure when other jobs compete for the cores.  The baseline is the memoised Fraction
-recursion of tests/fraction_bruteforce.py (plain Python, no engine code), run with a time
+recursion of tests/support/fraction_bruteforce.py (plain Python, no engine code), run with a time
 limit; when it does not finish at the target n, the ratio is computed at the largest n it
 finishes (printed as such).
 
@@ -44,9 +44,9 @@ if task == "baseline":
     th = threading.Thread(target=run); th.start(); th.join()
     print(json.dumps({{"s": box["s"], "cpu": box["cpu"]}}))
     sys.exit(0)
-from zeckenum.randomplay import random_play
-from zeckenum.floatplay import float_play
-from zeckenum.simulate import simulate
+from zeckenum.randomplay.exact import random_play
+from zeckenum.randomplay.floating import float_play
+from zeckenum.randomplay.simulate import simulate
 random_play(5); random_play(5, winners_only=True); float_play(5); simulate(5, 10)  # compile
 t = time.perf_counter()
 c = cpu()

@@ -1,6 +1,6 @@
-"""Speed and memory of `zeckenum.solve` against a plain-Python memoised minimax, in one run.
+"""Speed and memory of `zeckenum.optimal.solve` against a plain-Python memoised minimax, in one run.
 
-For each n, `zeckenum.solve(n)` (two players: the outcome class of every state) runs in a
+For each n, `zeckenum.optimal.solve(n)` (two players: the outcome class of every state) runs in a
 fresh subprocess; the baseline - a memoised recursion over tuples of token counts, plain
 Python, no numpy and no zeckenum - runs in another one at n = --baseline-n (default 80).
 Time is the solving call measured inside the child (imports excluded; numba's cache is
@@ -35,7 +35,7 @@ TARGETS = {300: (120.0, None), 400: (900.0, 8 * 1024.0)}  # n -> (seconds, MiB o
 
 ENGINE_CHILD = """
 import json, resource, sys, time
-from zeckenum.solve import solve
+from zeckenum.optimal.solve import solve
 n, players, path = int(sys.argv[1]), int(sys.argv[2]), sys.argv[3]
 solve(12, players=players)  # load the numba kernels from the cache
 rss_imports = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024

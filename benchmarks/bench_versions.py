@@ -35,8 +35,8 @@ JOBS: dict[str, tuple[str, str]] = {
 CHILD = """
 import hashlib, json, time
 from zeckenum import count
-from zeckenum.randomplay import random_play
-from zeckenum.solve import solve
+from zeckenum.randomplay.exact import random_play
+from zeckenum.optimal.solve import solve
 {warm}
 t0 = time.perf_counter()
 value = {timed}

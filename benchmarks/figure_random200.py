@@ -2,7 +2,7 @@
 
 Left panel: the exact number of games of each length (`zeckenum.count(200)`), normalised,
 with the normal density of the same mean and variance.  Right panel: the length law of a
-random game (uniform over legal moves) from the float sweep (`zeckenum.floatplay`), whose
+random game (uniform over legal moves) from the float sweep (`zeckenum.randomplay.floating`), whose
 printed rigorous error bound is far below what a plot can show, with its normal density.
 
     python benchmarks/figure_random200.py [--n 200] [--out benchmarks/figures/random200]
@@ -14,8 +14,8 @@ import argparse
 from pathlib import Path
 
 import zeckenum
-from zeckenum.floatplay import float_play
-from zeckenum.plots import RunData, figure_distribution, save_figure
+from zeckenum.present.plots import RunData, figure_distribution, save_figure
+from zeckenum.randomplay.floating import float_play
 
 
 def main() -> None:

@@ -1,7 +1,7 @@
 """The Dask layer of zeckenum: sharded exact counts and random play, chained optimal play,
 checkpoints, resume, published tables.
 
-Shard design: one large n splits by *prime block*.  In-process, `zeckenum.count.count`
+Shard design: one large n splits by *prime block*.  In-process, `zeckenum.counting.count.count`
 runs `spectrum.spectrum_residues(space, windows, block)` for each block in threads; the
 cluster twin `tasks.spectrum_task(rules, n, block) -> (residues, word_updates)` rebuilds the
 game, its state space and its windows on the worker (deterministic; cached per worker
@@ -20,7 +20,7 @@ cache slots), `run` (`run_count`, `run_counts`, `run_random`), `solve_chain`
 and their verification), `predict` (the `plan` command's forecast).
 """
 
-from .run import count_on_cluster, run_count, run_counts, run_random
-from .solve_chain import run_solve
+from zeckenum.cluster.run import count_on_cluster, run_count, run_counts, run_random
+from zeckenum.cluster.solve_chain import run_solve
 
 __all__ = ["count_on_cluster", "run_count", "run_counts", "run_random", "run_solve"]

@@ -38,14 +38,14 @@ import logging
 import math
 import os
 import queue
-import tempfile
 import threading
 import time
 from collections.abc import Callable, Iterator
 from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
 
-from ..errors import ClusterStalled, InputError
+from zeckenum.core.jit import cache_base
+from zeckenum.errors import ClusterStalled, InputError
 
 log = logging.getLogger("zeckenum.cluster")
 
@@ -69,16 +69,16 @@ def warm_up(kinds: tuple[str, ...] = ("count",)) -> None:
             if kind in _warmed:
                 continue
             if kind == "count":
-                from ..count import count
+                from zeckenum.counting.count import count
 
                 count(5, threads=1)
             elif kind == "random":
-                from ..randomplay import random_play
+                from zeckenum.randomplay.exact import random_play
 
                 random_play(5, threads=1)
                 random_play(5, threads=1, winners_only=True)
             elif kind == "solve":
-                from ..solve import solve
+                from zeckenum.optimal.solve import solve
 
                 solve(5)
                 solve(5, players=3)
@@ -95,15 +95,6 @@ def warm_worker(kinds: tuple[str, ...] = ("count",)) -> bool:
     return True
 
 
-def cache_base() -> Path:
-    """Folder of the per-worker numba cache slots."""
-    env = os.environ.get("ZECKENUM_NUMBA_CACHE")
-    if env:
-        return Path(env)
-    uid = os.getuid() if hasattr(os, "getuid") else 0
-    return Path(tempfile.gettempdir()) / f"zeckenum-numba-{uid}"
-
-
 _PLUGIN_SOURCE = """
 def setup(self, worker):
     import os
@@ -112,7 +103,7 @@ def setup(self, worker):
 
     if os.environ.get("NUMBA_CACHE_DIR"):
         return
-    if "zeckenum.spectrum" in sys.modules:
+    if "zeckenum.counting.spectrum" in sys.modules:
         import logging
 
         logging.getLogger("zeckenum.cluster").warning(
@@ -472,8 +463,7 @@ def seed_slot(folder: Path) -> int:
     """
     try:
         from numba.core.caching import _CacheLocator
-
-        from .. import spectrum
+        from zeckenum.counting import spectrum
 
         src = Path(spectrum.pull_residues._cache._cache_path)
         dst = Path(folder) / _CacheLocator.get_suitable_cache_subpath(spectrum.__file__)

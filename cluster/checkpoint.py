@@ -59,18 +59,17 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
-
-from .. import __version__
-from ..errors import InputError, OutputError
-from ..rulefile import format_rules, rules_from_text
-from ..rules import RuleSet
-from ..safeio import (
+from zeckenum import __version__
+from zeckenum.cluster.errors import CheckpointRefused
+from zeckenum.cluster.plan import ShardPlan, split_evenly
+from zeckenum.errors import InputError, OutputError
+from zeckenum.rules.model import RuleSet
+from zeckenum.rules.rulefile import format_rules, rules_from_text
+from zeckenum.safeio import (
     member,
     read_regular,
     write_atomic,  # noqa: F401 - re-exported for table and solve_chain
 )
-from .errors import CheckpointRefused
-from .plan import ShardPlan, split_evenly
 
 MANIFEST = "manifest.json"
 FORMAT = "zeckenum-shards/1"

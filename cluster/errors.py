@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ..errors import CheckFailed, InputError
+from zeckenum.errors import CheckFailed, InputError
 
 
 class CheckpointRefused(InputError):

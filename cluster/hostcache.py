@@ -86,12 +86,12 @@ from collections.abc import Callable, Iterator
 from pathlib import Path
 
 import numpy as np
-
-from .. import statespace, windows
-from ..errors import InputError
-from ..safeio import member, read_regular
-from ..statespace import StateSpace
-from ..windows import Incoming, Windows
+from zeckenum.core import statespace
+from zeckenum.core import sweep as windows
+from zeckenum.core.statespace import StateSpace
+from zeckenum.core.sweep import Incoming, Windows
+from zeckenum.errors import InputError
+from zeckenum.safeio import member, read_regular
 
 log = logging.getLogger("zeckenum.cluster")
 

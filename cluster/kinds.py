@@ -23,9 +23,17 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-
-from ..count import assemble_count
-from ..randomplay import (
+from zeckenum.cluster.count_tasks import Facts, prepare_task, release_task, spectrum_task
+from zeckenum.cluster.plan import ShardPlan, make_plan, plan_from_primes
+from zeckenum.cluster.random_tasks import (
+    RandomFacts,
+    random_law_task,
+    random_prepare_task,
+    random_win_task,
+)
+from zeckenum.counting.count import assemble_count
+from zeckenum.counting.result import CountResult
+from zeckenum.randomplay.exact import (
     LAW_PRIMES_PER_BLOCK,
     WIN_PRIMES_PER_BLOCK,
     RandomResult,
@@ -33,11 +41,7 @@ from ..randomplay import (
     check_random_primes,
     primes_exceeding,
 )
-from ..results import CountResult
-from ..rules import RuleSet
-from .plan import ShardPlan, make_plan, plan_from_primes
-from .random_tasks import RandomFacts, random_law_task, random_prepare_task, random_win_task
-from .tasks import Facts, prepare_task, release_task, spectrum_task
+from zeckenum.rules.model import RuleSet
 
 
 @dataclass(frozen=True)

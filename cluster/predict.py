@@ -32,13 +32,17 @@ import math
 import textwrap
 import time
 
-from ..clifmt import plural
-from ..count import check_n, count, refuse_count
-from ..errors import InputError
-from ..memory import human, resolve_limit
-from ..randomplay import refuse_random, validate, word_primes
-from ..rules import RuleSet, get_rules
-from ..solve import (
+from zeckenum.cluster.count_tasks import Facts, first_sweep
+from zeckenum.cluster.kinds import random_kind
+from zeckenum.cluster.plan import ShardPlan, make_plan, worker_bytes
+from zeckenum.cluster.random_tasks import RandomFacts
+from zeckenum.cluster.solve_chain import plan_ranges
+from zeckenum.core.memory import human, resolve_limit
+from zeckenum.core.statespace import StateSpace, build_space
+from zeckenum.core.text import plural
+from zeckenum.counting.count import check_n, count, refuse_count
+from zeckenum.errors import InputError
+from zeckenum.optimal.solve import (
     check_players,
     layer_bytes,
     needs_reach,
@@ -47,12 +51,8 @@ from ..solve import (
     solve_space,
     sweep_reach,
 )
-from ..statespace import StateSpace, build_space
-from .kinds import random_kind
-from .plan import ShardPlan, make_plan, worker_bytes
-from .random_tasks import RandomFacts
-from .solve_chain import plan_ranges
-from .tasks import Facts, first_sweep
+from zeckenum.randomplay.exact import refuse_random, validate, word_primes
+from zeckenum.rules.model import RuleSet, get_rules
 
 PROBE_N = 90
 """Probe size of a count: about a second on one core, long enough rows to measure the

@@ -27,8 +27,9 @@ from collections import OrderedDict
 from dataclasses import asdict, dataclass
 
 import numpy as np
-
-from ..randomplay import (
+from zeckenum.cluster.count_tasks import worker_address
+from zeckenum.core.statespace import build_space
+from zeckenum.randomplay.exact import (
     Skeleton,
     check_model,
     check_random_primes,
@@ -40,9 +41,7 @@ from ..randomplay import (
     weight_bound,
     win_words_per_prime,
 )
-from ..rules import RuleSet, get_rules
-from ..statespace import build_space
-from .tasks import worker_address
+from zeckenum.rules.model import RuleSet, get_rules
 
 CACHE_ENTRIES = 2
 """Games (rules, n, model) whose skeleton a process keeps: the current n and the next."""

@@ -3,7 +3,7 @@ or on a remote one, with checkpoints and resume.
 
 `run_count(n, workers=..., scheduler=..., checkpoint_dir=...)` gives the same
 `CountResult` as `zeckenum.count(n)`, and `run_random(n, ...)` the same `RandomResult` as
-`zeckenum.randomplay.random_play(n, ...)` (equal field by field; only `stats` differ).
+`zeckenum.randomplay.exact.random_play(n, ...)` (equal field by field; only `stats` differ).
 One driver, `shards_on_pool`, runs both; a `kinds.ShardKind` supplies what differs.  The
 flow for one n:
 
@@ -56,16 +56,8 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-
-from ..count import check_n, refuse_count
-from ..errors import InputError
-from ..memory import available_bytes, refuse_if_over
-from ..randomplay import RandomResult, refuse_random, validate
-from ..results import CountResult
-from ..rules import RuleSet, get_rules
-from ..safeio import check_output_dir
-from . import checkpoint as ckpt
-from .backend import (
+from zeckenum.cluster import checkpoint as ckpt
+from zeckenum.cluster.backend import (
     WAIT_TIMEOUTS,
     DaskPool,
     Pool,
@@ -75,9 +67,16 @@ from .backend import (
     open_pool,
     stall_seconds,
 )
-from .kinds import ShardKind, assemble_count_shards, count_kind, random_kind
-from .plan import ShardPlan, worker_bytes
-from .tasks import Facts
+from zeckenum.cluster.count_tasks import Facts
+from zeckenum.cluster.kinds import ShardKind, assemble_count_shards, count_kind, random_kind
+from zeckenum.cluster.plan import ShardPlan, worker_bytes
+from zeckenum.core.memory import available_bytes, refuse_if_over
+from zeckenum.counting.count import check_n, refuse_count
+from zeckenum.counting.result import CountResult
+from zeckenum.errors import InputError
+from zeckenum.randomplay.exact import RandomResult, refuse_random, validate
+from zeckenum.rules.model import RuleSet, get_rules
+from zeckenum.safeio import check_output_dir
 
 log = logging.getLogger("zeckenum.cluster")
 
@@ -110,7 +109,7 @@ def assemble(facts: Facts, plan: ShardPlan, residues: list[np.ndarray], stats: d
 
 def _wanted(kind: ShardKind, n: int, prime_offset: int) -> dict:
     """The parameters a checkpoint of this run must have been written for, kind first."""
-    from .. import __version__
+    from zeckenum import __version__
 
     return {
         "kind": kind.name,

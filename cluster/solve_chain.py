@@ -45,23 +45,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
-
-from .. import __version__
-from ..count import check_n
-from ..errors import InputError
-from ..rules import RuleSet, get_rules
-from ..safeio import check_output_dir
-from ..solve import (
-    SolveResult,
-    check_players,
-    needs_reach,
-    solve_result,
-    sweep_classes,
-    sweep_reach,
-)
-from ..statespace import StateSpace, build_space
-from .backend import Watchdog, kept_note, open_pool, stall_seconds
-from .checkpoint import (
+from zeckenum import __version__
+from zeckenum.cluster.backend import Watchdog, kept_note, open_pool, stall_seconds
+from zeckenum.cluster.checkpoint import (
     check_entries,
     check_parameters,
     check_rules_text,
@@ -76,7 +62,20 @@ from .checkpoint import (
     warn,
     write_or_stop,
 )
-from .errors import CheckpointRefused
+from zeckenum.cluster.errors import CheckpointRefused
+from zeckenum.core.statespace import StateSpace, build_space
+from zeckenum.counting.count import check_n
+from zeckenum.errors import InputError
+from zeckenum.optimal.solve import (
+    SolveResult,
+    check_players,
+    needs_reach,
+    solve_result,
+    sweep_classes,
+    sweep_reach,
+)
+from zeckenum.rules.model import RuleSet, get_rules
+from zeckenum.safeio import check_output_dir
 
 FORMAT = "zeckenum-solve-chain/1"
 MANIFEST = "manifest.json"

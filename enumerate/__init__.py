@@ -11,10 +11,10 @@ Python API (the CLI is a thin layer over it)::
 import sys
 from importlib.metadata import PackageNotFoundError, version
 
-from .count import count
-from .errors import CheckPrimeMismatch, InputError, MemoryRefused, ZeckenumError
-from .results import CountResult
-from .rules import STANDARD, RuleSet, get_rules
+from zeckenum.counting.count import count
+from zeckenum.counting.result import CountResult
+from zeckenum.errors import CheckPrimeMismatch, InputError, MemoryRefused, ZeckenumError
+from zeckenum.rules.model import STANDARD, RuleSet, get_rules
 
 # Exact results are integers and rationals of many thousands of digits (the fourth moment
 # of a random game's length under the "pairs" model passes 4300 digits near n = 42), and

@@ -1,5 +1,5 @@
 """`python -m zeckenum` runs the command line."""
 
-from .cli import main
+from zeckenum.cli.group import main
 
 main()

@@ -25,7 +25,7 @@ import sys
 import tempfile
 from pathlib import Path
 
-from .errors import InputError, OutputError
+from zeckenum.errors import InputError, OutputError
 
 MiB = 1 << 20
 

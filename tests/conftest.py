@@ -2,15 +2,20 @@
 
 Tests marked @pytest.mark.slow run after all the others, and each one is skipped (with the
 reason shown) once the session has run longer than ZECKENUM_TEST_BUDGET seconds
-(default 900).  Nothing else is configured here.
+(default 900).  The brute-force references and test helpers in tests/support/ are put on
+`sys.path` here, so every test folder imports them by name.
 """
 
 from __future__ import annotations
 
 import os
+import sys
 import time
+from pathlib import Path
 
 import pytest
+
+sys.path.insert(0, str(Path(__file__).parent / "support"))
 
 BUDGET_ENV = "ZECKENUM_TEST_BUDGET"
 DEFAULT_BUDGET_SECONDS = 900.0

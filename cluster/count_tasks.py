@@ -1,0 +1,251 @@
+"""Cluster tasks: the shard of an exact count, and the first sweep that plans it.
+
+Shard design.  One large n splits by *prime block*: the exact sweep for a block of primes
+(`spectrum.spectrum_residues`) is independent of every other block.  In-process,
+`zeckenum.counting.count.count` runs the blocks in threads; here `spectrum_task(rules, n, block)` is
+its cluster twin.  A worker never receives the state space or the windows: it rebuilds the
+game, its state space and its windows (`windows.sweep_windows`, deterministic) from
+(rules, n), keeps them in a small per-process cache so the other blocks of the same n on
+that worker reuse them, and runs the same `spectrum_residues`.  Only a block of primes goes
+in and one small int64 array (block size x (longest + 1)) comes out.
+
+`prepare_task(rules, n)` runs that first sweep and returns `Facts`: the few numbers the
+client needs to plan the shards (count_bits -> primes, the memory of one block) and to
+report the result (states, transitions, shortest, longest).  On a cluster the client sends
+it to every worker at once, so each worker warms its cache in parallel and the client
+itself stays light (it may be a laptop driving a large cluster).  Random play's twins
+live in `random_tasks`.
+"""
+
+from __future__ import annotations
+
+import threading
+import time
+from collections import OrderedDict
+from dataclasses import asdict, dataclass
+
+import numpy as np
+from zeckenum.core.memory import available_bytes, refuse_if_over
+from zeckenum.core.statespace import StateSpace, build_space
+from zeckenum.core.sweep import Windows, incoming_bytes_estimate, sweep_windows
+from zeckenum.counting.count import windows_pass_bytes
+from zeckenum.counting.spectrum import peak_words, spectrum_residues
+from zeckenum.rules.model import RuleSet, get_rules
+
+CACHE_ENTRIES = 2
+"""Games (rules, n) whose windows a process keeps: the current n and the next."""
+
+_cache: OrderedDict[tuple[str, int], tuple[StateSpace, Windows, Facts]] = OrderedDict()
+_cache_lock = threading.Lock()
+_facts_memo: dict[tuple[str, int, bool], Facts] = {}
+"""Facts of the games this worker process mapped from the host cache, until released."""
+_facts_lock = threading.Lock()
+
+
+@dataclass(frozen=True)
+class Facts:
+    """What the first sweep of one game tells the planner (plain numbers, picklable).
+
+    words_one     int64 words a block of one prime holds at its peak (`peak_words`)
+    shared_bytes  bytes of the incoming-move lists all blocks of a process share
+    fixed_bytes   bytes per block besides its residues
+    window_bytes  bytes of the per-state windows (8 per state)
+    updates_one   word updates of the exact sweep per prime (exact: sum over kept moves of
+                  the source's window width)
+    where         address of the worker that ran the sweep ("" in-process)
+    """
+
+    rules: str
+    rules_hash: str
+    n: int
+    states: int
+    transitions: int
+    terminals: int
+    shortest: int
+    longest: int
+    count_bits: int
+    total_states: int
+    words_one: int
+    shared_bytes: int
+    fixed_bytes: int
+    window_bytes: int
+    updates_one: int
+    seconds_windows: float
+    where: str = ""
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+
+def updates_per_prime(space: StateSpace, windows: Windows) -> int:
+    """Word updates `spectrum_residues` does per prime: one per (kept move, source length)."""
+    total = 0
+    if windows.incoming is None:
+        for level in windows.win:
+            lm = space.predecessors(level)
+            for d in np.unique(lm.drop):
+                src_level = level + int(d)
+                if src_level not in windows.win:
+                    continue
+                sel = lm.drop == d
+                total += int(windows.win[src_level][lm.dest[sel]].astype(np.int64).sum())
+        return total
+    for level, inc in windows.incoming.items():
+        for d in np.unique(inc.drop):
+            src_level = level + int(d)
+            if src_level not in windows.win:
+                continue
+            sel = inc.drop == d
+            total += int(windows.win[src_level][inc.src[sel]].astype(np.int64).sum())
+    return total
+
+
+def first_sweep(
+    ruleset: RuleSet, n: int, limit: int | None = None, threads: int = 1
+) -> tuple[StateSpace, Windows, Facts]:
+    """State space, windows and `Facts` of one game (no caching).
+
+    The incoming moves are kept when they fit a quarter of `limit` (default: the memory
+    the machine has available), exactly as `count.count` decides.
+    """
+    limit = available_bytes() if limit is None else limit
+    t0 = time.perf_counter()
+    space = build_space(ruleset.instantiate(n))
+    first = windows_pass_bytes(space)
+    refuse_if_over(first, limit, f"counting n={n} (first sweep)")
+    keep = first + incoming_bytes_estimate(space) <= limit // 4
+    windows = sweep_windows(space, keep_incoming=keep, threads=threads)
+    seconds = time.perf_counter() - t0
+    facts = facts_of(ruleset, n, space, windows, seconds)
+    return space, windows, facts
+
+
+def facts_of(
+    ruleset: RuleSet, n: int, space: StateSpace, windows: Windows, seconds: float
+) -> Facts:
+    """The `Facts` of one game, every number derived from its state space and windows."""
+    largest = max(space.layer_size(lv) for lv in space.levels)
+    fixed = largest * (space.spec.mv_bins.shape[0] * 24 + 8 * space.spec.nbins)
+    if windows.incoming is not None:
+        fixed = largest * 16
+    return Facts(
+        rules=ruleset.name,
+        rules_hash=ruleset.content_hash(),
+        n=n,
+        states=windows.states,
+        transitions=windows.transitions,
+        terminals=windows.terminals,
+        shortest=windows.shortest,
+        longest=windows.longest,
+        count_bits=windows.count_bits,
+        total_states=space.total_states(),
+        words_one=peak_words(space, windows, 1),
+        shared_bytes=sum(inc.nbytes for inc in (windows.incoming or {}).values()),
+        fixed_bytes=fixed,
+        window_bytes=8 * space.total_states(),
+        updates_one=updates_per_prime(space, windows),
+        seconds_windows=round(seconds, 3),
+    )
+
+
+def prepared(rules: str | RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
+    """The (cached) first sweep of (rules, n) in this process; built at most once at a time.
+
+    In a Dask worker the sweep is shared with the other worker processes of the host
+    (`hostcache`): run once per host, its arrays memory-mapped by all.
+    """
+    ruleset = get_rules(rules)
+    key = (ruleset.content_hash(), int(n))
+    with _cache_lock:
+        hit = _cache.get(key)
+        if hit is not None:
+            _cache.move_to_end(key)
+            return hit
+        if worker_address():
+            entry = host_first_sweep(ruleset, int(n))
+        else:
+            entry = first_sweep(ruleset, int(n))
+        _cache[key] = entry
+        while len(_cache) > CACHE_ENTRIES:
+            _cache.popitem(last=False)
+        return entry
+
+
+def host_first_sweep(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
+    """`first_sweep` of (rules, n) through this host's shared cache (`hostcache`).
+
+    The cached arrays are checked against the game's state space when mapped, and the
+    `Facts` are recomputed from the space and the checked arrays: only the sweep's time is
+    taken from the cache's record (a statistic, never used to compute).
+    """
+    from zeckenum.cluster.hostcache import shared_windows
+
+    space = build_space(ruleset.instantiate(n))
+
+    def compute() -> tuple[Windows, dict]:
+        _, win, facts = first_sweep(ruleset, n)
+        return win, facts.to_dict()
+
+    win, recorded, _ = shared_windows(ruleset.content_hash(), n, compute, space)
+    key = (ruleset.content_hash(), n, win.incoming is not None)
+    with _facts_lock:
+        facts = _facts_memo.get(key)
+    if facts is None:  # a pure function of the game (and of keeping the moves)
+        seconds = recorded.get("seconds_windows")
+        if isinstance(seconds, bool) or not isinstance(seconds, (int, float)) or not (
+                0 <= seconds < 1e9):
+            seconds = 0.0
+        facts = facts_of(ruleset, n, space, win, float(seconds))
+        with _facts_lock:
+            _facts_memo[key] = facts
+    return space, win, facts
+
+
+def release_task(rules: str | RuleSet, n: int) -> bool:
+    """Forget the first sweep of (rules, n) in this process and remove this host's shared
+    copy (run on every worker when the count of n is done); True if this call removed it."""
+    from zeckenum.cluster.hostcache import release
+
+    ruleset = get_rules(rules)
+    with _cache_lock:
+        _cache.pop((ruleset.content_hash(), int(n)), None)
+    with _facts_lock:
+        for keep in (True, False):
+            _facts_memo.pop((ruleset.content_hash(), int(n), keep), None)
+    return release(ruleset.content_hash(), n)
+
+
+def clear_cache() -> None:
+    """Forget every cached first sweep of this process."""
+    with _cache_lock:
+        _cache.clear()
+    with _facts_lock:
+        _facts_memo.clear()
+
+
+def worker_address() -> str:
+    """Address of the Dask worker running this code ("" outside a worker)."""
+    try:
+        from distributed import get_worker
+
+        return get_worker().address
+    except (ImportError, ValueError):
+        return ""
+
+
+def prepare_task(rules: str | RuleSet, n: int) -> Facts:
+    """Run (or reuse) the first sweep of (rules, n) here and return its `Facts`."""
+    _, _, facts = prepared(rules, n)
+    return Facts(**{**facts.to_dict(), "where": worker_address()})
+
+
+def spectrum_task(
+    rules: str | RuleSet, n: int, primes_block: tuple[int, ...] | list[int]
+) -> tuple[np.ndarray, int]:
+    """(residues, word updates) of one shard: residues[q, L] = games of length L mod block[q].
+
+    The cluster twin of one thread of `count.count`: rebuilds (or reuses) the game's
+    windows in this process and calls the same `spectrum.spectrum_residues`.
+    """
+    space, windows, _ = prepared(rules, n)
+    return spectrum_residues(space, windows, list(primes_block))

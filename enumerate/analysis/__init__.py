@@ -1,0 +1,1 @@
+"""Analyses built on the engines: extremal games and move statistics."""

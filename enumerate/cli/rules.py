@@ -1,0 +1,139 @@
+"""`zeckenum rules ...`: list the shipped rule sets, check a rule file, show a rule set.
+
+    zeckenum rules list                    built-in names, one line each
+    zeckenum rules check FILE [--n N]      syntax, value of every move, layering at n
+    zeckenum rules show NAME|FILE [--n N]  bins, moves, start, potential, end positions at n
+
+Errors are one line on stderr with the error's exit status (2 for bad input).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+from zeckenum.cli.errors import one_line_errors
+from zeckenum.core.text import plural
+from zeckenum.rules.model import BUILTIN, RuleSet, get_rules
+from zeckenum.rules.rulefile import describe_template, read_rule_file
+from zeckenum.rules.validate import format_state, layering_report, terminal_positions
+
+SHOW_TERMINALS = 12
+"""At most this many end positions are printed by `rules show`."""
+
+
+def resolve(name_or_file: str) -> RuleSet:
+    """A built-in name, or a rule file (any existing path, or a name ending in .toml)."""
+    if name_or_file not in BUILTIN and Path(name_or_file).is_file():
+        return read_rule_file(name_or_file)
+    return get_rules(name_or_file)
+
+
+def start_text(rules: RuleSet) -> str:
+    if rules.start == "ones":
+        return "ones (n tokens in bin 1; value n)"
+    if rules.start == "greedy":
+        return "greedy (the greedy decomposition of n; value n)"
+    vec = ", ".join(str(c) for c in rules.start)
+    return f"vector [{vec}] times n (value n * {rules.game_value(1)})"
+
+
+def bins_text(rules: RuleSet, count: int = 10) -> str:
+    vals = rules.bins_by_count(count)
+    more = ", ..." if rules.recurrence else ""
+    how = (
+        f"recurrence {list(rules.recurrence)} from {list(rules.initial)}"
+        if rules.recurrence else "listed"
+    )
+    return ", ".join(str(v) for v in vals) + more + f"  ({how})"
+
+
+def layering_lines(rules: RuleSet, n: int) -> list[str]:
+    rep = layering_report(rules, n)
+    return [
+        f"layering at n={n} (value {rep.value}): {rep.method}",
+        f"  weights {list(rep.weights)}, start level {rep.start_level}, "
+        f"{plural(rep.moves, 'move')}, "
+        f"{plural(rep.states, 'ranked state')}, rank table {plural(rep.table_bytes, 'byte')}",
+    ]
+
+
+@click.group("rules")
+def rules_group() -> None:
+    """Rule sets: list the built-in ones, check a rule file, show a rule set.
+
+    \b
+    Examples:
+      zeckenum rules list
+      zeckenum rules show reversed --n 12
+      zeckenum rules check my-variant.toml --n 30
+    """
+
+
+@rules_group.command("list")
+@one_line_errors
+def list_command() -> None:
+    """Built-in rule sets, one line each.
+
+    \b
+    Example:
+      zeckenum rules list
+    """
+    width = max(len(name) for name in BUILTIN)
+    for name in sorted(BUILTIN):
+        click.echo(f"{name:<{width}}  {BUILTIN[name].description}")
+
+
+@rules_group.command("check")
+@click.argument("file", type=click.Path(dir_okay=False))
+@click.option("--n", "n", type=click.IntRange(min=1), default=20, show_default=True,
+              help="n at which termination and layering are checked")
+@one_line_errors
+def check_command(file: str, n: int) -> None:
+    """Check a rule file: syntax, the value of every move, and termination at n.
+
+    \b
+    Example:
+      zeckenum rules check my-variant.toml --n 30
+    """
+    rules = read_rule_file(file)
+    click.echo(f"{file}: rule set {rules.name!r} ({rules.content_hash()})")
+    click.echo("value: every move keeps the value for every index "
+               f"({plural(len(rules.templates), 'template')})")
+    for line in layering_lines(rules, n):
+        click.echo(line)
+    click.echo("ok")
+
+
+@rules_group.command("show")
+@click.argument("name_or_file")
+@click.option("--n", "n", type=click.IntRange(min=1), default=10, show_default=True,
+              help="n for the layering and the end positions")
+@one_line_errors
+def show_command(name_or_file: str, n: int) -> None:
+    """Show a rule set: bins, start, moves, level weights and end positions at n.
+
+    \b
+    Examples:
+      zeckenum rules show standard
+      zeckenum rules show enumerate/rulesets/tribonacci.toml --n 20
+    """
+    rules = resolve(name_or_file)
+    click.echo(f"rule set {rules.name!r}  hash {rules.content_hash()}")
+    if rules.description:
+        click.echo(f"about: {rules.description}")
+    click.echo(f"bins: {bins_text(rules)}")
+    click.echo(f"start: {start_text(rules)}")
+    click.echo("moves (B(k) is bin k):")
+    for tpl in rules.templates:
+        click.echo(f"  {describe_template(tpl)}")
+    for line in layering_lines(rules, n):
+        click.echo(line)
+    ends = terminal_positions(rules, n)
+    values = rules.bins_by_count(max((len(s) for s in ends), default=0))
+    click.echo(f"end positions at n={n}: {len(ends)}")
+    for s in ends[:SHOW_TERMINALS]:
+        parts = [f"{c}*{v}" if c > 1 else str(v) for c, v in zip(s, values, strict=True) if c]
+        click.echo(f"  {format_state(s)}  = {' + '.join(reversed(parts))}")
+    if len(ends) > SHOW_TERMINALS:
+        click.echo(f"  ... {len(ends) - SHOW_TERMINALS} more")

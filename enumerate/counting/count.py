@@ -1,0 +1,308 @@
+"""`count`: the exact census of all games of a rule set at one n (the main job).
+
+The path of one number, from the command line to the kernel and back:
+
+1. `cli.count_command` parses N and calls `count(n)`.
+2. `count` instantiates the rule set (`rules.RuleSet.instantiate`) and ranks its states
+   (`statespace.build_space`).
+3. `windows.sweep_windows` walks the layers once: reachable states, moves, each state's
+   window of path lengths, and a float estimate of the number of games that fixes how many
+   primes the exact sweep needs (`modular.primes_for_bits`, plus one check prime).
+4. The primes are cut into blocks (`plan_blocks`) that fit in memory; each block is one
+   independent shard, `spectrum.spectrum_residues`, run in threads here or on a cluster.
+   Its kernel `spectrum.push_residues` adds rows of residues along every move.
+5. `modular.reconstruct` rebuilds each length's count by the CRT and checks it against the
+   check prime; the `results.CountResult` goes back to the CLI or the notebook.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import time
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+
+import numpy as np
+from zeckenum.core.memory import refuse_if_over, resolve_limit
+from zeckenum.core.modular import primes_for_bits, reconstruct
+from zeckenum.core.statespace import StateSpace, build_space, refuse_space
+from zeckenum.core.sweep import Windows, incoming_bytes_estimate, sweep_windows
+from zeckenum.counting.result import CountResult
+from zeckenum.counting.spectrum import peak_words, spectrum_residues
+from zeckenum.errors import InputError
+from zeckenum.rules.model import RuleSet, get_rules
+
+MAX_N = 2**62
+"""Largest n any command accepts: counts of bins stay int64.  Far below it every run is
+refused by its memory forecast (the rank table alone holds more than 8 n^2 bytes)."""
+
+MAX_THREADS = 4096
+"""Most threads a run accepts (each may hold a layer in flight)."""
+
+
+def check_n(n: object) -> int:
+    """n as a positive int no larger than MAX_N, or InputError."""
+    if isinstance(n, bool) or not isinstance(n, (int, np.integer)):
+        raise InputError(f"n must be a positive integer, got {n!r}")
+    if n < 1:
+        raise InputError(f"n must be a positive integer, got {n}")
+    if n > MAX_N:
+        raise InputError(f"n must be at most 2^62, got {n}")
+    return int(n)
+
+
+def check_threads(threads: object) -> int | None:
+    """threads as None (all cores) or an int in 1..MAX_THREADS, else InputError."""
+    if threads is None:
+        return None
+    if isinstance(threads, bool) or not isinstance(threads, (int, np.integer)) or not (
+        1 <= threads <= MAX_THREADS
+    ):
+        raise InputError(f"threads must be an integer from 1 to {MAX_THREADS}, got {threads!r}")
+    return int(threads)
+
+
+def listing_bytes(space: StateSpace) -> int:
+    """Bytes of the largest layer's move listing (`StateSpace.predecessors`): its states
+    (int64 per bin), ptr and terminal ranks (int64 per state), and per move into the layer
+    (exactly counted, `StateSpace.moves_by_level`) drop, dest (int64), move (int32) and
+    the first sweep's keep flag."""
+    return space.listing_peak(8 * space.spec.nbins + 16, 8 + 8 + 4 + 1)
+
+
+def windows_pass_bytes(space: StateSpace, threads: int = 1) -> int:
+    """Forecast peak bytes of the first sweep (`windows.sweep_windows`), an upper bound.
+
+    Counts the rank table, lmin and win (int32 each) for every state of the space, the
+    working arrays (lmin, lmax int32, log2 paths float64) of the max_drop + 1 live layers,
+    and `threads` + 2 move listings of the largest layer (the prefetched ones, the one being
+    swept, one being built).  The kept incoming moves are not counted here (see
+    `incoming_bytes_estimate`).
+    """
+    largest = space.largest_layer()
+    in_flight = (space.max_drop + 1) * largest * 16 + (threads + 2) * listing_bytes(space)
+    return int(space.tab.nbytes) + 8 * space.total_states() + in_flight
+
+
+@dataclass(frozen=True)
+class BlockPlan:
+    """How the primes of one exact sweep are cut into shards and run."""
+
+    blocks: tuple[tuple[int, ...], ...]
+    threads: int
+    bytes_per_block: tuple[int, ...]
+    shared_bytes: int = 0
+
+    @property
+    def peak_bytes(self) -> int:
+        """Bytes of the blocks running at once plus the move lists they share."""
+        return self.shared_bytes + sum(sorted(self.bytes_per_block, reverse=True)[: self.threads])
+
+
+PRIMES_PER_BLOCK = 4
+"""Target primes per block: long enough rows to amortise each move's bookkeeping, small
+enough that the layers in flight of `threads` blocks stay a fraction of the memory."""
+
+
+def windows_bytes(space: StateSpace, windows: Windows) -> int:
+    """Bytes the first sweep leaves held through the exact sweep: the rank table, every
+    layer's lmin, win and terminal ranks, and the kept incoming moves."""
+    arrays = [*windows.lmin.values(), *windows.win.values(), *windows.terminal_ranks.values()]
+    kept = sum(inc.nbytes for inc in (windows.incoming or {}).values())
+    return int(space.tab.nbytes) + sum(int(a.nbytes) for a in arrays) + kept
+
+
+def plan_blocks(
+    space: StateSpace, windows: Windows, primes: list[int], threads: int, limit: int,
+    first_bytes: int = 0,
+) -> BlockPlan:
+    """Cut `primes` into blocks so that `threads` blocks in flight fit under `limit` bytes.
+
+    A block of b primes holds b words per (state, length) of the layers in flight.  Blocks
+    aim at PRIMES_PER_BLOCK primes, come in a multiple of `threads` so the threads finish
+    together, and shrink (down to one prime) until `threads` of them fit the limit; what
+    the first sweep left (`windows_bytes`: rank table, windows, kept moves) is shared by
+    all blocks and counted once, or `first_bytes` (the first sweep's forecast peak) when
+    larger: the allocator may keep what the first sweep touched.
+    """
+    words_one = peak_words(space, windows, 1)
+    shared = max(windows_bytes(space, windows), int(first_bytes))
+    largest = space.largest_layer()
+    per_block_fixed = listing_bytes(space) + largest * 8
+    if windows.incoming is not None:
+        per_block_fixed = largest * 16
+    threads = max(1, min(threads, len(primes)))
+    nblocks = max(threads, math.ceil(len(primes) / PRIMES_PER_BLOCK))
+    nblocks = min(len(primes), threads * math.ceil(nblocks / threads))
+    while True:
+        size = math.ceil(len(primes) / nblocks)
+        need = shared + threads * (words_one * 8 * size + per_block_fixed)
+        if need <= limit or nblocks >= len(primes):
+            break
+        nblocks = min(len(primes), nblocks + threads)
+    refuse_if_over(need, limit, f"the exact sweep ({nblocks} prime blocks, {threads} threads)")
+    blocks = tuple(tuple(int(p) for p in b) for b in np.array_split(primes, nblocks))
+    sizes = tuple(words_one * 8 * len(b) + per_block_fixed for b in blocks)
+    return BlockPlan(blocks=blocks, threads=threads, bytes_per_block=sizes, shared_bytes=shared)
+
+
+MAX_PRIME_OFFSET = 2000
+"""Largest --prime-offset: the primes below 2**62 are found by a sieve-free downward search,
+about 21 Miller-Rabin tests per prime (2000 primes: about 0.4 s per search, repeated
+once per prime the run adds); far larger offsets would run for minutes before any work."""
+
+
+def check_prime_offset(prime_offset: object) -> int:
+    """prime_offset as an int in 0..MAX_PRIME_OFFSET, else InputError."""
+    if isinstance(prime_offset, bool) or not isinstance(prime_offset, (int, np.integer)) or not (
+        0 <= prime_offset <= MAX_PRIME_OFFSET
+    ):
+        raise InputError(
+            f"the prime offset must be an integer from 0 to {MAX_PRIME_OFFSET:,}, "
+            f"got {prime_offset!r}"
+        )
+    return int(prime_offset)
+
+
+def count_space(spec, limit: int) -> StateSpace:  # noqa: ANN001 - a GameSpec
+    """The state space of a count after the up-front refusals: first the rank table's
+    exact size plus 8 bytes (lmin, win) for each of up to `states_upper_bound` states,
+    without allocating anything (`refuse_space`), then the rank table."""
+    refuse_space(spec, limit, f"counting n={spec.n}", per_state=8)
+    return build_space(spec, limit)
+
+
+def refuse_count(
+    n: int, rules: str | RuleSet = "standard", *, max_memory: int | None = None,
+    threads: int = 1,
+) -> None:
+    """The up-front refusals of `count` (rank table, states bound, first sweep forecast),
+    without running it: the client of a sharded count calls it before any worker starts.
+    Each worker's first sweep is the same as this forecast; the exact sweep's blocks are
+    sized by the shard plan (`cluster.plan.worker_bytes`)."""
+    n = check_n(n)
+    limit = resolve_limit(max_memory)
+    space = count_space(get_rules(rules).instantiate(n), limit)
+    refuse_if_over(windows_pass_bytes(space, threads), limit, f"counting n={n} (first sweep)")
+
+
+def count(
+    n: int,
+    rules: str | RuleSet = "standard",
+    *,
+    threads: int | None = None,
+    prime_offset: int = 0,
+    max_memory: int | None = None,
+    progress: bool = False,
+) -> CountResult:
+    """Exact number of games of every length for the game `rules` started from n.
+
+    threads       worker threads for prime blocks (default: all cores)
+    prime_offset  skip that many primes below 2**62 (two offsets far enough apart give
+                  disjoint prime sets: an independent recomputation)
+    max_memory    byte limit for the run (default: what the machine has available); a run
+                  whose estimate exceeds it is refused before the heavy work starts
+    """
+    n = check_n(n)
+    check_prime_offset(prime_offset)
+    ruleset = get_rules(rules)
+    limit = resolve_limit(max_memory)
+    nthreads = check_threads(threads) or (os.cpu_count() or 1)
+
+    t0 = time.perf_counter()
+    spec = ruleset.instantiate(n)
+    space = count_space(spec, limit)
+    first = windows_pass_bytes(space, nthreads)
+    refuse_if_over(first, limit, f"counting n={n} (first sweep)")
+    keep = first + incoming_bytes_estimate(space) <= limit // 4
+    windows = sweep_windows(space, keep_incoming=keep, threads=nthreads)
+    t1 = time.perf_counter()
+
+    primes, check_prime = primes_for_bits(windows.count_bits, prime_offset)
+    all_primes = [*primes, check_prime]
+    first_peak = first + (incoming_bytes_estimate(space) if keep else 0)
+    plan = plan_blocks(space, windows, all_primes, nthreads, limit, first_peak)
+
+    bar = None
+    if progress:
+        from tqdm import tqdm
+
+        bar = tqdm(
+            total=windows.states * len(plan.blocks), unit="state", desc=f"count n={n}",
+            unit_scale=True,
+        )
+
+    def run(block: tuple[int, ...]) -> tuple[np.ndarray, int]:
+        return spectrum_residues(space, windows, list(block), bar.update if bar else None)
+
+    with ThreadPoolExecutor(max_workers=plan.threads) as pool:
+        parts = list(pool.map(run, plan.blocks))
+    if bar is not None:
+        bar.close()
+    t2 = time.perf_counter()
+
+    residues = np.concatenate([p[0] for p in parts], axis=0)
+    updates = sum(p[1] for p in parts)
+    return assemble_count(
+        ruleset.name, ruleset.content_hash(), n, windows.states, windows.transitions,
+        windows.shortest, windows.longest,
+        primes, check_prime, residues,
+        stats={
+            "seconds_total": round(time.perf_counter() - t0, 3),
+            "seconds_windows": round(t1 - t0, 3),
+            "seconds_exact": round(t2 - t1, 3),
+            "word_updates": int(updates),
+            "threads": plan.threads,
+            "prime_blocks": len(plan.blocks),
+            "planned_peak_bytes": int(plan.peak_bytes),
+            "forecast_peak_bytes": int(max(plan.peak_bytes, first_peak)),
+            "count_bits": windows.count_bits,
+            "terminal_states": windows.terminals,
+        },
+    )
+
+
+def assemble_count(
+    rules_name: str,
+    rules_hash: str,
+    n: int,
+    states: int,
+    transitions: int,
+    shortest: int,
+    longest: int,
+    primes: list[int],
+    check_prime: int,
+    residues: np.ndarray,
+    stats: dict,
+) -> CountResult:
+    """The CountResult from the spectrum's residues, rows in the order primes + [check].
+
+    Garner's CRT rebuilds the count of each length from shortest to longest, checked
+    against the check prime (CheckPrimeMismatch on any disagreement).  Shared by the
+    in-process path and the cluster path (`zeckenum.cluster.run`).
+    """
+    nrec = len(primes)
+    lengths = range(shortest, longest + 1)
+    values = reconstruct(
+        [[int(x) for x in residues[:nrec, length]] for length in lengths],
+        list(primes),
+        check_prime,
+        [int(residues[nrec, length]) for length in lengths],
+        what="count of games of one length",
+    )
+    length_counts = {L: v for L, v in zip(lengths, values, strict=True) if v}
+    return CountResult(
+        rules=rules_name,
+        rules_hash=rules_hash,
+        n=n,
+        states=states,
+        transitions=transitions,
+        games=sum(length_counts.values()),
+        shortest=min(length_counts),
+        longest=max(length_counts),
+        length_counts=length_counts,
+        primes=tuple(primes),
+        check_prime=check_prime,
+        stats=stats,
+    )

@@ -1,0 +1,1 @@
+"""Optimal play: outcome classes of every state, the winner, and winning strategies."""

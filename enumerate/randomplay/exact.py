@@ -1,0 +1,1366 @@
+"""Exact random play: the probability of every game length and of every player winning.
+
+Two random models (``model=``):
+
+``"moves"``  The player to move picks uniformly among the legal moves of the state, a move
+             being a move type applied to a bin (tokens are indistinguishable).  A state
+             with d legal moves sends probability 1/d along each of them.
+``"pairs"``  The player picks uniformly among the unordered pairs of distinct tokens that can
+             move together.  A move that takes one token from each of two bins (a combine
+             F(k-1) + F(k) -> F(k+1)) has weight a(k-1) * a(k); a move that takes two tokens
+             of one bin (2 F1 -> F2, a split) has weight a(k) * (a(k) - 1) / 2, where a(k)
+             is the number of tokens in bin k.  In general a move's weight is the product over
+             the bins it takes from of binomial(a(bin), tokens taken).  A state sends
+             probability weight / (sum of the weights of its moves) along each move.
+
+The probability of a game is the product of these transition probabilities; the probability
+of length L is the sum over the games of L moves.  Player i (1-based) of P wins a game of
+length L when (L - 1) mod P == i - 1; a game with no move at all (n = 1) is a "win" for
+player P by this convention.
+
+Exactness.  Let D(s) be the total move weight of a non-terminal state s.  Every game's
+probability is an integer over the product of D(s) along it, so every length probability
+times M = lcm over games of prod D(s) is an integer in [0, M].  M = prod_p p**e_p with
+e_p = max over games of sum v_p(D(s)), which a first sweep computes exactly (max-plus
+dynamic programming over the states, one exponent per prime p <= max D).  The second sweep
+computes every probability modulo primes q below 2**50 (inverses of D(s) mod q from a
+table); the integer N = P * M is rebuilt by the Chinese remainder theorem from primes whose
+product exceeds M, and one extra prime checks it (CheckPrimeMismatch on disagreement).  The
+residues also satisfy sum N == M, which is checked.
+
+Both sweeps *pull*: layers are visited from the start's level downward and each state
+gathers from its predecessors (the moves into it), inside a layer in ascending rank, which
+is topological (see `statespace`).  A move may drop the level by up to `max_drop` of the
+rule set, so the layers level + 1 .. level + max_drop stay live (the first sweep keeps them
+in a dict, the second in a ring of max_drop + 1 reused buffers).  When max_drop <= 1 one
+kernel call gathers a layer (drop 0 from itself, drop 1 from the layer above); otherwise one
+call per drop d >= 1 present gathers from the layer level + d, and a last call gathers the
+moves inside the layer in ascending rank and finishes the states (`gather_passes`).  The
+first sweep keeps the moves into every layer whose
+source is reachable (`Incoming`), so the second sweep only re-reads them; they are listed
+by `listing_kernel`, which ranks each move's source incrementally from the state's own
+rank (O(bins the move changes) per move instead of O(bins)).  When a state is
+complete, its row is reduced mod q and multiplied once by D(s)^-1; a move then adds its
+source's row times its integer weight -- in the model "moves" every weight is 1, so the
+edges are pure vectorised adds and the only multiplications are one per (state, word).
+
+Arithmetic.  Residues are below q < 2**50; a state's row accumulates at most m + 1 residues
+(m = moves into it <= number of move types, +1 for the start), which stays below 2**62 and
+is reduced once (`reduce62`).  Products use a float64 estimate of the quotient and an exact
+wrapping remainder (`mulmod`, proof in its docstring).  Compared with primes below 2**31.5
+this needs about 37% fewer primes for the same denominator.
+
+Prime blocks are independent: each block runs the whole second sweep in its own thread
+(kernels release the GIL).  The winner-only path keeps per state the P residues of length
+mod P instead of a window of lengths; it costs O(P) per move instead of O(window).
+
+Shards.  One block's sweep is `random_law_residues` (kernel `pull_mod_windows`) or
+`random_win_residues` (kernel `pull_mod_residues`), each returning int64 residues laid out
+[prime][column]; their cluster twins are `zeckenum.cluster.random_tasks.random_law_task`
+and `random_win_task`.  `assemble_random` turns the residues of all blocks into the
+`RandomResult`, for the in-process path (`random_play`) and the cluster path alike.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from collections import deque
+from collections.abc import Callable, Iterator, Mapping
+from concurrent.futures import Future, ThreadPoolExecutor
+from dataclasses import dataclass, field
+from fractions import Fraction
+
+import numpy as np
+from zeckenum.core.jit import kernel
+from zeckenum.core.memory import available_bytes, refuse_if_over, resolve_limit
+from zeckenum.core.modular import crt, descending_primes
+from zeckenum.core.statespace import LayerMoves, StateSpace, build_space, move_applies, refuse_space
+from zeckenum.core.sweep import compact_rows
+from zeckenum.errors import CheckPrimeMismatch, InputError
+from zeckenum.rules.model import GameSpec, get_rules
+
+MODELS = ("moves", "pairs")
+PRIME_CEILING = 2**50  # every residue prime lies below it (see `mulmod`)
+PRIME_FLOOR = 2**13  # and above it (see `reduce62`)
+UNREACHED = np.iinfo(np.int32).max
+
+
+# ----------------------------------------------------------------------------- primes
+
+
+def word_primes(count: int, offset: int = 0) -> list[int]:
+    """The primes number offset .. offset+count-1 counted downward from PRIME_CEILING."""
+    return list(descending_primes(PRIME_CEILING, offset + count)[offset:])
+
+
+def primes_exceeding(bound: int, offset: int = 0) -> tuple[list[int], int]:
+    """(primes below PRIME_CEILING whose product exceeds `bound`, one extra check prime)."""
+    need = max(1, math.ceil((bound.bit_length() + 1) / 49.99))
+    while True:
+        ps = word_primes(need + 1, offset)
+        prod = math.prod(ps[:need])
+        if prod > bound:
+            return ps[:need], ps[need]
+        need += 1
+
+
+def small_primes_upto(m: int) -> np.ndarray:
+    """All primes <= m (int64, ascending; sieve of Eratosthenes)."""
+    if m < 2:
+        return np.zeros(0, dtype=np.int64)
+    sieve = np.ones(m + 1, dtype=bool)
+    sieve[:2] = False
+    for p in range(2, math.isqrt(m) + 1):
+        if sieve[p]:
+            sieve[p * p :: p] = False
+    return np.nonzero(sieve)[0].astype(np.int64)
+
+
+def inverse_table(primes: list[int] | np.ndarray, dmax: int) -> np.ndarray:
+    """inv[d, q] = d**-1 mod primes[q] for 1 <= d <= dmax (inv[0, q] = 0), int64.
+
+    Requires dmax < min(primes)."""
+    ps = np.asarray(primes, dtype=np.int64)
+    inv = np.zeros((dmax + 1, ps.size), dtype=np.int64)
+    for qi in range(ps.size):
+        col = np.zeros(dmax + 1, dtype=np.int64)
+        _fill_inverses(col, int(ps[qi]), dmax)
+        inv[:, qi] = col
+    return inv
+
+
+@kernel
+def _fill_inverses(row: np.ndarray, p: int, dmax: int) -> None:
+    """row[d] = d**-1 mod p by inv(d) = -(p // d) * inv(p mod d) (valid for d < p)."""
+    pinv = 1.0 / p
+    if dmax >= 1:
+        row[1] = 1
+    for d in range(2, dmax + 1):
+        x = mulmod(p // d, row[p % d], p, pinv)
+        row[d] = p - x if x else 0
+
+
+# ----------------------------------------------------------------------------- arithmetic
+
+
+@kernel(inline=True)
+def mulmod(a: int, b: int, p: int, pinv: float) -> int:
+    """a * b mod p for 0 <= a, b < p < 2**50, with pinv = fl(1 / p).
+
+    Proof.  With u = 2**-53, float(a) and float(b) are exact (< 2**53) and
+    y = fl(fl(a * b) * pinv) = (a b / p)(1 + e1)(1 + e2)(1 + e3), |ei| <= u, so
+    |y - a b / p| <= (a b / p)((1 + u)**3 - 1) < p * 3.0001 u < 2**50 * 3.0001 * 2**-53 < 0.38.
+    Hence q = trunc(y) = floor(y) (y >= 0) is floor(a b / p) + {-1, 0, 1} and the true
+    remainder r = a b - q p lies in [-p, 2p), inside (-2**63, 2**63).  It is computed in
+    uint64, whose multiplication and subtraction wrap (are exact mod 2**64), so reading the
+    result as int64 gives r exactly; one conditional add and one conditional subtract of p
+    bring it into [0, p).  (Signed int64 products are avoided: numba marks them `nsw`,
+    which makes an overflow undefined.)
+    """
+    q = np.int64(float(a) * float(b) * pinv)
+    r = np.int64(np.uint64(a) * np.uint64(b) - np.uint64(q) * np.uint64(p))
+    if r < 0:
+        r += p
+    if r >= p:
+        r -= p
+    return r
+
+
+@kernel(inline=True)
+def reduce62(x: int, p: int, pinv: float) -> int:
+    """x mod p for 0 <= x < 2**62 and 2**13 < p < 2**50, with pinv = fl(1 / p).
+
+    Proof.  y = fl(float(x) * pinv) = (x / p)(1 + e), |e| <= 3.0001 u; x / p < 2**49, so
+    |y - x / p| < 0.38 and q = trunc(y) = floor(x / p) + {-1, 0, 1}.  Then
+    0 <= q p <= x + p < 2**63, and r = x - q p in [-p, 2p) is exact in int64.
+    """
+    q = np.int64(float(x) * pinv)
+    r = x - q * p
+    if r < 0:
+        r += p
+    if r >= p:
+        r -= p
+    return r
+
+
+@kernel
+def finish_row(row: np.ndarray, primes: np.ndarray, pinv: np.ndarray, iv: np.ndarray) -> None:
+    """row[q] = (row[q] mod primes[q]) * iv[q] mod primes[q], for 0 <= row[q] < 2**62.
+
+    A separate small loop, so that LLVM vectorises it (AVX-512 has the int64 <-> float64
+    conversions and the int64 products it needs)."""
+    for q in range(row.size):
+        row[q] = mulmod(reduce62(row[q], primes[q], pinv[q]), iv[q], primes[q], pinv[q])
+
+
+@kernel
+def add_row_mod(acc: np.ndarray, row: np.ndarray, primes: np.ndarray, pinv: np.ndarray) -> None:
+    """acc[q] = (acc[q] + row[q]) mod primes[q] for 0 <= acc[q] < primes[q], row[q] < 2**62."""
+    for q in range(row.size):
+        x = reduce62(row[q], primes[q], pinv[q]) + acc[q]
+        acc[q] = x - primes[q] if x >= primes[q] else x
+
+
+# ----------------------------------------------------------------------------- weights
+
+
+@kernel(inline=True)
+def move_weight(
+    states: np.ndarray, i: int, m: int, back: bool, mv_bins: np.ndarray, mv_delta: np.ndarray,
+    tk_cnt: np.ndarray,
+) -> int:
+    """Weight (model "pairs") of move m out of state i, or, with `back`, of move m out of
+    the source of the move m into state i: prod over taken bins of binomial(count, taken)."""
+    x = 1
+    for j in range(mv_bins.shape[1]):
+        c = tk_cnt[m, j]
+        if c > 0:
+            a = states[i, mv_bins[m, j]]
+            if back:
+                a -= mv_delta[m, j]
+            b = 1
+            for t in range(c):
+                b = b * (a - t) // (t + 1)
+            x *= b
+    return x
+
+
+@kernel
+def total_weights(
+    states: np.ndarray, level: int, max_level: int, mv_bins: np.ndarray, mv_delta: np.ndarray,
+    mv_drop: np.ndarray, tk_cnt: np.ndarray, pairs: bool,
+) -> np.ndarray:
+    """D[i]: total weight of the moves out of state i of a layer (0 exactly when none)."""
+    size = states.shape[0]
+    dsum = np.zeros(size, dtype=np.int64)
+    for i in range(size):
+        tot = 0
+        for m in range(mv_bins.shape[0]):
+            if move_applies(states, i, m, 1, level, max_level, mv_bins, mv_delta, mv_drop):
+                if pairs:
+                    tot += move_weight(states, i, m, False, mv_bins, mv_delta, tk_cnt)
+                else:
+                    tot += 1
+        dsum[i] = tot
+    return dsum
+
+
+@kernel
+def incoming_weights(
+    states: np.ndarray, ptr: np.ndarray, move: np.ndarray, mv_bins: np.ndarray,
+    mv_delta: np.ndarray, tk_cnt: np.ndarray,
+) -> np.ndarray:
+    """w[e]: model-"pairs" weight of every move e into the states of a layer."""
+    w = np.ones(move.size, dtype=np.int64)
+    for i in range(states.shape[0]):
+        for e in range(ptr[i], ptr[i + 1]):
+            w[e] = move_weight(states, i, move[e], True, mv_bins, mv_delta, tk_cnt)
+    return w
+
+
+# ----------------------------------------------------------------------------- listing
+
+
+@kernel
+def listing_kernel(
+    states: np.ndarray, level: int, tab: np.ndarray, values: np.ndarray, weights: np.ndarray,
+    n: int, mv_bins: np.ndarray, mv_delta: np.ndarray, mv_drop: np.ndarray,
+    mv_lo: np.ndarray, mv_hi: np.ndarray, tk_cnt: np.ndarray, pairs: bool,
+):
+    """Moves into every state of a layer with their sources' ranks, and D per state.
+
+    Returns (ptr, drop int8, src int64, move int32, dsum, bad): the same moves into state j,
+    in the same order, as `StateSpace.predecessors` (move e comes from rank src[e] of
+    layer level + drop[e]), D(j) = total weight of the moves out of j (as
+    `total_weights`), and bad = -1 or a state with a move in from the same layer that does
+    not come from a lower rank.
+
+    Ranks are found incrementally.  With the co-lexicographic rank of `statespace.rank_of`,
+    rank = sum over bins k (top down) of term_k = tab[k+1, v_k, t_k] -
+    tab[k+1, v_k - c_k values[k], t_k - c_k weights[k]], v_k / t_k the value / level left
+    for bins 0..k.  A move changes only bins mv_lo[m] .. mv_hi[m]; the source has the same
+    counts elsewhere, the same value, and a level larger by its drop d.  So above mv_hi the
+    source's terms are the state's terms at levels t_k + d, and below mv_lo (where v and t
+    are again equal) they are the state's terms.  Per state the suffix sums of its terms
+    at shift d = 0, 1, .. max drop and the prefix sums are computed once (O(bins)), then
+    each move costs O(mv_hi - mv_lo + 1) table reads.
+    """
+    size = states.shape[0]
+    nb_ = values.size
+    nmoves = mv_bins.shape[0]
+    width = mv_bins.shape[1]
+    max_level = tab.shape[2] - 1
+    maxd = 0
+    for m in range(nmoves):
+        if mv_drop[m] > maxd:
+            maxd = mv_drop[m]
+    ptr = np.zeros(size + 1, dtype=np.int64)
+    dsum = np.zeros(size, dtype=np.int64)
+    for i in range(size):
+        deg = 0
+        tot = 0
+        for m in range(nmoves):
+            if move_applies(states, i, m, -1, level, max_level, mv_bins, mv_delta, mv_drop):
+                deg += 1
+            if move_applies(states, i, m, 1, level, max_level, mv_bins, mv_delta, mv_drop):
+                if pairs:
+                    tot += move_weight(states, i, m, False, mv_bins, mv_delta, tk_cnt)
+                else:
+                    tot += 1
+        ptr[i + 1] = ptr[i] + deg
+        dsum[i] = tot
+    total = ptr[size]
+    drop = np.empty(total, dtype=np.int8)
+    src = np.empty(total, dtype=np.int64)
+    move = np.empty(total, dtype=np.int32)
+    vk = np.zeros(nb_ + 1, dtype=np.int64)  # value left for bins 0..k-1 (index k)
+    tk = np.zeros(nb_ + 1, dtype=np.int64)
+    above = np.zeros((maxd + 1, nb_ + 1), dtype=np.int64)  # sum of terms of bins >= k
+    below = np.zeros(nb_ + 1, dtype=np.int64)  # sum of terms of bins < k
+    term = np.zeros(nb_, dtype=np.int64)
+    work = np.zeros(nb_, dtype=np.int64)
+    bad = -1
+    for i in range(size):
+        if ptr[i + 1] == ptr[i]:
+            continue
+        v = n
+        t = level
+        vk[nb_] = v
+        tk[nb_] = t
+        for d in range(maxd + 1):
+            above[d, nb_] = 0
+        for k in range(nb_ - 1, -1, -1):
+            c = states[i, k]
+            for d in range(maxd + 1):
+                x = 0
+                if c > 0 and t + d <= max_level:
+                    x = tab[k + 1, v, t + d] - tab[k + 1, v - c * values[k],
+                                                   t + d - c * weights[k]]
+                above[d, k] = above[d, k + 1] + x
+                if d == 0:
+                    term[k] = x
+            v -= c * values[k]
+            t -= c * weights[k]
+            vk[k] = v
+            tk[k] = t
+        below[0] = 0
+        for k in range(nb_):
+            below[k + 1] = below[k] + term[k]
+        e = ptr[i]
+        for m in range(nmoves):
+            if not move_applies(states, i, m, -1, level, max_level, mv_bins, mv_delta,
+                                mv_drop):
+                continue
+            d = mv_drop[m]
+            lo = mv_lo[m]
+            hi = mv_hi[m]
+            for k in range(lo, hi + 1):
+                work[k] = states[i, k]
+            for j in range(width):
+                b = mv_bins[m, j]
+                work[b] -= mv_delta[m, j]
+            r = above[d, hi + 1] + below[lo]
+            v = vk[hi + 1]
+            t = tk[hi + 1] + d
+            for k in range(hi, lo - 1, -1):
+                c = work[k]
+                if c > 0:
+                    r += tab[k + 1, v, t] - tab[k + 1, v - c * values[k], t - c * weights[k]]
+                    v -= c * values[k]
+                    t -= c * weights[k]
+            if d == 0 and r >= i and bad < 0:
+                bad = i
+            drop[e] = d
+            src[e] = r
+            move[e] = m
+            e += 1
+    return ptr, drop, src, move, dsum, bad
+
+
+# ----------------------------------------------------------------------------- first sweep
+
+
+@kernel
+def first_pass_pull(
+    lmin: np.ndarray, lmax: np.ndarray, ex: np.ndarray, up_lmin: np.ndarray,
+    up_lmax: np.ndarray, up_ex: np.ndarray, ptr: np.ndarray, drop: np.ndarray, src: np.ndarray,
+    keep: np.ndarray, dsum: np.ndarray, spf: np.ndarray, pidx: np.ndarray, end_ex: np.ndarray,
+    stats: np.ndarray, which: int = -1,
+) -> None:
+    """Reachability, length windows and lcm exponents gathered into one layer.
+
+    Sources of drop-0 moves are this layer's arrays (finished, ascending rank), of the other
+    moves the up_* arrays.  `which` selects the moves gathered (see `gather_passes`): -1
+    all of them, every drop being 0 or 1 (up_* is the layer one level up); d >= 1 only
+    the moves of drop d (up_* is the layer d levels up), leaving the states unfinished; 0
+    only the drop-0 moves, then finishing the states.  lmin == UNREACHED marks an
+    unreached state.  Once state j is complete, ex[j, b] = max over paths start -> j of
+    sum v_{p_b}(D(s)) over the states s on the path *including j itself* (what its moves
+    carry on).  keep[e] marks the moves whose source is reachable.  Terminal states fold
+    into end_ex (max) and stats = [states, moves, terminals, shortest, longest, max D].
+    """
+    nbp = ex.shape[1]
+    for j in range(lmin.size):
+        for e in range(ptr[j], ptr[j + 1]):
+            # two written-out branches: selecting an array per move would cost reference
+            # counting on every move
+            i = src[e]
+            if which >= 0 and drop[e] != which:
+                continue
+            if drop[e] == 0:
+                a = lmin[i]
+                if a == UNREACHED:
+                    continue
+                z = lmax[i]
+                for b in range(nbp):
+                    if ex[i, b] > ex[j, b]:
+                        ex[j, b] = ex[i, b]
+            else:
+                a = up_lmin[i]
+                if a == UNREACHED:
+                    continue
+                z = up_lmax[i]
+                for b in range(nbp):
+                    if up_ex[i, b] > ex[j, b]:
+                        ex[j, b] = up_ex[i, b]
+            keep[e] = True
+            stats[1] += 1
+            if a + 1 < lmin[j]:
+                lmin[j] = a + 1
+            if z + 1 > lmax[j]:
+                lmax[j] = z + 1
+        if which > 0 or lmin[j] == UNREACHED:
+            continue
+        stats[0] += 1
+        d = dsum[j]
+        if d == 0:
+            stats[2] += 1
+            if lmin[j] < stats[3]:
+                stats[3] = lmin[j]
+            if lmax[j] > stats[4]:
+                stats[4] = lmax[j]
+            for b in range(nbp):
+                if ex[j, b] > end_ex[b]:
+                    end_ex[b] = ex[j, b]
+            continue
+        if d > stats[5]:
+            stats[5] = d
+        if nbp > 0:
+            while d > 1:
+                p = spf[d]
+                ex[j, pidx[p]] += 1
+                d //= p
+
+
+# ----------------------------------------------------------------------------- second sweep
+
+
+@kernel(inline=True)
+def _add_into(dv: np.ndarray, sv: np.ndarray) -> None:
+    """dv += sv word by word (unreduced; a vectorised loop)."""
+    for k in range(sv.size):
+        dv[k] += sv[k]
+
+
+@kernel(inline=True)
+def _addmul_into(dv: np.ndarray, sv: np.ndarray, we: int, primes: np.ndarray,
+                 pinv: np.ndarray) -> None:
+    """dv += (we * sv mod q) for rows of primes.size residues, 0 <= we < every q."""
+    nq = primes.size
+    for t in range(sv.size // nq):
+        a = dv[t * nq : t * nq + nq]
+        b = sv[t * nq : t * nq + nq]
+        for q in range(nq):
+            a[q] += mulmod(b[q], we, primes[q], pinv[q])
+
+
+@kernel
+def pull_mod_windows(
+    vals: np.ndarray, off: np.ndarray, lmin: np.ndarray, win: np.ndarray,
+    up_vals: np.ndarray, up_off: np.ndarray, up_lmin: np.ndarray, up_win: np.ndarray,
+    dsum: np.ndarray, ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray,
+    unit: bool, primes: np.ndarray, pinv: np.ndarray, inv: np.ndarray, out: np.ndarray,
+    which: int = -1,
+) -> None:
+    """One layer of the exact sweep over length windows, for one block of primes.
+
+    State j owns words off[j] .. off[j+1]-1 laid out [length in its window][prime].  It
+    gathers its predecessors' finished rows (times the move's weight unless `unit`),
+    shifted by one length; then its words are reduced and multiplied by D(j)^-1, or, for a
+    terminal state, added into out[length, q].  `which` selects the moves gathered and
+    whether the states are finished, as in `first_pass_pull`.
+    """
+    nq = primes.size
+    for j in range(win.size):
+        wj = win[j]
+        if wj == 0:
+            continue
+        for e in range(ptr[j], ptr[j + 1]):
+            # two written-out branches: selecting an array per move would cost reference
+            # counting on every move
+            i = src[e]
+            if which >= 0 and drop[e] != which:
+                continue
+            if drop[e] == 0:
+                span = win[i] * nq
+                d0 = off[j] + (lmin[i] + 1 - lmin[j]) * nq
+                dv = vals[d0 : d0 + span]
+                sv = vals[off[i] : off[i] + span]
+            else:
+                span = up_win[i] * nq
+                d0 = off[j] + (up_lmin[i] + 1 - lmin[j]) * nq
+                dv = vals[d0 : d0 + span]
+                sv = up_vals[up_off[i] : up_off[i] + span]
+            if unit:
+                _add_into(dv, sv)
+            else:
+                _addmul_into(dv, sv, w[e], primes, pinv)
+        if which > 0:
+            continue
+        d = dsum[j]
+        for t in range(wj):
+            row = vals[off[j] + t * nq : off[j] + t * nq + nq]
+            if d == 0:
+                add_row_mod(out[lmin[j] + t], row, primes, pinv)
+            else:
+                finish_row(row, primes, pinv, inv[d])
+
+
+@kernel
+def pull_mod_residues(
+    vals: np.ndarray, up_vals: np.ndarray, win: np.ndarray, dsum: np.ndarray,
+    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray, unit: bool,
+    primes: np.ndarray, pinv: np.ndarray, inv: np.ndarray, out: np.ndarray, which: int = -1,
+) -> None:
+    """One layer of the winner-only sweep: vals[j, r, q] = P(reach j, length = r mod P).
+
+    Same scheme (and `which`) as `pull_mod_windows`; a move sends residue r to residue
+    r + 1 (mod P).  Terminal rows are added into out[r, q].
+    """
+    npl = vals.shape[1]
+    for j in range(win.size):
+        if win[j] == 0:
+            continue
+        for e in range(ptr[j], ptr[j + 1]):
+            i = src[e]
+            if which >= 0 and drop[e] != which:
+                continue
+            for r in range(npl):
+                dv = vals[j, r + 1 if r + 1 < npl else 0]
+                if drop[e] == 0:
+                    sv = vals[i, r]
+                else:
+                    sv = up_vals[i, r]
+                if unit:
+                    _add_into(dv, sv)
+                else:
+                    _addmul_into(dv, sv, w[e], primes, pinv)
+        if which > 0:
+            continue
+        d = dsum[j]
+        for r in range(npl):
+            if d == 0:
+                add_row_mod(out[r], vals[j, r], primes, pinv)
+            else:
+                finish_row(vals[j, r], primes, pinv, inv[d])
+
+
+# ----------------------------------------------------------------------------- drivers
+
+
+def take_arrays(spec: GameSpec) -> tuple[np.ndarray, np.ndarray]:
+    """(tk_bins, tk_cnt): per move, the bins it takes tokens from and how many (0-padded)."""
+    tk_cnt = np.where(spec.mv_delta < 0, -spec.mv_delta, 0).astype(np.int64)
+    return spec.mv_bins.astype(np.int64), tk_cnt
+
+
+def check_model(model: str) -> None:
+    if model not in MODELS:
+        raise InputError(f"unknown random model {model!r} (use one of: {', '.join(MODELS)})")
+
+
+def max_weight_bound(spec: GameSpec, model: str) -> int:
+    """An a-priori bound on D(s) over all states of the game.
+
+    Model "moves": the number of move types.  Model "pairs": a move taking k tokens (c_b
+    from bin b) has weight prod_b binomial(a(b), c_b), the number of k-token subsets of the
+    state that it can take, so D(s) <= mu * sum over the take sizes k of binomial(T, k),
+    with mu the largest number of move types taking the same tokens (same bins and counts)
+    and T a bound on the tokens of any state: the start's tokens when no move gives more
+    tokens than it takes, else value // smallest bin value.  For the standard game this is
+    binomial(n, 2).
+    """
+    if model == "moves":
+        return len(spec.move_names)
+    takes: dict[tuple, int] = {}
+    sizes: set[int] = set()
+    grows = False
+    for m in range(spec.mv_bins.shape[0]):
+        dl = [int(d) for d in spec.mv_delta[m]]
+        take = tuple(sorted((int(b), -d) for b, d in zip(spec.mv_bins[m], dl, strict=True)
+                            if d < 0))
+        takes[take] = takes.get(take, 0) + 1
+        sizes.add(sum(c for _b, c in take))
+        grows = grows or sum(dl) > 0
+    tokens = int(spec.start.sum())
+    if grows:
+        tokens = max(tokens, int(spec.n) // int(spec.values.min()))
+    mu = max(takes.values(), default=1)
+    return max(1, mu * sum(math.comb(tokens, k) for k in sizes))
+
+
+@dataclass(frozen=True, eq=False)
+class Incoming:
+    """Moves into the states of one layer whose source is reachable (compressed rows).
+
+    Rows of state j: ptr[j]..ptr[j+1]-1; move e comes from rank src[e] of the layer
+    drop[e] levels above, with weight w[e] (w empty: every weight is 1).
+    """
+
+    ptr: np.ndarray
+    drop: np.ndarray
+    src: np.ndarray
+    w: np.ndarray
+
+
+@dataclass(frozen=True, eq=False)
+class Skeleton:
+    """Result of the first sweep: reachable states, windows, weights and the denominator.
+
+    Per level (sweep order `levels`, from the start's level down): lmin/win int32 per rank
+    (win 0: unreachable), dsum int64 = D(s) (0: no move), incoming = `Incoming`.
+    denominator M = lcm over games of prod D(s), with M * P(any event) an integer (1 when
+    the sweep ran without exponents).
+    """
+
+    levels: list[int]
+    start_level: int
+    start_rank: int
+    lmin: dict[int, np.ndarray]
+    win: dict[int, np.ndarray]
+    dsum: dict[int, np.ndarray]
+    incoming: dict[int, Incoming]
+    denominator: int
+    states: int
+    transitions: int
+    terminals: int
+    shortest: int
+    longest: int
+    max_weight: int
+    max_indegree: int
+    max_drop: int = 1
+
+
+def gather_passes(
+    drop: np.ndarray, max_drop: int, level: int, live: Mapping[int, object]
+) -> list[tuple[int, int]]:
+    """The kernel calls that gather one layer: [(which, source level)].
+
+    `which` is the kernels' pass selector.  When no move of the game drops the level by
+    more than 1 there is one pass, which = -1 (drop-0 moves from the layer itself, drop-1
+    moves from the layer one level up) -- or which = 0 (drop-0 moves only) when that layer
+    is not live.  Otherwise one pass per drop d >= 1 present among the moves `drop` whose
+    source layer level + d is live, in ascending d, then the finishing pass which = 0 over
+    the moves inside the layer, in ascending rank.  (A layer that is not live holds no
+    reachable state.)  The last pass always has which <= 0, so every state is finished.
+    """
+    if max_drop <= 1:
+        return [(-1, level + 1)] if level + 1 in live else [(0, level)]
+    present = np.flatnonzero(np.bincount(drop)) if drop.size else np.zeros(0, dtype=np.int64)
+    ups = [(int(d), level + int(d)) for d in present if d > 0 and level + int(d) in live]
+    return ups + [(0, level)]
+
+
+def drop_stale(live: dict, level: int, max_drop: int) -> None:
+    """Forget the live layers no layer below `level` can gather from (above level +
+    max_drop - 1)."""
+    for stale in [lv for lv in live if lv > level + max_drop - 1]:
+        del live[stale]
+
+
+def changed_span(spec: GameSpec) -> tuple[np.ndarray, np.ndarray]:
+    """(lo, hi): per move, the lowest and highest bin whose count it changes."""
+    lo = np.zeros(spec.mv_bins.shape[0], dtype=np.int64)
+    hi = np.zeros(spec.mv_bins.shape[0], dtype=np.int64)
+    for m in range(spec.mv_bins.shape[0]):
+        bins = [int(b) for b, d in zip(spec.mv_bins[m], spec.mv_delta[m], strict=True) if d]
+        lo[m], hi[m] = (min(bins), max(bins)) if bins else (0, -1)
+    return lo, hi
+
+
+def layer_listing(space: StateSpace, level: int, model: str):
+    """(states, moves into them, D per state, weights of the moves in) of one layer."""
+    spec = space.spec
+    _bins, tk_cnt = take_arrays(spec)
+    lo, hi = changed_span(spec)
+    states = space.states(level)
+    ptr, drop, src, move, dsum, bad = listing_kernel(
+        states, level, space.tab, spec.values, spec.weights, spec.n, spec.mv_bins,
+        spec.mv_delta, spec.mv_drop, lo, hi, tk_cnt, model == "pairs",
+    )
+    if bad >= 0:
+        raise InputError(
+            f"rule set {spec.rules.name!r}: a move inside level {level} does not raise the "
+            "state's rank, so the layers are not in topological order"
+        )
+    lm = LayerMoves(level, states, ptr, drop, src, move)
+    if model == "pairs":
+        w = incoming_weights(states, lm.ptr, lm.move, spec.mv_bins, spec.mv_delta, tk_cnt)
+    else:
+        w = np.zeros(0, dtype=np.int64)
+    return states, lm, dsum, w
+
+
+def _listings(space: StateSpace, levels: list[int], model: str, threads: int) -> Iterator:
+    """`layer_listing` of each level in turn, derived up to `threads` layers ahead."""
+    with ThreadPoolExecutor(max_workers=max(1, threads)) as pool:
+        pending: deque[Future] = deque()
+        todo = iter(levels)
+        for level in todo:
+            pending.append(pool.submit(layer_listing, space, level, model))
+            if len(pending) > threads:
+                break
+        while pending:
+            yield pending.popleft().result()
+            nxt = next(todo, None)
+            if nxt is not None:
+                pending.append(pool.submit(layer_listing, space, nxt, model))
+
+
+def _threads(threads: int | None) -> int:
+    return max(1, threads or os.cpu_count() or 1)
+
+
+@dataclass(frozen=True, eq=False)
+class SweptLayer:
+    """One finished layer of the first sweep: windows, D per state and moves in."""
+
+    level: int
+    lmin: np.ndarray
+    win: np.ndarray
+    dsum: np.ndarray
+    incoming: Incoming
+
+
+def skeleton_layers(
+    space: StateSpace, model: str, exponents: bool = True, threads: int | None = None,
+    totals: dict | None = None,
+) -> Iterator[SweptLayer]:
+    """The first sweep, one finished layer at a time (from the start's level down).
+
+    When the iterator is exhausted, `totals` (if given) holds start_level, start_rank,
+    denominator (1 without `exponents`), states, transitions, terminals, shortest, longest,
+    max_weight and max_indegree.
+    """
+    check_model(model)
+    spec = space.spec
+    max_drop = space.max_drop
+    if exponents:
+        dbound = max_weight_bound(spec, model)
+        plist = small_primes_upto(dbound)
+        spf = np.zeros(dbound + 1, dtype=np.int64)
+        for p in plist[::-1]:
+            spf[p::p] = p
+        pidx = np.zeros(dbound + 1, dtype=np.int64)
+        pidx[plist] = np.arange(plist.size)
+    else:
+        plist = spf = pidx = np.zeros(0, dtype=np.int64)
+    nbp = plist.size
+    start_level, start_rank = space.rank(spec.start)
+    levels = [lv for lv in space.levels if lv <= start_level]
+    end_ex = np.zeros(nbp, dtype=np.int32)
+    stats = np.array([0, 0, 0, np.iinfo(np.int64).max, -1, 0], dtype=np.int64)
+    z32 = np.zeros(0, dtype=np.int32)
+    empty = (z32, z32, np.zeros((0, nbp), dtype=np.int32))
+    live: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
+    max_in = 0
+    for level, (states, lm, dsum, w) in zip(
+        levels, _listings(space, levels, model, _threads(threads)), strict=True
+    ):
+        size = states.shape[0]
+        lmin = np.full(size, UNREACHED, dtype=np.int32)
+        lmax = np.full(size, -1, dtype=np.int32)
+        ex = np.zeros((size, nbp), dtype=np.int32)
+        if level == start_level:
+            lmin[start_rank] = lmax[start_rank] = 0
+        if exponents and dsum.size and int(dsum.max()) > dbound:
+            raise RuntimeError(f"a total move weight exceeds the a-priori bound {dbound}")
+        keep = np.zeros(lm.dest.size, dtype=np.bool_)
+        for which, src_level in gather_passes(lm.drop, max_drop, level, live):
+            first_pass_pull(lmin, lmax, ex, *live.get(src_level, empty), lm.ptr, lm.drop,
+                            lm.dest, keep, dsum, spf, pidx, end_ex, stats, which)
+        reached = lmin != UNREACHED
+        inc = Incoming(*compact_rows(lm.ptr, lm.drop, lm.dest, w, keep))
+        if size:
+            max_in = max(max_in, int(np.diff(inc.ptr).max()))
+        yield SweptLayer(
+            level=level, lmin=np.where(reached, lmin, 0).astype(np.int32),
+            win=np.where(reached, lmax - lmin + 1, 0).astype(np.int32), dsum=dsum,
+            incoming=inc,
+        )
+        live[level] = (lmin, lmax, ex)
+        drop_stale(live, level, max_drop)
+    if totals is not None:
+        m = 1
+        for b, p in enumerate(plist):
+            if end_ex[b]:
+                m *= int(p) ** int(end_ex[b])
+        totals.update(
+            start_level=start_level, start_rank=start_rank, denominator=m,
+            states=int(stats[0]), transitions=int(stats[1]), terminals=int(stats[2]),
+            shortest=int(stats[3]), longest=int(stats[4]), max_weight=int(stats[5]),
+            max_indegree=max_in, max_drop=max_drop,
+        )
+
+
+def first_sweep(
+    space: StateSpace, model: str, exponents: bool = True, threads: int | None = None
+) -> Skeleton:
+    """Reachability, length windows, moves in, and (with `exponents`) the exact lcm
+    denominator M of one game and model."""
+    totals: dict = {}
+    layers = list(skeleton_layers(space, model, exponents, threads, totals))
+    return Skeleton(
+        levels=[x.level for x in layers], lmin={x.level: x.lmin for x in layers},
+        win={x.level: x.win for x in layers}, dsum={x.level: x.dsum for x in layers},
+        incoming={x.level: x.incoming for x in layers}, **totals,
+    )
+
+
+def weight_bound(space: StateSpace, skel: Skeleton, model: str) -> int:
+    """The largest total move weight D(s) the exact sweep may have to invert: the largest
+    one the first sweep met, or the a-priori bound `max_weight_bound` if that is larger."""
+    return max(skel.max_weight, max_weight_bound(space.spec, model))
+
+
+def check_random_primes(primes: list[int], max_indegree: int, max_weight: int) -> None:
+    """Refuse residue primes outside the proved ranges of `mulmod` and `reduce62` (see the
+    module docstring), for a game with at most `max_indegree` moves into one state and
+    total move weights at most `max_weight` (`weight_bound`)."""
+    if max(primes) >= PRIME_CEILING or min(primes) <= PRIME_FLOOR:
+        raise InputError("residue primes must lie between 2**13 and 2**50")
+    if (max_indegree + 1) * max(primes) >= 2**62:
+        raise InputError("too many moves into one state for the exact sweep's accumulation")
+    if max_weight >= min(primes):
+        raise InputError("move weights too large for the exact random sweep")
+
+
+def _rebuild(rows: list[list[int]], check: list[int], primes: list[int], check_prime: int,
+             m: int, what: str) -> list[Fraction]:
+    """Fractions N / M from the residues of P * (primes) -- N rebuilt by CRT, then checked."""
+    out = []
+    for i, row in enumerate(rows):
+        r = [x * (m % p) % p for x, p in zip(row, primes, strict=True)]
+        num = crt(r, primes)
+        if num % check_prime != check[i] * (m % check_prime) % check_prime:
+            raise CheckPrimeMismatch(
+                f"check prime {check_prime} disagrees with the rebuilt {what} #{i}"
+            )
+        if num > m:
+            raise CheckPrimeMismatch(f"rebuilt {what} #{i} exceeds 1: residues are wrong")
+        out.append(Fraction(num, m))
+    if sum(f.numerator * (m // f.denominator) for f in out) != m:
+        raise CheckPrimeMismatch(f"rebuilt {what} probabilities do not sum to 1")
+    return out
+
+
+LAW_PRIMES_PER_BLOCK = 8
+"""Most primes in one block of the length law, trading a little time for much memory.
+Measured with 2 threads: n = 160 (100 primes): 8 per block 56.3 s and 1.1 GiB, blocks as
+large as memory allowed (50) 55.0 s and 5.3 GiB, 4 per block 64.5 s; n = 200 (136
+primes): 8 per block 433 s and 4.0 GiB, memory-sized (68) 374 s and 15.3 GiB.  The
+winners-only sweep keeps large blocks: its buffers are small and it gains from them
+(n = 200: 68 per block 7.9 s, 8 per block 9.3 s)."""
+
+WIN_PRIMES_PER_BLOCK = 34
+"""Primes per shard of a sharded winners-only run (the in-process run takes blocks as large
+as memory allows); see `LAW_PRIMES_PER_BLOCK` for the measurements."""
+
+
+SKELETON_PER_STATE = 24
+"""Bytes the first sweep keeps for every state of the space whatever its moves: lmin and
+win (int32), D(s) (int64) and the incoming row pointer (int64)."""
+
+
+def _exponent_primes(spec: GameSpec, model: str, exponents: bool) -> tuple[int, int]:
+    """(bound on D(s), number of primes up to it) of the first sweep's exponent arrays."""
+    if not exponents:
+        return 0, 0
+    dbound = max_weight_bound(spec, model)
+    # pi(x) < 1.26 x / ln x for x > 1 (Rosser and Schoenfeld, 1962)
+    return dbound, (int(1.26 * dbound / math.log(dbound)) + 1) if dbound > 1 else 0
+
+
+def skeleton_bytes_bound(space: StateSpace, model: str, exponents: bool = True,
+                         threads: int | None = None) -> int:
+    """Forecast peak bytes of random play's first sweep (`skeleton_layers` kept as a
+    `Skeleton`), an upper bound.
+
+    Counts: the rank table; for every state of the space SKELETON_PER_STATE bytes, and for
+    every move into a state (counted exactly by `StateSpace.moves_by_level`; only those
+    from reachable states are kept) int8 drop, int32 source, and in the model "pairs" an
+    int64 weight; for the layers in flight (max_drop + 1 live ones: lmin, lmax int32 and
+    one int32 exponent per prime up to the bound on D(s); threads + 2 listings of the
+    largest layer: states int64 per bin, ptr and D int64, reached flag, per move drop,
+    source (int64), move (int32), weight (int64), keep flag and its compacted copy); the
+    smallest-prime-factor tables.
+    """
+    spec = space.spec
+    per_move = 5 + (8 if model == "pairs" else 0)
+    dbound, nbp = _exponent_primes(spec, model, exponents)
+    largest = space.largest_layer()
+    moves_in = float(space.moves_by_level(-1).sum())
+    kept = space.total_states() * SKELETON_PER_STATE + math.ceil(moves_in * per_move)
+    live = (space.max_drop + 1) * largest * (8 + 4 * nbp)
+    listing = space.listing_peak(8 * spec.nbins + 16 + 1, 8 + 8 + 4 + 8 + 1 + 8 + 8)
+    return int(space.tab.nbytes) + kept + live + (_threads(threads) + 2) * listing + 16 * (
+        dbound + 1)
+
+
+def skeleton_nbytes(skel: Skeleton) -> int:
+    """Bytes a finished `Skeleton` holds (its arrays' nbytes)."""
+    total = 0
+    for lv in skel.levels:
+        inc = skel.incoming[lv]
+        total += skel.lmin[lv].nbytes + skel.win[lv].nbytes + skel.dsum[lv].nbytes
+        total += inc.ptr.nbytes + inc.drop.nbytes + inc.src.nbytes + inc.w.nbytes
+    return int(total)
+
+
+def random_space(spec: GameSpec, model: str, limit: int, what: str, exponents: bool = True,
+                 threads: int | None = None) -> StateSpace:
+    """The state space of random play after its up-front refusals.
+
+    First, without allocating anything, the rank table's exact size plus
+    SKELETON_PER_STATE bytes for each of up to `statespace.states_upper_bound` states
+    (`refuse_space`); then the rank table; then the first sweep's forecast from the exact
+    layer sizes (`skeleton_bytes_bound`).  MemoryRefused when any exceeds `limit`.
+    """
+    refuse_space(spec, limit, what, per_state=SKELETON_PER_STATE)
+    space = build_space(spec, limit)
+    refuse_if_over(skeleton_bytes_bound(space, model, exponents, threads), limit,
+                   f"{what} (first sweep)")
+    return space
+
+
+def _prime_blocks(
+    allp: list[int], threads: int | None, words_per_prime: int, what: str,
+    most: int | None = None, budget: int | None = None, extra_per_prime: int = 0,
+) -> tuple[list[np.ndarray], int]:
+    """(blocks of primes, threads to run them): as few blocks as the memory allows, of at
+    most `most` primes each (None: no limit but memory).
+
+    A block of b primes holds b * (words_per_prime int64 words + `extra_per_prime` bytes)
+    at its peak; `threads` blocks run at once and must fit in `budget` bytes (default: 80%
+    of the memory the machine has available now, i.e. after the first sweep).
+    MemoryRefused when even one prime does not fit.
+    """
+    k = max(1, min(_threads(threads), len(allp)))
+    if budget is None:
+        budget = int(available_bytes() * 0.8)
+    per_prime = max(1, words_per_prime) * 8 + extra_per_prime
+    refuse_if_over(per_prime, budget, what)
+    k = min(k, budget // per_prime)
+    size = max(1, min(math.ceil(len(allp) / k), budget // (k * per_prime)))
+    if most is not None:
+        size = min(size, most)
+    nblocks = math.ceil(len(allp) / size)
+    nblocks = k * math.ceil(nblocks / k)
+    blocks = [np.array(b, dtype=np.int64) for b in np.array_split(np.array(allp), nblocks)]
+    return [b for b in blocks if b.size], k
+
+
+def law_words_per_prime(skel: Skeleton) -> int:
+    """int64 words per prime of `random_law_residues`'s buffer ring."""
+    span = max(1, min(skel.max_drop + 1, len(skel.levels)))
+    return span * max(int(skel.win[lv].astype(np.int64).sum()) for lv in skel.levels)
+
+
+def win_words_per_prime(skel: Skeleton, players: int) -> int:
+    """int64 words per prime of `random_win_residues`'s buffer ring."""
+    span = max(1, min(skel.max_drop + 1, len(skel.levels)))
+    return span * max(skel.win[lv].size for lv in skel.levels) * players
+
+
+def random_law_residues(skel: Skeleton, primes: np.ndarray | list[int], unit: bool) -> np.ndarray:
+    """residues[q, L] = P(length = L) mod primes[q] (as N * M^-1 mod q, see `_rebuild`),
+    int64 of shape (len(primes), longest + 1): the exact sweep of one prime block.
+
+    `unit`: every move weight is 1 (model "moves").  One shard of the length law: in-process
+    `random_play` runs the blocks in threads, its cluster twin is
+    `zeckenum.cluster.random_tasks.random_law_task`.  Kernel: `pull_mod_windows`.
+    """
+    primes = np.asarray(primes, dtype=np.int64)
+    nq = primes.size
+    pinv = 1.0 / primes.astype(np.float64)
+    inv = inverse_table(primes, max(skel.max_weight, 1))
+    out = np.zeros((skel.longest + 1, nq), dtype=np.int64)
+    sizes = [int(skel.win[lv].astype(np.int64).sum()) * nq for lv in skel.levels]
+    # a ring of max_drop + 1 reused buffers: the layers still read are among the max_drop
+    # layers swept just before the current one, so none shares its slot
+    span = min(skel.max_drop + 1, len(skel.levels))
+    ring = [np.empty(max(sizes), dtype=np.int64) for _ in range(max(span, 1))]
+    z64 = np.zeros(1, dtype=np.int64)
+    z32 = np.zeros(0, dtype=np.int32)
+    empty = (z64[:0], z64, z32, z32)
+    live: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = {}
+    for k, level in enumerate(skel.levels):
+        lmin, win = skel.lmin[level], skel.win[level]
+        off = np.zeros(win.size + 1, dtype=np.int64)
+        np.cumsum(win.astype(np.int64) * nq, out=off[1:])
+        vals = ring[k % span][: int(off[-1])]
+        vals[:] = 0
+        if level == skel.start_level:
+            vals[off[skel.start_rank] : off[skel.start_rank + 1]] = 1
+        inc = skel.incoming[level]
+        for which, src_level in gather_passes(inc.drop, skel.max_drop, level, live):
+            pull_mod_windows(vals, off, lmin, win, *live.get(src_level, empty),
+                             skel.dsum[level], inc.ptr, inc.drop, inc.src, inc.w, unit, primes,
+                             pinv, inv, out, which)
+        live[level] = (vals, off, lmin, win)
+        drop_stale(live, level, skel.max_drop)
+    return np.ascontiguousarray(out.T)
+
+
+def random_win_residues(skel: Skeleton, primes: np.ndarray | list[int], unit: bool,
+                        players: int) -> np.ndarray:
+    """residues[q, r] = P(length = r mod players) mod primes[q], int64 of shape
+    (len(primes), players): the winner-only sweep of one prime block.
+
+    One shard of the win probabilities: in-process `random_play(winners_only=True)` runs the
+    blocks in threads, its cluster twin is `zeckenum.cluster.random_tasks.random_win_task`.
+    Kernel: `pull_mod_residues`.
+    """
+    primes = np.asarray(primes, dtype=np.int64)
+    nq = primes.size
+    pinv = 1.0 / primes.astype(np.float64)
+    inv = inverse_table(primes, max(skel.max_weight, 1))
+    out = np.zeros((players, nq), dtype=np.int64)
+    cap = max(skel.win[lv].size for lv in skel.levels) * players * nq
+    span = min(skel.max_drop + 1, len(skel.levels))  # as in `random_law_residues`
+    ring = [np.empty(cap, dtype=np.int64) for _ in range(max(span, 1))]
+    empty = np.zeros((0, players, nq), dtype=np.int64)
+    live: dict[int, np.ndarray] = {}
+    for k, level in enumerate(skel.levels):
+        win = skel.win[level]
+        vals = ring[k % span][: win.size * players * nq].reshape(win.size, players, nq)
+        vals[:] = 0
+        if level == skel.start_level:
+            vals[skel.start_rank, 0, :] = 1
+        inc = skel.incoming[level]
+        for which, src_level in gather_passes(inc.drop, skel.max_drop, level, live):
+            pull_mod_residues(vals, live.get(src_level, empty), win, skel.dsum[level],
+                              inc.ptr, inc.drop, inc.src, inc.w, unit, primes, pinv, inv, out,
+                              which)
+        live[level] = vals
+        drop_stale(live, level, skel.max_drop)
+    return np.ascontiguousarray(out.T)
+
+
+def _run_blocks(
+    blocks: list[np.ndarray], fn: Callable[[np.ndarray], np.ndarray], threads: int
+) -> list[np.ndarray]:
+    """fn(block) for every prime block, `threads` blocks at a time, in block order."""
+    if len(blocks) == 1 or threads == 1:
+        return [fn(b) for b in blocks]
+    with ThreadPoolExecutor(threads) as pool:
+        return list(pool.map(fn, blocks))
+
+
+def random_residues(
+    space: StateSpace, skel: Skeleton, model: str, players: int, winners_only: bool,
+    prime_offset: int = 0, threads: int | None = None, max_memory: int | None = None,
+    planned: list[int] | None = None,
+) -> tuple[np.ndarray, list[int], int]:
+    """(residues, primes, check prime) of the exact sweep run in-process, block by block in
+    threads.
+
+    residues has one row per prime, in the order primes + [check prime]: the columns of
+    `random_law_residues` (lengths 0 .. longest), or with `winners_only` those of
+    `random_win_residues` (length mod players).  The primes are the fewest below 2**50
+    whose product exceeds the denominator M (`primes_exceeding`).  `planned`, if given,
+    receives the forecast bytes of the blocks running at once.
+    """
+    primes, check_prime = primes_exceeding(skel.denominator, prime_offset)
+    allp = primes + [check_prime]
+    check_random_primes(allp, skel.max_indegree, weight_bound(space, skel, model))
+    unit = model == "moves"
+    budget = None
+    if max_memory is not None:
+        # what the first sweep touched may stay with the process: its forecast bounds it
+        held = max(skeleton_nbytes(skel) + int(space.tab.nbytes),
+                   skeleton_bytes_bound(space, model, True, threads))
+        budget = int(max_memory) - held
+        refuse_if_over(held, int(max_memory), f"random play at n={space.spec.n} (first sweep)")
+    # per prime besides the ring: the inverse table column and the output row
+    extra = 8 * (max(skel.max_weight, 1) + 1) + 8 * (skel.longest + 1 + players)
+    if winners_only:
+        words = win_words_per_prime(skel, players)
+        blocks, k = _prime_blocks(allp, threads, words,
+                                  f"the exact win probabilities at n={space.spec.n}",
+                                  budget=budget, extra_per_prime=extra)
+        outs = _run_blocks(blocks, lambda b: random_win_residues(skel, b, unit, players), k)
+    else:
+        words = law_words_per_prime(skel)
+        blocks, k = _prime_blocks(allp, threads, words,
+                                  f"the exact length law at n={space.spec.n}",
+                                  LAW_PRIMES_PER_BLOCK, budget=budget, extra_per_prime=extra)
+        outs = _run_blocks(blocks, lambda b: random_law_residues(skel, b, unit), k)
+    if planned is not None:
+        biggest = sorted((b.size for b in blocks), reverse=True)[:k]
+        planned.append(sum(biggest) * (words * 8 + extra))
+    return np.concatenate(outs, axis=0), primes, check_prime
+
+
+def law_from_residues(
+    residues: np.ndarray, primes: list[int], check_prime: int, denominator: int
+) -> dict[int, Fraction]:
+    """{length: exact probability} for the lengths of positive probability, from the rows
+    of `random_law_residues` (primes + [check prime]); CRT checked by the check prime."""
+    nrec = len(primes)
+    lengths = [L for L in range(residues.shape[1]) if residues[:, L].any()]
+    rows = [[int(x) for x in residues[:nrec, L]] for L in lengths]
+    check = [int(residues[nrec, L]) for L in lengths]
+    fr = _rebuild(rows, check, primes, check_prime, denominator, "length probability")
+    return dict(zip(lengths, fr, strict=True))
+
+
+def wins_from_residues(
+    residues: np.ndarray, primes: list[int], check_prime: int, denominator: int
+) -> dict[int, Fraction]:
+    """{r: P(length = r mod players)} from the rows of `random_win_residues`
+    (primes + [check prime]); CRT checked by the check prime."""
+    nrec = len(primes)
+    rows = [[int(x) for x in residues[:nrec, r]] for r in range(residues.shape[1])]
+    check = [int(residues[nrec, r]) for r in range(residues.shape[1])]
+    fr = _rebuild(rows, check, primes, check_prime, denominator, "residue probability")
+    return dict(enumerate(fr))
+
+
+def exact_length_distribution(
+    space: StateSpace, skel: Skeleton, model: str, prime_offset: int = 0,
+    threads: int | None = None,
+) -> tuple[dict[int, Fraction], list[int], int]:
+    """({length: exact probability} for lengths of positive probability, primes, check)."""
+    residues, primes, check = random_residues(space, skel, model, 2, False, prime_offset,
+                                              threads)
+    return law_from_residues(residues, primes, check, skel.denominator), primes, check
+
+
+def exact_win_residues(
+    space: StateSpace, skel: Skeleton, model: str, players: int, prime_offset: int = 0,
+    threads: int | None = None,
+) -> tuple[dict[int, Fraction], list[int], int]:
+    """({r: P(length = r mod players)}, primes, check) without any length window."""
+    residues, primes, check = random_residues(space, skel, model, players, True, prime_offset,
+                                              threads)
+    return wins_from_residues(residues, primes, check, skel.denominator), primes, check
+
+
+# ----------------------------------------------------------------------------- API
+
+
+def winner_of_length(length: int, players: int) -> int:
+    """1-based player who made the last move of a game of `length` moves (P if length 0)."""
+    return (length - 1) % players + 1
+
+
+def wins_from_lengths(dist: dict[int, Fraction], players: int) -> dict[int, Fraction]:
+    """{player: probability of winning} from a length distribution."""
+    out = {i: Fraction(0) for i in range(1, players + 1)}
+    for length, pr in dist.items():
+        out[winner_of_length(length, players)] += pr
+    return out
+
+
+@dataclass(frozen=True)
+class RandomResult:
+    """Exact random play at one n.
+
+    rules / rules_hash: the rule set's name and `RuleSet.content_hash()`;
+    length_probability {length: Fraction} (None on the winner-only path);
+    win_probability {player (1-based): Fraction}; moments from `zeckenum.core.moments.exact_moments`
+    (empty on the winner-only path); denominator = M (every probability times M is an integer).
+    """
+
+    rules: str
+    rules_hash: str
+    n: int
+    players: int
+    model: str
+    win_probability: dict[int, Fraction]
+    length_probability: dict[int, Fraction] | None
+    moments: dict = field(default_factory=dict)
+    gaussian: dict = field(default_factory=dict)
+    denominator: int = 1
+    primes: tuple[int, ...] = ()
+    check_prime: int = 0
+    states: int = 0
+    transitions: int = 0
+    stats: dict = field(default_factory=dict, compare=False)
+
+    @property
+    def mean_length(self) -> Fraction | None:
+        return self.moments.get("mean")
+
+    @property
+    def variance(self) -> Fraction | None:
+        return self.moments.get("variance")
+
+    def to_dict(self) -> dict:
+        """JSON-ready form: rationals as reduced "num/den" strings, lengths/players as keys."""
+        from zeckenum.core.moments import moments_to_dict
+
+        d = {
+            "rules": self.rules,
+            "rules_hash": self.rules_hash,
+            "n": self.n,
+            "players": self.players,
+            "model": self.model,
+            "mode": "exact",
+            "no_move_convention": "a game of length 0 counts as a win for the last player",
+            "win_probability": {str(k): frac_str(v) for k, v in self.win_probability.items()},
+            "win_probability_decimal": {
+                str(k): float(v) for k, v in self.win_probability.items()
+            },
+        }
+        if self.length_probability is not None:
+            d["length_probability"] = {
+                str(k): frac_str(v) for k, v in self.length_probability.items()
+            }
+            d.update(moments_to_dict(self.moments))
+            d["gaussian"] = self.gaussian
+        d.update(
+            {
+                "denominator_bits": self.denominator.bit_length(),
+                "states": self.states,
+                "transitions": self.transitions,
+                "primes": [str(p) for p in self.primes],
+                "check_prime": str(self.check_prime),
+                "stats": self.stats,
+            }
+        )
+        return d
+
+
+def frac_str(x: Fraction) -> str:
+    """A reduced rational as "num/den" (Fraction is always reduced)."""
+    return f"{x.numerator}/{x.denominator}"
+
+
+MAX_PLAYERS = 1024
+"""Most players random play accepts: every state carries one residue per player."""
+
+
+def validate(n: int, players: int, model: str) -> None:
+    """InputError unless n is a valid n (`count.check_n`), 2 <= players <= MAX_PLAYERS and
+    the model is known."""
+    from zeckenum.counting.count import check_n
+
+    check_n(n)
+    if isinstance(players, bool) or not isinstance(players, int) or not (
+        2 <= players <= MAX_PLAYERS
+    ):
+        raise InputError(f"the number of players must be an integer from 2 to {MAX_PLAYERS}, "
+                         f"got {players}")
+    check_model(model)
+
+
+def assemble_random(
+    *, rules: str, rules_hash: str, n: int, players: int, model: str, winners_only: bool,
+    denominator: int, states: int, transitions: int, primes: list[int], check_prime: int,
+    residues: np.ndarray, stats: dict,
+) -> RandomResult:
+    """The `RandomResult` of one game from its exact sweep's residues.
+
+    residues: one row per prime, in the order primes + [check prime], with the columns of
+    `random_law_residues` (lengths) or, with `winners_only`, of `random_win_residues`
+    (length mod players).  The CRT rebuilds every probability times the denominator M,
+    checked against the check prime (CheckPrimeMismatch); then the win probabilities, and
+    for the length law its exact moments and Gaussian diagnostics.  Shared by the
+    in-process path (`random_play`) and the cluster path (`zeckenum.cluster.run.run_random`),
+    so both give equal results (stats aside).
+    """
+    from zeckenum.core.moments import exact_moments, gaussian_diagnostics
+
+    moments: dict = {}
+    gauss: dict = {}
+    if winners_only:
+        res = wins_from_residues(residues, primes, check_prime, denominator)
+        wins = {winner_of_length(r, players): v for r, v in res.items()}
+        wins = dict(sorted(wins.items()))
+        dist = None
+    else:
+        dist = law_from_residues(residues, primes, check_prime, denominator)
+        wins = wins_from_lengths(dist, players)
+        moments = exact_moments(dist)
+        gauss = gaussian_diagnostics({k: float(v) for k, v in dist.items()})
+    return RandomResult(
+        rules=rules, rules_hash=rules_hash, n=n, players=players, model=model,
+        win_probability=wins,
+        length_probability=dist, moments=moments, gaussian=gauss,
+        denominator=denominator, primes=tuple(primes), check_prime=check_prime,
+        states=states, transitions=transitions, stats=stats,
+    )
+
+
+def refuse_random(
+    n: int, rules: str = "standard", players: int = 2, model: str = "moves", *,
+    max_memory: int | None = None, threads: int | None = None,
+) -> None:
+    """The up-front refusals of `random_play` (`random_space`: rank table, states bound,
+    first sweep forecast) without running it: the client of a sharded run calls it before
+    any worker starts."""
+    validate(n, players, model)
+    random_space(get_rules(rules).instantiate(n), model, resolve_limit(max_memory),
+                 f"random play at n={n}", threads=threads)
+
+
+def random_play(
+    n: int, rules: str = "standard", players: int = 2, model: str = "moves", *,
+    winners_only: bool = False, prime_offset: int = 0, threads: int | None = None,
+    max_memory: int | None = None,
+) -> RandomResult:
+    """Exact random play at n: the length distribution (unless `winners_only`) and the
+    probability that each of `players` players wins, under random model `model`.
+
+    In-process: the first sweep, then the prime blocks in threads (`random_residues`),
+    then `assemble_random`.  `zeckenum.cluster.run.run_random` shards the same blocks
+    across Dask workers, with checkpoints, and gives an equal result.
+
+    Memory (`max_memory`, default what the machine has available): refused up front by
+    `random_space` (rank table, then the first sweep's bound `skeleton_bytes_bound`), then
+    the exact sweep's blocks are sized to what is left after the first sweep and refused
+    when one prime does not fit (`_prime_blocks`)."""
+    import time
+
+    from zeckenum.counting.count import check_prime_offset, check_threads
+
+    validate(n, players, model)
+    check_prime_offset(prime_offset)
+    threads = check_threads(threads)
+    rs = get_rules(rules)
+    limit = resolve_limit(max_memory)
+    t0 = time.perf_counter()
+    what = f"random play at n={n}"
+    space = random_space(rs.instantiate(n), model, limit, what, threads=threads)
+    skel = first_sweep(space, model, threads=threads)
+    t1 = time.perf_counter()
+    first_bytes = skeleton_bytes_bound(space, model, True, threads)
+    block_bytes: list[int] = []
+    residues, primes, check = random_residues(space, skel, model, players, winners_only,
+                                              prime_offset, threads, max_memory, block_bytes)
+    # the allocator may keep what the first sweep touched: count its forecast, not the
+    # skeleton's nbytes, under the exact sweep's blocks
+    block_bytes = [sum(block_bytes) + max(first_bytes, skeleton_nbytes(skel))]
+    stats: dict = {"first_sweep_s": round(t1 - t0, 3),
+                   "forecast_peak_bytes": max(first_bytes, block_bytes[0])}
+    res = assemble_random(
+        rules=rs.name, rules_hash=rs.content_hash(), n=n, players=players, model=model,
+        winners_only=winners_only, denominator=skel.denominator, states=skel.states,
+        transitions=skel.transitions, primes=primes, check_prime=check, residues=residues,
+        stats=stats,
+    )
+    stats["exact_sweep_s"] = round(time.perf_counter() - t1, 3)
+    return res

@@ -1,0 +1,1 @@
+"""Published tables over a range of n: building, reading and verifying them."""
