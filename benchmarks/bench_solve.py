@@ -1,4 +1,5 @@
-"""Speed and memory of `zeckenum.optimal.solve` against a plain-Python memoised minimax, in one run.
+"""Speed and memory of `zeckenum.optimal.solve.solve` against a plain-Python memoised minimax,
+in one run.
 
 For each n, `zeckenum.optimal.solve(n)` (two players: the outcome class of every state) runs in a
 fresh subprocess; the baseline - a memoised recursion over tuples of token counts, plain

@@ -35,8 +35,15 @@ JOBS: dict[str, tuple[str, str]] = {
 CHILD = """
 import hashlib, json, time
 from zeckenum import count
-from zeckenum.randomplay.exact import random_play
-from zeckenum.optimal.solve import solve
+try:  # the public API of this version, else the module paths of a version before it
+    from zeckenum import random_play, solve
+except ImportError:
+    try:
+        from zeckenum.randomplay.exact import random_play
+        from zeckenum.optimal.solve import solve
+    except ImportError:
+        from zeckenum.randomplay import random_play
+        from zeckenum.solve import solve
 {warm}
 t0 = time.perf_counter()
 value = {timed}
