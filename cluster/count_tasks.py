@@ -30,7 +30,8 @@ from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.sweep import Windows, incoming_bytes_estimate, sweep_windows
 from zeckenum.counting.count import windows_pass_bytes
 from zeckenum.counting.spectrum import peak_words, spectrum_residues
-from zeckenum.rules.model import RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import RuleSet
 
 CACHE_ENTRIES = 2
 """Games (rules, n) whose windows a process keeps: the current n and the next."""

@@ -52,7 +52,8 @@ from zeckenum.optimal.solve import (
     sweep_reach,
 )
 from zeckenum.randomplay.exact import refuse_random, validate, word_primes
-from zeckenum.rules.model import RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import RuleSet
 
 PROBE_N = 90
 """Probe size of a count: about a second on one core, long enough rows to measure the

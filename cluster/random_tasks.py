@@ -41,7 +41,8 @@ from zeckenum.randomplay.exact import (
     weight_bound,
     win_words_per_prime,
 )
-from zeckenum.rules.model import RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import RuleSet
 
 CACHE_ENTRIES = 2
 """Games (rules, n, model) whose skeleton a process keeps: the current n and the next."""

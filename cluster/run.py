@@ -75,7 +75,8 @@ from zeckenum.counting.count import check_n, refuse_count
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import InputError
 from zeckenum.randomplay.exact import RandomResult, refuse_random, validate
-from zeckenum.rules.model import RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import RuleSet
 from zeckenum.safeio import check_output_dir
 
 log = logging.getLogger("zeckenum.cluster")

@@ -74,7 +74,8 @@ from zeckenum.optimal.solve import (
     sweep_classes,
     sweep_reach,
 )
-from zeckenum.rules.model import RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import RuleSet
 from zeckenum.safeio import check_output_dir
 
 FORMAT = "zeckenum-solve-chain/1"

@@ -14,7 +14,8 @@ from importlib.metadata import PackageNotFoundError, version
 from zeckenum.counting.count import count
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import CheckPrimeMismatch, InputError, MemoryRefused, ZeckenumError
-from zeckenum.rules.model import STANDARD, RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import STANDARD, RuleSet
 
 # Exact results are integers and rationals of many thousands of digits (the fourth moment
 # of a random game's length under the "pairs" model passes 4300 digits near n = 42), and

@@ -27,7 +27,8 @@ from zeckenum.core.sweep import Windows, sweep_windows
 from zeckenum.core.text import plural
 from zeckenum.counting.count import check_n
 from zeckenum.errors import InputError
-from zeckenum.rules.model import STANDARD, GameSpec, RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import STANDARD, GameSpec, RuleSet
 
 
 @dataclass(frozen=True)

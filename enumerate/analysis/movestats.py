@@ -39,7 +39,8 @@ from zeckenum.core.sweep import length_bound
 from zeckenum.counting.count import check_n
 from zeckenum.errors import InputError
 from zeckenum.randomplay.exact import check_model, max_weight_bound
-from zeckenum.rules.model import GameSpec, RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import GameSpec, RuleSet
 
 GRAPH_MAX_STATES = 3_000_000
 

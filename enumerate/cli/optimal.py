@@ -28,7 +28,7 @@ from zeckenum.core.text import plural
 from zeckenum.errors import InputError, OutputError
 from zeckenum.optimal.solve import MAX_PLAYERS, SolveResult, solve, winning_strategy
 from zeckenum.optimal.strategy import check_strategy, read_strategy, write_strategy
-from zeckenum.rules.model import get_rules
+from zeckenum.rules.catalogue import get_rules
 from zeckenum.safeio import check_output_file
 
 

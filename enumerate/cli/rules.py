@@ -12,11 +12,19 @@ from __future__ import annotations
 from pathlib import Path
 
 import click
+from zeckenum.analysis.describe import (
+    bins_text,
+    describe_template,
+    layering_report,
+    start_text,
+    terminal_positions,
+)
 from zeckenum.cli.errors import one_line_errors
 from zeckenum.core.text import plural
-from zeckenum.rules.model import BUILTIN, RuleSet, get_rules
-from zeckenum.rules.rulefile import describe_template, read_rule_file
-from zeckenum.rules.validate import format_state, layering_report, terminal_positions
+from zeckenum.rules.catalogue import BUILTIN, get_rules
+from zeckenum.rules.layering import format_state
+from zeckenum.rules.model import RuleSet
+from zeckenum.rules.rulefile import read_rule_file
 
 SHOW_TERMINALS = 12
 """At most this many end positions are printed by `rules show`."""
@@ -27,25 +35,6 @@ def resolve(name_or_file: str) -> RuleSet:
     if name_or_file not in BUILTIN and Path(name_or_file).is_file():
         return read_rule_file(name_or_file)
     return get_rules(name_or_file)
-
-
-def start_text(rules: RuleSet) -> str:
-    if rules.start == "ones":
-        return "ones (n tokens in bin 1; value n)"
-    if rules.start == "greedy":
-        return "greedy (the greedy decomposition of n; value n)"
-    vec = ", ".join(str(c) for c in rules.start)
-    return f"vector [{vec}] times n (value n * {rules.game_value(1)})"
-
-
-def bins_text(rules: RuleSet, count: int = 10) -> str:
-    vals = rules.bins_by_count(count)
-    more = ", ..." if rules.recurrence else ""
-    how = (
-        f"recurrence {list(rules.recurrence)} from {list(rules.initial)}"
-        if rules.recurrence else "listed"
-    )
-    return ", ".join(str(v) for v in vals) + more + f"  ({how})"
 
 
 def layering_lines(rules: RuleSet, n: int) -> list[str]:

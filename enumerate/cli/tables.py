@@ -92,7 +92,7 @@ def refuse_table(hi: int, kinds: list[str], rules: str, max_memory: int | None) 
     from zeckenum.counting.count import refuse_count
     from zeckenum.optimal.solve import needs_reach, solve_space
     from zeckenum.randomplay.exact import refuse_random
-    from zeckenum.rules.model import get_rules
+    from zeckenum.rules.catalogue import get_rules
 
     ruleset = get_rules(rules)
     for kind in kinds:

@@ -48,7 +48,7 @@ def games_command(n: int, rules: str, near: int, as_json: bool, max_memory: int 
         lengths_near_extremes,
     )
     from zeckenum.counting.count import count
-    from zeckenum.rules.model import get_rules
+    from zeckenum.rules.catalogue import get_rules
 
     rs = get_rules(rules)
     short, long = extremal_games(n, rs, max_memory=max_memory)
@@ -117,7 +117,7 @@ def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_ran
         move_count_distribution,
         move_totals,
     )
-    from zeckenum.rules.model import get_rules
+    from zeckenum.rules.catalogue import get_rules
 
     rs = get_rules(rules)
     mem = {"max_memory": max_memory}

@@ -31,7 +31,8 @@ from zeckenum.core.sweep import Windows, incoming_bytes_estimate, sweep_windows
 from zeckenum.counting.result import CountResult
 from zeckenum.counting.spectrum import peak_words, spectrum_residues
 from zeckenum.errors import InputError
-from zeckenum.rules.model import RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import RuleSet
 
 MAX_N = 2**62
 """Largest n any command accepts: counts of bins stay int64.  Far below it every run is

@@ -53,7 +53,8 @@ from zeckenum.core.jit import kernel
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.statespace import StateSpace, build_space, refuse_space
 from zeckenum.errors import InputError
-from zeckenum.rules.model import STANDARD, GameSpec, RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import STANDARD, GameSpec, RuleSet
 
 MAX_PLAYERS = 64
 

@@ -39,7 +39,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from zeckenum.core.moments import gaussian_diagnostics  # noqa: E402
 from zeckenum.errors import InputError  # noqa: E402
-from zeckenum.rules.model import RuleSet, get_rules  # noqa: E402
+from zeckenum.rules.catalogue import get_rules  # noqa: E402
+from zeckenum.rules.model import RuleSet  # noqa: E402
 
 SOURCES = ("games", "random")
 SOURCE_LABEL = {"games": "all games", "random": "random play"}

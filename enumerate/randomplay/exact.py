@@ -78,7 +78,8 @@ from zeckenum.core.modular import crt, descending_primes
 from zeckenum.core.statespace import LayerMoves, StateSpace, build_space, move_applies, refuse_space
 from zeckenum.core.sweep import compact_rows
 from zeckenum.errors import CheckPrimeMismatch, InputError
-from zeckenum.rules.model import GameSpec, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import GameSpec
 
 MODELS = ("moves", "pairs")
 PRIME_CEILING = 2**50  # every residue prime lies below it (see `mulmod`)

@@ -55,7 +55,7 @@ from zeckenum.randomplay.exact import (
     validate,
     winner_of_length,
 )
-from zeckenum.rules.model import get_rules
+from zeckenum.rules.catalogue import get_rules
 
 U = Fraction(1, 2**53)
 ETA = Fraction(1, 2**1074)

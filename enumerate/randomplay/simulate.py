@@ -24,7 +24,7 @@ from zeckenum.core.jit import kernel
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.errors import InputError
 from zeckenum.randomplay.exact import take_arrays, validate, winner_of_length
-from zeckenum.rules.model import get_rules
+from zeckenum.rules.catalogue import get_rules
 
 Z95 = 1.959963984540054
 

@@ -19,9 +19,12 @@ Level weights (the engine's layering, see `statespace`): "tokens" uses the token
 (weights all 1) and refuses a rule set that breaks it; "auto" uses the token count when
 every move keeps or lowers it and a move keeping it raises its largest changed bin, and
 otherwise a strict potential found by integer linear programming (over the moves that fire
-at this n when the whole move set has none: `validate`); "potential" always uses a
-potential.  Rule files are read by `rulefile`; the shipped rule sets live in
-`rulesets/*.toml`.
+at this n when the whole move set has none: `layering`); "potential" always uses a
+potential.  Rule files are read by `rulefile`; the shipped rule sets and the lookup by name
+(`get_rules`, `BUILTIN`) are in `catalogue`.
+
+Dependencies point one way: `model` imports only `layering` (and `errors`); `validate`,
+`rulefile` and `catalogue` import `model`, never the reverse.
 """
 
 from __future__ import annotations
@@ -29,10 +32,10 @@ from __future__ import annotations
 import hashlib
 import json
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 from zeckenum.errors import InputError
+from zeckenum.rules.layering import layering_weights
 
 
 @dataclass(frozen=True)
@@ -152,7 +155,7 @@ class RuleSet:
         Every template is applied at every index of its range whose bins exist.  When a
         potential is needed for the layering, moves that take more value than the game has
         (they can never apply) are left out, and when the rest has no potential but every
-        game ends, so are the moves that never fire from the start (`validate`).
+        game ends, so are the moves that never fire from the start (`layering`).
         """
         if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 1:
             raise InputError(f"n must be a positive integer, got {n}")
@@ -176,9 +179,9 @@ class RuleSet:
             if sum(d * values[b - 1] for b, d in eff.items()) != 0:
                 raise InputError(f"move {names[m]} changes the value")
         start = self.start_vector(n, values)
-        from zeckenum.rules.validate import layering_weights
-
-        weights, keep, layering = layering_weights(self, values, effects, names, start)
+        weights, keep, layering = layering_weights(
+            self.name, self.level_weights, values, effects, names, start
+        )
         if keep is not None:
             names = [names[m] for m in keep]
             effects = [effects[m] for m in keep]
@@ -215,7 +218,7 @@ class GameSpec:
     mv_delta[m, j] change of the count in mv_bins[m, j]
     mv_drop[m]     how much move m lowers the level (>= 0 for a valid layering)
     start          the start state's count vector
-    layering       how the weights were found (`validate`: token count, strict or ranked
+    layering       how the weights were found (`layering`: token count, strict or ranked
                    potential, possibly on the moves that fire at this n only)
     """
 
@@ -254,46 +257,3 @@ STANDARD = RuleSet(
         MoveTemplate("split", takes=((0, 2),), gives=((-2, 1), (1, 1)), first=3),
     ),
 )
-
-RULESETS_DIR = Path(__file__).with_name("rulesets")
-"""Where the shipped rule files live (package data)."""
-
-
-def _load_builtin() -> dict[str, RuleSet]:
-    """The shipped rule sets by name; "standard" is `STANDARD` itself (same content)."""
-    from zeckenum.rules.rulefile import read_rule_file
-
-    out: dict[str, RuleSet] = {STANDARD.name: STANDARD}
-    for path in sorted(RULESETS_DIR.glob("*.toml")):
-        rs = read_rule_file(path)
-        if rs.name == STANDARD.name:
-            if rs.content_hash() != STANDARD.content_hash():
-                raise RuntimeError(f"{path} does not describe the standard game")
-            continue
-        out[rs.name] = rs
-    return out
-
-
-BUILTIN: dict[str, RuleSet] = _load_builtin()
-
-
-def get_rules(name_or_rules: str | Path | RuleSet) -> RuleSet:
-    """A RuleSet passed through, a built-in rule set by name, or a rule file (*.toml) read
-    and validated (`rulefile.read_rule_file`)."""
-    if isinstance(name_or_rules, RuleSet):
-        return name_or_rules
-    if isinstance(name_or_rules, Path) or (
-        isinstance(name_or_rules, str) and name_or_rules.endswith(".toml")
-    ):
-        from zeckenum.rules.rulefile import read_rule_file
-
-        return read_rule_file(Path(name_or_rules))
-    if not isinstance(name_or_rules, str):
-        raise InputError(f"rules must be a name, a .toml path or a RuleSet, got {name_or_rules!r}")
-    try:
-        return BUILTIN[name_or_rules]
-    except KeyError:
-        known = ", ".join(sorted(BUILTIN))
-        raise InputError(
-            f"unknown rule set {name_or_rules!r} (built-in: {known}; or give a .toml file)"
-        ) from None

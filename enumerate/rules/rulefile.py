@@ -33,7 +33,7 @@ the game's value is n, or n * value(vector) for a vector start.
 
 `read_rule_file` checks the syntax and the value of every move (`validate.check_values`)
 and raises InputError with one line naming the file and the offending key or move.
-Termination is checked when the rule set is instantiated for an n (`validate`).
+Termination is checked when the rule set is instantiated for an n (`layering`).
 
 A rule file is untrusted input.  It is read with `safeio.read_regular` (a regular file of at
 most `MAX_RULE_FILE_BYTES`; FIFOs, devices and directories are refused without blocking),
@@ -349,31 +349,8 @@ def _start(start: Any, nlisted: int | None, pre: str) -> str | tuple[int, ...]:
     )
 
 
-def describe_bin(off: int) -> str:
-    """'k', 'k+1' or 'k-2' for an offset."""
-    return "k" if off == 0 else f"k{off:+d}"
-
-
-def describe_template(tpl: MoveTemplate) -> str:
-    """One line: the template as tokens moved and its range, e.g.
-    'split: 2 B(k) -> B(k-2) + B(k+1) for k >= 3'."""
-
-    def where(off: int) -> str:
-        return str(tpl.first + off) if tpl.first == tpl.last else describe_bin(off)
-
-    def side(pairs: tuple[tuple[int, int], ...]) -> str:
-        return " + ".join((f"{c} " if c > 1 else "") + f"B({where(off)})" for off, c in pairs)
-
-    if tpl.first == tpl.last:
-        rng = "(one-off)"
-    elif tpl.last is None:
-        rng = f"for k >= {tpl.first}"
-    else:
-        rng = f"for {tpl.first} <= k <= {tpl.last}"
-    return f"{tpl.name}: {side(tpl.takes)} -> {side(tpl.gives)} {rng}"
-
-
-def _bin_text(off: int) -> str:
+def bin_expression(off: int) -> str:
+    """The rule-file expression of a bin at offset `off` from k: 'k', 'k+1' or 'k-2'."""
     return "k" if off == 0 else f"k{off:+d}"
 
 
@@ -411,7 +388,7 @@ def format_rules(rules: RuleSet) -> str:
             if tpl.last is not None:
                 lines.append(f"to = {tpl.last}")
         for key, pairs in (("take", tpl.takes), ("give", tpl.gives)):
-            bins = [json.dumps(_bin_text(off)) for off, c in pairs for _ in range(c)]
+            bins = [json.dumps(bin_expression(off)) for off, c in pairs for _ in range(c)]
             lines.append(f"{key} = [{', '.join(bins)}]")
     return "\n".join(lines) + "\n"
 

@@ -75,7 +75,8 @@ from zeckenum import __version__
 from zeckenum.cluster.errors import CheckpointRefused, TableCheckFailed
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import InputError, OutputError, ZeckenumError
-from zeckenum.rules.model import STANDARD, RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import STANDARD, RuleSet
 from zeckenum.rules.rulefile import format_rules, rules_from_text
 from zeckenum.safeio import check_output_dir, deliver, member, read_regular, write_atomic
 

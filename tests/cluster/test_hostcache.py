@@ -16,7 +16,7 @@ import pytest
 import zeckenum
 from zeckenum.cluster import hostcache
 from zeckenum.cluster.count_tasks import first_sweep
-from zeckenum.rules.model import get_rules
+from zeckenum.rules.catalogue import get_rules
 
 
 @pytest.fixture
@@ -120,7 +120,7 @@ _PROCESS = textwrap.dedent(
     import os, sys, time
     from zeckenum.cluster import hostcache
     from zeckenum.cluster.count_tasks import first_sweep
-    from zeckenum.rules.model import get_rules
+    from zeckenum.rules.catalogue import get_rules
 
     rs = get_rules("standard")
     marks = sys.argv[1]
@@ -365,7 +365,7 @@ _WRITE_AND_WAIT = textwrap.dedent(
     import sys
     from zeckenum.cluster import hostcache
     from zeckenum.cluster.count_tasks import first_sweep
-    from zeckenum.rules.model import get_rules
+    from zeckenum.rules.catalogue import get_rules
 
     rs = get_rules("standard")
     n = int(sys.argv[1])

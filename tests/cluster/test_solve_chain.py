@@ -29,7 +29,7 @@ from zeckenum.cluster.run import run_count
 from zeckenum.cluster.solve_chain import plan_ranges, run_solve
 from zeckenum.core.statespace import build_space
 from zeckenum.optimal.solve import solve
-from zeckenum.rules.model import get_rules
+from zeckenum.rules.catalogue import get_rules
 
 FIELDS = ("winner", "p_positions", "states", "forced_win", "start_moves", "moves_examined")
 

@@ -205,7 +205,7 @@ class _Boom(Exception):
 @pytest.mark.parametrize("stop", [_Boom, KeyboardInterrupt])
 def test_a_failed_run_releases_the_host_cache(host_cache: Path, stop: type) -> None:
     from zeckenum.cluster import hostcache
-    from zeckenum.rules.model import get_rules
+    from zeckenum.rules.catalogue import get_rules
 
     folder = hostcache.sweep_folder(get_rules("standard").content_hash(), 70)
     seen: list[bool] = []

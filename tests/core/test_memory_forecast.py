@@ -27,7 +27,7 @@ import zeckenum
 from bruteforce import fibonacci_upto, successors
 from zeckenum.core.statespace import build_space, rank_table
 from zeckenum.errors import MemoryRefused
-from zeckenum.rules.model import get_rules
+from zeckenum.rules.catalogue import get_rules
 
 
 def _new(name: str):  # noqa: ANN202 - a helper of the module under test

@@ -337,7 +337,7 @@ def test_layers_dropped_when_not_kept() -> None:
 def test_variants_match_template_minimax(name: str, n: int) -> None:
     """Source: brute force (tests/minimax.TemplateGame, from the rule set's definition).
     Reachable states, P-positions among them, and the winner."""
-    from zeckenum.rules.model import get_rules
+    from zeckenum.rules.catalogue import get_rules
 
     rules = get_rules(name)
     game = minimax.TemplateGame(rules, n)
@@ -358,7 +358,7 @@ def test_reach_pass_on_standard_changes_nothing(n: int) -> None:
 
 @pytest.mark.parametrize("name", ["reversed", "tribonacci", "twos"])
 def test_variant_strategies_pass_checker(tmp_path, name: str) -> None:
-    from zeckenum.rules.model import get_rules
+    from zeckenum.rules.catalogue import get_rules
 
     rules = get_rules(name)
     for n in (2, 6, 10):
@@ -392,7 +392,7 @@ def test_layer_walk_lists_the_layer_in_descending_rank(name: str, n: int) -> Non
     """Common practice: the solver's odometer walk visits exactly the engine's layer
     listing, in reverse (the engine lists ascending rank)."""
     from zeckenum.optimal.solve import walk_layer
-    from zeckenum.rules.model import get_rules
+    from zeckenum.rules.catalogue import get_rules
 
     spec = get_rules(name).instantiate(n)
     space = build_space(spec)

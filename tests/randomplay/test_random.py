@@ -227,7 +227,7 @@ def test_mulmod_and_reduce_match_python_integers() -> None:
 def test_incremental_listing_matches_statespace() -> None:
     from zeckenum.core.statespace import build_space
     from zeckenum.randomplay.exact import layer_listing, take_arrays, total_weights
-    from zeckenum.rules.model import BUILTIN
+    from zeckenum.rules.catalogue import BUILTIN
 
     for name, rs in BUILTIN.items():
         for n in (1, 2, 7, 16, 29):
@@ -264,7 +264,7 @@ def _potential_layered_standard():
     """The standard game's moves layered by a strict potential instead of token counts:
     every move then drops the level by 1 or more (several levels for some), none stays in
     its layer -- the multi-layer gather of the sweeps on a game with a known law."""
-    from zeckenum.rules.model import RULESETS_DIR
+    from zeckenum.rules.catalogue import RULESETS_DIR
     from zeckenum.rules.rulefile import parse_rules
 
     text = (RULESETS_DIR / "standard.toml").read_text()

@@ -24,13 +24,14 @@ import pytest
 import rules_bruteforce as bf
 import zeckenum
 from click.testing import CliRunner
+from zeckenum.analysis.describe import terminal_positions
 from zeckenum.cli.rules import rules_group
 from zeckenum.errors import InputError
 from zeckenum.optimal.solve import solve
 from zeckenum.randomplay.exact import random_play
-from zeckenum.rules.model import BUILTIN, RULESETS_DIR, STANDARD, get_rules
+from zeckenum.rules.catalogue import BUILTIN, RULESETS_DIR, get_rules
+from zeckenum.rules.model import STANDARD
 from zeckenum.rules.rulefile import parse_rules, read_rule_file
-from zeckenum.rules.validate import terminal_positions
 
 SHIPPED = sorted(BUILTIN)
 SMALL_N = range(1, 11)
