@@ -6,7 +6,7 @@ block and rounds the number of blocks up to a multiple of the workers, so that e
 worker gets the same share; `blocks=` or `max_primes_per_block=` override it (tests use
 them to get several shards at small n).  A count takes primes below 2**62 for its size
 bound (`make_plan`); random play takes primes below 2**50 whose product exceeds its
-denominator (`zeckenum.randomplay.exact.primes_exceeding`); both are cut by `plan_from_primes`.
+denominator (`zeckenum.core.modular.mul_primes_exceeding`); both are cut by `plan_from_primes`.
 """
 
 from __future__ import annotations

@@ -24,43 +24,14 @@ from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
+from zeckenum.core.checks import check_n, check_prime_offset, check_threads
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.modular import primes_for_bits, reconstruct
 from zeckenum.core.statespace import StateSpace, build_space, refuse_space
 from zeckenum.core.sweep import Windows, incoming_bytes_estimate, sweep_windows
 from zeckenum.counting.result import CountResult
 from zeckenum.counting.spectrum import peak_words, spectrum_residues
-from zeckenum.errors import InputError
 from zeckenum.rules.model import RuleSet, get_rules
-
-MAX_N = 2**62
-"""Largest n any command accepts: counts of bins stay int64.  Far below it every run is
-refused by its memory forecast (the rank table alone holds more than 8 n^2 bytes)."""
-
-MAX_THREADS = 4096
-"""Most threads a run accepts (each may hold a layer in flight)."""
-
-
-def check_n(n: object) -> int:
-    """n as a positive int no larger than MAX_N, or InputError."""
-    if isinstance(n, bool) or not isinstance(n, (int, np.integer)):
-        raise InputError(f"n must be a positive integer, got {n!r}")
-    if n < 1:
-        raise InputError(f"n must be a positive integer, got {n}")
-    if n > MAX_N:
-        raise InputError(f"n must be at most 2^62, got {n}")
-    return int(n)
-
-
-def check_threads(threads: object) -> int | None:
-    """threads as None (all cores) or an int in 1..MAX_THREADS, else InputError."""
-    if threads is None:
-        return None
-    if isinstance(threads, bool) or not isinstance(threads, (int, np.integer)) or not (
-        1 <= threads <= MAX_THREADS
-    ):
-        raise InputError(f"threads must be an integer from 1 to {MAX_THREADS}, got {threads!r}")
-    return int(threads)
 
 
 def listing_bytes(space: StateSpace) -> int:
@@ -145,24 +116,6 @@ def plan_blocks(
     blocks = tuple(tuple(int(p) for p in b) for b in np.array_split(primes, nblocks))
     sizes = tuple(words_one * 8 * len(b) + per_block_fixed for b in blocks)
     return BlockPlan(blocks=blocks, threads=threads, bytes_per_block=sizes, shared_bytes=shared)
-
-
-MAX_PRIME_OFFSET = 2000
-"""Largest --prime-offset: the primes below 2**62 are found by a sieve-free downward search,
-about 21 Miller-Rabin tests per prime (2000 primes: about 0.4 s per search, repeated
-once per prime the run adds); far larger offsets would run for minutes before any work."""
-
-
-def check_prime_offset(prime_offset: object) -> int:
-    """prime_offset as an int in 0..MAX_PRIME_OFFSET, else InputError."""
-    if isinstance(prime_offset, bool) or not isinstance(prime_offset, (int, np.integer)) or not (
-        0 <= prime_offset <= MAX_PRIME_OFFSET
-    ):
-        raise InputError(
-            f"the prime offset must be an integer from 0 to {MAX_PRIME_OFFSET:,}, "
-            f"got {prime_offset!r}"
-        )
-    return int(prime_offset)
 
 
 def count_space(spec, limit: int) -> StateSpace:  # noqa: ANN001 - a GameSpec
