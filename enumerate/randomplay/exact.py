@@ -67,12 +67,13 @@ from __future__ import annotations
 import math
 import os
 from collections import deque
-from collections.abc import Callable, Iterator, Mapping
+from collections.abc import Iterator, Mapping
 from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 from fractions import Fraction
 
 import numpy as np
+from zeckenum.core.blocks import BlockPlan, plan_blocks, run_blocks
 from zeckenum.core.checks import check_model, check_prime_offset, check_random_args, check_threads
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import available_bytes, refuse_if_over, resolve_limit
@@ -800,31 +801,23 @@ def random_space(spec: GameSpec, model: str, limit: int, what: str, exponents: b
     return space
 
 
-def _prime_blocks(
-    allp: list[int], threads: int | None, words_per_prime: int, what: str,
-    most: int | None = None, budget: int | None = None, extra_per_prime: int = 0,
-) -> tuple[list[np.ndarray], int]:
-    """(blocks of primes, threads to run them): as few blocks as the memory allows, of at
-    most `most` primes each (None: no limit but memory).
+def random_block_plan(
+    allp: list[int], threads: int | None, words_per_prime: int, extra_per_prime: int,
+    what: str, most: int | None, budget: int | None,
+) -> BlockPlan:
+    """Random play's plan (`core.blocks.plan_blocks`): as few blocks as the memory allows,
+    of at most `most` primes each (None: no limit but memory).
 
     A block of b primes holds b * (words_per_prime int64 words + `extra_per_prime` bytes)
-    at its peak; `threads` blocks run at once and must fit in `budget` bytes (default: 80%
-    of the memory the machine has available now, i.e. after the first sweep).
-    MemoryRefused when even one prime does not fit.
+    at its peak; up to `threads` blocks run at once, fewer when only fewer fit in `budget`
+    bytes (default: 80% of the memory the machine has available now, i.e. after the first
+    sweep).  MemoryRefused when even one prime does not fit.
     """
-    k = max(1, min(_threads(threads), len(allp)))
     if budget is None:
         budget = int(available_bytes() * 0.8)
-    per_prime = max(1, words_per_prime) * 8 + extra_per_prime
-    refuse_if_over(per_prime, budget, what)
-    k = min(k, budget // per_prime)
-    size = max(1, min(math.ceil(len(allp) / k), budget // (k * per_prime)))
-    if most is not None:
-        size = min(size, most)
-    nblocks = math.ceil(len(allp) / size)
-    nblocks = k * math.ceil(nblocks / k)
-    blocks = [np.array(b, dtype=np.int64) for b in np.array_split(np.array(allp), nblocks)]
-    return [b for b in blocks if b.size], k
+    return plan_blocks(allp, _threads(threads), per_block=most,
+                       prime_bytes=max(1, words_per_prime) * 8 + extra_per_prime,
+                       limit=budget, what=what, fewer_threads=True)
 
 
 def law_words_per_prime(skel: Skeleton) -> int:
@@ -915,16 +908,6 @@ def random_win_residues(skel: Skeleton, primes: np.ndarray | list[int], unit: bo
     return np.ascontiguousarray(out.T)
 
 
-def _run_blocks(
-    blocks: list[np.ndarray], fn: Callable[[np.ndarray], np.ndarray], threads: int
-) -> list[np.ndarray]:
-    """fn(block) for every prime block, `threads` blocks at a time, in block order."""
-    if len(blocks) == 1 or threads == 1:
-        return [fn(b) for b in blocks]
-    with ThreadPoolExecutor(threads) as pool:
-        return list(pool.map(fn, blocks))
-
-
 def random_residues(
     space: StateSpace, skel: Skeleton, model: str, players: int, winners_only: bool,
     prime_offset: int = 0, threads: int | None = None, max_memory: int | None = None,
@@ -953,20 +936,19 @@ def random_residues(
     # per prime besides the ring: the inverse table column and the output row
     extra = 8 * (max(skel.max_weight, 1) + 1) + 8 * (skel.longest + 1 + players)
     if winners_only:
-        words = win_words_per_prime(skel, players)
-        blocks, k = _prime_blocks(allp, threads, words,
-                                  f"the exact win probabilities at n={space.spec.n}",
-                                  budget=budget, extra_per_prime=extra)
-        outs = _run_blocks(blocks, lambda b: random_win_residues(skel, b, unit, players), k)
+        plan = random_block_plan(allp, threads, win_words_per_prime(skel, players), extra,
+                                 f"the exact win probabilities at n={space.spec.n}",
+                                 None, budget)
+        outs = run_blocks(plan.blocks,
+                          lambda b: random_win_residues(skel, b, unit, players), plan.threads)
     else:
-        words = law_words_per_prime(skel)
-        blocks, k = _prime_blocks(allp, threads, words,
-                                  f"the exact length law at n={space.spec.n}",
-                                  LAW_PRIMES_PER_BLOCK, budget=budget, extra_per_prime=extra)
-        outs = _run_blocks(blocks, lambda b: random_law_residues(skel, b, unit), k)
+        plan = random_block_plan(allp, threads, law_words_per_prime(skel), extra,
+                                 f"the exact length law at n={space.spec.n}",
+                                 LAW_PRIMES_PER_BLOCK, budget)
+        outs = run_blocks(plan.blocks, lambda b: random_law_residues(skel, b, unit),
+                          plan.threads)
     if planned is not None:
-        biggest = sorted((b.size for b in blocks), reverse=True)[:k]
-        planned.append(sum(biggest) * (words * 8 + extra))
+        planned.append(plan.peak_bytes)
     return np.concatenate(outs, axis=0), primes, check_prime
 
 
@@ -1173,7 +1155,7 @@ def random_play(
     Memory (`max_memory`, default what the machine has available): refused up front by
     `random_space` (rank table, then the first sweep's bound `skeleton_bytes_bound`), then
     the exact sweep's blocks are sized to what is left after the first sweep and refused
-    when one prime does not fit (`_prime_blocks`)."""
+    when one prime does not fit (`random_block_plan`)."""
     import time
 
     check_random_args(n, players, model)
