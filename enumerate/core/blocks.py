@@ -13,7 +13,7 @@ differs only in its numbers:
 * whether too little memory for `threads` blocks of one prime refuses the run
   (`fewer_threads=False`, the count) or runs fewer blocks at once (random play).
 
-Invariants of a plan (`plan_blocks`, and the cluster's shard plans built from
+Invariants of a plan (`block_plan`, and the cluster's shard plans built from
 `block_count` + `split_evenly`): the blocks are consecutive runs of the primes in their
 order, their sizes differ by at most one, there are at most as many blocks as primes, and
 by default their number is a multiple of the threads (or workers) so that they finish
@@ -82,7 +82,7 @@ def split_evenly(primes: Sequence[int], nblocks: int) -> tuple[tuple[int, ...], 
     return tuple(out)
 
 
-def plan_blocks(
+def block_plan(
     primes: Sequence[int], threads: int, *, per_block: int | None, prime_bytes: int,
     limit: int, what: str, block_bytes: int = 0, shared_bytes: int = 0,
     fewer_threads: bool = False,

@@ -9,7 +9,7 @@ The path of one number, from the command line to the kernel and back:
    window of path lengths, and a float estimate of the number of games that fixes how many
    primes the exact sweep needs (`modular.primes_for_bits`, plus one check prime).
 4. The primes are cut into blocks that fit in memory (`count_block_plan`, by the one planner
-   `core.blocks.plan_blocks`); each block is one independent shard,
+   `core.blocks.block_plan`); each block is one independent shard,
    `spectrum.spectrum_residues`, run in threads here (`core.blocks.run_blocks`) or on a
    cluster.
    Its kernel `spectrum.push_residues` adds rows of residues along every move.
@@ -23,7 +23,7 @@ import os
 import time
 
 import numpy as np
-from zeckenum.core.blocks import BlockPlan, plan_blocks, run_blocks
+from zeckenum.core.blocks import BlockPlan, block_plan, run_blocks
 from zeckenum.core.checks import check_n, check_prime_offset, check_threads
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.modular import primes_for_bits, reconstruct
@@ -73,7 +73,7 @@ def count_block_plan(
     space: StateSpace, windows: Windows, primes: list[int], threads: int, limit: int,
     first_bytes: int = 0,
 ) -> BlockPlan:
-    """The count's plan (`core.blocks.plan_blocks`): `primes` cut into blocks so that
+    """The count's plan (`core.blocks.block_plan`): `primes` cut into blocks so that
     `threads` blocks in flight fit under `limit` bytes, else MemoryRefused.
 
     A block of b primes holds b words per (state, length) of the layers in flight, plus
@@ -87,7 +87,7 @@ def count_block_plan(
     per_block_fixed = listing_bytes(space) + largest * 8
     if windows.incoming is not None:
         per_block_fixed = largest * 16
-    return plan_blocks(
+    return block_plan(
         primes, threads, per_block=COUNT_PRIMES_PER_BLOCK,
         prime_bytes=peak_words(space, windows, 1) * 8, block_bytes=per_block_fixed,
         shared_bytes=max(windows_bytes(space, windows), int(first_bytes)), limit=limit,

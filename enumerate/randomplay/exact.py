@@ -73,7 +73,7 @@ from dataclasses import dataclass, field
 from fractions import Fraction
 
 import numpy as np
-from zeckenum.core.blocks import BlockPlan, plan_blocks, run_blocks
+from zeckenum.core.blocks import BlockPlan, block_plan, run_blocks
 from zeckenum.core.checks import check_model, check_prime_offset, check_random_args, check_threads
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import available_bytes, refuse_if_over, resolve_limit
@@ -805,7 +805,7 @@ def random_block_plan(
     allp: list[int], threads: int | None, words_per_prime: int, extra_per_prime: int,
     what: str, most: int | None, budget: int | None,
 ) -> BlockPlan:
-    """Random play's plan (`core.blocks.plan_blocks`): as few blocks as the memory allows,
+    """Random play's plan (`core.blocks.block_plan`): as few blocks as the memory allows,
     of at most `most` primes each (None: no limit but memory).
 
     A block of b primes holds b * (words_per_prime int64 words + `extra_per_prime` bytes)
@@ -815,7 +815,7 @@ def random_block_plan(
     """
     if budget is None:
         budget = int(available_bytes() * 0.8)
-    return plan_blocks(allp, _threads(threads), per_block=most,
+    return block_plan(allp, _threads(threads), per_block=most,
                        prime_bytes=max(1, words_per_prime) * 8 + extra_per_prime,
                        limit=budget, what=what, fewer_threads=True)
 

@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from zeckenum.core.blocks import block_count, plan_blocks, run_blocks, split_evenly
+from zeckenum.core.blocks import block_count, block_plan, run_blocks, split_evenly
 from zeckenum.errors import InputError, MemoryRefused
 
 
@@ -68,9 +68,9 @@ def test_count_plans_are_the_plans_before(nprimes, threads, words, fixed, shared
                   limit=limit, what="the exact sweep")
     if want is None:
         with pytest.raises(MemoryRefused, match=rf"\({nprimes} prime blocks"):
-            plan_blocks(primes, threads, **kwargs)
+            block_plan(primes, threads, **kwargs)
         return
-    plan = plan_blocks(primes, threads, **kwargs)
+    plan = block_plan(primes, threads, **kwargs)
     assert (plan.blocks, plan.threads) == want
     assert plan.peak_bytes <= limit
 
@@ -87,9 +87,9 @@ def test_random_plans_are_the_plans_before(nprimes, threads, words, most, budget
                   what="the exact length law", fewer_threads=True)
     if want is None:
         with pytest.raises(MemoryRefused, match="the exact length law needs"):
-            plan_blocks(primes, threads, **kwargs)
+            block_plan(primes, threads, **kwargs)
         return
-    plan = plan_blocks(primes, threads, **kwargs)
+    plan = block_plan(primes, threads, **kwargs)
     assert (plan.blocks, plan.threads) == want
     assert plan.peak_bytes <= budget
 
