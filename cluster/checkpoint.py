@@ -32,7 +32,7 @@ the field and both values):
   fact (`kinds.ShardKind.fact_keys`) equals the recomputed one, and from then on only the
   recomputed facts are used (columns of a shard, lengths, states, denominator);
 * the primes and the check prime equal the ones the planner derives from the recomputed
-  facts and the prime offset; the blocks are `plan.split_evenly` of exactly those primes
+  facts and the prime offset; the blocks are `core.blocks.split_evenly` of exactly those primes
   into some number of blocks (the planner's split, or an explicitly different blocking
   asked for earlier);
 * every shard entry names its canonical file (`shard-<i>.npy`); any other name (`../x`, an
@@ -61,7 +61,8 @@ from pathlib import Path
 import numpy as np
 from zeckenum import __version__
 from zeckenum.cluster.errors import CheckpointRefused
-from zeckenum.cluster.plan import ShardPlan, split_evenly
+from zeckenum.cluster.plan import ShardPlan
+from zeckenum.core.blocks import split_evenly
 from zeckenum.errors import InputError, OutputError
 from zeckenum.rules.model import RuleSet
 from zeckenum.rules.rulefile import format_rules, rules_from_text

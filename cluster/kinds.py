@@ -31,6 +31,7 @@ from zeckenum.cluster.random_tasks import (
     random_prepare_task,
     random_win_task,
 )
+from zeckenum.core.modular import check_mul_primes, mul_primes_exceeding
 from zeckenum.counting.count import assemble_count
 from zeckenum.counting.result import CountResult
 from zeckenum.randomplay.exact import (
@@ -38,8 +39,6 @@ from zeckenum.randomplay.exact import (
     WIN_PRIMES_PER_BLOCK,
     RandomResult,
     assemble_random,
-    check_random_primes,
-    primes_exceeding,
 )
 from zeckenum.rules.model import RuleSet
 
@@ -131,11 +130,11 @@ def random_plan(
     max_primes_per_block: int | None = None,
 ) -> ShardPlan:
     """The shard plan of exact random play: the primes below 2**50 whose product exceeds
-    the denominator M (`randomplay.primes_exceeding`) plus the check prime, refused outside
-    the proved arithmetic ranges (`randomplay.check_random_primes`), in equal blocks of
+    the denominator M (`core.modular.mul_primes_exceeding`) plus the check prime, refused outside
+    the proved arithmetic ranges (`core.modular.check_mul_primes`), in equal blocks of
     about `randomplay.LAW_PRIMES_PER_BLOCK` (or `WIN_PRIMES_PER_BLOCK`) primes."""
-    primes, check = primes_exceeding(int(facts.denominator), prime_offset)
-    check_random_primes([*primes, check], facts.max_indegree, facts.weight_bound)
+    primes, check = mul_primes_exceeding(int(facts.denominator), prime_offset)
+    check_mul_primes([*primes, check], facts.max_indegree, facts.weight_bound)
     per_block = WIN_PRIMES_PER_BLOCK if facts.winners_only else LAW_PRIMES_PER_BLOCK
     return plan_from_primes(facts, prime_offset, primes, check, workers, blocks,
                             max_primes_per_block, per_block)

@@ -1,24 +1,24 @@
 """Shard plans: which primes a sharded run uses and how they are cut into blocks.
 
 Every prime costs the same work (the exact sweep does the same word updates per prime), so
-blocks of equal size balance.  The default aims at `count.PRIMES_PER_BLOCK` primes per
+blocks of equal size balance.  The default aims at `count.COUNT_PRIMES_PER_BLOCK` primes per
 block and rounds the number of blocks up to a multiple of the workers, so that every
 worker gets the same share; `blocks=` or `max_primes_per_block=` override it (tests use
 them to get several shards at small n).  A count takes primes below 2**62 for its size
 bound (`make_plan`); random play takes primes below 2**50 whose product exceeds its
-denominator (`zeckenum.randomplay.exact.primes_exceeding`); both are cut by `plan_from_primes`.
+denominator (`zeckenum.core.modular.mul_primes_exceeding`); both are cut by `plan_from_primes`
+with the one planner's `core.blocks.block_count` and `split_evenly`.
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 from zeckenum.cluster.count_tasks import Facts
 from zeckenum.cluster.random_tasks import RandomFacts
+from zeckenum.core.blocks import block_count, split_evenly
 from zeckenum.core.modular import primes_for_bits
-from zeckenum.counting.count import PRIMES_PER_BLOCK
-from zeckenum.errors import InputError
+from zeckenum.counting.count import COUNT_PRIMES_PER_BLOCK
 
 
 @dataclass(frozen=True)
@@ -65,37 +65,6 @@ class ShardPlan:
         )
 
 
-def block_count(
-    nprimes: int, workers: int = 1, blocks: int | None = None,
-    max_primes_per_block: int | None = None, per_block: int = PRIMES_PER_BLOCK,
-) -> int:
-    """How many blocks `nprimes` primes are cut into (1 .. nprimes): `blocks`, or enough
-    for `max_primes_per_block`, or by default about `per_block` primes each in a multiple
-    of the workers."""
-    if blocks is not None:
-        if blocks < 1:
-            raise InputError(f"blocks must be >= 1, got {blocks}")
-        return min(nprimes, blocks)
-    if max_primes_per_block is not None:
-        if max_primes_per_block < 1:
-            raise InputError(f"max primes per block must be >= 1, got {max_primes_per_block}")
-        return min(nprimes, math.ceil(nprimes / max_primes_per_block))
-    workers = max(1, workers)
-    k = math.ceil(nprimes / per_block)
-    return min(nprimes, workers * math.ceil(k / workers))
-
-
-def split_evenly(primes: tuple[int, ...], nblocks: int) -> tuple[tuple[int, ...], ...]:
-    """`primes` cut into `nblocks` consecutive blocks whose sizes differ by at most one."""
-    base, extra = divmod(len(primes), nblocks)
-    out, i = [], 0
-    for b in range(nblocks):
-        size = base + (1 if b < extra else 0)
-        out.append(tuple(primes[i : i + size]))
-        i += size
-    return tuple(out)
-
-
 def make_plan(
     facts: Facts, prime_offset: int = 0, workers: int = 1, blocks: int | None = None,
     max_primes_per_block: int | None = None,
@@ -110,12 +79,12 @@ def make_plan(
 def plan_from_primes(
     facts: Facts | RandomFacts, prime_offset: int, primes: list[int], check_prime: int,
     workers: int = 1, blocks: int | None = None, max_primes_per_block: int | None = None,
-    per_block: int = PRIMES_PER_BLOCK,
+    per_block: int = COUNT_PRIMES_PER_BLOCK,
 ) -> ShardPlan:
     """The shard plan of any kind of run: `primes` + [check_prime] cut into equal blocks
     (`block_count`, `split_evenly`); `facts` names the game (rules, rules_hash, n)."""
     allp = (*primes, check_prime)
-    nblocks = block_count(len(allp), workers, blocks, max_primes_per_block, per_block)
+    nblocks = block_count(len(allp), workers, per_block, blocks, max_primes_per_block)
     return ShardPlan(
         rules=facts.rules,
         rules_hash=facts.rules_hash,

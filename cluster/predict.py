@@ -10,7 +10,7 @@ count   (`predict_count`)  Exact: the states of the state space (`StateSpace.tot
         updates per second of a probe count (`probe_rate`, one thread, in-process).
 random  (`predict_random`)  Exact: random play's first sweep (`random_tasks.random_prepare_task`,
         the task that plans the sharded run): reachable states, transitions, the denominator M,
-        the primes (`randomplay.primes_exceeding` on M, plus the check prime), the shard plan
+        the primes (`core.modular.mul_primes_exceeding` on M, plus the check prime), the shard plan
         of the random kind (`kinds.random_plan`, the driver's own planner) and the word updates
         per prime (`RandomFacts.updates_one`).  Rate: word updates per second of the same
         shard task on a probe game (`probe_random_rate`, one thread).
@@ -37,13 +37,14 @@ from zeckenum.cluster.kinds import random_kind
 from zeckenum.cluster.plan import ShardPlan, make_plan, worker_bytes
 from zeckenum.cluster.random_tasks import RandomFacts
 from zeckenum.cluster.solve_chain import plan_ranges
+from zeckenum.core.checks import check_n, check_players, check_random_args
 from zeckenum.core.memory import human, resolve_limit
+from zeckenum.core.modular import mul_primes
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.text import plural
-from zeckenum.counting.count import check_n, count, refuse_count
+from zeckenum.counting.count import count, refuse_count
 from zeckenum.errors import InputError
 from zeckenum.optimal.solve import (
-    check_players,
     layer_bytes,
     needs_reach,
     solve,
@@ -51,7 +52,7 @@ from zeckenum.optimal.solve import (
     solve_space,
     sweep_reach,
 )
-from zeckenum.randomplay.exact import refuse_random, validate, word_primes
+from zeckenum.randomplay.exact import refuse_random
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
 
@@ -197,7 +198,7 @@ def probe_random_rate(
     kind = random_kind(ruleset, model, players, winners_only)
     t0 = time.perf_counter()
     kind.prepare_task(ruleset, probe_n, *kind.prepare_args)
-    block = word_primes(max(1, block_primes))
+    block = mul_primes(max(1, block_primes))
     updates, spent, repeats = 0, 0.0, 0
     while repeats < PROBE_MAX_REPEATS and (repeats == 0 or spent < PROBE_MIN_SECONDS):
         t1 = time.perf_counter()
@@ -227,7 +228,7 @@ def predict_random(
     workers (`workers=K`) or K threads in-process (`threads=K`): the driver plans both alike.
     The first sweeps of n and of the probe are refused up front against `max_memory`.
     """
-    validate(n, players, model)
+    check_random_args(n, players, model)
     _check_workers(workers)
     check_probe(probe_n or PROBE_RANDOM_N)
     ruleset = get_rules(rules)
@@ -237,7 +238,7 @@ def predict_random(
     kind = random_kind(ruleset, model, players, bool(winners_only))
     # compile / load the kernels outside every measurement
     kind.prepare_task(ruleset, 5, *kind.prepare_args)
-    kind.shard_task(ruleset, 5, *kind.shard_args, word_primes(1))
+    kind.shard_task(ruleset, 5, *kind.shard_args, mul_primes(1))
     facts: RandomFacts = kind.prepare_task(ruleset, n, *kind.prepare_args)
     plan = kind.plan(facts, 0, workers, blocks, None)
     biggest = max(len(b) for b in plan.blocks)

@@ -28,11 +28,11 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 from zeckenum.cluster.count_tasks import worker_address
+from zeckenum.core.checks import check_model
+from zeckenum.core.modular import check_mul_primes
 from zeckenum.core.statespace import build_space
 from zeckenum.randomplay.exact import (
     Skeleton,
-    check_model,
-    check_random_primes,
     first_sweep,
     law_words_per_prime,
     random_law_residues,
@@ -55,7 +55,7 @@ class RandomFacts:
     denominator   M, the common denominator of every probability, as a decimal string
                   (it exceeds 2**64); the primes' product must exceed it
     max_indegree  most moves into one state; weight_bound: largest D(s) to invert (both
-                  bound the primes, `randomplay.check_random_primes`)
+                  bound the primes, `core.modular.check_mul_primes`)
     columns       residues per prime of one shard: longest + 1 (law) or players (winners)
     words_one     int64 words one prime of a block holds at its peak (buffer ring, output
                   and inverse table)
@@ -196,7 +196,7 @@ def random_prepare_task(
 def _block(skel_entry: _Swept, primes_block: tuple[int, ...] | list[int]) -> np.ndarray:
     """The block as int64 primes, refused outside the proved arithmetic ranges."""
     block = [int(p) for p in primes_block]
-    check_random_primes(block, skel_entry.skel.max_indegree, skel_entry.weight_bound)
+    check_mul_primes(block, skel_entry.skel.max_indegree, skel_entry.weight_bound)
     return np.asarray(block, dtype=np.int64)
 
 

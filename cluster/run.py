@@ -70,11 +70,12 @@ from zeckenum.cluster.backend import (
 from zeckenum.cluster.count_tasks import Facts
 from zeckenum.cluster.kinds import ShardKind, assemble_count_shards, count_kind, random_kind
 from zeckenum.cluster.plan import ShardPlan, worker_bytes
+from zeckenum.core.checks import check_n, check_random_args
 from zeckenum.core.memory import available_bytes, refuse_if_over
-from zeckenum.counting.count import check_n, refuse_count
+from zeckenum.counting.count import refuse_count
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import InputError
-from zeckenum.randomplay.exact import RandomResult, refuse_random, validate
+from zeckenum.randomplay.exact import RandomResult, refuse_random
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
 from zeckenum.safeio import check_output_dir
@@ -461,7 +462,7 @@ def random_on_pool(
     on_shard(n, i)  called after shard i is stored (and checkpointed)
     stall_timeout   see `shards_on_pool`
     """
-    validate(n, players, model)
+    check_random_args(n, players, model)
     kind = random_kind(get_rules(rules), model, players, bool(winners_only))
     return shards_on_pool(
         kind, [n], pool, prime_offset=prime_offset, checkpoint_dir=checkpoint_dir,
@@ -582,7 +583,7 @@ def run_random(
     word updates, terminal states and the denominator's bits.  stall_timeout: as
     `run_counts`.
     """
-    validate(n, players, model)
+    check_random_args(n, players, model)
     if prime_offset < 0:  # refused before a cluster starts
         raise InputError(f"prime offset must be >= 0, got {prime_offset}")
     # the first sweep's forecast, before any worker starts or any folder is made

@@ -63,12 +63,11 @@ from zeckenum.cluster.checkpoint import (
     write_or_stop,
 )
 from zeckenum.cluster.errors import CheckpointRefused
+from zeckenum.core.checks import check_n, check_players
 from zeckenum.core.statespace import StateSpace, build_space
-from zeckenum.counting.count import check_n
 from zeckenum.errors import InputError
 from zeckenum.optimal.solve import (
     SolveResult,
-    check_players,
     needs_reach,
     solve_result,
     sweep_classes,

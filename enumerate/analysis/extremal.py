@@ -22,10 +22,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from zeckenum.core.checks import check_n
 from zeckenum.core.statespace import StateSpace
 from zeckenum.core.sweep import Windows, sweep_windows
 from zeckenum.core.text import plural
-from zeckenum.counting.count import check_n
 from zeckenum.errors import InputError
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import STANDARD, GameSpec, RuleSet

@@ -33,12 +33,12 @@ from fractions import Fraction
 from math import comb
 
 import numpy as np
+from zeckenum.core.checks import check_model, check_n
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.statespace import build_space, refuse_space, states_upper_bound
 from zeckenum.core.sweep import length_bound
-from zeckenum.counting.count import check_n
 from zeckenum.errors import InputError
-from zeckenum.randomplay.exact import check_model, max_weight_bound
+from zeckenum.randomplay.exact import max_weight_bound
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import GameSpec, RuleSet
 

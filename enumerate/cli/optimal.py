@@ -24,9 +24,10 @@ from zeckenum.cli.options import (
     resolve_progress,
     scheduler_option,
 )
+from zeckenum.core.checks import SOLVE_MAX_PLAYERS
 from zeckenum.core.text import plural
 from zeckenum.errors import InputError, OutputError
-from zeckenum.optimal.solve import MAX_PLAYERS, SolveResult, solve, winning_strategy
+from zeckenum.optimal.solve import SolveResult, solve, winning_strategy
 from zeckenum.optimal.strategy import check_strategy, read_strategy, write_strategy
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.safeio import check_output_file
@@ -73,9 +74,9 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
 @click.argument("n", type=PositiveInt())
 @click.option("--rules", "rules_name", default="standard", show_default=True,
               help="Rule set: a built-in name or a .toml rule file.")
-@click.option("--players", type=bounded(2, MAX_PLAYERS), default=2, show_default=True,
-              help=f"Number of players (2..{MAX_PLAYERS}); with 3 or more, each player against "
-                   "the coalition of all others.")
+@click.option("--players", type=bounded(2, SOLVE_MAX_PLAYERS), default=2, show_default=True,
+              help=f"Number of players (2..{SOLVE_MAX_PLAYERS}); with 3 or more, each player "
+                   "against the coalition of all others.")
 @click.option("--strategy", "strategy_path", type=click.Path(dir_okay=False), default=None,
               help="Write a winning strategy for the winner to this file (two players; "
                    "gzip-compressed when the name ends in .gz).")

@@ -13,8 +13,8 @@ from collections.abc import Callable
 from typing import Any
 
 import click
+from zeckenum.core.checks import MAX_N, MAX_PRIME_OFFSET, MAX_THREADS
 from zeckenum.core.memory import parse_size
-from zeckenum.counting.count import MAX_N, MAX_PRIME_OFFSET, MAX_THREADS
 from zeckenum.errors import ZeckenumError
 
 MAX_WORKERS = 4096

@@ -23,9 +23,10 @@ from zeckenum.cli.options import (
     resolve_progress,
     scheduler_option,
 )
+from zeckenum.core.checks import RANDOM_MAX_PLAYERS, RANDOM_MODELS
 from zeckenum.core.text import DIGITS, decimal, plural
 from zeckenum.errors import InputError, ZeckenumError
-from zeckenum.randomplay.exact import MAX_PLAYERS, MODELS, frac_str
+from zeckenum.randomplay.exact import frac_str
 from zeckenum.randomplay.simulate import MAX_GAMES
 
 CONVENTION = "a game with no move (n = 1) counts as a win for player P (the last player)"
@@ -150,9 +151,9 @@ def _refuse_sharding(sharded: dict, mode: str) -> None:
 
 @click.command("random", cls=OneLineCommand)
 @click.argument("n", type=PositiveInt(), required=False)
-@click.option("--players", "-p", type=bounded(2, MAX_PLAYERS), default=2, show_default=True,
-              help=f"Number of players P (2..{MAX_PLAYERS}).")
-@click.option("--model", type=click.Choice(MODELS), default="moves", show_default=True,
+@click.option("--players", "-p", type=bounded(2, RANDOM_MAX_PLAYERS), default=2, show_default=True,
+              help=f"Number of players P (2..{RANDOM_MAX_PLAYERS}).")
+@click.option("--model", type=click.Choice(RANDOM_MODELS), default="moves", show_default=True,
               help="moves: uniform over legal moves; pairs: uniform over movable token pairs.")
 @click.option("--rules", default="standard", show_default=True, help="Rule set name.")
 @click.option("--winners-only", is_flag=True,

@@ -21,10 +21,9 @@ from zeckenum.cli.options import (
     resolve_progress,
     scheduler_option,
 )
+from zeckenum.core.checks import RANDOM_MAX_PLAYERS, RANDOM_MODELS, SOLVE_MAX_PLAYERS
 from zeckenum.core.text import plural
 from zeckenum.errors import InputError, ZeckenumError
-from zeckenum.optimal.solve import MAX_PLAYERS as SOLVE_MAX_PLAYERS
-from zeckenum.randomplay.exact import MAX_PLAYERS, MODELS
 
 # No import from `cli` at module level: `cli` imports this module to register the commands.
 PROBE = bounded(20, 400)
@@ -191,10 +190,10 @@ def plan_count_command(n, workers, rules, probe_n, as_json, max_memory):  # noqa
 
 @plan_command.command("random", cls=OneLineCommand)
 @click.argument("n", type=POSITIVE)
-@click.option("--model", type=click.Choice(MODELS), default="moves", show_default=True,
+@click.option("--model", type=click.Choice(RANDOM_MODELS), default="moves", show_default=True,
               help="Random model: uniform over legal moves, or over token pairs.")
-@click.option("--players", "-p", type=bounded(2, MAX_PLAYERS), default=2, show_default=True,
-              help=f"Number of players P (2..{MAX_PLAYERS}).")
+@click.option("--players", "-p", type=bounded(2, RANDOM_MAX_PLAYERS), default=2, show_default=True,
+              help=f"Number of players P (2..{RANDOM_MAX_PLAYERS}).")
 @click.option("--winners-only", is_flag=True,
               help="Forecast the win probabilities only (no length law).")
 @click.option("--workers", type=WORKERS, default=1, show_default=True,

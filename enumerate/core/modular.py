@@ -1,20 +1,38 @@
-"""Exact integers of any size from word-size residues: primes, plans and the CRT.
+"""Exact integers of any size from word-size residues: two prime families, one CRT.
 
-Counts of games are computed modulo several primes just below 2**62 (int64 lanes: a sum of
-two residues stays below 2**63, so a modular add is add, compare, subtract, and vectorises).
-The primes' product must exceed every count, which the first sweep bounds a priori; one
-extra prime, never used in the reconstruction, checks it.  Python integers appear only
-here, after the kernels are done, once per reconstructed number.
+Two families of word-size primes, each with the arithmetic its kernels need:
+
+* Add primes, just below PRIME_CEILING = 2**62 (`primes_below_ceiling`, `primes_for_bits`):
+  counts of games only add residues (int64 lanes: a sum of two residues stays below 2**63,
+  so a modular add is add, compare, subtract, and vectorises).  Used by the count.
+* Mul primes, between MUL_PRIME_FLOOR = 2**13 and MUL_PRIME_CEILING = 2**50 (`mul_primes`,
+  `mul_primes_exceeding`): random play also multiplies residues, by move weights and by
+  inverses of total weights (`inverse_table`).  Products use a float64 estimate of the
+  quotient and an exact wrapping remainder (`mulmod`); a row accumulates up to 2**62 before
+  one reduction (`reduce62`); `check_mul_primes` refuses primes outside these proved ranges.
+
+In both, the primes' product must exceed every value, which the first sweep bounds a
+priori; one extra prime, never used in the reconstruction, checks it.  The one CRT is
+`crt` (Garner); `reconstruct` rebuilds integers and `reconstruct_fractions` probabilities
+N / M with a known denominator M, both checked against the check prime
+(CheckPrimeMismatch).  Python integers appear only there, after the kernels are done, once
+per reconstructed number.
 """
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
+from fractions import Fraction
 from functools import lru_cache
 
-from zeckenum.errors import CheckPrimeMismatch
+import numpy as np
+from zeckenum.core.jit import kernel
+from zeckenum.errors import CheckPrimeMismatch, InputError
 
-PRIME_CEILING = 2**62
+PRIME_CEILING = 2**62  # every add prime lies below it
+MUL_PRIME_CEILING = 2**50  # every mul prime lies below it (see `mulmod`)
+MUL_PRIME_FLOOR = 2**13  # and above it (see `reduce62`)
 # Miller-Rabin with these bases is deterministic for every n < 3.3 * 10**24 (common practice).
 _MR_BASES = (2, 3, 5, 7, 11, 13, 17, 19, 23, 29, 31, 37, 41)
 
@@ -77,6 +95,46 @@ def primes_for_bits(bits: int, offset: int = 0) -> tuple[list[int], int]:
         count += 1
 
 
+def mul_primes(count: int, offset: int = 0) -> list[int]:
+    """The primes number offset .. offset+count-1 counted downward from MUL_PRIME_CEILING."""
+    return list(descending_primes(MUL_PRIME_CEILING, offset + count)[offset:])
+
+
+def mul_primes_exceeding(bound: int, offset: int = 0) -> tuple[list[int], int]:
+    """(mul primes below MUL_PRIME_CEILING whose product exceeds `bound`, one extra check prime)."""
+    need = max(1, math.ceil((bound.bit_length() + 1) / 49.99))
+    while True:
+        ps = mul_primes(need + 1, offset)
+        prod = math.prod(ps[:need])
+        if prod > bound:
+            return ps[:need], ps[need]
+        need += 1
+
+
+def small_primes_upto(m: int) -> np.ndarray:
+    """All primes <= m (int64, ascending; sieve of Eratosthenes)."""
+    if m < 2:
+        return np.zeros(0, dtype=np.int64)
+    sieve = np.ones(m + 1, dtype=bool)
+    sieve[:2] = False
+    for p in range(2, math.isqrt(m) + 1):
+        if sieve[p]:
+            sieve[p * p :: p] = False
+    return np.nonzero(sieve)[0].astype(np.int64)
+
+
+def check_mul_primes(primes: list[int], max_indegree: int, max_weight: int) -> None:
+    """Refuse residue primes outside the proved ranges of `mulmod` and `reduce62` (see their
+    docstrings), for a game with at most `max_indegree` moves into one state and
+    total move weights at most `max_weight` (random play: `randomplay.exact.weight_bound`)."""
+    if max(primes) >= MUL_PRIME_CEILING or min(primes) <= MUL_PRIME_FLOOR:
+        raise InputError("residue primes must lie between 2**13 and 2**50")
+    if (max_indegree + 1) * max(primes) >= 2**62:
+        raise InputError("too many moves into one state for the exact sweep's accumulation")
+    if max_weight >= min(primes):
+        raise InputError("move weights too large for the exact random sweep")
+
+
 def crt(residues: Sequence[int], moduli: Sequence[int]) -> int:
     """The unique x in [0, prod(moduli)) with x = residues[i] mod moduli[i] (Garner's method)."""
     x = 0
@@ -108,3 +166,114 @@ def reconstruct(
             )
         out.append(x)
     return out
+
+
+def reconstruct_fractions(
+    residues: Sequence[Sequence[int]], primes: Sequence[int], check_prime: int,
+    check_residues: Sequence[int], denominator: int, what: str = "probability",
+) -> list[Fraction]:
+    """Probabilities N / M with M = `denominator` from residues[i][q] = P * M^-1 mod primes[q].
+
+    Each row times M mod its prime gives N = P * M mod that prime; `reconstruct` rebuilds N
+    and checks it (and the check prime's residue, also times M) against the check prime.
+    CheckPrimeMismatch also when some N exceeds M or the N do not sum to M (the rows are
+    the probabilities of a complete law).
+    """
+    m = denominator
+    rows = [[int(x) * (m % p) % p for x, p in zip(row, primes, strict=True)]
+            for row in residues]
+    check = [int(c) * (m % check_prime) % check_prime for c in check_residues]
+    nums = reconstruct(rows, primes, check_prime, check, what)
+    out = []
+    for i, num in enumerate(nums):
+        if num > m:
+            raise CheckPrimeMismatch(f"rebuilt {what} #{i} exceeds 1: residues are wrong")
+        out.append(Fraction(num, m))
+    if sum(f.numerator * (m // f.denominator) for f in out) != m:
+        raise CheckPrimeMismatch(f"rebuilt {what} probabilities do not sum to 1")
+    return out
+
+
+# ----------------------------------------------------------------------------- mul arithmetic
+
+
+def inverse_table(primes: list[int] | np.ndarray, dmax: int) -> np.ndarray:
+    """inv[d, q] = d**-1 mod primes[q] for 1 <= d <= dmax (inv[0, q] = 0), int64.
+
+    Requires dmax < min(primes)."""
+    ps = np.asarray(primes, dtype=np.int64)
+    inv = np.zeros((dmax + 1, ps.size), dtype=np.int64)
+    for qi in range(ps.size):
+        col = np.zeros(dmax + 1, dtype=np.int64)
+        _fill_inverses(col, int(ps[qi]), dmax)
+        inv[:, qi] = col
+    return inv
+
+
+@kernel
+def _fill_inverses(row: np.ndarray, p: int, dmax: int) -> None:
+    """row[d] = d**-1 mod p by inv(d) = -(p // d) * inv(p mod d) (valid for d < p)."""
+    pinv = 1.0 / p
+    if dmax >= 1:
+        row[1] = 1
+    for d in range(2, dmax + 1):
+        x = mulmod(p // d, row[p % d], p, pinv)
+        row[d] = p - x if x else 0
+
+
+@kernel(inline=True)
+def mulmod(a: int, b: int, p: int, pinv: float) -> int:
+    """a * b mod p for 0 <= a, b < p < 2**50, with pinv = fl(1 / p).
+
+    Proof.  With u = 2**-53, float(a) and float(b) are exact (< 2**53) and
+    y = fl(fl(a * b) * pinv) = (a b / p)(1 + e1)(1 + e2)(1 + e3), |ei| <= u, so
+    |y - a b / p| <= (a b / p)((1 + u)**3 - 1) < p * 3.0001 u < 2**50 * 3.0001 * 2**-53 < 0.38.
+    Hence q = trunc(y) = floor(y) (y >= 0) is floor(a b / p) + {-1, 0, 1} and the true
+    remainder r = a b - q p lies in [-p, 2p), inside (-2**63, 2**63).  It is computed in
+    uint64, whose multiplication and subtraction wrap (are exact mod 2**64), so reading the
+    result as int64 gives r exactly; one conditional add and one conditional subtract of p
+    bring it into [0, p).  (Signed int64 products are avoided: numba marks them `nsw`,
+    which makes an overflow undefined.)
+    """
+    q = np.int64(float(a) * float(b) * pinv)
+    r = np.int64(np.uint64(a) * np.uint64(b) - np.uint64(q) * np.uint64(p))
+    if r < 0:
+        r += p
+    if r >= p:
+        r -= p
+    return r
+
+
+@kernel(inline=True)
+def reduce62(x: int, p: int, pinv: float) -> int:
+    """x mod p for 0 <= x < 2**62 and 2**13 < p < 2**50, with pinv = fl(1 / p).
+
+    Proof.  y = fl(float(x) * pinv) = (x / p)(1 + e), |e| <= 3.0001 u; x / p < 2**49, so
+    |y - x / p| < 0.38 and q = trunc(y) = floor(x / p) + {-1, 0, 1}.  Then
+    0 <= q p <= x + p < 2**63, and r = x - q p in [-p, 2p) is exact in int64.
+    """
+    q = np.int64(float(x) * pinv)
+    r = x - q * p
+    if r < 0:
+        r += p
+    if r >= p:
+        r -= p
+    return r
+
+
+@kernel
+def finish_row(row: np.ndarray, primes: np.ndarray, pinv: np.ndarray, iv: np.ndarray) -> None:
+    """row[q] = (row[q] mod primes[q]) * iv[q] mod primes[q], for 0 <= row[q] < 2**62.
+
+    A separate small loop, so that LLVM vectorises it (AVX-512 has the int64 <-> float64
+    conversions and the int64 products it needs)."""
+    for q in range(row.size):
+        row[q] = mulmod(reduce62(row[q], primes[q], pinv[q]), iv[q], primes[q], pinv[q])
+
+
+@kernel
+def add_row_mod(acc: np.ndarray, row: np.ndarray, primes: np.ndarray, pinv: np.ndarray) -> None:
+    """acc[q] = (acc[q] + row[q]) mod primes[q] for 0 <= acc[q] < primes[q], row[q] < 2**62."""
+    for q in range(row.size):
+        x = reduce62(row[q], primes[q], pinv[q]) + acc[q]
+        acc[q] = x - primes[q] if x >= primes[q] else x

@@ -8,8 +8,10 @@ The path of one number, from the command line to the kernel and back:
 3. `windows.sweep_windows` walks the layers once: reachable states, moves, each state's
    window of path lengths, and a float estimate of the number of games that fixes how many
    primes the exact sweep needs (`modular.primes_for_bits`, plus one check prime).
-4. The primes are cut into blocks (`plan_blocks`) that fit in memory; each block is one
-   independent shard, `spectrum.spectrum_residues`, run in threads here or on a cluster.
+4. The primes are cut into blocks that fit in memory (`count_block_plan`, by the one planner
+   `core.blocks.block_plan`); each block is one independent shard,
+   `spectrum.spectrum_residues`, run in threads here (`core.blocks.run_blocks`) or on a
+   cluster.
    Its kernel `spectrum.push_residues` adds rows of residues along every move.
 5. `modular.reconstruct` rebuilds each length's count by the CRT and checks it against the
    check prime; the `results.CountResult` goes back to the CLI or the notebook.
@@ -17,51 +19,20 @@ The path of one number, from the command line to the kernel and back:
 
 from __future__ import annotations
 
-import math
 import os
 import time
-from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass
 
 import numpy as np
+from zeckenum.core.blocks import BlockPlan, block_plan, run_blocks
+from zeckenum.core.checks import check_n, check_prime_offset, check_threads
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.modular import primes_for_bits, reconstruct
 from zeckenum.core.statespace import StateSpace, build_space, refuse_space
 from zeckenum.core.sweep import Windows, incoming_bytes_estimate, sweep_windows
 from zeckenum.counting.result import CountResult
 from zeckenum.counting.spectrum import peak_words, spectrum_residues
-from zeckenum.errors import InputError
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
-
-MAX_N = 2**62
-"""Largest n any command accepts: counts of bins stay int64.  Far below it every run is
-refused by its memory forecast (the rank table alone holds more than 8 n^2 bytes)."""
-
-MAX_THREADS = 4096
-"""Most threads a run accepts (each may hold a layer in flight)."""
-
-
-def check_n(n: object) -> int:
-    """n as a positive int no larger than MAX_N, or InputError."""
-    if isinstance(n, bool) or not isinstance(n, (int, np.integer)):
-        raise InputError(f"n must be a positive integer, got {n!r}")
-    if n < 1:
-        raise InputError(f"n must be a positive integer, got {n}")
-    if n > MAX_N:
-        raise InputError(f"n must be at most 2^62, got {n}")
-    return int(n)
-
-
-def check_threads(threads: object) -> int | None:
-    """threads as None (all cores) or an int in 1..MAX_THREADS, else InputError."""
-    if threads is None:
-        return None
-    if isinstance(threads, bool) or not isinstance(threads, (int, np.integer)) or not (
-        1 <= threads <= MAX_THREADS
-    ):
-        raise InputError(f"threads must be an integer from 1 to {MAX_THREADS}, got {threads!r}")
-    return int(threads)
 
 
 def listing_bytes(space: StateSpace) -> int:
@@ -86,22 +57,7 @@ def windows_pass_bytes(space: StateSpace, threads: int = 1) -> int:
     return int(space.tab.nbytes) + 8 * space.total_states() + in_flight
 
 
-@dataclass(frozen=True)
-class BlockPlan:
-    """How the primes of one exact sweep are cut into shards and run."""
-
-    blocks: tuple[tuple[int, ...], ...]
-    threads: int
-    bytes_per_block: tuple[int, ...]
-    shared_bytes: int = 0
-
-    @property
-    def peak_bytes(self) -> int:
-        """Bytes of the blocks running at once plus the move lists they share."""
-        return self.shared_bytes + sum(sorted(self.bytes_per_block, reverse=True)[: self.threads])
-
-
-PRIMES_PER_BLOCK = 4
+COUNT_PRIMES_PER_BLOCK = 4
 """Target primes per block: long enough rows to amortise each move's bookkeeping, small
 enough that the layers in flight of `threads` blocks stay a fraction of the memory."""
 
@@ -114,56 +70,30 @@ def windows_bytes(space: StateSpace, windows: Windows) -> int:
     return int(space.tab.nbytes) + sum(int(a.nbytes) for a in arrays) + kept
 
 
-def plan_blocks(
+def count_block_plan(
     space: StateSpace, windows: Windows, primes: list[int], threads: int, limit: int,
     first_bytes: int = 0,
 ) -> BlockPlan:
-    """Cut `primes` into blocks so that `threads` blocks in flight fit under `limit` bytes.
+    """The count's plan (`core.blocks.block_plan`): `primes` cut into blocks so that
+    `threads` blocks in flight fit under `limit` bytes, else MemoryRefused.
 
-    A block of b primes holds b words per (state, length) of the layers in flight.  Blocks
-    aim at PRIMES_PER_BLOCK primes, come in a multiple of `threads` so the threads finish
-    together, and shrink (down to one prime) until `threads` of them fit the limit; what
-    the first sweep left (`windows_bytes`: rank table, windows, kept moves) is shared by
-    all blocks and counted once, or `first_bytes` (the first sweep's forecast peak) when
-    larger: the allocator may keep what the first sweep touched.
+    A block of b primes holds b words per (state, length) of the layers in flight, plus
+    fixed buffers of the largest layer.  Blocks aim at COUNT_PRIMES_PER_BLOCK primes and
+    shrink (down to one prime) until `threads` of them fit the limit; what the first sweep
+    left (`windows_bytes`: rank table, windows, kept moves) is shared by all blocks and
+    counted once, or `first_bytes` (the first sweep's forecast peak) when larger: the
+    allocator may keep what the first sweep touched.
     """
-    words_one = peak_words(space, windows, 1)
-    shared = max(windows_bytes(space, windows), int(first_bytes))
     largest = space.largest_layer()
     per_block_fixed = listing_bytes(space) + largest * 8
     if windows.incoming is not None:
         per_block_fixed = largest * 16
-    threads = max(1, min(threads, len(primes)))
-    nblocks = max(threads, math.ceil(len(primes) / PRIMES_PER_BLOCK))
-    nblocks = min(len(primes), threads * math.ceil(nblocks / threads))
-    while True:
-        size = math.ceil(len(primes) / nblocks)
-        need = shared + threads * (words_one * 8 * size + per_block_fixed)
-        if need <= limit or nblocks >= len(primes):
-            break
-        nblocks = min(len(primes), nblocks + threads)
-    refuse_if_over(need, limit, f"the exact sweep ({nblocks} prime blocks, {threads} threads)")
-    blocks = tuple(tuple(int(p) for p in b) for b in np.array_split(primes, nblocks))
-    sizes = tuple(words_one * 8 * len(b) + per_block_fixed for b in blocks)
-    return BlockPlan(blocks=blocks, threads=threads, bytes_per_block=sizes, shared_bytes=shared)
-
-
-MAX_PRIME_OFFSET = 2000
-"""Largest --prime-offset: the primes below 2**62 are found by a sieve-free downward search,
-about 21 Miller-Rabin tests per prime (2000 primes: about 0.4 s per search, repeated
-once per prime the run adds); far larger offsets would run for minutes before any work."""
-
-
-def check_prime_offset(prime_offset: object) -> int:
-    """prime_offset as an int in 0..MAX_PRIME_OFFSET, else InputError."""
-    if isinstance(prime_offset, bool) or not isinstance(prime_offset, (int, np.integer)) or not (
-        0 <= prime_offset <= MAX_PRIME_OFFSET
-    ):
-        raise InputError(
-            f"the prime offset must be an integer from 0 to {MAX_PRIME_OFFSET:,}, "
-            f"got {prime_offset!r}"
-        )
-    return int(prime_offset)
+    return block_plan(
+        primes, threads, per_block=COUNT_PRIMES_PER_BLOCK,
+        prime_bytes=peak_words(space, windows, 1) * 8, block_bytes=per_block_fixed,
+        shared_bytes=max(windows_bytes(space, windows), int(first_bytes)), limit=limit,
+        what="the exact sweep",
+    )
 
 
 def count_space(spec, limit: int) -> StateSpace:  # noqa: ANN001 - a GameSpec
@@ -223,7 +153,7 @@ def count(
     primes, check_prime = primes_for_bits(windows.count_bits, prime_offset)
     all_primes = [*primes, check_prime]
     first_peak = first + (incoming_bytes_estimate(space) if keep else 0)
-    plan = plan_blocks(space, windows, all_primes, nthreads, limit, first_peak)
+    plan = count_block_plan(space, windows, all_primes, nthreads, limit, first_peak)
 
     bar = None
     if progress:
@@ -237,8 +167,7 @@ def count(
     def run(block: tuple[int, ...]) -> tuple[np.ndarray, int]:
         return spectrum_residues(space, windows, list(block), bar.update if bar else None)
 
-    with ThreadPoolExecutor(max_workers=plan.threads) as pool:
-        parts = list(pool.map(run, plan.blocks))
+    parts = run_blocks(plan.blocks, run, plan.threads)
     if bar is not None:
         bar.close()
     t2 = time.perf_counter()

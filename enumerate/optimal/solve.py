@@ -49,14 +49,13 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
+from zeckenum.core.checks import check_n, check_players
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.statespace import StateSpace, build_space, refuse_space
 from zeckenum.errors import InputError
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import STANDARD, GameSpec, RuleSet
-
-MAX_PLAYERS = 64
 
 
 @kernel
@@ -594,11 +593,6 @@ class SolveResult:
         }
 
 
-def check_players(players: int) -> None:
-    if not isinstance(players, int) or players < 2 or players > MAX_PLAYERS:
-        raise InputError(f"players must be an integer from 2 to {MAX_PLAYERS}, got {players}")
-
-
 def unpack_bits(packed: np.ndarray, size: int) -> np.ndarray:
     """Bool array of length `size` from a little-endian bit-packed uint8 array."""
     return np.unpackbits(packed, bitorder="little", count=size).astype(bool)
@@ -839,8 +833,6 @@ def solve(
     when `solve_bytes` exceeds it (`solve_space`).  `progress`: a bar of the states
     classified on stderr.
     """
-    from zeckenum.counting.count import check_n
-
     check_n(n)
     check_players(players)
     rs = get_rules(rules)
@@ -1091,8 +1083,6 @@ def winning_strategy(
     The move graph of the whole game is held (about 20 bytes per move), so n is limited to
     games of at most STRATEGY_MAX_STATES states.
     """
-    from zeckenum.counting.count import check_n
-
     rs = get_rules(rules)
     spec = rs.instantiate(check_n(n))
     space = build_space(spec, max_memory)

@@ -25,8 +25,9 @@ e_p = max over games of sum v_p(D(s)), which a first sweep computes exactly (max
 dynamic programming over the states, one exponent per prime p <= max D).  The second sweep
 computes every probability modulo primes q below 2**50 (inverses of D(s) mod q from a
 table); the integer N = P * M is rebuilt by the Chinese remainder theorem from primes whose
-product exceeds M, and one extra prime checks it (CheckPrimeMismatch on disagreement).  The
-residues also satisfy sum N == M, which is checked.
+product exceeds M, and one extra prime checks it (CheckPrimeMismatch on disagreement;
+the one CRT, `core.modular.reconstruct_fractions`).  The residues also satisfy
+sum N == M, which is checked.
 
 Both sweeps *pull*: layers are visited from the start's level downward and each state
 gathers from its predecessors (the moves into it), inside a layer in ascending rank, which
@@ -46,9 +47,9 @@ edges are pure vectorised adds and the only multiplications are one per (state, 
 
 Arithmetic.  Residues are below q < 2**50; a state's row accumulates at most m + 1 residues
 (m = moves into it <= number of move types, +1 for the start), which stays below 2**62 and
-is reduced once (`reduce62`).  Products use a float64 estimate of the quotient and an exact
-wrapping remainder (`mulmod`, proof in its docstring).  Compared with primes below 2**31.5
-this needs about 37% fewer primes for the same denominator.
+is reduced once (`core.modular.reduce62`).  Products use a float64 estimate of the quotient
+and an exact wrapping remainder (`core.modular.mulmod`, proof in its docstring).  Compared
+with primes below 2**31.5 this needs about 37% fewer primes for the same denominator.
 
 Prime blocks are independent: each block runs the whole second sweep in its own thread
 (kernels release the GIL).  The winner-only path keeps per state the P residues of length
@@ -66,141 +67,33 @@ from __future__ import annotations
 import math
 import os
 from collections import deque
-from collections.abc import Callable, Iterator, Mapping
+from collections.abc import Iterator, Mapping
 from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 from fractions import Fraction
 
 import numpy as np
+from zeckenum.core.blocks import BlockPlan, block_plan, run_blocks
+from zeckenum.core.checks import check_model, check_prime_offset, check_random_args, check_threads
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import available_bytes, refuse_if_over, resolve_limit
-from zeckenum.core.modular import crt, descending_primes
+from zeckenum.core.modular import (
+    add_row_mod,
+    check_mul_primes,
+    finish_row,
+    inverse_table,
+    mul_primes_exceeding,
+    mulmod,
+    reconstruct_fractions,
+    small_primes_upto,
+)
 from zeckenum.core.statespace import LayerMoves, StateSpace, build_space, move_applies, refuse_space
 from zeckenum.core.sweep import compact_rows
-from zeckenum.errors import CheckPrimeMismatch, InputError
+from zeckenum.errors import InputError
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import GameSpec
 
-MODELS = ("moves", "pairs")
-PRIME_CEILING = 2**50  # every residue prime lies below it (see `mulmod`)
-PRIME_FLOOR = 2**13  # and above it (see `reduce62`)
 UNREACHED = np.iinfo(np.int32).max
-
-
-# ----------------------------------------------------------------------------- primes
-
-
-def word_primes(count: int, offset: int = 0) -> list[int]:
-    """The primes number offset .. offset+count-1 counted downward from PRIME_CEILING."""
-    return list(descending_primes(PRIME_CEILING, offset + count)[offset:])
-
-
-def primes_exceeding(bound: int, offset: int = 0) -> tuple[list[int], int]:
-    """(primes below PRIME_CEILING whose product exceeds `bound`, one extra check prime)."""
-    need = max(1, math.ceil((bound.bit_length() + 1) / 49.99))
-    while True:
-        ps = word_primes(need + 1, offset)
-        prod = math.prod(ps[:need])
-        if prod > bound:
-            return ps[:need], ps[need]
-        need += 1
-
-
-def small_primes_upto(m: int) -> np.ndarray:
-    """All primes <= m (int64, ascending; sieve of Eratosthenes)."""
-    if m < 2:
-        return np.zeros(0, dtype=np.int64)
-    sieve = np.ones(m + 1, dtype=bool)
-    sieve[:2] = False
-    for p in range(2, math.isqrt(m) + 1):
-        if sieve[p]:
-            sieve[p * p :: p] = False
-    return np.nonzero(sieve)[0].astype(np.int64)
-
-
-def inverse_table(primes: list[int] | np.ndarray, dmax: int) -> np.ndarray:
-    """inv[d, q] = d**-1 mod primes[q] for 1 <= d <= dmax (inv[0, q] = 0), int64.
-
-    Requires dmax < min(primes)."""
-    ps = np.asarray(primes, dtype=np.int64)
-    inv = np.zeros((dmax + 1, ps.size), dtype=np.int64)
-    for qi in range(ps.size):
-        col = np.zeros(dmax + 1, dtype=np.int64)
-        _fill_inverses(col, int(ps[qi]), dmax)
-        inv[:, qi] = col
-    return inv
-
-
-@kernel
-def _fill_inverses(row: np.ndarray, p: int, dmax: int) -> None:
-    """row[d] = d**-1 mod p by inv(d) = -(p // d) * inv(p mod d) (valid for d < p)."""
-    pinv = 1.0 / p
-    if dmax >= 1:
-        row[1] = 1
-    for d in range(2, dmax + 1):
-        x = mulmod(p // d, row[p % d], p, pinv)
-        row[d] = p - x if x else 0
-
-
-# ----------------------------------------------------------------------------- arithmetic
-
-
-@kernel(inline=True)
-def mulmod(a: int, b: int, p: int, pinv: float) -> int:
-    """a * b mod p for 0 <= a, b < p < 2**50, with pinv = fl(1 / p).
-
-    Proof.  With u = 2**-53, float(a) and float(b) are exact (< 2**53) and
-    y = fl(fl(a * b) * pinv) = (a b / p)(1 + e1)(1 + e2)(1 + e3), |ei| <= u, so
-    |y - a b / p| <= (a b / p)((1 + u)**3 - 1) < p * 3.0001 u < 2**50 * 3.0001 * 2**-53 < 0.38.
-    Hence q = trunc(y) = floor(y) (y >= 0) is floor(a b / p) + {-1, 0, 1} and the true
-    remainder r = a b - q p lies in [-p, 2p), inside (-2**63, 2**63).  It is computed in
-    uint64, whose multiplication and subtraction wrap (are exact mod 2**64), so reading the
-    result as int64 gives r exactly; one conditional add and one conditional subtract of p
-    bring it into [0, p).  (Signed int64 products are avoided: numba marks them `nsw`,
-    which makes an overflow undefined.)
-    """
-    q = np.int64(float(a) * float(b) * pinv)
-    r = np.int64(np.uint64(a) * np.uint64(b) - np.uint64(q) * np.uint64(p))
-    if r < 0:
-        r += p
-    if r >= p:
-        r -= p
-    return r
-
-
-@kernel(inline=True)
-def reduce62(x: int, p: int, pinv: float) -> int:
-    """x mod p for 0 <= x < 2**62 and 2**13 < p < 2**50, with pinv = fl(1 / p).
-
-    Proof.  y = fl(float(x) * pinv) = (x / p)(1 + e), |e| <= 3.0001 u; x / p < 2**49, so
-    |y - x / p| < 0.38 and q = trunc(y) = floor(x / p) + {-1, 0, 1}.  Then
-    0 <= q p <= x + p < 2**63, and r = x - q p in [-p, 2p) is exact in int64.
-    """
-    q = np.int64(float(x) * pinv)
-    r = x - q * p
-    if r < 0:
-        r += p
-    if r >= p:
-        r -= p
-    return r
-
-
-@kernel
-def finish_row(row: np.ndarray, primes: np.ndarray, pinv: np.ndarray, iv: np.ndarray) -> None:
-    """row[q] = (row[q] mod primes[q]) * iv[q] mod primes[q], for 0 <= row[q] < 2**62.
-
-    A separate small loop, so that LLVM vectorises it (AVX-512 has the int64 <-> float64
-    conversions and the int64 products it needs)."""
-    for q in range(row.size):
-        row[q] = mulmod(reduce62(row[q], primes[q], pinv[q]), iv[q], primes[q], pinv[q])
-
-
-@kernel
-def add_row_mod(acc: np.ndarray, row: np.ndarray, primes: np.ndarray, pinv: np.ndarray) -> None:
-    """acc[q] = (acc[q] + row[q]) mod primes[q] for 0 <= acc[q] < primes[q], row[q] < 2**62."""
-    for q in range(row.size):
-        x = reduce62(row[q], primes[q], pinv[q]) + acc[q]
-        acc[q] = x - primes[q] if x >= primes[q] else x
 
 
 # ----------------------------------------------------------------------------- weights
@@ -576,11 +469,6 @@ def take_arrays(spec: GameSpec) -> tuple[np.ndarray, np.ndarray]:
     return spec.mv_bins.astype(np.int64), tk_cnt
 
 
-def check_model(model: str) -> None:
-    if model not in MODELS:
-        raise InputError(f"unknown random model {model!r} (use one of: {', '.join(MODELS)})")
-
-
 def max_weight_bound(spec: GameSpec, model: str) -> int:
     """An a-priori bound on D(s) over all states of the game.
 
@@ -835,37 +723,6 @@ def weight_bound(space: StateSpace, skel: Skeleton, model: str) -> int:
     return max(skel.max_weight, max_weight_bound(space.spec, model))
 
 
-def check_random_primes(primes: list[int], max_indegree: int, max_weight: int) -> None:
-    """Refuse residue primes outside the proved ranges of `mulmod` and `reduce62` (see the
-    module docstring), for a game with at most `max_indegree` moves into one state and
-    total move weights at most `max_weight` (`weight_bound`)."""
-    if max(primes) >= PRIME_CEILING or min(primes) <= PRIME_FLOOR:
-        raise InputError("residue primes must lie between 2**13 and 2**50")
-    if (max_indegree + 1) * max(primes) >= 2**62:
-        raise InputError("too many moves into one state for the exact sweep's accumulation")
-    if max_weight >= min(primes):
-        raise InputError("move weights too large for the exact random sweep")
-
-
-def _rebuild(rows: list[list[int]], check: list[int], primes: list[int], check_prime: int,
-             m: int, what: str) -> list[Fraction]:
-    """Fractions N / M from the residues of P * (primes) -- N rebuilt by CRT, then checked."""
-    out = []
-    for i, row in enumerate(rows):
-        r = [x * (m % p) % p for x, p in zip(row, primes, strict=True)]
-        num = crt(r, primes)
-        if num % check_prime != check[i] * (m % check_prime) % check_prime:
-            raise CheckPrimeMismatch(
-                f"check prime {check_prime} disagrees with the rebuilt {what} #{i}"
-            )
-        if num > m:
-            raise CheckPrimeMismatch(f"rebuilt {what} #{i} exceeds 1: residues are wrong")
-        out.append(Fraction(num, m))
-    if sum(f.numerator * (m // f.denominator) for f in out) != m:
-        raise CheckPrimeMismatch(f"rebuilt {what} probabilities do not sum to 1")
-    return out
-
-
 LAW_PRIMES_PER_BLOCK = 8
 """Most primes in one block of the length law, trading a little time for much memory.
 Measured with 2 threads: n = 160 (100 primes): 8 per block 56.3 s and 1.1 GiB, blocks as
@@ -945,31 +802,23 @@ def random_space(spec: GameSpec, model: str, limit: int, what: str, exponents: b
     return space
 
 
-def _prime_blocks(
-    allp: list[int], threads: int | None, words_per_prime: int, what: str,
-    most: int | None = None, budget: int | None = None, extra_per_prime: int = 0,
-) -> tuple[list[np.ndarray], int]:
-    """(blocks of primes, threads to run them): as few blocks as the memory allows, of at
-    most `most` primes each (None: no limit but memory).
+def random_block_plan(
+    allp: list[int], threads: int | None, words_per_prime: int, extra_per_prime: int,
+    what: str, most: int | None, budget: int | None,
+) -> BlockPlan:
+    """Random play's plan (`core.blocks.block_plan`): as few blocks as the memory allows,
+    of at most `most` primes each (None: no limit but memory).
 
     A block of b primes holds b * (words_per_prime int64 words + `extra_per_prime` bytes)
-    at its peak; `threads` blocks run at once and must fit in `budget` bytes (default: 80%
-    of the memory the machine has available now, i.e. after the first sweep).
-    MemoryRefused when even one prime does not fit.
+    at its peak; up to `threads` blocks run at once, fewer when only fewer fit in `budget`
+    bytes (default: 80% of the memory the machine has available now, i.e. after the first
+    sweep).  MemoryRefused when even one prime does not fit.
     """
-    k = max(1, min(_threads(threads), len(allp)))
     if budget is None:
         budget = int(available_bytes() * 0.8)
-    per_prime = max(1, words_per_prime) * 8 + extra_per_prime
-    refuse_if_over(per_prime, budget, what)
-    k = min(k, budget // per_prime)
-    size = max(1, min(math.ceil(len(allp) / k), budget // (k * per_prime)))
-    if most is not None:
-        size = min(size, most)
-    nblocks = math.ceil(len(allp) / size)
-    nblocks = k * math.ceil(nblocks / k)
-    blocks = [np.array(b, dtype=np.int64) for b in np.array_split(np.array(allp), nblocks)]
-    return [b for b in blocks if b.size], k
+    return block_plan(allp, _threads(threads), per_block=most,
+                       prime_bytes=max(1, words_per_prime) * 8 + extra_per_prime,
+                       limit=budget, what=what, fewer_threads=True)
 
 
 def law_words_per_prime(skel: Skeleton) -> int:
@@ -985,8 +834,9 @@ def win_words_per_prime(skel: Skeleton, players: int) -> int:
 
 
 def random_law_residues(skel: Skeleton, primes: np.ndarray | list[int], unit: bool) -> np.ndarray:
-    """residues[q, L] = P(length = L) mod primes[q] (as N * M^-1 mod q, see `_rebuild`),
-    int64 of shape (len(primes), longest + 1): the exact sweep of one prime block.
+    """residues[q, L] = P(length = L) mod primes[q] (as N * M^-1 mod q, see
+    `core.modular.reconstruct_fractions`), int64 of shape (len(primes), longest + 1): the
+    exact sweep of one prime block.
 
     `unit`: every move weight is 1 (model "moves").  One shard of the length law: in-process
     `random_play` runs the blocks in threads, its cluster twin is
@@ -1059,16 +909,6 @@ def random_win_residues(skel: Skeleton, primes: np.ndarray | list[int], unit: bo
     return np.ascontiguousarray(out.T)
 
 
-def _run_blocks(
-    blocks: list[np.ndarray], fn: Callable[[np.ndarray], np.ndarray], threads: int
-) -> list[np.ndarray]:
-    """fn(block) for every prime block, `threads` blocks at a time, in block order."""
-    if len(blocks) == 1 or threads == 1:
-        return [fn(b) for b in blocks]
-    with ThreadPoolExecutor(threads) as pool:
-        return list(pool.map(fn, blocks))
-
-
 def random_residues(
     space: StateSpace, skel: Skeleton, model: str, players: int, winners_only: bool,
     prime_offset: int = 0, threads: int | None = None, max_memory: int | None = None,
@@ -1080,12 +920,12 @@ def random_residues(
     residues has one row per prime, in the order primes + [check prime]: the columns of
     `random_law_residues` (lengths 0 .. longest), or with `winners_only` those of
     `random_win_residues` (length mod players).  The primes are the fewest below 2**50
-    whose product exceeds the denominator M (`primes_exceeding`).  `planned`, if given,
+    whose product exceeds the denominator M (`mul_primes_exceeding`).  `planned`, if given,
     receives the forecast bytes of the blocks running at once.
     """
-    primes, check_prime = primes_exceeding(skel.denominator, prime_offset)
+    primes, check_prime = mul_primes_exceeding(skel.denominator, prime_offset)
     allp = primes + [check_prime]
-    check_random_primes(allp, skel.max_indegree, weight_bound(space, skel, model))
+    check_mul_primes(allp, skel.max_indegree, weight_bound(space, skel, model))
     unit = model == "moves"
     budget = None
     if max_memory is not None:
@@ -1097,20 +937,19 @@ def random_residues(
     # per prime besides the ring: the inverse table column and the output row
     extra = 8 * (max(skel.max_weight, 1) + 1) + 8 * (skel.longest + 1 + players)
     if winners_only:
-        words = win_words_per_prime(skel, players)
-        blocks, k = _prime_blocks(allp, threads, words,
-                                  f"the exact win probabilities at n={space.spec.n}",
-                                  budget=budget, extra_per_prime=extra)
-        outs = _run_blocks(blocks, lambda b: random_win_residues(skel, b, unit, players), k)
+        plan = random_block_plan(allp, threads, win_words_per_prime(skel, players), extra,
+                                 f"the exact win probabilities at n={space.spec.n}",
+                                 None, budget)
+        outs = run_blocks(plan.blocks,
+                          lambda b: random_win_residues(skel, b, unit, players), plan.threads)
     else:
-        words = law_words_per_prime(skel)
-        blocks, k = _prime_blocks(allp, threads, words,
-                                  f"the exact length law at n={space.spec.n}",
-                                  LAW_PRIMES_PER_BLOCK, budget=budget, extra_per_prime=extra)
-        outs = _run_blocks(blocks, lambda b: random_law_residues(skel, b, unit), k)
+        plan = random_block_plan(allp, threads, law_words_per_prime(skel), extra,
+                                 f"the exact length law at n={space.spec.n}",
+                                 LAW_PRIMES_PER_BLOCK, budget)
+        outs = run_blocks(plan.blocks, lambda b: random_law_residues(skel, b, unit),
+                          plan.threads)
     if planned is not None:
-        biggest = sorted((b.size for b in blocks), reverse=True)[:k]
-        planned.append(sum(biggest) * (words * 8 + extra))
+        planned.append(plan.peak_bytes)
     return np.concatenate(outs, axis=0), primes, check_prime
 
 
@@ -1123,7 +962,8 @@ def law_from_residues(
     lengths = [L for L in range(residues.shape[1]) if residues[:, L].any()]
     rows = [[int(x) for x in residues[:nrec, L]] for L in lengths]
     check = [int(residues[nrec, L]) for L in lengths]
-    fr = _rebuild(rows, check, primes, check_prime, denominator, "length probability")
+    fr = reconstruct_fractions(rows, primes, check_prime, check, denominator,
+                               "length probability")
     return dict(zip(lengths, fr, strict=True))
 
 
@@ -1135,7 +975,8 @@ def wins_from_residues(
     nrec = len(primes)
     rows = [[int(x) for x in residues[:nrec, r]] for r in range(residues.shape[1])]
     check = [int(residues[nrec, r]) for r in range(residues.shape[1])]
-    fr = _rebuild(rows, check, primes, check_prime, denominator, "residue probability")
+    fr = reconstruct_fractions(rows, primes, check_prime, check, denominator,
+                               "residue probability")
     return dict(enumerate(fr))
 
 
@@ -1250,24 +1091,6 @@ def frac_str(x: Fraction) -> str:
     return f"{x.numerator}/{x.denominator}"
 
 
-MAX_PLAYERS = 1024
-"""Most players random play accepts: every state carries one residue per player."""
-
-
-def validate(n: int, players: int, model: str) -> None:
-    """InputError unless n is a valid n (`count.check_n`), 2 <= players <= MAX_PLAYERS and
-    the model is known."""
-    from zeckenum.counting.count import check_n
-
-    check_n(n)
-    if isinstance(players, bool) or not isinstance(players, int) or not (
-        2 <= players <= MAX_PLAYERS
-    ):
-        raise InputError(f"the number of players must be an integer from 2 to {MAX_PLAYERS}, "
-                         f"got {players}")
-    check_model(model)
-
-
 def assemble_random(
     *, rules: str, rules_hash: str, n: int, players: int, model: str, winners_only: bool,
     denominator: int, states: int, transitions: int, primes: list[int], check_prime: int,
@@ -1313,7 +1136,7 @@ def refuse_random(
     """The up-front refusals of `random_play` (`random_space`: rank table, states bound,
     first sweep forecast) without running it: the client of a sharded run calls it before
     any worker starts."""
-    validate(n, players, model)
+    check_random_args(n, players, model)
     random_space(get_rules(rules).instantiate(n), model, resolve_limit(max_memory),
                  f"random play at n={n}", threads=threads)
 
@@ -1333,12 +1156,10 @@ def random_play(
     Memory (`max_memory`, default what the machine has available): refused up front by
     `random_space` (rank table, then the first sweep's bound `skeleton_bytes_bound`), then
     the exact sweep's blocks are sized to what is left after the first sweep and refused
-    when one prime does not fit (`_prime_blocks`)."""
+    when one prime does not fit (`random_block_plan`)."""
     import time
 
-    from zeckenum.counting.count import check_prime_offset, check_threads
-
-    validate(n, players, model)
+    check_random_args(n, players, model)
     check_prime_offset(prime_offset)
     threads = check_threads(threads)
     rs = get_rules(rules)

@@ -40,6 +40,7 @@ from dataclasses import dataclass, field
 from fractions import Fraction
 
 import numpy as np
+from zeckenum.core.checks import check_random_args, check_threads
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import human, refuse_if_over, resolve_limit
 from zeckenum.core.moments import float_moments, gaussian_diagnostics
@@ -52,7 +53,6 @@ from zeckenum.randomplay.exact import (
     drop_stale,
     gather_passes,
     skeleton_layers,
-    validate,
     winner_of_length,
 )
 from zeckenum.rules.catalogue import get_rules
@@ -319,9 +319,7 @@ def float_play(
     has available): refused up front from the rank table's size, then from
     `float_sweep_bytes`; the value buffers are checked again as each layer arrives.
     """
-    from zeckenum.counting.count import check_threads
-
-    validate(n, players, model)
+    check_random_args(n, players, model)
     threads = check_threads(threads)
     rs = get_rules(rules)
     limit = resolve_limit(max_memory)

@@ -20,10 +20,11 @@ from dataclasses import dataclass, field
 
 import numba as nb
 import numpy as np
+from zeckenum.core.checks import check_random_args
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.errors import InputError
-from zeckenum.randomplay.exact import take_arrays, validate, winner_of_length
+from zeckenum.randomplay.exact import take_arrays, winner_of_length
 from zeckenum.rules.catalogue import get_rules
 
 Z95 = 1.959963984540054
@@ -186,7 +187,7 @@ def simulate(
     `max_memory` (default: what the machine has available)."""
     import time
 
-    validate(n, players, model)
+    check_random_args(n, players, model)
     games = check_games(games)
     refuse_if_over(BYTES_PER_GAME * games, resolve_limit(max_memory),
                    f"simulating {games} games")

@@ -3,11 +3,21 @@
 from __future__ import annotations
 
 import random
+from fractions import Fraction
 
 import pytest
 from sympy import isprime, prevprime, randprime
 from sympy.ntheory.modular import crt as sympy_crt
-from zeckenum.core.modular import crt, is_prime, primes_for_bits, reconstruct
+from zeckenum.core.modular import (
+    MUL_PRIME_CEILING,
+    MUL_PRIME_FLOOR,
+    crt,
+    is_prime,
+    mul_primes_exceeding,
+    primes_for_bits,
+    reconstruct,
+    reconstruct_fractions,
+)
 from zeckenum.errors import CheckPrimeMismatch
 
 
@@ -145,3 +155,42 @@ def test_reconstruct_detects_value_too_large_for_primes() -> None:
     table, checks = _residue_table([value], primes, check)
     with pytest.raises(CheckPrimeMismatch):
         reconstruct(table, primes, check, checks)
+
+
+# Source: Python's Fraction arithmetic: residues of P = N / M (P * M^-1 mod q, as the random
+# sweep computes them) give back N / M exactly, and the checks refuse what is not a law.
+def _law_residues(law: list[Fraction], primes: list[int]) -> list[list[int]]:
+    return [[f.numerator * pow(f.denominator, -1, p) % p for p in primes] for f in law]
+
+
+def _random_law(seed: int) -> tuple[list[Fraction], int]:
+    rng = random.Random(seed)
+    m = rng.randrange(2, 10**40)
+    cuts = sorted(rng.randrange(m + 1) for _ in range(rng.randint(0, 6)))
+    nums = [b - a for a, b in zip([0, *cuts], [*cuts, m], strict=True)]
+    return [Fraction(x, m) for x in nums], m
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_reconstruct_fractions_round_trip(seed: int) -> None:
+    law, m = _random_law(seed)
+    primes, check = mul_primes_exceeding(m, offset=seed)
+    rows = _law_residues(law, primes)
+    checks = [r[0] for r in _law_residues(law, [check])]
+    assert reconstruct_fractions(rows, primes, check, checks, m) == law
+    assert all(MUL_PRIME_FLOOR < p < MUL_PRIME_CEILING and isprime(p) for p in [*primes, check])
+
+
+def test_reconstruct_fractions_refuses_bad_residues() -> None:
+    law, m = _random_law(99)
+    primes, check = mul_primes_exceeding(m)
+    rows = _law_residues(law, primes)
+    checks = [r[0] for r in _law_residues(law, [check])]
+    bad = [list(r) for r in rows]
+    bad[0][0] = (bad[0][0] + 1) % primes[0]
+    with pytest.raises(CheckPrimeMismatch):
+        reconstruct_fractions(bad, primes, check, checks, m)
+    third = [Fraction(1, 3)]  # exact residues, but not a whole law: it does not sum to 1
+    with pytest.raises(CheckPrimeMismatch, match="sum to 1"):
+        reconstruct_fractions(_law_residues(third, primes), primes, check,
+                              [r[0] for r in _law_residues(third, [check])], 3)

@@ -198,14 +198,14 @@ def test_bad_model_is_input_error() -> None:
 
 
 # Source: Python's exact integer arithmetic (a * b % p), on random and edge-case inputs, for
-# the float-assisted products of the exact sweep (proof in zeckenum.randomplay.exact.mulmod).
+# the float-assisted products of the exact sweep (proof in zeckenum.core.modular.mulmod).
 def test_mulmod_and_reduce_match_python_integers() -> None:
-    from zeckenum.randomplay.exact import PRIME_CEILING, mulmod, reduce62, word_primes
+    from zeckenum.core.modular import MUL_PRIME_CEILING, mul_primes, mulmod, reduce62
 
     rng = np.random.default_rng(20240611)
-    primes = word_primes(3) + word_primes(2, offset=200) + [2**49 + 9, 1_000_003, 8209, 3]
+    primes = mul_primes(3) + mul_primes(2, offset=200) + [2**49 + 9, 1_000_003, 8209, 3]
     for p in primes:
-        assert p < PRIME_CEILING
+        assert p < MUL_PRIME_CEILING
         pinv = 1.0 / p
         edge = [0, 1, 2, p // 2, p // 2 + 1, p - 2, p - 1]
         rand = [int(x) % p for x in rng.integers(0, 2**62, size=400, dtype=np.int64)]
