@@ -57,3 +57,16 @@ def test_public_names_load_on_first_use(name: str) -> None:
     matplotlib or Dask for a job that does not draw or distribute)."""
     heavy = loaded_heavy(f"import zeckenum\nzeckenum.{name}")
     assert "matplotlib" not in heavy and "dask" not in heavy and "distributed" not in heavy
+
+
+def test_every_lazy_command_resolves_to_its_name() -> None:
+    """Each entry of the group's lazy table imports a click command of that name (a typo
+    in a module path would otherwise surface only when a user runs the command)."""
+    import click
+    from zeckenum.cli.group import LAZY, main
+
+    ctx = click.Context(main)
+    assert main.list_commands(ctx) == sorted(LAZY)
+    for name in LAZY:
+        cmd = main.get_command(ctx, name)
+        assert isinstance(cmd, click.Command) and cmd.name == name, name
