@@ -14,7 +14,8 @@ import argparse
 from pathlib import Path
 
 import zeckenum
-from zeckenum.present.plots import RunData, figure_distribution, save_figure
+from zeckenum.analysis.rundata import RunData
+from zeckenum.present.plots import figure_distribution, save_figure
 from zeckenum.randomplay.floating import float_play
 
 

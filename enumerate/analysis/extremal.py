@@ -273,3 +273,46 @@ def zeckendorf(n: int) -> list[int]:
             out.append(f)
             n -= f
     return out
+
+
+@dataclass(frozen=True)
+class GamesReport:
+    """What `zeckenum games` shows at n: an explicit shortest and longest game, the number
+    of games at the `near` lengths next to each extreme, and (standard game only) the game
+    played by the greedy rule.
+
+    Invariant: `near["shortest"]` / `near["longest"]` are [(length, games)] taken from the
+    exact census `count(n)`, the extremes first."""
+
+    rules: str
+    n: int
+    shortest: PlayedGame
+    longest: PlayedGame
+    near: dict[str, list]
+    greedy: PlayedGame | None
+
+    def to_dict(self) -> dict:
+        """JSON-ready form; the keys `zeckenum games --json` prints."""
+        out = {"rules": self.rules, "n": self.n, "shortest_game": self.shortest.to_dict(),
+               "longest_game": self.longest.to_dict(),
+               "near_shortest": {str(k): str(v) for k, v in self.near["shortest"]},
+               "near_longest": {str(k): str(v) for k, v in self.near["longest"]}}
+        if self.greedy is not None:
+            out["greedy_longest"] = {"length": self.greedy.length,
+                                     "equals_longest": self.greedy.length == self.longest.length,
+                                     "moves": [s.move for s in self.greedy.steps]}
+        return out
+
+
+def games_report(n: int, rules: str | RuleSet = "standard", near: int = 3, *,
+                 max_memory: int | None = None) -> GamesReport:
+    """The extremal games at n, the game counts near the extremes (`count`) and, for the
+    rule set named "standard", the greedy longest game."""
+    from zeckenum.counting.count import count
+
+    rs = get_rules(rules)
+    short, long = extremal_games(n, rs, max_memory=max_memory)
+    res = count(n, rs, max_memory=max_memory)
+    greedy = greedy_longest_game(n) if rs.name == "standard" else None
+    return GamesReport(rules=rs.name, n=n, shortest=short, longest=long,
+                       near=lengths_near_extremes(res.length_counts, near), greedy=greedy)

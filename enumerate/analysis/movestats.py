@@ -481,3 +481,77 @@ def check_on_expected(inv: Invariants, expected: dict[str, Fraction]) -> list[st
     vec = [expected[m] for m in inv.move_names]
     return [format_form(x.coeffs, inv.move_names) for x in (*inv.named, *inv.basis)
             if x.evaluate(vec) != x.value]
+
+
+def _frac(x: Fraction) -> str:
+    """An exact rational as "p/q", or "p" when it is an integer."""
+    return f"{x.numerator}/{x.denominator}" if x.denominator != 1 else str(x.numerator)
+
+
+@dataclass(frozen=True)
+class MoveStats:
+    """What `zeckenum move-stats` shows at n.
+
+    totals     every move's occurrences over all games (`move_totals`)
+    expected   {move: exact expected count} under random play with `model` (None: skipped)
+    invariants the linear invariants (`linear_invariants`)
+    failures   the invariants that fail on the totals or the expected counts (empty when
+               all hold: a non-empty list is a failed check, exit 5 on the command line)
+    move, distribution, random_distribution: the chosen move's count distribution over all
+               games {count: games} and under random play {count: probability}, or None
+    """
+
+    rules: str
+    n: int
+    model: str
+    totals: MoveTotals
+    expected: dict[str, Fraction] | None
+    invariants: Invariants
+    failures: list[str]
+    move: str | None = None
+    distribution: dict[int, int] | None = None
+    random_distribution: dict[int, Fraction] | None = None
+
+    def to_dict(self) -> dict:
+        """JSON-ready form; the keys `zeckenum move-stats --json` prints."""
+        inv = self.invariants
+        out: dict = {
+            "rules": self.rules, "n": self.n, "games": str(self.totals.games),
+            "totals": {m: str(t) for m, t in self.totals.as_dict().items()},
+            "invariants": [{"form": format_form(x.coeffs, inv.move_names),
+                            "coefficients": [_frac(c) for c in x.coeffs],
+                            "value": _frac(x.value), "name": x.name}
+                           for x in (*inv.named, *inv.basis)],
+            "invariants_verified": not self.failures, "failures": list(self.failures),
+        }
+        if self.expected is not None:
+            out["random_model"] = self.model
+            out["expected"] = {m: _frac(v) for m, v in self.expected.items()}
+        if self.distribution is not None:
+            out["distribution"] = {"move": self.move,
+                                   "games": {str(k): str(v)
+                                             for k, v in self.distribution.items()}}
+            if self.random_distribution is not None:
+                out["distribution"]["random"] = {str(k): _frac(v)
+                                                 for k, v in self.random_distribution.items()}
+        return out
+
+
+def move_stats(n: int, rules: str | RuleSet = "standard", *, move: str | None = None,
+               model: str = "moves", random: bool = True,
+               max_memory: int | None = None) -> MoveStats:
+    """Move totals, expected counts under random play (unless not `random`), the linear
+    invariants checked on both, and the distribution of `move`'s count when given."""
+    rs = get_rules(rules)
+    totals = move_totals(n, rs, max_memory=max_memory)
+    expected = expected_counts(n, rs, model, max_memory=max_memory) if random else None
+    inv = linear_invariants(n, rs, max_memory=max_memory)
+    bad = check_on_totals(inv, totals) + (check_on_expected(inv, expected) if expected else [])
+    dist = rdist = None
+    if move:
+        dist = move_count_distribution(n, move, rs, "games", max_memory=max_memory)
+        if random:
+            rdist = move_count_distribution(n, move, rs, model, max_memory=max_memory)
+    return MoveStats(rules=rs.name, n=n, model=model, totals=totals, expected=expected,
+                     invariants=inv, failures=bad, move=move, distribution=dist,
+                     random_distribution=rdist)

@@ -12,22 +12,23 @@ from __future__ import annotations
 import json
 
 import click
-from zeckenum.cli.errors import fail, one_line_errors
+from zeckenum import api
+from zeckenum.cli.errors import OneLineCommand, fail
 from zeckenum.cli.options import (
     SHARDS,
-    WORKERS,
-    OneLineCommand,
-    PositiveInt,
-    bounded,
+    backend_options,
+    json_option,
     max_memory_option,
+    n_argument,
+    players_option,
     progress_option,
     resolve_progress,
-    scheduler_option,
+    rules_option,
 )
 from zeckenum.core.checks import SOLVE_MAX_PLAYERS
 from zeckenum.core.text import plural
 from zeckenum.errors import InputError, OutputError
-from zeckenum.optimal.solve import SolveResult, solve, winning_strategy
+from zeckenum.optimal.solve import SolveResult, winning_strategy
 from zeckenum.optimal.strategy import check_strategy, read_strategy, write_strategy
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.safeio import check_output_file
@@ -71,27 +72,24 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
 
 
 @click.command("solve", cls=OneLineCommand)
-@click.argument("n", type=PositiveInt())
-@click.option("--rules", "rules_name", default="standard", show_default=True,
-              help="Rule set: a built-in name or a .toml rule file.")
-@click.option("--players", type=bounded(2, SOLVE_MAX_PLAYERS), default=2, show_default=True,
-              help=f"Number of players (2..{SOLVE_MAX_PLAYERS}); with 3 or more, each player "
-                   "against the coalition of all others.")
+@n_argument()
+@rules_option("rules_name")
+@players_option(SOLVE_MAX_PLAYERS, short=False,
+                extra="; with 3 or more, each player against the coalition of all others")
 @click.option("--strategy", "strategy_path", type=click.Path(dir_okay=False), default=None,
               help="Write a winning strategy for the winner to this file (two players; "
                    "gzip-compressed when the name ends in .gz).")
-@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
-@click.option("--workers", type=WORKERS, default=None,
-              help="Run the level-range shards on a local Dask cluster of K worker processes "
-                   "(one shard at a time: they form a chain).")
-@scheduler_option("Run the level-range shards on an existing Dask cluster.")
-@click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False), default=None,
-              help="Keep each finished level range in DIR; rerunning resumes from it.")
+@json_option("Print one JSON object.")
+@backend_options(
+    workers="Run the level-range shards on a local Dask cluster of K worker processes "
+            "(one shard at a time: they form a chain).",
+    scheduler="Run the level-range shards on an existing Dask cluster.",
+    checkpoint="Keep each finished level range in DIR; rerunning resumes from it.",
+)
 @click.option("--shards", type=SHARDS, default=None,
               help="Cut the levels into this many ranges (default: about 2e7 states each).")
 @progress_option("Show a progress bar of the states (or level ranges) on stderr")
 @max_memory_option
-@one_line_errors
 def solve_command(n: int, rules_name: str, players: int, strategy_path: str | None,
                   as_json: bool, workers: int | None, scheduler: str | None,
                   checkpoint_dir: str | None, shards: int | None, progress: bool | None,
@@ -109,7 +107,6 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
     info = None
     lost: OutputError | None = None
     chained = workers or scheduler or checkpoint_dir or shards
-    show = resolve_progress(progress)
     if strategy_path is not None:
         if players != 2:
             raise InputError("--strategy is defined for two players only")
@@ -123,18 +120,10 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
         except OutputError as exc:  # the strategy went to a rescue file; still report
             lost, nbytes = exc, 0
         info = {"file": strategy_path, "positions": strat.size, "bytes": nbytes}
-    elif chained:
-        from zeckenum.cluster.solve_chain import run_solve
-        from zeckenum.core.memory import resolve_limit
-        from zeckenum.optimal.solve import needs_reach, solve_space
-
-        if max_memory is not None or scheduler is None:  # refused before any worker starts
-            solve_space(rules.instantiate(n), resolve_limit(max_memory), players,
-                        needs_reach(rules), False, f"solving n={n}")
-        res = run_solve(n, rules, players, workers=workers, scheduler=scheduler,
-                        checkpoint_dir=checkpoint_dir, shards=shards, progress=show)
     else:
-        res = solve(n, rules, players, max_memory=max_memory, progress=show)
+        res = api.solve(n, rules, players, max_memory=max_memory,
+                        progress=resolve_progress(progress), workers=workers,
+                        scheduler=scheduler, checkpoint=checkpoint_dir, shards=shards)
     if as_json:
         out = res.to_dict()
         if info is not None:
@@ -146,13 +135,12 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
         fail(lost)
 
 
-@click.command("check-strategy")
+@click.command("check-strategy", cls=OneLineCommand)
 @click.argument("file", type=click.Path(dir_okay=False))
-@click.option("--rules", "rules_name", default=None,
-              help="Rule set name or .toml rule file (default: the rule file embedded in "
-                   "FILE, else the built-in rule set its header names).")
-@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
-@one_line_errors
+@rules_option("rules_name", default=None,
+              help_text="Rule set name or .toml rule file (default: the rule file embedded in "
+                        "FILE, else the built-in rule set its header names).")
+@json_option("Print one JSON object.")
 def check_strategy_command(file: str, rules_name: str | None, as_json: bool) -> None:
     """Confirm that the strategy in FILE wins against every answer of the loser.
 

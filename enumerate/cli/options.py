@@ -1,9 +1,13 @@
-"""Option types and options shared by the commands: bounded numbers, memory sizes,
---max-memory, --progress/--no-progress and --scheduler.
+"""Every option and argument the commands share, declared once: types (one `POSITIVE`,
+bounded integers, memory sizes) and decorators (`n_argument`, `rules_option`,
+`backend_options`, `players_option`, `model_option`, `json_option`, `max_memory_option`,
+`progress_option`, `probe_option`).
 
 Every numeric option is bounded where it is declared, so a value beyond what a run can use
 (n beyond 2^62, a 20-digit --simulate, --threads 10^20) is one line `zeckenum: error: ...`
-and exit status 2 from click, before any work starts.
+and exit status 2 from click, before any work starts.  A command passes its own help text
+where the meaning differs ("Exact mode: ..."); name, type, default and destination are
+fixed here.
 """
 
 from __future__ import annotations
@@ -13,34 +17,16 @@ from collections.abc import Callable
 from typing import Any
 
 import click
-from zeckenum.core.checks import MAX_N, MAX_PRIME_OFFSET, MAX_THREADS
+from zeckenum.core.checks import MAX_N, MAX_PRIME_OFFSET, MAX_THREADS, RANDOM_MODELS
 from zeckenum.core.memory import parse_size
 from zeckenum.errors import ZeckenumError
+
+Decorator = Callable[[Callable[..., Any]], Callable[..., Any]]
 
 MAX_WORKERS = 4096
 """Most workers a command starts or plans for."""
 MAX_SHARDS = 10**6
 """Most level ranges of a chained solve."""
-
-
-class OneLineCommand(click.Command):
-    """A command whose usage errors print one line `zeckenum: error: ...` and exit 2 also
-    when it is run on its own (tests, notebooks), as under the `zeckenum` group."""
-
-    def main(self, *args, **kwargs):  # noqa: ANN002, ANN003, ANN201
-        if not kwargs.pop("standalone_mode", True):
-            return super().main(*args, standalone_mode=False, **kwargs)
-        try:
-            rv = super().main(*args, standalone_mode=False, **kwargs)
-        except click.UsageError as exc:
-            click.echo(f"zeckenum: error: {exc.format_message()}", err=True)
-            sys.exit(2)
-        except click.exceptions.Abort:
-            click.echo("zeckenum: aborted", err=True)
-            sys.exit(130)
-        if isinstance(rv, int) and not isinstance(rv, bool) and rv:
-            sys.exit(rv)
-        sys.exit(0)
 
 
 class PositiveInt(click.ParamType):
@@ -52,7 +38,7 @@ class PositiveInt(click.ParamType):
         self.most = most
         self.what = what
 
-    def convert(self, value, param, ctx):  # noqa: ANN001 - click's signature
+    def convert(self, value, param, ctx):  # noqa: ANN001, ANN201 - click's signature
         if isinstance(value, int) and not isinstance(value, bool):
             n = value
         else:
@@ -69,6 +55,7 @@ class PositiveInt(click.ParamType):
 
 
 POSITIVE = PositiveInt()
+"""The one type of every n (argument N, --from, --to, --range A B of `random`)."""
 
 
 class MemorySize(click.ParamType):
@@ -76,7 +63,7 @@ class MemorySize(click.ParamType):
 
     name = "SIZE"
 
-    def convert(self, value, param, ctx):  # noqa: ANN001
+    def convert(self, value, param, ctx):  # noqa: ANN001, ANN201
         if isinstance(value, int) and not isinstance(value, bool):
             return value
         try:
@@ -94,6 +81,43 @@ THREADS = bounded(1, MAX_THREADS)
 WORKERS = bounded(1, MAX_WORKERS)
 PRIME_OFFSET = bounded(0, MAX_PRIME_OFFSET)
 SHARDS = bounded(1, MAX_SHARDS)
+SEED = bounded(0, 2**63 - 1)
+PROBE = bounded(20, 400)
+"""A probe's n (`cluster.predict.check_probe`): enough work to time, about a second."""
+
+
+def n_argument(required: bool = True) -> Decorator:
+    """The argument N (a `POSITIVE`)."""
+    return click.argument("n", type=POSITIVE, required=required)
+
+
+RULES_HELP = "Rule set: a built-in name (see `zeckenum rules list`) or a .toml rule file."
+
+
+def rules_option(dest: str = "rules", default: str | None = "standard",
+                 help_text: str = RULES_HELP) -> Decorator:
+    """--rules NAME|FILE (default: the standard game)."""
+    return click.option("--rules", dest, default=default, show_default=default is not None,
+                        metavar="NAME|FILE", help=help_text)
+
+
+def json_option(help_text: str = "Print one JSON object instead of a table.") -> Decorator:
+    """--json (destination `as_json`)."""
+    return click.option("--json", "as_json", is_flag=True, help=help_text)
+
+
+def players_option(most: int, short: bool = True, extra: str = "") -> Decorator:
+    """--players P (2..most, default 2); `-p` too where `short`."""
+    names = ("--players", "-p") if short else ("--players",)
+    return click.option(*names, type=bounded(2, most), default=2, show_default=True,
+                        help=f"Number of players P (2..{most}){extra}.")
+
+
+def model_option(help_text: str = "moves: uniform over legal moves; pairs: uniform over "
+                                  "movable token pairs.") -> Decorator:
+    """--model moves|pairs (default moves)."""
+    return click.option("--model", type=click.Choice(RANDOM_MODELS), default="moves",
+                        show_default=True, help=help_text)
 
 
 def max_memory_option(func: Callable[..., Any]) -> Callable[..., Any]:
@@ -105,7 +129,7 @@ def max_memory_option(func: Callable[..., Any]) -> Callable[..., Any]:
     )(func)
 
 
-def progress_option(what: str = "Show a progress bar on stderr") -> Callable[..., Any]:
+def progress_option(what: str = "Show a progress bar on stderr") -> Decorator:
     """--progress/--no-progress with default None: on when stderr is a terminal."""
     return click.option(
         "--progress/--no-progress", default=None,
@@ -136,7 +160,40 @@ def _check_scheduler(ctx, param, value):  # noqa: ANN001, ANN202 - click callbac
         raise click.BadParameter(str(exc), ctx, param) from None
 
 
-def scheduler_option(help_text: str) -> Callable[..., Any]:
+def scheduler_option(help_text: str) -> Decorator:
     """--scheduler ADDRESS, checked (scheme, host:port) before anything connects."""
     return click.option("--scheduler", default=None, metavar="ADDRESS", help=help_text,
                         callback=_check_scheduler)
+
+
+def workers_option(help_text: str, default: int | None = None) -> Decorator:
+    """--workers K (1..MAX_WORKERS)."""
+    return click.option("--workers", type=WORKERS, default=default,
+                        show_default=default is not None, help=help_text)
+
+
+def checkpoint_option(help_text: str) -> Decorator:
+    """--checkpoint DIR (destination `checkpoint_dir`)."""
+    return click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False),
+                        default=None, help=help_text)
+
+
+def backend_options(workers: str, scheduler: str, checkpoint: str | None = None) -> Decorator:
+    """--workers K, --scheduler ADDRESS and (with a help text) --checkpoint DIR: where a run
+    goes (`zeckenum.api` picks the backend from them)."""
+    decorators = [workers_option(workers), scheduler_option(scheduler)]
+    if checkpoint is not None:
+        decorators.append(checkpoint_option(checkpoint))
+
+    def apply(func: Callable[..., Any]) -> Callable[..., Any]:
+        for deco in reversed(decorators):
+            func = deco(func)
+        return func
+
+    return apply
+
+
+def probe_option(what: str, default: int | None) -> Decorator:
+    """--probe N of a forecast's calibration run (20..400)."""
+    return click.option("--probe", "probe_n", type=PROBE, default=default,
+                        show_default=default is not None, help=what)

@@ -1,6 +1,6 @@
 """The `random` command: exact, float and Monte Carlo random play, and Gaussian diagnostics.
 
-Exact results are printed as decimals of `clifmt.DIGITS` (12) significant digits, each the
+Exact results are printed as decimals of `core.text.DIGITS` (12) significant digits, each the
 exact rational correctly rounded (computed in integers, never through a float); `--exact`
 adds the exact reduced fractions, which `--json` always carries.
 """
@@ -12,20 +12,25 @@ import math
 from fractions import Fraction
 
 import click
-from zeckenum.cli.errors import fail
+from zeckenum import api
+from zeckenum.cli.errors import OneLineCommand
 from zeckenum.cli.options import (
-    WORKERS,
-    OneLineCommand,
-    PositiveInt,
+    POSITIVE,
+    SEED,
+    backend_options,
     bounded,
+    json_option,
     max_memory_option,
+    model_option,
+    n_argument,
+    players_option,
     progress_option,
     resolve_progress,
-    scheduler_option,
+    rules_option,
 )
-from zeckenum.core.checks import RANDOM_MAX_PLAYERS, RANDOM_MODELS
+from zeckenum.core.checks import RANDOM_MAX_PLAYERS
 from zeckenum.core.text import DIGITS, decimal, plural
-from zeckenum.errors import InputError, ZeckenumError
+from zeckenum.errors import InputError
 from zeckenum.randomplay.exact import frac_str
 from zeckenum.randomplay.simulate import MAX_GAMES
 
@@ -114,32 +119,11 @@ def _print_sim(res) -> None:
                f"{res.variance[2]:.6f}]")
 
 
-def gaussian_table(lo: int, hi: int, rules: str, model: str, use_float: bool,
-                   max_memory: int | None = None) -> list[dict]:
-    """One row of Gaussian diagnostics per n in lo..hi (exact or float distribution).
-
-    The largest n's memory forecast is checked before any n runs (the forecasts grow with
-    n), so a range that cannot finish is refused up front."""
-    from zeckenum.randomplay.exact import random_play, refuse_random
-    from zeckenum.randomplay.floating import float_play
-
-    if not use_float:
-        refuse_random(hi, rules, 2, model, max_memory=max_memory)
-    rows = []
-    for n in range(lo, hi + 1):
-        if use_float:
-            g = float_play(n, rules, 2, model, max_memory=max_memory).gaussian
-        else:
-            g = random_play(n, rules, 2, model, max_memory=max_memory).gaussian
-        rows.append({"n": n, **g})
-    return rows
-
-
 SHARD_OPTIONS = {"workers": "--workers", "scheduler": "--scheduler",
                  "checkpoint_dir": "--checkpoint", "progress": "--progress"}
 """Exact mode only: with any of them (or the default --progress on a terminal) the prime
-blocks run through the sharded driver (`cluster.run.run_random`), which shows a progress
-bar; an explicit --progress is refused in the other modes."""
+blocks run through the sharded driver (`zeckenum.api.random_play` picks it), which shows a
+progress bar; an explicit --progress is refused in the other modes."""
 
 
 def _refuse_sharding(sharded: dict, mode: str) -> None:
@@ -150,38 +134,33 @@ def _refuse_sharding(sharded: dict, mode: str) -> None:
 
 
 @click.command("random", cls=OneLineCommand)
-@click.argument("n", type=PositiveInt(), required=False)
-@click.option("--players", "-p", type=bounded(2, RANDOM_MAX_PLAYERS), default=2, show_default=True,
-              help=f"Number of players P (2..{RANDOM_MAX_PLAYERS}).")
-@click.option("--model", type=click.Choice(RANDOM_MODELS), default="moves", show_default=True,
-              help="moves: uniform over legal moves; pairs: uniform over movable token pairs.")
-@click.option("--rules", default="standard", show_default=True, help="Rule set name.")
+@n_argument(required=False)
+@players_option(RANDOM_MAX_PLAYERS)
+@model_option()
+@rules_option()
 @click.option("--winners-only", is_flag=True,
               help="Exact win probabilities only (residues of the length mod P; much faster).")
 @click.option("--float", "use_float", is_flag=True,
               help="float64 sweep with a rigorous rounding-error bound.")
 @click.option("--simulate", "games", type=bounded(1, MAX_GAMES), default=None, metavar="K",
               help="Monte Carlo: play K random games.")
-@click.option("--seed", type=bounded(0, 2**63 - 1), default=0, show_default=True,
-              help="Seed for --simulate.")
-@click.option("--range", "nrange", type=PositiveInt(), nargs=2, default=None, metavar="A B",
+@click.option("--seed", type=SEED, default=0, show_default=True, help="Seed for --simulate.")
+@click.option("--range", "nrange", type=POSITIVE, nargs=2, default=None, metavar="A B",
               help="Gaussian diagnostics table for n = A..B.")
-@click.option("--json", "as_json", is_flag=True,
-              help="Print one JSON object (exact fractions as \"num/den\" strings).")
+@json_option("Print one JSON object (exact fractions as \"num/den\" strings).")
 @click.option("--exact", "show_exact", is_flag=True,
               help="Exact mode: print the exact fractions after the 12-digit decimals.")
-@click.option("--workers", type=WORKERS, default=None,
-              help="Exact mode: run the prime blocks on a local Dask cluster of K worker "
-                   "processes.")
-@scheduler_option("Exact mode: run the prime blocks on an existing Dask cluster "
-                  "(e.g. tcp://host:8786).")
-@click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False), default=None,
-              help="Exact mode: keep each finished block in DIR; rerunning resumes from it.")
+@backend_options(
+    workers="Exact mode: run the prime blocks on a local Dask cluster of K worker processes.",
+    scheduler="Exact mode: run the prime blocks on an existing Dask cluster "
+              "(e.g. tcp://host:8786).",
+    checkpoint="Exact mode: keep each finished block in DIR; rerunning resumes from it.",
+)
 @progress_option("Sharded exact mode: show a progress bar of the prime blocks on stderr")
 @max_memory_option
-def random_command(n, players, model, rules, winners_only, use_float, games, seed, nrange,
-                   as_json, show_exact, workers, scheduler, checkpoint_dir, progress,
-                   max_memory) -> None:
+def random_command(n, players, model, rules, winners_only, use_float, games, seed, nrange,  # noqa: ANN001
+                   as_json, show_exact, workers, scheduler, checkpoint_dir, progress,  # noqa: ANN001
+                   max_memory) -> None:  # noqa: ANN001
     """Random play at N: exact probability of every length and of each player winning.
 
     \b
@@ -197,34 +176,18 @@ def random_command(n, players, model, rules, winners_only, use_float, games, see
     """
     sharded = {"workers": workers, "scheduler": scheduler, "checkpoint_dir": checkpoint_dir,
                "progress": progress is True}
-    try:
-        _run(n, players, model, rules, winners_only, use_float, games, seed, nrange, as_json,
-             sharded, show_exact, max_memory=max_memory,
-             progress=resolve_progress(progress))
-    except ZeckenumError as exc:
-        fail(exc)
-
-
-def _run(n, players, model, rules, winners_only, use_float, games, seed, nrange,
-         as_json, sharded: dict | None = None, show_exact: bool = False, *,
-         max_memory: int | None = None, progress: bool = False) -> None:
-    sharded = sharded or {}
     if show_exact and (nrange is not None or use_float or games is not None):
         raise InputError("--exact: exact mode only, not with --range, --float or --simulate")
     if nrange is not None:
         _refuse_sharding(sharded, "--range")
-        lo, hi = nrange
-        if lo < 1 or hi < lo:
-            raise InputError(f"--range needs 1 <= A <= B, got {lo} {hi}")
-        rows = gaussian_table(lo, hi, rules, model, use_float, max_memory)
+        table = api.gaussian(nrange[0], nrange[1], rules, model, use_float=use_float,
+                             max_memory=max_memory)
         if as_json:
-            click.echo(json.dumps({"rules": rules, "model": model,
-                                   "mode": "float" if use_float else "exact",
-                                   "gaussian": rows}))
+            click.echo(json.dumps(table.to_dict()))
             return
         click.echo(f"{'n':>5} {'mean':>12} {'variance':>12} {'skewness':>10} "
                    f"{'ex.kurt':>10} {'Kolmogorov':>11} {'TV':>11}")
-        for r in rows:
+        for r in table.rows:
             click.echo(f"{r['n']:5d} {r['mean']:12.5f} {r['variance']:12.5f} "
                        f"{r['skewness']:10.5f} {r['excess_kurtosis']:10.5f} "
                        f"{r['kolmogorov']:11.3e} {r['total_variation']:11.3e}")
@@ -235,30 +198,15 @@ def _run(n, players, model, rules, winners_only, use_float, games, seed, nrange,
         raise InputError("choose at most one of --float, --simulate, --winners-only")
     if games is not None:
         _refuse_sharding(sharded, "--simulate")
-        from zeckenum.randomplay.simulate import simulate
-
-        res = simulate(n, games, seed, rules, players, model, max_memory=max_memory)
+        res = api.simulate(n, games, seed, rules, players, model, max_memory=max_memory)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_sim(res)
     elif use_float:
         _refuse_sharding(sharded, "--float")
-        from zeckenum.randomplay.floating import float_play
-
-        res = float_play(n, rules, players, model, max_memory=max_memory)
+        res = api.random_float(n, rules, players, model, max_memory=max_memory)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_float(res)
-    elif progress or any(sharded.values()):
-        # the sharded driver (in-process threads without --workers/--scheduler) is the one
-        # that shows a progress bar of the prime blocks
-        from zeckenum.cluster.run import run_random
-
-        opts = {k: v for k, v in sharded.items() if k != "progress"}
-        res = run_random(n, rules, players, model, winners_only=winners_only,
-                         max_memory=max_memory, progress=progress, **opts)
-        click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only,
-                                                                            show_exact)
     else:
-        from zeckenum.randomplay.exact import random_play
-
-        res = random_play(n, rules, players, model, winners_only=winners_only,
-                          max_memory=max_memory)
+        res = api.random_play(n, rules, players, model, winners_only=winners_only,
+                              max_memory=max_memory, progress=resolve_progress(progress),
+                              workers=workers, scheduler=scheduler, checkpoint=checkpoint_dir)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only,
                                                                             show_exact)

@@ -4,7 +4,8 @@
     zeckenum rules check FILE [--n N]      syntax, value of every move, layering at n
     zeckenum rules show NAME|FILE [--n N]  bins, moves, start, potential, end positions at n
 
-Errors are one line on stderr with the error's exit status (2 for bad input).
+Errors are one line on stderr with the error's exit status (2 for bad input), through the
+one handler (`cli.errors.exit_for`), also when the group runs on its own.
 """
 
 from __future__ import annotations
@@ -19,7 +20,7 @@ from zeckenum.analysis.describe import (
     start_text,
     terminal_positions,
 )
-from zeckenum.cli.errors import one_line_errors
+from zeckenum.cli.errors import OneLineGroup
 from zeckenum.core.text import plural
 from zeckenum.rules.catalogue import BUILTIN, get_rules
 from zeckenum.rules.layering import format_state
@@ -47,7 +48,7 @@ def layering_lines(rules: RuleSet, n: int) -> list[str]:
     ]
 
 
-@click.group("rules")
+@click.group("rules", cls=OneLineGroup)
 def rules_group() -> None:
     """Rule sets: list the built-in ones, check a rule file, show a rule set.
 
@@ -60,7 +61,6 @@ def rules_group() -> None:
 
 
 @rules_group.command("list")
-@one_line_errors
 def list_command() -> None:
     """Built-in rule sets, one line each.
 
@@ -77,7 +77,6 @@ def list_command() -> None:
 @click.argument("file", type=click.Path(dir_okay=False))
 @click.option("--n", "n", type=click.IntRange(min=1), default=20, show_default=True,
               help="n at which termination and layering are checked")
-@one_line_errors
 def check_command(file: str, n: int) -> None:
     """Check a rule file: syntax, the value of every move, and termination at n.
 
@@ -98,7 +97,6 @@ def check_command(file: str, n: int) -> None:
 @click.argument("name_or_file")
 @click.option("--n", "n", type=click.IntRange(min=1), default=10, show_default=True,
               help="n for the layering and the end positions")
-@one_line_errors
 def show_command(name_or_file: str, n: int) -> None:
     """Show a rule set: bins, start, moves, level weights and end positions at n.
 

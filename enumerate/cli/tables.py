@@ -1,8 +1,9 @@
-"""Command line of the Dask layer: `table`, `verify` and the `plan` group (`plan count`,
-`plan random`, `plan solve`), registered by `cli.main`.
+"""Tables and forecasts: `table`, `verify` and the `plan` group (`plan count`,
+`plan random`, `plan solve`).
 
-Each command is a thin layer over `zeckenum.cluster`; `ZeckenumError`s become one line on
-stderr and the error's exit status (`cli.fail`).
+`table` and `verify` are thin layers over `zeckenum.api` (which picks the backend); the
+forecasts call `zeckenum.cluster.predict`.  Errors go through the one handler
+(`cli.errors.exit_for`).
 """
 
 from __future__ import annotations
@@ -10,31 +11,33 @@ from __future__ import annotations
 import json
 
 import click
-from zeckenum.cli.errors import fail
+from zeckenum import api
+from zeckenum.cli.errors import OneLineCommand, OneLineGroup
 from zeckenum.cli.options import (
     POSITIVE,
-    WORKERS,
-    OneLineCommand,
-    bounded,
+    SEED,
+    SHARDS,
+    backend_options,
+    json_option,
     max_memory_option,
+    model_option,
+    n_argument,
+    players_option,
+    probe_option,
     progress_option,
     resolve_progress,
-    scheduler_option,
+    rules_option,
+    workers_option,
 )
-from zeckenum.core.checks import RANDOM_MAX_PLAYERS, RANDOM_MODELS, SOLVE_MAX_PLAYERS
+from zeckenum.core.checks import RANDOM_MAX_PLAYERS, SOLVE_MAX_PLAYERS
 from zeckenum.core.text import plural
-from zeckenum.errors import InputError, ZeckenumError
-
-# No import from `cli` at module level: `cli` imports this module to register the commands.
-PROBE = bounded(20, 400)
-"""A probe's n (`cluster.predict.check_probe`): enough work to time, about a second."""
-
-
+from zeckenum.errors import InputError
 
 _backend_help = {
     "workers": "Start a local Dask cluster of K worker processes (127.0.0.1).",
     "scheduler": "Use an existing Dask cluster at this scheduler address.",
 }
+_plan_workers = "Workers the run would use."
 
 
 @click.command("table", cls=OneLineCommand)
@@ -45,16 +48,13 @@ _backend_help = {
 @click.option("--out", type=click.Path(file_okay=False), required=True,
               help="Directory to publish: new, empty, or a partial/complete table of the "
                    "same rules and kinds, which is resumed.")
-@click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
-@click.option("--workers", type=WORKERS, default=None,
-              help=_backend_help["workers"])
-@scheduler_option(_backend_help["scheduler"])
-@click.option("--checkpoint", "checkpoint_dir", type=click.Path(file_okay=False), default=None,
-              help="Keep finished shards here; a rerun resumes from them.")
+@rules_option()
+@backend_options(workers=_backend_help["workers"], scheduler=_backend_help["scheduler"],
+                 checkpoint="Keep finished shards here; a rerun resumes from them.")
 @progress_option()
 @max_memory_option
 def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, progress,  # noqa: ANN001
-                  max_memory):
+                  max_memory) -> None:  # noqa: ANN001
     """Publish exact tables for every n from --from to --to into a directory.
 
     \b
@@ -67,54 +67,22 @@ def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, 
     Example:
       zeckenum table --from 1 --to 80 --what count --out table80 --workers 2
     """
-    from zeckenum.tables.table import build_table, parse_what
-
-    try:
-        kinds = parse_what(what)
-        if hi < lo:
-            raise InputError(f"--to must be at least --from, got --from {lo} --to {hi}")
-        if max_memory is not None or scheduler is None:
-            refuse_table(hi, kinds, rules, max_memory)
-        manifest = build_table(lo, hi, kinds, out, rules, workers=workers,
-                               scheduler=scheduler, checkpoint_dir=checkpoint_dir,
-                               progress=resolve_progress(progress))
-    except ZeckenumError as exc:
-        fail(exc)
-    click.echo(f"zeckenum table: n={lo}..{hi} ({', '.join(kinds)}) -> {out}: "
-               f"{plural(len(manifest['files']), 'file')} + manifest.json")
-
-
-def refuse_table(hi: int, kinds: list[str], rules: str, max_memory: int | None) -> None:
-    """The up-front refusals of the largest n of a table, for each kind it computes (the
-    forecasts grow with n): a table that cannot reach its last n does not start."""
-    from zeckenum.core.memory import resolve_limit
-    from zeckenum.counting.count import refuse_count
-    from zeckenum.optimal.solve import needs_reach, solve_space
-    from zeckenum.randomplay.exact import refuse_random
-    from zeckenum.rules.catalogue import get_rules
-
-    ruleset = get_rules(rules)
-    for kind in kinds:
-        if kind == "count":
-            refuse_count(hi, ruleset, max_memory=max_memory)
-        elif kind == "random":
-            refuse_random(hi, ruleset, max_memory=max_memory)
-        elif kind == "solve":
-            solve_space(ruleset.instantiate(hi), resolve_limit(max_memory), 2,
-                        needs_reach(ruleset), False, f"solving n={hi}")
+    built = api.build_table(lo, hi, what, out, rules, workers=workers, scheduler=scheduler,
+                            checkpoint=checkpoint_dir, progress=resolve_progress(progress),
+                            max_memory=max_memory)
+    click.echo(f"zeckenum table: n={lo}..{hi} ({', '.join(built.kinds)}) -> {out}: "
+               f"{plural(len(built.manifest['files']), 'file')} + manifest.json")
 
 
 @click.command("verify", cls=OneLineCommand)
 @click.argument("folder", type=click.Path(file_okay=False))
 @click.option("--sample", type=click.IntRange(min=0), default=3, show_default=True,
               help="How many n, drawn at random, to recompute (the largest n always is).")
-@click.option("--seed", type=bounded(0, 2**63 - 1), default=None,
+@click.option("--seed", type=SEED, default=None,
               help="Seed of the sample, to repeat a run (default: a fresh one, printed).")
 @click.option("--full", is_flag=True, help="Recompute every n of the table.")
-@click.option("--workers", type=WORKERS, default=None,
-              help=_backend_help["workers"])
-@scheduler_option(_backend_help["scheduler"])
-def verify_command(folder, sample, seed, full, workers, scheduler):  # noqa: ANN001
+@backend_options(workers=_backend_help["workers"], scheduler=_backend_help["scheduler"])
+def verify_command(folder, sample, seed, full, workers, scheduler) -> None:  # noqa: ANN001
     """Check a published table: checksums, file list, row invariants, and recomputed rows.
 
     \b
@@ -125,13 +93,8 @@ def verify_command(folder, sample, seed, full, workers, scheduler):  # noqa: ANN
     --seed S repeats the run, plus the largest n; --full covers every n.
     Exit 0: the table passed; 5: a check failed; 2: not a readable table (one line).
     """
-    from zeckenum.tables.table import verify_table
-
-    try:
-        rep = verify_table(folder, sample, seed, full=full, workers=workers,
-                           scheduler=scheduler)
-    except ZeckenumError as exc:
-        fail(exc)
+    rep = api.verify_table(folder, sample, seed, full=full, workers=workers,
+                           scheduler=scheduler).report
     ns = ", ".join(str(n) for n in rep["recomputed"]) or "none"
     lo, hi = rep["n_range"]
     how = "--full" if rep["full"] else f"--seed {rep['seed']}"
@@ -141,7 +104,7 @@ def verify_command(folder, sample, seed, full, workers, scheduler):  # noqa: ANN
                f"n = {ns} ({how})")
 
 
-@click.group("plan")
+@click.group("plan", cls=OneLineGroup)
 def plan_command() -> None:
     """Forecast a run before starting it: exact sizes, shards, memory and time.
 
@@ -162,15 +125,13 @@ def _echo_prediction(p: dict, as_json: bool) -> None:
 
 
 @plan_command.command("count", cls=OneLineCommand)
-@click.argument("n", type=POSITIVE)
-@click.option("--workers", type=WORKERS, default=1, show_default=True,
-              help="Workers the run would use.")
-@click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
-@click.option("--probe", "probe_n", type=PROBE, default=90, show_default=True,
-              help="n of the calibration count on this machine (20..400).")
-@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+@n_argument()
+@workers_option(_plan_workers, default=1)
+@rules_option()
+@probe_option("n of the calibration count on this machine (20..400).", 90)
+@json_option("Print one JSON object.")
 @max_memory_option
-def plan_count_command(n, workers, rules, probe_n, as_json, max_memory):  # noqa: ANN001
+def plan_count_command(n, workers, rules, probe_n, as_json, max_memory) -> None:  # noqa: ANN001
     """Forecast an exact count: sizes, shards, memory, time.
 
     Runs the first sweep of N (exact sizes and word updates) and a small calibration count.
@@ -181,30 +142,23 @@ def plan_count_command(n, workers, rules, probe_n, as_json, max_memory):  # noqa
     """
     from zeckenum.cluster.predict import predict_count
 
-    try:
-        p = predict_count(n, rules, workers, probe_n=probe_n, max_memory=max_memory)
-    except ZeckenumError as exc:
-        fail(exc)
+    p = predict_count(n, rules, workers, probe_n=probe_n, max_memory=max_memory)
     _echo_prediction(p, as_json)
 
 
 @plan_command.command("random", cls=OneLineCommand)
-@click.argument("n", type=POSITIVE)
-@click.option("--model", type=click.Choice(RANDOM_MODELS), default="moves", show_default=True,
-              help="Random model: uniform over legal moves, or over token pairs.")
-@click.option("--players", "-p", type=bounded(2, RANDOM_MAX_PLAYERS), default=2, show_default=True,
-              help=f"Number of players P (2..{RANDOM_MAX_PLAYERS}).")
+@n_argument()
+@model_option("Random model: uniform over legal moves, or over token pairs.")
+@players_option(RANDOM_MAX_PLAYERS)
 @click.option("--winners-only", is_flag=True,
               help="Forecast the win probabilities only (no length law).")
-@click.option("--workers", type=WORKERS, default=1, show_default=True,
-              help="Workers the run would use.")
-@click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
-@click.option("--probe", "probe_n", type=PROBE, default=None,
-              help="n of the calibration run on this machine (20..400, default 100).")
-@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+@workers_option(_plan_workers, default=1)
+@rules_option()
+@probe_option("n of the calibration run on this machine (20..400, default 100).", None)
+@json_option("Print one JSON object.")
 @max_memory_option
 def plan_random_command(n, model, players, winners_only, workers, rules, probe_n,  # noqa: ANN001
-                        as_json, max_memory):
+                        as_json, max_memory) -> None:  # noqa: ANN001
     """Forecast exact random play: sizes, primes, shards, memory, time.
 
     Runs random play's first sweep of N (exact states, transitions, denominator, primes,
@@ -216,33 +170,27 @@ def plan_random_command(n, model, players, winners_only, workers, rules, probe_n
     """
     from zeckenum.cluster.predict import predict_random
 
-    try:
-        _check_probe(probe_n)
-        p = predict_random(n, rules, workers, model=model, players=players,
-                           winners_only=winners_only, probe_n=probe_n, max_memory=max_memory)
-    except ZeckenumError as exc:
-        fail(exc)
+    _check_probe(probe_n)
+    p = predict_random(n, rules, workers, model=model, players=players,
+                       winners_only=winners_only, probe_n=probe_n, max_memory=max_memory)
     _echo_prediction(p, as_json)
 
 
 @plan_command.command("solve", cls=OneLineCommand)
-@click.argument("n", type=POSITIVE)
-@click.option("--players", "-p", type=bounded(2, SOLVE_MAX_PLAYERS), default=2,
-              show_default=True, help=f"Number of players P (2..{SOLVE_MAX_PLAYERS}).")
-@click.option("--workers", type=WORKERS, default=1, show_default=True,
-              help="Workers the run would use (the chain runs one range at a time).")
-@click.option("--shards", type=bounded(1, 10**6), default=None,
+@n_argument()
+@players_option(SOLVE_MAX_PLAYERS)
+@workers_option("Workers the run would use (the chain runs one range at a time).", default=1)
+@click.option("--shards", type=SHARDS, default=None,
               help="Level ranges of the chain (default: one per 2e7 states).")
 @click.option("--reach", is_flag=True,
               help="Run the reachability sweep for an exact state count (rule sets other "
                    "than the standard game; else the count is an upper bound).")
-@click.option("--rules", default="standard", show_default=True, help="Rule set name or file.")
-@click.option("--probe", "probe_n", type=PROBE, default=None,
-              help="n of the calibration solve on this machine (20..400, default 160).")
-@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+@rules_option()
+@probe_option("n of the calibration solve on this machine (20..400, default 160).", None)
+@json_option("Print one JSON object.")
 @max_memory_option
 def plan_solve_command(n, players, workers, shards, reach, rules, probe_n,  # noqa: ANN001
-                       as_json, max_memory):
+                       as_json, max_memory) -> None:  # noqa: ANN001
     """Forecast optimal play: states, level ranges, bit memory, time.
 
     Reads the exact sizes off the rank table and times a small calibration solve.  The
@@ -254,12 +202,9 @@ def plan_solve_command(n, players, workers, shards, reach, rules, probe_n,  # no
     """
     from zeckenum.cluster.predict import predict_solve
 
-    try:
-        _check_probe(probe_n)
-        p = predict_solve(n, rules, workers, players=players, shards=shards, reach=reach,
-                          probe_n=probe_n, max_memory=max_memory)
-    except ZeckenumError as exc:
-        fail(exc)
+    _check_probe(probe_n)
+    p = predict_solve(n, rules, workers, players=players, shards=shards, reach=reach,
+                      probe_n=probe_n, max_memory=max_memory)
     _echo_prediction(p, as_json)
 
 

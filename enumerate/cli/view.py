@@ -1,6 +1,7 @@
 """Command-line front ends for seeing results: `games`, `move-stats`, `plot`, `report`.
 
-Thin click layers over `extremal`, `movestats`, `plots` and `report`.  Errors a user can
+Thin click layers over `zeckenum.api` (games, move statistics, the data of figures) and
+`zeckenum.present` (figures, the HTML report), which only draws.  Errors a user can
 cause come out as one line on stderr with the error's exit code (2 for bad input).
 """
 
@@ -10,27 +11,32 @@ import json
 import sys
 from fractions import Fraction
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import click
-from zeckenum.cli.errors import one_line_errors
-from zeckenum.cli.options import OneLineCommand, PositiveInt, max_memory_option
+from zeckenum import api
+from zeckenum.cli.errors import OneLineCommand
+from zeckenum.cli.options import (
+    json_option,
+    max_memory_option,
+    model_option,
+    n_argument,
+    rules_option,
+)
 from zeckenum.core.text import plural
 from zeckenum.errors import CheckFailed, InputError
 
-
-def _frac(x: Fraction) -> str:
-    return f"{x.numerator}/{x.denominator}" if x.denominator != 1 else str(x.numerator)
+if TYPE_CHECKING:  # pragma: no cover - types only
+    from zeckenum.analysis.rundata import RunData
 
 
 @click.command("games", cls=OneLineCommand)
-@click.argument("n", type=PositiveInt())
-@click.option("--rules", default="standard", show_default=True,
-              help="Built-in rule set name or a .toml rule file.")
+@n_argument()
+@rules_option()
 @click.option("--near", default=3, show_default=True, type=click.IntRange(1, 100),
               help="How many lengths next to each extreme to list with their game counts.")
-@click.option("--json", "as_json", is_flag=True, help="One JSON object instead of text.")
+@json_option("One JSON object instead of text.")
 @max_memory_option
-@one_line_errors
 def games_command(n: int, rules: str, near: int, as_json: bool, max_memory: int | None) -> None:
     """An explicit shortest and longest game at N, as move lists with the state after each
     move; the number of games at the lengths near the extremes; and (standard game) the
@@ -41,32 +47,14 @@ def games_command(n: int, rules: str, near: int, as_json: bool, max_memory: int 
       zeckenum games 10
       zeckenum games 40 --near 5 --json
     """
-    from zeckenum.analysis.extremal import (
-        extremal_games,
-        format_game,
-        greedy_longest_game,
-        lengths_near_extremes,
-    )
-    from zeckenum.counting.count import count
-    from zeckenum.rules.catalogue import get_rules
+    from zeckenum.analysis.extremal import format_game
 
-    rs = get_rules(rules)
-    short, long = extremal_games(n, rs, max_memory=max_memory)
-    res = count(n, rs, max_memory=max_memory)
-    ext = lengths_near_extremes(res.length_counts, near)
-    greedy = greedy_longest_game(n) if rs.name == "standard" else None
+    rep = api.games(n, rules, near, max_memory=max_memory)
     if as_json:
-        out = {"rules": rs.name, "n": n, "shortest_game": short.to_dict(),
-               "longest_game": long.to_dict(),
-               "near_shortest": {str(k): str(v) for k, v in ext["shortest"]},
-               "near_longest": {str(k): str(v) for k, v in ext["longest"]}}
-        if greedy is not None:
-            out["greedy_longest"] = {"length": greedy.length,
-                                     "equals_longest": greedy.length == long.length,
-                                     "moves": [s.move for s in greedy.steps]}
-        click.echo(json.dumps(out, indent=1))
+        click.echo(json.dumps(rep.to_dict(), indent=1))
         return
-    click.echo(f"zeckenum games  rules={rs.name}  n={n}\n")
+    short, long, ext, greedy = rep.shortest, rep.longest, rep.near, rep.greedy
+    click.echo(f"zeckenum games  rules={rep.rules}  n={n}\n")
     click.echo(format_game(short) + "\n")
     click.echo(format_game(long) + "\n")
     click.echo("games at the lengths near the extremes")
@@ -82,20 +70,16 @@ def games_command(n: int, rules: str, near: int, as_json: bool, max_memory: int 
 
 
 @click.command("move-stats", cls=OneLineCommand)
-@click.argument("n", type=PositiveInt())
-@click.option("--rules", default="standard", show_default=True,
-              help="Built-in rule set name or a .toml rule file.")
+@n_argument()
+@rules_option()
 @click.option("--move", "chosen", default=None,
               help="Also print the distribution of this move's count (a move such as "
                    "combine@2, a move type such as split: all its bins, or a "
                    "prefix ending in * such as 'combine*').")
-@click.option("--model", default="moves", show_default=True,
-              type=click.Choice(["moves", "pairs"]),
-              help="Random model for the expected counts.")
+@model_option("Random model for the expected counts.")
 @click.option("--no-random", is_flag=True, help="Skip the random-play expected counts.")
-@click.option("--json", "as_json", is_flag=True, help="One JSON object instead of text.")
+@json_option("One JSON object instead of text.")
 @max_memory_option
-@one_line_errors
 def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_random: bool,
                       as_json: bool, max_memory: int | None) -> None:
     """For every move at N: its total number of occurrences over all games and its exact
@@ -107,51 +91,18 @@ def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_ran
       zeckenum move-stats 20
       zeckenum move-stats 30 --move split --model pairs
     """
-    from zeckenum.analysis.movestats import (
-        check_on_expected,
-        check_on_totals,
-        expected_counts,
-        format_form,
-        format_invariants,
-        linear_invariants,
-        move_count_distribution,
-        move_totals,
-    )
-    from zeckenum.rules.catalogue import get_rules
+    from zeckenum.analysis.movestats import format_invariants
 
-    rs = get_rules(rules)
-    mem = {"max_memory": max_memory}
-    totals = move_totals(n, rs, **mem)
-    expected = None if no_random else expected_counts(n, rs, model, **mem)
-    inv = linear_invariants(n, rs, **mem)
-    bad = check_on_totals(inv, totals) + (check_on_expected(inv, expected) if expected else [])
-    dist = None
-    if chosen:
-        dist = move_count_distribution(n, chosen, rs, "games", **mem)
-        rdist = None if no_random else move_count_distribution(n, chosen, rs, model, **mem)
+    rep = api.move_stats(n, rules, move=chosen, model=model, random=not no_random,
+                         max_memory=max_memory)
     if as_json:
-        out: dict = {
-            "rules": rs.name, "n": n, "games": str(totals.games),
-            "totals": {m: str(t) for m, t in totals.as_dict().items()},
-            "invariants": [{"form": format_form(x.coeffs, inv.move_names),
-                            "coefficients": [_frac(c) for c in x.coeffs],
-                            "value": _frac(x.value), "name": x.name}
-                           for x in (*inv.named, *inv.basis)],
-            "invariants_verified": not bad, "failures": bad,
-        }
-        if expected is not None:
-            out["random_model"] = model
-            out["expected"] = {m: _frac(v) for m, v in expected.items()}
-        if dist is not None:
-            out["distribution"] = {"move": chosen,
-                                   "games": {str(k): str(v) for k, v in dist.items()}}
-            if rdist is not None:
-                out["distribution"]["random"] = {str(k): _frac(v) for k, v in rdist.items()}
-        click.echo(json.dumps(out, indent=1))
-        if bad:
+        click.echo(json.dumps(rep.to_dict(), indent=1))
+        if rep.failures:
             sys.exit(CheckFailed.exit_code)
         return
-    click.echo(f"zeckenum move-stats  rules={rs.name}  n={n}  games={totals.games}\n")
+    totals, expected, inv, bad = rep.totals, rep.expected, rep.invariants, rep.failures
+    dist, rdist = rep.distribution, rep.random_distribution
+    click.echo(f"zeckenum move-stats  rules={rep.rules}  n={n}  games={totals.games}\n")
     w = max((len(m) for m in totals.move_names), default=4)
     click.echo(f"  {'move'.ljust(w)}  {'total over all games':>26}  {'per game':>10}"
                + ("" if expected is None else f"  {'expected (' + model + ')':>18}"))
@@ -175,8 +126,11 @@ def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_ran
 
 
 def _load_data(table: str | None, lo_hi: tuple[int, int] | None, rules: str,
-               random_upto: int):
-    from zeckenum.present.plots import add_random, collect, is_table, read_table
+               random_upto: int) -> RunData:
+    """The data of a figure or report: a table read back (random play added up to
+    `random_upto`) or a fresh computation over A..B."""
+    from zeckenum.analysis.rundata import add_random
+    from zeckenum.present.plots import is_table, read_table
 
     if table and lo_hi:
         raise InputError("give either --table DIR or --range A B, not both")
@@ -185,11 +139,11 @@ def _load_data(table: str | None, lo_hi: tuple[int, int] | None, rules: str,
             raise InputError(f"{table}: no manifest.json and summary.csv (not a zeckenum table)")
         return add_random(read_table(table), random_upto)
     if lo_hi:
-        return collect(lo_hi[0], lo_hi[1], rules, random_upto=random_upto)
+        return api.collect(lo_hi[0], lo_hi[1], rules, random_upto=random_upto)
     raise InputError("give --table DIR (a directory from `zeckenum table`) or --range A B")
 
 
-@click.command("plot")
+@click.command("plot", cls=OneLineCommand)
 @click.argument("kind", type=click.Choice(["distribution", "shape", "wins", "moments",
                                            "gaussian"]))
 @click.option("--table", "table", type=click.Path(), default=None,
@@ -200,13 +154,11 @@ def _load_data(table: str | None, lo_hi: tuple[int, int] | None, rules: str,
               help="The n of the 'distribution' plot (default: the largest).")
 @click.option("--source", type=click.Choice(["games", "random"]), default="games",
               show_default=True, help="Law of the 'shape' plot: all games or random play.")
-@click.option("--rules", default="standard", show_default=True,
-              help="Built-in rule set name or a .toml rule file (with --range).")
+@rules_option(help_text="Built-in rule set name or a .toml rule file (with --range).")
 @click.option("--random-upto", type=int, default=80, show_default=True,
               help="Compute random-play laws only for n up to this.")
 @click.option("--out", "out", default=None,
               help="Output prefix: writes PREFIX.png and PREFIX.svg (default: KIND).")
-@one_line_errors
 def plot_command(kind: str, table: str | None, lo_hi: tuple[int, int] | None, n: int | None,
                  source: str, rules: str, random_upto: int, out: str | None) -> None:
     """Draw one figure (PNG and SVG) from a table directory or a fresh computation.
@@ -233,19 +185,17 @@ def plot_command(kind: str, table: str | None, lo_hi: tuple[int, int] | None, n:
         click.echo(str(path))
 
 
-@click.command("report")
+@click.command("report", cls=OneLineCommand)
 @click.argument("folder", type=click.Path())
 @click.option("--range", "lo_hi", type=(int, int), default=None,
               help="No table in FOLDER: compute A <= n <= B afresh and write the page there.")
-@click.option("--rules", default="standard", show_default=True,
-              help="Built-in rule set name or a .toml rule file (with --range; a table "
-                   "carries its own rule file).")
+@rules_option(help_text="Built-in rule set name or a .toml rule file (with --range; a "
+                        "table carries its own rule file).")
 @click.option("--random-upto", type=int, default=80, show_default=True,
               help="Compute random-play laws only for n up to this.")
 @click.option("--detail", "detail_n", type=int, default=None,
               help="The n of the extremal games and move statistics (default: the largest "
                    "n <= 60).")
-@one_line_errors
 def report_command(folder: str, lo_hi: tuple[int, int] | None, rules: str, random_upto: int,
                    detail_n: int | None) -> None:
     """Write FOLDER/report.html, one self-contained page (figures, tables, provenance, how
@@ -261,6 +211,7 @@ def report_command(folder: str, lo_hi: tuple[int, int] | None, rules: str, rando
       zeckenum report tables/std
       zeckenum report runs/small --range 1 40
     """
+    from zeckenum.analysis.rundata import run_detail
     from zeckenum.present.plots import is_table
     from zeckenum.present.report import REPORT_NAME, write_report
     from zeckenum.safeio import check_output_dir, check_output_file
@@ -273,4 +224,5 @@ def report_command(folder: str, lo_hi: tuple[int, int] | None, rules: str, rando
         check_output_dir(folder, "report folder")
     check_output_file(Path(folder) / REPORT_NAME, "report")
     data = _load_data(table, None if table else lo_hi, rules, random_upto)
-    click.echo(str(write_report(data, Path(folder), detail_n)))
+    detail = run_detail(data, detail_n)
+    click.echo(str(write_report(data, Path(folder), detail)))

@@ -1,12 +1,14 @@
 """Figures of a run over a range of n: pure functions from plain data to matplotlib Figures.
 
-The data (`RunData`) comes from a fresh computation (`collect`: `count` and `random_play`
-for every n of a range) or from a table directory written by `zeckenum table` (`read_table`:
-read and checked by `zeckenum.tables.table.load_table`, checksums and row invariants
-included).  `RunData` carries the rule set itself (`ruleset`, and its canonical rule-file
-text `rules_text`): a table's rule set is rebuilt from the rule file embedded in its
-manifest, checked against its hash, and never looked up by name, so anything computed
-later from the data (random play, extremal games, move statistics) is for the same game.
+Nothing here computes a game.  The data (`zeckenum.analysis.rundata.RunData`) comes from a
+fresh computation (`zeckenum.collect`, i.e. `analysis.rundata.collect`: `count` and
+`random_play` for every n of a range) or from a table directory written by `zeckenum table`
+(`read_table` here: read and checked by `zeckenum.tables.table.load_table`, checksums and
+row invariants included).  `RunData` carries the rule set itself (`ruleset`, and its
+canonical rule-file text `rules_text`): a table's rule set is rebuilt from the rule file
+embedded in its manifest, checked against its hash, and never looked up by name, so
+anything computed later from the data (random play, extremal games, move statistics) is
+for the same game.
 Every figure function returns a `matplotlib.figure.Figure` built without pyplot (Agg
 canvas, no global state), so tests can inspect its axes and lines; `save_figure` writes it
 as PNG and SVG.
@@ -26,7 +28,6 @@ gaussian      Kolmogorov and total-variation distances to the normal law, skewne
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 from fractions import Fraction
 from pathlib import Path
 
@@ -37,99 +38,19 @@ matplotlib.use("Agg")
 import numpy as np  # noqa: E402
 from matplotlib.backends.backend_agg import FigureCanvasAgg  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
-from zeckenum.core.moments import gaussian_diagnostics  # noqa: E402
+from zeckenum.analysis.rundata import SUMMARY_KEYS, RunData  # noqa: E402
+from zeckenum.core.moments import exact_moments, gaussian_diagnostics  # noqa: E402
 from zeckenum.errors import InputError  # noqa: E402
-from zeckenum.rules.catalogue import get_rules  # noqa: E402
-from zeckenum.rules.model import RuleSet  # noqa: E402
 
 SOURCES = ("games", "random")
 SOURCE_LABEL = {"games": "all games", "random": "random play"}
 
 
-@dataclass(frozen=True)
-class RunData:
-    """Exact results over a range of n.
-
-    spectra[n]  {length: number of games} (all games)
-    random[n]   {length: probability} of a random game (uniform over legal moves); may
-                cover fewer n than spectra
-    wins[n]     probability that player 1 wins a random game (two players)
-    summary[n]  states, transitions, games, shortest, longest, shortest_games, longest_games
-    provenance  where the numbers came from (rule set, hash, version, parameters, files)
-    ruleset     the rule set the numbers are for (None only for hand-made data, whose
-                `rules` is then a built-in name or a rule file)
-    rules_text  its canonical rule-file text (`rulefile.format_rules`)
-    """
-
-    rules: str
-    spectra: dict[int, dict[int, int]]
-    random: dict[int, dict[int, Fraction]] = field(default_factory=dict)
-    wins: dict[int, Fraction] = field(default_factory=dict)
-    summary: dict[int, dict[str, int]] = field(default_factory=dict)
-    provenance: dict = field(default_factory=dict)
-    ruleset: RuleSet | None = None
-    rules_text: str = ""
-
-    @property
-    def ns(self) -> list[int]:
-        return sorted(self.spectra)
-
-    def rule_set(self) -> RuleSet:
-        """The rule set of the data: `ruleset` when known (always for tables and `collect`),
-        else `rules` resolved by `get_rules` (hand-made data only)."""
-        return self.ruleset if self.ruleset is not None else get_rules(self.rules)
-
-    def law(self, source: str, n: int) -> dict[int, float]:
-        """{length: probability} (floats) of all games or of random play at n."""
-        if source == "games":
-            sp = self.spectra[n]
-            total = sum(sp.values())
-            return {k: float(Fraction(v, total)) for k, v in sorted(sp.items())}
-        return {k: float(v) for k, v in sorted(self.random[n].items())}
-
-    def source_ns(self, source: str) -> list[int]:
-        return self.ns if source == "games" else sorted(self.random)
-
-
-def exact_mean_variance(weights: dict[int, int | Fraction]) -> tuple[Fraction, Fraction]:
-    """Exact mean and variance of the law proportional to `weights` over lengths."""
+def exact_law(weights: dict[int, int] | dict[int, Fraction]) -> dict[int, Fraction]:
+    """The law proportional to `weights` over lengths, as exact probabilities (for
+    `core.moments.exact_moments`)."""
     total = Fraction(sum(weights.values()))
-    mean = sum((Fraction(k) * w for k, w in weights.items()), Fraction(0)) / total
-    var = sum((w * (k - mean) ** 2 for k, w in weights.items()), Fraction(0)) / total
-    return mean, var
-
-
-def collect(lo: int, hi: int, rules: str = "standard", random_upto: int | None = None,
-            threads: int | None = None) -> RunData:
-    """Fresh exact computation for lo <= n <= hi: `count` at every n, `random_play` (two
-    players, uniform over the legal moves) at every n <= random_upto (default: hi)."""
-    from zeckenum import __version__
-    from zeckenum.counting.count import count
-    from zeckenum.randomplay.exact import random_play
-    from zeckenum.rules.rulefile import format_rules
-
-    if lo < 1 or hi < lo:
-        raise InputError(f"need 1 <= A <= B for the range of n, got {lo}..{hi}")
-    rs = get_rules(rules)
-    top = hi if random_upto is None else min(hi, random_upto)
-    spectra, random, wins, summary = {}, {}, {}, {}
-    for n in range(lo, hi + 1):
-        r = count(n, rs, threads=threads)
-        spectra[n] = dict(r.length_counts)
-        summary[n] = {k: int(v) for k, v in r.to_dict().items() if k in SUMMARY_KEYS}
-        if n <= top:
-            rr = random_play(n, rs, threads=threads)
-            random[n] = dict(rr.length_probability or {})
-            wins[n] = rr.win_probability[1]
-    prov = {"source": "fresh computation", "rules": rs.name, "rules_hash": rs.content_hash(),
-            "version": __version__, "range": [lo, hi], "random_upto": top,
-            "random_model": "moves"}
-    return RunData(rules=rs.name, spectra=spectra, random=random, wins=wins, summary=summary,
-                   provenance=prov, ruleset=rs, rules_text=format_rules(rs))
-
-
-SUMMARY_KEYS = ("states", "transitions", "games", "shortest", "longest", "shortest_games",
-                "longest_games")
+    return {k: Fraction(w) / total for k, w in weights.items()}
 
 
 def is_table(folder: str | Path) -> bool:
@@ -143,7 +64,8 @@ def read_table(folder: str | Path) -> RunData:
     (`zeckenum.tables.table.load_table`: checksums, file list, canonical rows, row
     invariants); the rule set is the one embedded in the manifest.  The table must hold
     counts (summary.csv, spectra.csv); random play comes from random.csv and
-    random_lengths.csv when present, and `add_random` fills in what a table lacks."""
+    random_lengths.csv when present, and `analysis.rundata.add_random` fills in what a
+    table lacks."""
     from zeckenum.tables.table import load_table
 
     folder = Path(folder)
@@ -161,23 +83,6 @@ def read_table(folder: str | Path) -> RunData:
     return RunData(rules=t.ruleset.name, spectra=spectra, random=random, wins=wins,
                    summary=summary, provenance=prov, ruleset=t.ruleset,
                    rules_text=t.rules_text)
-
-
-def add_random(data: RunData, upto: int, threads: int | None = None) -> RunData:
-    """`data` with the random-play length laws (and player 1's win probability) computed
-    for every n <= upto of its range that lacks them."""
-    from zeckenum.randomplay.exact import random_play
-
-    random, wins = dict(data.random), dict(data.wins)
-    for n in data.ns:
-        if n <= upto and n not in random:
-            rr = random_play(n, data.rule_set(), threads=threads)
-            random[n] = dict(rr.length_probability or {})
-            wins.setdefault(n, rr.win_probability[1])
-    prov = {**data.provenance, "random_computed_upto": upto, "random_model": "moves"}
-    return RunData(rules=data.rules, spectra=data.spectra, random=random, wins=wins,
-                   summary=data.summary, provenance=prov, ruleset=data.ruleset,
-                   rules_text=data.rules_text)
 
 
 # ----------------------------------------------------------------------------- figures
@@ -294,8 +199,8 @@ def moment_table(data: RunData) -> dict[str, dict[int, tuple[float, float]]]:
         rows = {}
         for n in data.source_ns(src):
             w = data.spectra[n] if src == "games" else data.random[n]
-            m, v = exact_mean_variance(w)
-            rows[n] = (float(m), float(v))
+            m = exact_moments(exact_law(w))
+            rows[n] = (float(m["mean"]), float(m["variance"]))
         if rows:
             out[src] = rows
     return out

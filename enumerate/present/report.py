@@ -10,10 +10,12 @@ near the extremes, the move totals and expected counts and the linear invariants
 verification; provenance, including the rule file itself (canonical text and content
 hash); and the commands that reproduce every number.
 
-Everything computed here (extremal games, move statistics) is computed for `data`'s rule
-set object (`RunData.rule_set()`: for a table, the rule file embedded in its manifest),
-never for a rule set looked up by name; the greedy comparison, a statement about the
-standard game, is shown only when the rule set's content hash is the standard game's.
+Nothing here computes a game: the detail sections render a `RunDetail`
+(`zeckenum.analysis.rundata.run_detail`: extremal games and move statistics computed for
+`data`'s rule set object, `RunData.rule_set()` - for a table, the rule file embedded in its
+manifest - never for a rule set looked up by name; the greedy comparison, a statement about
+the standard game, is present only when the rule set's content hash is the standard
+game's).  Means and variances are `core.moments.exact_moments` of the exact laws.
 """
 
 from __future__ import annotations
@@ -27,12 +29,13 @@ import shlex
 from fractions import Fraction
 from pathlib import Path
 
+from zeckenum.analysis.rundata import RunData, RunDetail
+from zeckenum.core.moments import exact_moments
 from zeckenum.core.text import plural
 from zeckenum.errors import InputError, OutputError
 from zeckenum.present.plots import (
     SOURCE_LABEL,
-    RunData,
-    exact_mean_variance,
+    exact_law,
     figure_distribution,
     figure_gaussian,
     figure_moments,
@@ -45,7 +48,6 @@ from zeckenum.present.plots import (
 REPORT_NAME = "report.html"
 RULE_FILE_NAME = "rules.toml"
 """The name the reproduce section gives the embedded rule file of a non-standard game."""
-DETAIL_MAX_N = 60
 
 STYLE = """
 body { font-family: sans-serif; max-width: 1200px; margin: 1em auto; padding: 0 1em;
@@ -116,18 +118,23 @@ def figures(data: RunData, detail_n: int) -> list[tuple[str, str, object]]:
     return built
 
 
+def _mean_variance(weights: dict) -> tuple[Fraction, Fraction]:
+    m = exact_moments(exact_law(weights))
+    return m["mean"], m["variance"]
+
+
 def summary_rows(data: RunData) -> list[list[object]]:
     rows = []
     for n in data.ns:
         s = data.summary.get(n, {})
-        gm, gv = exact_mean_variance(data.spectra[n])
+        gm, gv = _mean_variance(data.spectra[n])
         row: list[object] = [n, s.get("states", ""), s.get("transitions", ""),
                              sum(data.spectra[n].values()),
                              f"{min(data.spectra[n])} ({data.spectra[n][min(data.spectra[n])]})",
                              f"{max(data.spectra[n])} ({data.spectra[n][max(data.spectra[n])]})",
                              dec(gm), dec(gv)]
         if n in data.random:
-            rm, rv = exact_mean_variance(data.random[n])
+            rm, rv = _mean_variance(data.random[n])
             row += [dec(rm), dec(rv)]
         else:
             row += ["", ""]
@@ -136,40 +143,26 @@ def summary_rows(data: RunData) -> list[list[object]]:
     return rows
 
 
-def detail_sections(data: RunData, n: int) -> str:
+def detail_sections(data: RunData, detail: RunDetail) -> str:
     """Extremal games, greedy comparison, move statistics and invariants at one n."""
-    from zeckenum.analysis.extremal import (
-        extremal_games,
-        format_counts,
-        greedy_longest_game,
-        lengths_near_extremes,
-    )
-    from zeckenum.analysis.movestats import (
-        check_on_expected,
-        check_on_totals,
-        expected_counts,
-        format_form,
-        linear_invariants,
-        move_totals,
-    )
-    from zeckenum.rules.model import STANDARD
+    from zeckenum.analysis.extremal import format_counts, lengths_near_extremes
+    from zeckenum.analysis.movestats import format_form
 
-    rs = data.rule_set()
+    n, long, stats = detail.n, detail.longest, detail.stats
     parts = [f"<h2>Extremal games at n={n}</h2>"]
-    short, long = extremal_games(n, rs)
     near = lengths_near_extremes(data.spectra[n])
     parts.append("<p>Number of games at the lengths nearest the extremes:</p>")
     parts.append(html_table(["shortest lengths", "games"], near["shortest"]))
     parts.append(html_table(["longest lengths", "games"], near["longest"]))
-    for g in (short, long):
+    for g in (detail.shortest, long):
         rows = [[0, "(start)", format_counts(g.start, g.values)]]
         rows += [[i, s.move, format_counts(s.after, g.values)]
                  for i, s in enumerate(g.steps, 1)]
         parts.append(f"<h3>A {esc(g.kind)} game: {plural(g.length, 'move')}</h3>")
         parts.append(html_table(["#", "move", "state after (bin value x tokens)"], rows,
                                 "game", left=3))
-    if rs.content_hash() == STANDARD.content_hash():
-        greedy = greedy_longest_game(n)
+    if detail.greedy is not None:
+        greedy = detail.greedy
         same = [s.move for s in greedy.steps] == [s.move for s in long.steps]
         verdict = "equal" if greedy.length == long.length else "DIFFERENT"
         parts.append(
@@ -180,8 +173,7 @@ def detail_sections(data: RunData, n: int) -> str:
             f"longest: {plural(long.length, 'move')} ({verdict}); the greedy move list "
             f"{'is' if same else 'is not'} the one shown above.</p>")
     parts.append(f"<h2>Move statistics at n={n}</h2>")
-    totals = move_totals(n, rs)
-    expected = expected_counts(n, rs)
+    totals, expected, inv, bad = stats.totals, stats.expected, stats.invariants, stats.failures
     rows = [[m, t, f"{Fraction(t, totals.games) if totals.games else 0}",
              dec(Fraction(t, totals.games)), dec(expected[m])]
             for m, t in zip(totals.move_names, totals.totals, strict=True)]
@@ -192,8 +184,6 @@ def detail_sections(data: RunData, n: int) -> str:
     parts.append(html_table(["move", "total over all games", "mean per game (exact)",
                              "mean per game", "expected, random play"], rows, "movestats",
                             left=1))
-    inv = linear_invariants(n, rs)
-    bad = check_on_totals(inv, totals) + check_on_expected(inv, expected)
     parts.append("<h3>Linear invariants of the move counts</h3>")
     parts.append("<p>#move is the number of times a game plays that move. Each form is "
                  "derived from the moves' effect vectors (E c = end - start) and checked "
@@ -228,8 +218,8 @@ def reproduce_section(data: RunData, detail_n: int | None, folder: Path) -> str:
         lines += [f"zeckenum games {detail_n}{rules}             # extremal games, greedy",
                   f"zeckenum move-stats {detail_n}{rules}        # totals, invariants"]
     arg = repr("standard" if standard else RULE_FILE_NAME)
-    py = ("import zeckenum\nfrom zeckenum.present.plots import collect\n"
-          f"data = collect({lo}, {hi}, {arg})   # the numbers behind every figure\n"
+    py = ("import zeckenum\n"
+          f"data = zeckenum.collect({lo}, {hi}, {arg})   # the numbers behind every figure\n"
           "zeckenum.count(N).length_counts")
     return ("<h2>How to reproduce</h2><p>Every number on this page comes from these "
             "commands (exact integers and fractions; the decimals are rounded from them):</p>"
@@ -270,13 +260,12 @@ def provenance_section(data: RunData) -> str:
     return "\n".join(out)
 
 
-def render_report(data: RunData, folder: Path, detail_n: int | None = None) -> str:
-    """The whole HTML page as a string."""
-    if detail_n is None:
-        small = [n for n in data.ns if n <= DETAIL_MAX_N]
-        detail_n = small[-1] if small else None
-    elif detail_n not in data.spectra:
-        raise InputError(f"detail n={detail_n} is not in the data ({data.ns[0]}..{data.ns[-1]})")
+def render_report(data: RunData, folder: Path, detail: RunDetail | None = None) -> str:
+    """The whole HTML page as a string; `detail` (`analysis.rundata.run_detail`) gives the
+    sections at one n (none without it)."""
+    if detail is not None and detail.n not in data.spectra:
+        raise InputError(f"detail n={detail.n} is not in the data ({data.ns[0]}..{data.ns[-1]})")
+    detail_n = None if detail is None else detail.n
     fig_n = detail_n if detail_n is not None else data.ns[-1]
     body = [f"<h1>zeckenum run: rules {esc(data.rules)}, n = {data.ns[0]}..{data.ns[-1]}</h1>"]
     body.append("<h2>Figures</h2>")
@@ -299,8 +288,8 @@ def render_report(data: RunData, folder: Path, detail_n: int | None = None) -> s
             fits.append([SOURCE_LABEL[src], what, dec(a, 4), dec(b, 4)])
     body.append("<h3>Fitted leading terms a n^b (upper half of the range)</h3>")
     body.append(html_table(["law", "quantity", "a", "b"], fits, "fits", left=2))
-    if detail_n is not None:
-        body.append(detail_sections(data, detail_n))
+    if detail is not None:
+        body.append(detail_sections(data, detail))
     body.append(provenance_section(data))
     body.append(reproduce_section(data, detail_n, folder))
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
@@ -308,8 +297,9 @@ def render_report(data: RunData, folder: Path, detail_n: int | None = None) -> s
             f"<style>{STYLE}</style></head><body>\n" + "\n".join(body) + "\n</body></html>\n")
 
 
-def write_report(data: RunData, folder: str | Path, detail_n: int | None = None) -> Path:
-    """Write folder/report.html atomically and return its path.  The folder must exist
+def write_report(data: RunData, folder: str | Path, detail: RunDetail | None = None) -> Path:
+    """Write folder/report.html atomically and return its path (`detail`: see
+    `render_report`).  The folder must exist
     (callers check it before computing: `safeio.check_output_dir`); a write that fails
     after the page is rendered goes to `safeio.deliver` (the page is printed on standard
     output) and raises OutputError (exit 6)."""
@@ -318,7 +308,7 @@ def write_report(data: RunData, folder: str | Path, detail_n: int | None = None)
     folder = Path(folder)
     if not folder.is_dir():
         raise OutputError(f"cannot write the report into {folder}: not a directory")
-    text = render_report(data, folder, detail_n)
+    text = render_report(data, folder, detail)
     path = folder / REPORT_NAME
     deliver(path, text.encode("utf-8"), what="report")
     return path

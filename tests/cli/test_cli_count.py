@@ -189,18 +189,18 @@ def _never_count(*args, **kwargs):  # noqa: ANN002, ANN003
 
 
 def test_out_missing_folder_refused_before_counting(tmp_path: Path, monkeypatch) -> None:
-    import zeckenum.cli.group as cli
+    import zeckenum.counting.count as engine
 
-    monkeypatch.setattr(cli, "count", _never_count)
+    monkeypatch.setattr(engine, "count", _never_count)
     code, out, err = run_click("count", "10", "--out", str(tmp_path / "no" / "dir" / "x.csv"))
     assert_one_line_error(code, out, err, 6)
     assert "does not exist" in err
 
 
 def test_out_is_a_directory_refused_before_counting(tmp_path: Path, monkeypatch) -> None:
-    import zeckenum.cli.group as cli
+    import zeckenum.counting.count as engine
 
-    monkeypatch.setattr(cli, "count", _never_count)
+    monkeypatch.setattr(engine, "count", _never_count)
     (tmp_path / "d.csv").mkdir()
     code, out, err = run_click("count", "10", "--out", str(tmp_path / "d.csv"))
     assert_one_line_error(code, out, err, 2)  # click's own check of the path: a usage error
@@ -208,17 +208,17 @@ def test_out_is_a_directory_refused_before_counting(tmp_path: Path, monkeypatch)
 
 
 def test_out_bad_suffix_refused_before_counting(tmp_path: Path, monkeypatch) -> None:
-    import zeckenum.cli.group as cli
+    import zeckenum.counting.count as engine
 
-    monkeypatch.setattr(cli, "count", _never_count)
+    monkeypatch.setattr(engine, "count", _never_count)
     assert_one_line_error(*run_click("count", "5", "--out", str(tmp_path / "x.txt")), 2)
 
 
 @pytest.mark.skipif(os.geteuid() == 0, reason="root writes into read-only folders")
 def test_out_read_only_folder_refused_before_counting(tmp_path: Path, monkeypatch) -> None:
-    import zeckenum.cli.group as cli
+    import zeckenum.counting.count as engine
 
-    monkeypatch.setattr(cli, "count", _never_count)
+    monkeypatch.setattr(engine, "count", _never_count)
     folder = tmp_path / "ro"
     folder.mkdir()
     folder.chmod(0o500)

@@ -26,9 +26,9 @@ sys.path.insert(0, str(Path(__file__).parents[1] / "support"))
 
 from bruteforce import census  # noqa: E402
 from fraction_bruteforce import length_law  # noqa: E402
+from zeckenum.analysis.rundata import RunData  # noqa: E402
 from zeckenum.cli.view import plot_command  # noqa: E402
 from zeckenum.present.plots import (  # noqa: E402
-    RunData,
     figure_distribution,
     figure_gaussian,
     figure_moments,

@@ -22,8 +22,9 @@ sys.path.insert(0, str(Path(__file__).parents[1] / "support"))
 
 from bruteforce import Z, census  # noqa: E402
 from test_plots import FIXED_NS, random_laws, write_fixed_table  # noqa: E402
+from zeckenum.analysis.rundata import RunData, run_detail  # noqa: E402
 from zeckenum.cli.view import report_command  # noqa: E402
-from zeckenum.present.plots import RunData, read_table  # noqa: E402
+from zeckenum.present.plots import read_table  # noqa: E402
 from zeckenum.present.report import write_report  # noqa: E402
 
 # every figure the fixed table allows: distribution, two shape plots, wins, moments, gaussian
@@ -78,7 +79,7 @@ def report(tmp_path_factory: pytest.TempPathFactory) -> Path:
     data = RunData(rules=d.rules, spectra=d.spectra, random=random_laws(), wins=d.wins,
                    summary=d.summary, provenance=d.provenance, ruleset=d.ruleset,
                    rules_text=d.rules_text)
-    return write_report(data, table, detail_n=12)
+    return write_report(data, table, run_detail(data, 12))
 
 
 def test_report_is_self_contained(report: Path) -> None:

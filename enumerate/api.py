@@ -1,0 +1,376 @@
+"""The public Python API: one function per job, each returning a result with `to_dict()`.
+
+    count(n)          -> CountResult      exact census: games of every length
+    random_play(n)    -> RandomResult     exact random play: length law, win probabilities
+    random_float(n)   -> FloatResult      the same in float64 with rigorous error bounds
+    simulate(n, k)    -> SimulationResult Monte Carlo estimates from k random games
+    gaussian(lo, hi)  -> GaussianTable    normal-law diagnostics of random play per n
+    solve(n)          -> SolveResult      optimal play: who wins, P-positions
+    games(n)          -> GamesReport      an explicit shortest and longest game
+    move_stats(n)     -> MoveStats        move totals, expected counts, linear invariants
+    collect(lo, hi)   -> RunData          census and random play over a range (for figures)
+    build_table(...)  -> TableBuild       publish exact tables into a directory
+    load_table(dir)   -> LoadedTable      read a table back, every check short of recomputing
+    read_table(dir)   -> RunData          a table as the data behind figures and reports
+    verify_table(dir) -> TableCheck       a table checked, sample rows recomputed
+
+This module is also the ONE place that chooses where a run goes.  `count`, `random_play`,
+`solve` and `build_table` take `workers` (a local Dask cluster of K processes started and
+closed for the run), `scheduler` (an existing cluster) and `checkpoint` (a folder of
+finished shards a rerun resumes from); with none of them the run stays in this process
+(`random_play` with `progress=True` and `solve` with `shards` use the sharded drivers
+in-process, which are the ones that show progress by shard).  The engines never import
+`zeckenum.cluster`; only this module (and what it calls: tables, the cluster drivers) does.
+
+Every import of an engine is inside the function that needs it, so `import zeckenum` loads
+neither numba, Dask nor matplotlib; the first call pays for what it uses.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, fields
+from fractions import Fraction
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:  # pragma: no cover - types only
+    from zeckenum.analysis.extremal import GamesReport
+    from zeckenum.analysis.movestats import MoveStats
+    from zeckenum.analysis.rundata import RunData
+    from zeckenum.counting.result import CountResult
+    from zeckenum.optimal.solve import SolveResult
+    from zeckenum.randomplay.exact import RandomResult
+    from zeckenum.randomplay.floating import FloatResult
+    from zeckenum.randomplay.simulate import SimulationResult
+    from zeckenum.rules.model import RuleSet
+    from zeckenum.tables.table import Table
+
+def _sharded(workers: int | None, scheduler: str | None, checkpoint: str | Path | None) -> bool:
+    """Whether a run leaves the plain in-process engine for a cluster driver."""
+    return bool(workers or scheduler or checkpoint)
+
+
+def count(
+    n: int, rules: str | RuleSet = "standard", *, threads: int | None = None,
+    prime_offset: int = 0, max_memory: int | None = None, progress: bool = False,
+    workers: int | None = None, scheduler: str | None = None,
+    checkpoint: str | Path | None = None,
+) -> CountResult:
+    """Exact census of all games at n (`zeckenum.counting.count.count`), or the same
+    result computed prime block by prime block on a cluster and/or checkpointed
+    (`zeckenum.cluster.run.run_count`) when `workers`, `scheduler` or `checkpoint` is given."""
+    if _sharded(workers, scheduler, checkpoint):
+        from zeckenum.cluster.run import run_count
+
+        return run_count(n, rules, workers=workers, scheduler=scheduler,
+                         checkpoint_dir=checkpoint, progress=progress,
+                         prime_offset=prime_offset, threads=threads, max_memory=max_memory)
+    from zeckenum.counting import count as engine
+
+    return engine.count(n, rules, threads=threads, prime_offset=prime_offset,
+                        max_memory=max_memory, progress=progress)
+
+
+def random_play(
+    n: int, rules: str | RuleSet = "standard", players: int = 2, model: str = "moves", *,
+    winners_only: bool = False, prime_offset: int = 0, threads: int | None = None,
+    max_memory: int | None = None, progress: bool = False, workers: int | None = None,
+    scheduler: str | None = None, checkpoint: str | Path | None = None,
+) -> RandomResult:
+    """Exact random play at n: every length's probability and each player's chance to win
+    (`zeckenum.randomplay.exact.random_play`).  With `progress`, `workers`, `scheduler`
+    or `checkpoint` the prime blocks run through the sharded driver
+    (`zeckenum.cluster.run.run_random`; in-process threads without workers/scheduler)."""
+    if progress or _sharded(workers, scheduler, checkpoint):
+        from zeckenum.cluster.run import run_random
+
+        return run_random(n, rules, players, model, winners_only=winners_only,
+                          workers=workers, scheduler=scheduler, checkpoint_dir=checkpoint,
+                          progress=progress, prime_offset=prime_offset, threads=threads,
+                          max_memory=max_memory)
+    from zeckenum.randomplay import exact
+
+    return exact.random_play(n, rules, players, model, winners_only=winners_only,
+                             prime_offset=prime_offset, threads=threads,
+                             max_memory=max_memory)
+
+
+def random_float(
+    n: int, rules: str | RuleSet = "standard", players: int = 2, model: str = "moves", *,
+    threads: int | None = None, max_memory: int | None = None,
+) -> FloatResult:
+    """Random play in float64 with a rigorous bound on the rounding error."""
+    from zeckenum.randomplay.floating import float_play
+
+    return float_play(n, rules, players, model, threads=threads, max_memory=max_memory)
+
+
+def simulate(
+    n: int, games: int, seed: int = 0, rules: str | RuleSet = "standard", players: int = 2,
+    model: str = "moves", *, max_memory: int | None = None,
+) -> SimulationResult:
+    """Monte Carlo: `games` random games at n, deterministic in `seed`."""
+    from zeckenum.randomplay import simulate as engine
+
+    return engine.simulate(n, games, seed, rules, players, model, max_memory=max_memory)
+
+
+@dataclass(frozen=True)
+class GaussianTable:
+    """Normal-law diagnostics of random play's length law, one row per n (`gaussian`).
+
+    rows[i] = {"n", "mean", "variance", "skewness", "excess_kurtosis", "kolmogorov",
+    "total_variation"} (floats from the exact law, or from the float64 law in mode
+    "float")."""
+
+    rules: str
+    model: str
+    mode: str
+    rows: list[dict]
+
+    def to_dict(self) -> dict:
+        """JSON-ready form; the keys `zeckenum random --range A B --json` prints."""
+        return {"rules": self.rules, "model": self.model, "mode": self.mode,
+                "gaussian": [dict(r) for r in self.rows]}
+
+
+def gaussian(
+    lo: int, hi: int, rules: str | RuleSet = "standard", model: str = "moves", *,
+    use_float: bool = False, max_memory: int | None = None,
+) -> GaussianTable:
+    """Diagnostics of random play (two players) for every n in lo..hi.  The largest n's
+    memory forecast is checked before any n runs (the forecasts grow with n), so a range
+    that cannot finish is refused up front."""
+    from zeckenum.errors import InputError
+    from zeckenum.randomplay.exact import random_play as exact_play
+    from zeckenum.randomplay.exact import refuse_random
+    from zeckenum.randomplay.floating import float_play
+
+    if lo < 1 or hi < lo:
+        raise InputError(f"--range needs 1 <= A <= B, got {lo} {hi}")
+    if not use_float:
+        refuse_random(hi, rules, 2, model, max_memory=max_memory)
+    rows = []
+    for n in range(lo, hi + 1):
+        if use_float:
+            g = float_play(n, rules, 2, model, max_memory=max_memory).gaussian
+        else:
+            g = exact_play(n, rules, 2, model, max_memory=max_memory).gaussian
+        rows.append({"n": n, **g})
+    name = rules if isinstance(rules, str) else rules.name
+    return GaussianTable(rules=name, model=model, mode="float" if use_float else "exact",
+                         rows=rows)
+
+
+def solve(
+    n: int, rules: str | RuleSet = "standard", players: int = 2, *,
+    max_memory: int | None = None, progress: bool = False, workers: int | None = None,
+    scheduler: str | None = None, checkpoint: str | Path | None = None,
+    shards: int | None = None,
+) -> SolveResult:
+    """Optimal play at n (`zeckenum.optimal.solve.solve`), or the same as a chain of
+    level-range shards (`zeckenum.cluster.solve_chain.run_solve`) when `workers`,
+    `scheduler`, `checkpoint` or `shards` is given.  A chain on this machine (no
+    `scheduler`) or with `max_memory` is refused up front as the in-process solve would
+    be, before any worker starts."""
+    from zeckenum.rules.catalogue import get_rules
+
+    rs = get_rules(rules)
+    if _sharded(workers, scheduler, checkpoint) or shards:
+        from zeckenum.cluster.solve_chain import run_solve
+        from zeckenum.core.memory import resolve_limit
+        from zeckenum.optimal.solve import needs_reach, solve_space
+
+        if max_memory is not None or scheduler is None:
+            solve_space(rs.instantiate(n), resolve_limit(max_memory), players,
+                        needs_reach(rs), False, f"solving n={n}")
+        return run_solve(n, rs, players, workers=workers, scheduler=scheduler,
+                         checkpoint_dir=checkpoint, shards=shards, progress=progress)
+    from zeckenum.optimal import solve as engine
+
+    return engine.solve(n, rs, players, max_memory=max_memory, progress=progress)
+
+
+def games(n: int, rules: str | RuleSet = "standard", near: int = 3, *,
+          max_memory: int | None = None) -> GamesReport:
+    """An explicit shortest and longest game at n, the number of games at the `near`
+    lengths next to each extreme, and (standard game) the greedy longest game."""
+    from zeckenum.analysis.extremal import games_report
+
+    return games_report(n, rules, near, max_memory=max_memory)
+
+
+def move_stats(n: int, rules: str | RuleSet = "standard", *, move: str | None = None,
+               model: str = "moves", random: bool = True,
+               max_memory: int | None = None) -> MoveStats:
+    """Every move's total over all games and expected count under random play, the linear
+    invariants of the move counts checked on both, and `move`'s count distribution."""
+    from zeckenum.analysis.movestats import move_stats as report
+
+    return report(n, rules, move=move, model=model, random=random, max_memory=max_memory)
+
+
+def collect(lo: int, hi: int, rules: str | RuleSet = "standard",
+            random_upto: int | None = None, threads: int | None = None) -> RunData:
+    """Census at every n in lo..hi and random play at every n <= random_upto (default hi):
+    the data behind `zeckenum.present` figures and reports."""
+    from zeckenum.analysis.rundata import collect as run
+
+    return run(lo, hi, rules, random_upto=random_upto, threads=threads)
+
+
+def read_table(folder: str | Path, random_upto: int | None = None) -> RunData:
+    """A table directory as figure data (checked as `load_table` checks it), with the
+    random-play laws computed for every n <= random_upto the table lacks (none when
+    None)."""
+    from zeckenum.analysis.rundata import add_random
+    from zeckenum.present.plots import read_table as read
+
+    data = read(folder)
+    return data if random_upto is None else add_random(data, random_upto)
+
+
+# ------------------------------------------------------------------------------ tables
+
+
+@dataclass(frozen=True)
+class TableBuild:
+    """A table published by `build_table`: its folder, the kinds it holds and its manifest
+    (files with SHA-256, rule file and hash, parameters)."""
+
+    folder: Path
+    kinds: tuple[str, ...]
+    manifest: dict
+
+    def to_dict(self) -> dict:
+        return {"folder": str(self.folder), "kinds": list(self.kinds),
+                "manifest": self.manifest}
+
+
+@dataclass(frozen=True)
+class TableCheck:
+    """The report of `verify_table`: range, kinds, checksums and rows checked, the n
+    recomputed and the seed that repeats the sample."""
+
+    folder: Path
+    report: dict
+
+    @property
+    def recomputed(self) -> list[int]:
+        return list(self.report["recomputed"])
+
+    def to_dict(self) -> dict:
+        return {"folder": str(self.folder), **self.report}
+
+
+def _refuse_table(hi: int, kinds: tuple[str, ...] | list[str], rules: str | RuleSet,
+                 max_memory: int | None) -> None:
+    """The up-front refusals of a table's largest n for each kind it computes (the
+    forecasts grow with n): a table that cannot reach its last n does not start."""
+    from zeckenum.core.memory import resolve_limit
+    from zeckenum.counting.count import refuse_count
+    from zeckenum.optimal.solve import needs_reach, solve_space
+    from zeckenum.randomplay.exact import refuse_random
+    from zeckenum.rules.catalogue import get_rules
+
+    ruleset = get_rules(rules)
+    for kind in kinds:
+        if kind == "count":
+            refuse_count(hi, ruleset, max_memory=max_memory)
+        elif kind == "random":
+            refuse_random(hi, ruleset, max_memory=max_memory)
+        elif kind == "solve":
+            solve_space(ruleset.instantiate(hi), resolve_limit(max_memory), 2,
+                        needs_reach(ruleset), False, f"solving n={hi}")
+
+
+def build_table(
+    lo: int, hi: int, what: str | tuple[str, ...], out: str | Path,
+    rules: str | RuleSet = "standard", *, workers: int | None = None,
+    scheduler: str | None = None, checkpoint: str | Path | None = None,
+    progress: bool = False, max_memory: int | None = None,
+) -> TableBuild:
+    """Compute and publish exact tables for lo <= n <= hi into `out` (what: comma-separated
+    count, solve, random).  On this machine (no `scheduler`) or with `max_memory`, the
+    largest n is refused up front when it cannot run."""
+    from zeckenum.errors import InputError
+    from zeckenum.tables import table
+
+    kinds = table.parse_what(what) if isinstance(what, str) else tuple(what)
+    if hi < lo:
+        raise InputError(f"--to must be at least --from, got --from {lo} --to {hi}")
+    if max_memory is not None or scheduler is None:
+        _refuse_table(hi, kinds, rules, max_memory)
+    manifest = table.build_table(lo, hi, kinds, out, rules, workers=workers,
+                                 scheduler=scheduler, checkpoint_dir=checkpoint,
+                                 progress=progress)
+    return TableBuild(folder=Path(out), kinds=tuple(kinds), manifest=manifest)
+
+
+def _table_class() -> type:
+    """`LoadedTable`: the tables package's `Table` with `to_dict` (built on first use so
+    that importing this module does not import the tables package)."""
+    global _LOADED
+    if _LOADED is None:
+        from zeckenum.tables.table import Table
+
+        @dataclass
+        class LoadedTable(Table):
+            """A table read back by `load_table` (see `zeckenum.tables.table.Table`)."""
+
+            def to_dict(self) -> dict:
+                """JSON-ready: exact integers and rationals ("p/q") as strings, keys as
+                text."""
+                def frac(x: object) -> str:
+                    if isinstance(x, Fraction):
+                        return f"{x.numerator}/{x.denominator}"
+                    return str(x)
+
+                return {
+                    "folder": str(self.folder), "manifest": self.manifest,
+                    "rules": self.ruleset.name, "rules_hash": self.ruleset.content_hash(),
+                    "kinds": list(self.kinds), "ns": list(self.ns),
+                    "summary": {str(n): {k: frac(v) for k, v in row.items()}
+                                for n, row in self.summary.items()},
+                    "spectra": {str(n): {str(k): str(v) for k, v in sp.items()}
+                                for n, sp in self.spectra.items()},
+                    "solve": {str(n): {k: frac(v) for k, v in row.items()}
+                              for n, row in self.solve.items()},
+                    "random": {str(n): {k: frac(v) for k, v in row.items()}
+                               for n, row in self.random.items()},
+                    "random_lengths": {str(n): {str(k): frac(v) for k, v in law.items()}
+                                       for n, law in self.laws.items()},
+                }
+
+        _LOADED = LoadedTable
+    return _LOADED
+
+
+_LOADED: type | None = None
+
+
+def load_table(folder: str | Path) -> Table:
+    """A published table read back as untrusted input, with every check of `verify_table`
+    short of recomputing (checksums, file list, canonical rows, row invariants)."""
+    from zeckenum.tables.table import load_table as load
+
+    t = load(folder)
+    return _table_class()(**{f.name: getattr(t, f.name) for f in fields(t)})
+
+
+def verify_table(folder: str | Path, sample: int = 3, seed: int | None = None, *,
+                 full: bool = False, workers: int | None = None,
+                 scheduler: str | None = None) -> TableCheck:
+    """Check a published table and recompute `sample` n drawn with `seed` (plus the largest
+    n; every n with `full`); raises TableCheckFailed (exit 5) on any mismatch."""
+    from zeckenum.tables.table import verify_table as verify
+
+    rep = verify(folder, sample, seed, full=full, workers=workers, scheduler=scheduler)
+    return TableCheck(folder=Path(folder), report=rep)
+
+
+__all__ = [
+    "GaussianTable", "TableBuild", "TableCheck", "build_table", "collect", "count", "games",
+    "gaussian", "load_table", "move_stats", "random_float", "random_play", "read_table",
+    "simulate", "solve", "verify_table",
+]
