@@ -42,6 +42,7 @@ from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.text import plural
 from zeckenum.counting.count import check_n, count, refuse_count
 from zeckenum.errors import InputError
+from zeckenum.optimal.classify import reachable_bits
 from zeckenum.optimal.solve import (
     check_players,
     layer_bytes,
@@ -49,7 +50,6 @@ from zeckenum.optimal.solve import (
     solve,
     solve_peak_bits,
     solve_space,
-    sweep_reach,
 )
 from zeckenum.randomplay.exact import refuse_random, validate, word_primes
 from zeckenum.rules.model import RuleSet, get_rules
@@ -323,7 +323,7 @@ def predict_solve(
     states, exact, seconds_reach = total, not reach_pass, None
     if reach_pass and reach:
         t0 = time.perf_counter()
-        states = sweep_reach(space)[1]["states"]
+        states = reachable_bits(space)[1]["states"]
         seconds_reach = round(time.perf_counter() - t0, 3)
         exact = True
     rate = probe_solve_rate(probe_n or PROBE_SOLVE_N, ruleset, players)

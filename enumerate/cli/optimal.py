@@ -26,8 +26,9 @@ from zeckenum.cli.options import (
 )
 from zeckenum.core.text import plural
 from zeckenum.errors import InputError, OutputError
-from zeckenum.optimal.solve import MAX_PLAYERS, SolveResult, solve, winning_strategy
-from zeckenum.optimal.strategy import check_strategy, read_strategy, write_strategy
+from zeckenum.optimal.solve import MAX_PLAYERS, SolveResult, solve
+from zeckenum.optimal.strategy import winning_strategy
+from zeckenum.optimal.strategyfile import check_strategy, read_strategy, write_strategy
 from zeckenum.rules.model import get_rules
 from zeckenum.safeio import check_output_file
 

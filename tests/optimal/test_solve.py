@@ -26,8 +26,9 @@ from click.testing import CliRunner
 from zeckenum.cli.optimal import check_strategy_command, solve_command
 from zeckenum.core.statespace import build_space
 from zeckenum.errors import InputError
-from zeckenum.optimal.solve import solve, winning_strategy
-from zeckenum.optimal.strategy import (
+from zeckenum.optimal.solve import solve
+from zeckenum.optimal.strategy import winning_strategy
+from zeckenum.optimal.strategyfile import (
     StrategyRejected,
     check_strategy,
     format_strategy,
@@ -391,7 +392,7 @@ def test_every_state_coalition_bits_match_minimax(players: int, n: int) -> None:
 def test_layer_walk_lists_the_layer_in_descending_rank(name: str, n: int) -> None:
     """Common practice: the solver's odometer walk visits exactly the engine's layer
     listing, in reverse (the engine lists ascending rank)."""
-    from zeckenum.optimal.solve import walk_layer
+    from zeckenum.optimal.walk import walk_layer
     from zeckenum.rules.model import get_rules
 
     spec = get_rules(name).instantiate(n)
@@ -448,7 +449,7 @@ def test_truncated_gzip(tmp_path) -> None:
 
 def test_gzip_bomb_is_refused(tmp_path, monkeypatch) -> None:
     """A small gzip file inflating past the cap is refused while inflating."""
-    import zeckenum.optimal.strategy as strategy_module
+    import zeckenum.optimal.strategyfile as strategy_module
 
     monkeypatch.setattr(strategy_module, "MAX_TEXT_BYTES", 1 << 20, raising=False)
     path = tmp_path / "bomb.zst.gz"
