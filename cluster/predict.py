@@ -44,12 +44,13 @@ from zeckenum.counting.count import check_n, count, refuse_count
 from zeckenum.errors import InputError
 from zeckenum.optimal.classify import reachable_bits
 from zeckenum.optimal.solve import (
+    all_layers_bytes,
     check_players,
-    layer_bytes,
     needs_reach,
     solve,
     solve_peak_bits,
     solve_space,
+    window_bytes,
 )
 from zeckenum.randomplay.exact import refuse_random, validate, word_primes
 from zeckenum.rules.model import RuleSet, get_rules
@@ -269,9 +270,7 @@ def in_flight_bits(space: StateSpace, players: int = 2) -> int:
     """Bytes of the largest window of max_drop + 1 consecutive layers, x bit planes (1 for
     two players, else `players`): what any sweep of this space must hold at once."""
     planes = 1 if players == 2 else players
-    span = space.max_drop
-    return planes * max(sum(layer_bytes(space, lv - d) for d in range(span + 1))
-                        for lv in space.levels)
+    return planes * max(window_bytes(space, lv) for lv in space.levels)
 
 
 def probe_solve_rate(probe_n: int = PROBE_SOLVE_N, rules: str | RuleSet = "standard",
@@ -328,7 +327,7 @@ def predict_solve(
         exact = True
     rate = probe_solve_rate(probe_n or PROBE_SOLVE_N, ruleset, players)
     peak = solve_peak_bits(space, players)
-    reach_bytes = sum(layer_bytes(space, lv) for lv in space.levels) if reach_pass else 0
+    reach_bytes = all_layers_bytes(space) if reach_pass else 0
     memory = peak + reach_bytes + space.tab.nbytes
     seconds = total / rate["states_per_second"]
     return {

@@ -133,6 +133,18 @@ def layer_bytes(space: StateSpace, level: int) -> int:
     return (space.layer_size(level) + 7) // 8
 
 
+def window_bytes(space: StateSpace, level: int) -> int:
+    """Bytes of one bit plane of the layers a sweep holds in flight at `level`: itself and
+    the max_drop levels below (`classify._flight`)."""
+    return sum(layer_bytes(space, level - d) for d in range(space.max_drop + 1))
+
+
+def all_layers_bytes(space: StateSpace) -> int:
+    """Bytes of one bit plane over every layer of the space (one bit per state): what the
+    reachability sweep keeps for the whole solve, and what `keep_classes` keeps per plane."""
+    return sum(layer_bytes(space, lv) for lv in space.levels)
+
+
 def solve_peak_bits(space: StateSpace, players: int = 2) -> int:
     """Peak bytes of outcome bits `layer_classes` reports (`peak_bits_bytes`), from the
     layer sizes alone.
@@ -148,7 +160,7 @@ def solve_peak_bits(space: StateSpace, players: int = 2) -> int:
     held: list[int] = []
     peak = 0
     for level in sorted(space.levels):
-        window = sum(layer_bytes(space, level - d) for d in range(span + 1))
+        window = window_bytes(space, level)
         held_bytes = sum(layer_bytes(space, lv) for lv in held)
         peak = max(peak, planes * (held_bytes + window + layer_bytes(space, level)))
         held = [lv for lv in (*held, level) if lv >= level - span]
@@ -164,7 +176,7 @@ def solve_bytes(space: StateSpace, players: int, reach: bool, keep_classes: bool
     (per plane) and their unpacked bool copies.
     """
     planes = 1 if players == 2 else players
-    total_bits = sum(layer_bytes(space, lv) for lv in space.levels)
+    total_bits = all_layers_bytes(space)
     need = int(space.tab.nbytes) + solve_peak_bits(space, players)
     if reach:
         largest = space.largest_layer()
