@@ -45,9 +45,9 @@ from zeckenum.optimal.walk import (
     _suffix,
     _terms,
     _walk_start,
-    move_dense,
-    move_spans,
-    unit_game,
+    densify_moves,
+    find_move_spans,
+    is_unit_game,
 )
 
 
@@ -80,15 +80,15 @@ def classify_layer_2p(
     the rank (the sweep order would then be wrong; the caller refuses the rule set).
     """
     nbins = values.size
-    lo, hi = move_spans(mv_bins, mv_delta)
-    dd = move_dense(mv_bins, mv_delta, lo, hi)
+    lo, hi = find_move_spans(mv_bins, mv_delta)
+    dd = densify_moves(mv_bins, mv_delta, lo, hi)
     c = np.zeros(nbins, dtype=np.int64)
     lowv = np.zeros(nbins + 1, dtype=np.int64)
     lowt = np.zeros(nbins + 1, dtype=np.int64)
     suf = np.zeros((max_drop + 1, nbins + 1), dtype=np.int64)
     nmoves = mv_bins.shape[0]
     cand = np.zeros(nmoves, dtype=np.int64)
-    unit = unit_game(values, weights)
+    unit = is_unit_game(values, weights)
     b0 = base[0]
     p_count = 0
     examined = 0
@@ -152,15 +152,15 @@ def classify_layer_multi(
     walk, `reach`, `use_reach` and `bad` as in `classify_layer_2p`.
     """
     nbins = values.size
-    lo, hi = move_spans(mv_bins, mv_delta)
-    dd = move_dense(mv_bins, mv_delta, lo, hi)
+    lo, hi = find_move_spans(mv_bins, mv_delta)
+    dd = densify_moves(mv_bins, mv_delta, lo, hi)
     c = np.zeros(nbins, dtype=np.int64)
     lowv = np.zeros(nbins + 1, dtype=np.int64)
     lowt = np.zeros(nbins + 1, dtype=np.int64)
     suf = np.zeros((max_drop + 1, nbins + 1), dtype=np.int64)
     nmoves = mv_bins.shape[0]
     cand = np.zeros(nmoves, dtype=np.int64)
-    unit = unit_game(values, weights)
+    unit = is_unit_game(values, weights)
     full = np.uint64(0xFFFFFFFFFFFFFFFF) >> np.uint64(64 - players)
     b0 = base[0]
     examined = 0
@@ -233,8 +233,8 @@ def reach_layer(
     before they are read.  `bad` as in `classify_layer_2p`.
     """
     nbins = values.size
-    lo, hi = move_spans(mv_bins, mv_delta)
-    dd = move_dense(mv_bins, mv_delta, lo, hi)
+    lo, hi = find_move_spans(mv_bins, mv_delta)
+    dd = densify_moves(mv_bins, mv_delta, lo, hi)
     lowv = np.zeros(nbins + 1, dtype=np.int64)
     lowt = np.zeros(nbins + 1, dtype=np.int64)
     pre = np.zeros(nbins + 1, dtype=np.int64)

@@ -3,8 +3,8 @@
 `winning_strategy(n, rules)` solves the game keeping every layer's classes
 (`solve.solve(..., keep_classes=True)`), builds its move graph with global state ids
 (`move_graph`, from `StateSpace.moves`), sizes a strategy below every state
-(`strategy_costs`) and picks the winner's move at every position it can face
-(`strategy_choices`).  The result is a `Strategy`; its text file format, writer, reader and
+(`estimate_strategy_costs`) and picks the winner's move at every position it can face
+(`choose_strategy_moves`).  The result is a `Strategy`; its text file format, writer, reader and
 independent checker live in `strategyfile`.
 """
 
@@ -23,7 +23,7 @@ STRATEGY_MAX_STATES = 6_000_000
 
 
 @kernel
-def strategy_costs(order: np.ndarray, ptr: np.ndarray, dest: np.ndarray,
+def estimate_strategy_costs(order: np.ndarray, ptr: np.ndarray, dest: np.ndarray,
                    is_n: np.ndarray, depth: bool) -> np.ndarray:
     """Size estimate of a small strategy below each state, used to rank winning moves.
 
@@ -58,7 +58,7 @@ def strategy_costs(order: np.ndarray, ptr: np.ndarray, dest: np.ndarray,
 
 
 @kernel
-def strategy_choices(order: np.ndarray, ptr: np.ndarray, dest: np.ndarray,
+def choose_strategy_moves(order: np.ndarray, ptr: np.ndarray, dest: np.ndarray,
                      is_n: np.ndarray, cost: np.ndarray, start: int,
                      prefer_shared: bool) -> np.ndarray:
     """Move (edge index) the winner plays at each position it can face; -1 elsewhere.
@@ -102,7 +102,7 @@ class Strategy:
     positions[i] is a count vector (bins 1..nbins, as a tuple) and moves[i] the name of the
     move the winner plays there; listed in play order (levels descending, then ranks).
     `heuristic` names the move ranking that gave the smallest strategy ("tree" or "depth",
-    see `strategy_costs`).
+    see `estimate_strategy_costs`).
     """
 
     rules: str
@@ -165,7 +165,7 @@ def winning_strategy(
     """Solve a small game and extract a compact winning strategy for its winner.
 
     Builds the strategy twice, ranking the winning moves by each estimate of
-    `strategy_costs` (and, with `prefer_shared`, first by whether the target is already in
+    `estimate_strategy_costs` (and, with `prefer_shared`, first by whether the target is already in
     the strategy), and keeps the one listing fewer positions.
 
     The move graph of the whole game is held (about 20 bytes per move), so n is limited to
@@ -192,8 +192,8 @@ def winning_strategy(
     heuristic = ""
     forward = order[::-1].copy()
     for name, depth in (("tree", False), ("depth", True)):
-        cost = strategy_costs(order, ptr, dest, is_n, depth)
-        ch = strategy_choices(forward, ptr, dest, is_n, cost, start, prefer_shared)
+        cost = estimate_strategy_costs(order, ptr, dest, is_n, depth)
+        ch = choose_strategy_moves(forward, ptr, dest, is_n, cost, start, prefer_shared)
         if choice is None or (ch >= 0).sum() < (choice >= 0).sum():
             choice, heuristic = ch, name
     picked = [int(u) for u in forward if choice[u] >= 0]

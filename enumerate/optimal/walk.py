@@ -6,7 +6,7 @@ The classification kernels (`classify`) walk each layer in descending rank like 
 with their largest feasible counts, feasibility read off the rank table), and compute the
 successors' ranks on the fly (`_succ_rank`) from suffix sums of the co-lexicographic ranking:
 a move changes only the rank terms of the bins between its lowest and highest touched bin
-(`move_spans`, `move_dense`), and a step of the walk only those of the bins it changed
+(`find_move_spans`, `densify_moves`), and a step of the walk only those of the bins it changed
 (`_terms`).  Each state's recomputed rank is checked against the walk's position by the
 kernels that use the walk.
 
@@ -35,7 +35,7 @@ from zeckenum.core.jit import kernel
 
 
 @kernel
-def move_spans(mv_bins: np.ndarray, mv_delta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def find_move_spans(mv_bins: np.ndarray, mv_delta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(lo, hi): lowest and highest 0-based bin each move changes (padding entries ignored)."""
     nm = mv_bins.shape[0]
     lo = np.zeros(nm, dtype=np.int64)
@@ -106,7 +106,7 @@ def _suffix(
 
 
 @kernel
-def move_dense(mv_bins: np.ndarray, mv_delta: np.ndarray, lo: np.ndarray,
+def densify_moves(mv_bins: np.ndarray, mv_delta: np.ndarray, lo: np.ndarray,
                hi: np.ndarray) -> np.ndarray:
     """dd[m, j]: change of bin lo[m] + j under move m, for j = 0 .. hi[m] - lo[m]."""
     nm = mv_bins.shape[0]
@@ -131,7 +131,7 @@ def _succ_rank(
     legal move m.
 
     Only the terms of bins lo[m] .. hi[m] change (see `_prepare`): the terms below lo[m]
-    sum to rank - suf[0, lo[m]]; dd is `move_dense`.
+    sum to rank - suf[0, lo[m]]; dd is `densify_moves`.
     """
     a = lo[m]
     r = rank - suf[0, a] + suf[d, hi[m] + 1]
@@ -243,7 +243,7 @@ def _walk_start(n: int, level: int, c: np.ndarray, lowv: np.ndarray, lowt: np.nd
 
 
 @kernel(inline=True)
-def unit_game(values: np.ndarray, weights: np.ndarray) -> bool:
+def is_unit_game(values: np.ndarray, weights: np.ndarray) -> bool:
     """Whether bin 1 has value 1 and every level weight is 1 (the walk's fast case)."""
     unit = values[0] == 1
     for k in range(values.size):
@@ -262,7 +262,7 @@ def walk_layer(n: int, level: int, size: int, tab: np.ndarray, values: np.ndarra
     lowv = np.zeros(nbins + 1, dtype=np.int64)
     lowt = np.zeros(nbins + 1, dtype=np.int64)
     suf = np.zeros((1, nbins + 1), dtype=np.int64)
-    unit = unit_game(values, weights)
+    unit = is_unit_game(values, weights)
     _walk_start(n, level, c, lowv, lowt, tab, values, weights, suf, unit)
     for q in range(size):
         if q > 0 and _step_down(c, lowv, lowt, tab, values, weights, unit) < 0:
