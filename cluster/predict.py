@@ -44,13 +44,14 @@ from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.text import plural
 from zeckenum.counting.count import count, refuse_count
 from zeckenum.errors import InputError
+from zeckenum.optimal.classify import reachable_bits
 from zeckenum.optimal.solve import (
-    layer_bytes,
+    all_layers_bytes,
     needs_reach,
     solve,
     solve_peak_bits,
     solve_space,
-    sweep_reach,
+    window_bytes,
 )
 from zeckenum.randomplay.exact import refuse_random
 from zeckenum.rules.catalogue import get_rules
@@ -271,9 +272,7 @@ def in_flight_bits(space: StateSpace, players: int = 2) -> int:
     """Bytes of the largest window of max_drop + 1 consecutive layers, x bit planes (1 for
     two players, else `players`): what any sweep of this space must hold at once."""
     planes = 1 if players == 2 else players
-    span = space.max_drop
-    return planes * max(sum(layer_bytes(space, lv - d) for d in range(span + 1))
-                        for lv in space.levels)
+    return planes * max(window_bytes(space, lv) for lv in space.levels)
 
 
 def probe_solve_rate(probe_n: int = PROBE_SOLVE_N, rules: str | RuleSet = "standard",
@@ -325,12 +324,12 @@ def predict_solve(
     states, exact, seconds_reach = total, not reach_pass, None
     if reach_pass and reach:
         t0 = time.perf_counter()
-        states = sweep_reach(space)[1]["states"]
+        states = reachable_bits(space)[1]["states"]
         seconds_reach = round(time.perf_counter() - t0, 3)
         exact = True
     rate = probe_solve_rate(probe_n or PROBE_SOLVE_N, ruleset, players)
     peak = solve_peak_bits(space, players)
-    reach_bytes = sum(layer_bytes(space, lv) for lv in space.levels) if reach_pass else 0
+    reach_bytes = all_layers_bytes(space) if reach_pass else 0
     memory = peak + reach_bytes + space.tab.nbytes
     seconds = total / rate["states_per_second"]
     return {

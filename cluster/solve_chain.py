@@ -1,14 +1,14 @@
 """Optimal play of one n as a chain of level-range shards, checkpointed, on any backend.
 
-Shard design.  `solve.sweep_classes` classifies the layers from level 0 up to the start's
+Shard design.  `classify.layer_classes` classifies the layers from level 0 up to the start's
 level; a layer needs only the bits of the `max_drop` layers below it.  So the levels are
 cut into consecutive ranges of about equal states (`plan_ranges`), and shard i sweeps its
 range starting from the *boundary* (the bits of the top max_drop + 1 layers) that shard
-i - 1 returned.  `sweep_classes_task(rules, n, players, lo, hi, boundary)` is the cluster
-twin of `solve.sweep_classes`: a worker rebuilds the game's state space from (rules, n)
-(and, for rule sets other than the standard game, its reachability bits, once per process)
-and returns the new boundary and the range's statistics.  Only boundaries travel: one bit
-per state of max_drop + 1 layers.
+i - 1 returned.  `solve_tasks.layer_classes_task(rules, n, players, lo, hi, boundary)` is
+the cluster twin of `classify.layer_classes`: a worker rebuilds the game's state space from
+(rules, n) (and, for rule sets other than the standard game, its reachability bits, once
+per process) and returns the new boundary and the range's statistics.  Only boundaries
+travel: one bit per state of max_drop + 1 layers.
 
 The shards depend on each other, so they run one after the other: a cluster does not make
 one n faster (ranges of n run in parallel, one task per n, in `table`), but a long solve
@@ -37,10 +37,8 @@ from __future__ import annotations
 import contextlib
 import io
 import json
-import threading
 import time
 import zipfile
-from collections import OrderedDict
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -63,16 +61,11 @@ from zeckenum.cluster.checkpoint import (
     write_or_stop,
 )
 from zeckenum.cluster.errors import CheckpointRefused
+from zeckenum.cluster.solve_tasks import layer_classes_task
 from zeckenum.core.checks import check_n, check_players
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.errors import InputError
-from zeckenum.optimal.solve import (
-    SolveResult,
-    needs_reach,
-    solve_result,
-    sweep_classes,
-    sweep_reach,
-)
+from zeckenum.optimal.solve import SolveResult, needs_reach, solve_result
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
 from zeckenum.safeio import check_output_dir
@@ -83,10 +76,6 @@ SHARD_STATES = 20_000_000
 """Default states per shard (a few seconds of work each at large n)."""
 
 STAT_KEYS = ("states", "p_positions", "moves_examined", "peak_bits_bytes", "layers")
-
-_cache: OrderedDict[tuple[str, int], tuple[StateSpace, dict | None]] = OrderedDict()
-_cache_lock = threading.Lock()
-
 
 # ------------------------------------------------------------------------------ the plan
 
@@ -113,39 +102,6 @@ def plan_ranges(space: StateSpace, shards: int | None = None) -> list[tuple[int,
         lo = levels[c] + 1
     out.append((lo, space.spec.start_level))
     return out
-
-
-# ------------------------------------------------------------------------------ the task
-
-def prepared_space(rules: str | RuleSet, n: int) -> tuple[StateSpace, dict | None]:
-    """(state space, reachability bits or None) of (rules, n), cached in this process."""
-    ruleset = get_rules(rules)
-    key = (ruleset.content_hash(), int(n))
-    with _cache_lock:
-        hit = _cache.get(key)
-        if hit is None:
-            space = build_space(ruleset.instantiate(n))
-            reach = sweep_reach(space)[0] if needs_reach(ruleset) else None
-            hit = (space, reach)
-            _cache[key] = hit
-            while len(_cache) > 2:
-                _cache.popitem(last=False)
-        _cache.move_to_end(key)
-        return hit
-
-
-def sweep_classes_task(
-    rules: str | RuleSet, n: int, players: int, lo: int, hi: int,
-    boundary: dict[int, np.ndarray],
-) -> tuple[dict[int, np.ndarray], dict]:
-    """(boundary after level hi, statistics) of the levels lo .. hi of the upward sweep.
-
-    The cluster twin of `solve.sweep_classes`: `boundary` is what the shard below returned
-    ({} for the first shard).
-    """
-    space, reach = prepared_space(rules, n)
-    return sweep_classes(space, players, reach=reach, levels=range(lo, hi + 1),
-                         held=boundary)
 
 
 # ------------------------------------------------------------------------- checkpoints
@@ -395,7 +351,7 @@ def run_solve(
             for i in todo:
                 lo, hi = ranges[i]
                 prev = {} if i == 0 else outputs[i - 1][0]
-                fut = pool.submit(sweep_classes_task, ruleset, n, players, lo, hi, prev)
+                fut = pool.submit(layer_classes_task, ruleset, n, players, lo, hi, prev)
                 boundary, stats = watch.result(fut)
                 outputs[i] = (boundary, stats)
                 computed += 1
@@ -421,4 +377,4 @@ def run_solve(
     return res
 
 
-__all__ = ["plan_ranges", "run_solve", "sweep_classes_task"]
+__all__ = ["plan_ranges", "run_solve"]

@@ -72,7 +72,7 @@ _LAZY = {
     # rule sets
     "STANDARD": "zeckenum.rules.model",
     "RuleSet": "zeckenum.rules.model",
-    "get_rules": "zeckenum.rules.model",
+    "get_rules": "zeckenum.rules.catalogue",
 }
 """Public name -> the module that defines it (imported on first access)."""
 

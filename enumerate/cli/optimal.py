@@ -28,8 +28,9 @@ from zeckenum.cli.options import (
 from zeckenum.core.checks import SOLVE_MAX_PLAYERS
 from zeckenum.core.text import plural
 from zeckenum.errors import InputError, OutputError
-from zeckenum.optimal.solve import SolveResult, winning_strategy
-from zeckenum.optimal.strategy import check_strategy, read_strategy, write_strategy
+from zeckenum.optimal.solve import SolveResult
+from zeckenum.optimal.strategy import winning_strategy
+from zeckenum.optimal.strategyfile import check_strategy, read_strategy, write_strategy
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.safeio import check_output_file
 
