@@ -7,16 +7,16 @@ or on a remote one, with checkpoints and resume.
 One driver, `shards_on_pool`, runs both; a `kinds.ShardKind` supplies what differs.  The
 flow for one n:
 
-1. First sweep: the kind's prepare task (`tasks.prepare_task`,
-   `random_tasks.random_prepare_task`).  On a Dask cluster it is sent to every worker at
+1. First sweep: the kind's prepare task (`count_tasks.count_facts_task`,
+   `random_tasks.random_facts_task`).  On a Dask cluster it is sent to every worker at
    once, so each worker builds its own first sweep in parallel and the first answer plans
    the run; in-process it runs once and the threads share it.
 2. Plan: the kind's primes (a count: below 2**62 for its size bound; random play: below
    2**50 with a product above its denominator), plus the check prime, cut into equal
    blocks, a multiple of the workers (`plan.plan_from_primes`).
-3. Shards: one shard task per block (`tasks.spectrum_task`, `random_tasks.random_law_task`,
-   `random_tasks.random_win_task`); each finished shard is written to the checkpoint (if
-   any) as soon as it arrives.
+3. Shards: one shard task per block (`count_tasks.spectrum_residues_task`,
+   `random_tasks.random_law_residues_task`, `random_tasks.random_win_residues_task`); each
+   finished shard is written to the checkpoint (if any) as soon as it arrives.
 4. The kind's assembly rebuilds the result by the CRT, checked against the check prime,
    with the same function as the in-process path (`count.assemble_count`,
    `randomplay.assemble_random`).
@@ -67,8 +67,7 @@ from zeckenum.cluster.backend import (
     open_pool,
     stall_seconds,
 )
-from zeckenum.cluster.count_tasks import Facts
-from zeckenum.cluster.kinds import ShardKind, assemble_count_shards, count_kind, random_kind
+from zeckenum.cluster.kinds import ShardKind, count_kind, random_kind
 from zeckenum.cluster.plan import ShardPlan, worker_bytes
 from zeckenum.core.memory import available_bytes, refuse_if_over
 from zeckenum.counting.count import check_n, refuse_count
@@ -96,15 +95,6 @@ class _Job:
     computed: int = 0
     rejected: int = 0
     t0: float = 0.0
-
-
-def assemble(facts: Facts, plan: ShardPlan, residues: list[np.ndarray], stats: dict) -> CountResult:
-    """The `CountResult` of one n from its shards' residues (in block order).
-
-    The same reconstruction as `count.count`: Garner's CRT per length over the plan's
-    primes, checked against the check prime (CheckPrimeMismatch on disagreement).
-    """
-    return assemble_count_shards(facts, plan, np.concatenate(residues, axis=0), stats)
 
 
 def _wanted(kind: ShardKind, n: int, prime_offset: int) -> dict:
@@ -227,7 +217,7 @@ def shards_on_pool(
         done.add(fut)
 
     def submit_prepare(n: int, prefer: str | None) -> None:
-        fut = pool.submit(kind.prepare_task, ruleset, n, *kind.prepare_args, prefer=prefer)
+        fut = pool.submit(kind.facts_task, ruleset, n, *kind.facts_args, prefer=prefer)
         tags[fut] = ("prepare", n)
         if prefer is not None:
             hints[fut] = prefer
@@ -548,10 +538,6 @@ def run_count(
     return res[n]
 
 
-count_on_cluster = run_count
-"""Alias: the sharded count (kept for callers that name the cluster path explicitly)."""
-
-
 def run_random(
     n: int,
     rules: str | RuleSet = "standard",
@@ -603,6 +589,6 @@ def run_random(
 
 
 __all__ = [
-    "assemble", "count_on_cluster", "count_on_pool", "random_on_pool", "run_count",
+    "count_on_pool", "random_on_pool", "run_count",
     "run_counts", "run_random", "shards_on_pool",
 ]

@@ -37,10 +37,8 @@ from __future__ import annotations
 import contextlib
 import io
 import json
-import threading
 import time
 import zipfile
-from collections import OrderedDict
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -63,6 +61,7 @@ from zeckenum.cluster.checkpoint import (
     write_or_stop,
 )
 from zeckenum.cluster.errors import CheckpointRefused
+from zeckenum.cluster.workercache import WorkerCache
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.counting.count import check_n
 from zeckenum.errors import InputError
@@ -84,8 +83,8 @@ SHARD_STATES = 20_000_000
 
 STAT_KEYS = ("states", "p_positions", "moves_examined", "peak_bits_bytes", "layers")
 
-_cache: OrderedDict[tuple[str, int], tuple[StateSpace, dict | None]] = OrderedDict()
-_cache_lock = threading.Lock()
+_cache: WorkerCache[tuple[str, int], tuple[StateSpace, dict | None]] = WorkerCache()
+"""Games (rules, n) whose state space (and reachability bits) this process keeps."""
 
 
 # ------------------------------------------------------------------------------ the plan
@@ -120,18 +119,12 @@ def plan_ranges(space: StateSpace, shards: int | None = None) -> list[tuple[int,
 def prepared_space(rules: str | RuleSet, n: int) -> tuple[StateSpace, dict | None]:
     """(state space, reachability bits or None) of (rules, n), cached in this process."""
     ruleset = get_rules(rules)
-    key = (ruleset.content_hash(), int(n))
-    with _cache_lock:
-        hit = _cache.get(key)
-        if hit is None:
-            space = build_space(ruleset.instantiate(n))
-            reach = sweep_reach(space)[0] if needs_reach(ruleset) else None
-            hit = (space, reach)
-            _cache[key] = hit
-            while len(_cache) > 2:
-                _cache.popitem(last=False)
-        _cache.move_to_end(key)
-        return hit
+
+    def build() -> tuple[StateSpace, dict | None]:
+        space = build_space(ruleset.instantiate(n))
+        return space, (sweep_reach(space)[0] if needs_reach(ruleset) else None)
+
+    return _cache.get((ruleset.content_hash(), int(n)), build)
 
 
 def sweep_classes_task(
