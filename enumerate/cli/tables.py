@@ -68,7 +68,7 @@ def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, 
     Example:
       zeckenum table --from 1 --to 80 --what count --out table80 --workers 2
     """
-    from zeckenum.tables.table import build_table, parse_what
+    from zeckenum.tables.build import build_table, parse_what
 
     try:
         kinds = parse_what(what)
@@ -126,7 +126,7 @@ def verify_command(folder, sample, seed, full, workers, scheduler):  # noqa: ANN
     --seed S repeats the run, plus the largest n; --full covers every n.
     Exit 0: the table passed; 5: a check failed; 2: not a readable table (one line).
     """
-    from zeckenum.tables.table import verify_table
+    from zeckenum.tables.verify import verify_table
 
     try:
         rep = verify_table(folder, sample, seed, full=full, workers=workers,

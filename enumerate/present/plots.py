@@ -143,7 +143,7 @@ def read_table(folder: str | Path) -> RunData:
     invariants); the rule set is the one embedded in the manifest.  The table must hold
     counts (summary.csv, spectra.csv); random play comes from random.csv and
     random_lengths.csv when present, and `add_random` fills in what a table lacks."""
-    from zeckenum.tables.table import load_table
+    from zeckenum.tables.format import load_table
 
     folder = Path(folder)
     if not is_table(folder):
