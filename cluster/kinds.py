@@ -1,6 +1,6 @@
 """Kinds of sharded run: what a count and random play each supply to the one driver.
 
-The driver (`run.shards_on_pool`) knows nothing about counting or probabilities.  A
+The driver (`driver.ShardDriver`) knows nothing about counting or probabilities.  A
 `ShardKind` tells it how to run the first sweep (`facts_task`, returning a small facts
 object), how to plan the primes (`plan`), which task computes one prime block
 (`shard_task`, returning (residues [prime][column], word updates)), how many columns a
