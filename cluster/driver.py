@@ -126,7 +126,7 @@ class ShardDriver:
     max_memory      bytes one worker may use (at most the workers' own limit)
 
     Invariants while `run` waits: `tags` maps every submitted, unfinished future the
-    driver still wants to ("prepare", n) or ("shard", n, i) (a future withdrawn by
+    driver still wants to ("facts", n) or ("shard", n, i) (a future withdrawn by
     `resubmit_orphans` is untagged and its late answer ignored); `hints` maps each
     unfinished hinted future to its preferred worker; `unreleased` lists the n whose first
     sweeps the workers may still hold.  The arguments are checked when the driver is made,
@@ -222,13 +222,13 @@ class ShardDriver:
         targets = ([w for w in self.workers if w]
                    if (self.single and isinstance(self.pool, DaskPool)) else [])
         for w in targets or [None]:
-            self.submit(("prepare", n), w)
+            self.submit(("facts", n), w)
 
     def submit(self, tag: tuple, prefer: str | None) -> None:
-        """Submit the task of `tag`: ("prepare", n) the kind's facts task, ("shard", n, i)
+        """Submit the task of `tag`: ("facts", n) the kind's facts task, ("shard", n, i)
         the shard task of block i; `prefer` a loose hint (or None)."""
         kind = self.kind
-        if tag[0] == "prepare":
+        if tag[0] == "facts":
             fut = self.pool.submit(kind.facts_task, self.ruleset, tag[1], *kind.facts_args,
                                    prefer=prefer)
         else:
@@ -276,7 +276,7 @@ class ShardDriver:
             return
         watch.progress()
         tag = self.tags.pop(fut)
-        if tag[0] == "prepare":  # the first answer plans; the others only warmed caches
+        if tag[0] == "facts":  # the first answer plans; the others only warmed caches
             job = self.jobs[tag[1]]
             if job.facts is None:
                 self.adopt(job, value)

@@ -9,10 +9,12 @@ manifest's facts are only ever compared with the recomputed ones, never used), a
 residues of all blocks become the result (`assemble`, the same function the in-process
 path uses).
 
-count   facts `count_tasks.count_facts_task`, shards `count_tasks.spectrum_residues_task`, assembly
-        `count.assemble_count`, release `count_tasks.release_task` (the host's shared sweep)
-random  prepare `random_tasks.random_facts_task`, shards `random_tasks.random_law_residues_task`
-        (length law) or `random_tasks.random_win_residues_task` (winners only), assembly
+count   facts `count_tasks.count_facts_task`, shards `count_tasks.spectrum_residues_task`,
+        assembly `count.assemble_count`, release `count_tasks.release_task` (the host's
+        shared sweep)
+random  facts `random_tasks.random_facts_task`, shards
+        `random_tasks.random_law_residues_task` (length law) or
+        `random_tasks.random_win_residues_task` (winners only), assembly
         `randomplay.assemble_random`
 """
 
