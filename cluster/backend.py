@@ -103,7 +103,7 @@ def setup(self, worker):
 
     if os.environ.get("NUMBA_CACHE_DIR"):
         return
-    if "zeckenum.counting.spectrum" in sys.modules:
+    if any(m == "zeckenum" or m.startswith("zeckenum.") for m in list(sys.modules)):
         import logging
 
         logging.getLogger("zeckenum.cluster").warning(
@@ -452,30 +452,67 @@ def claim_slots(count: int, base: Path | None = None) -> list[tuple[int, Path]]:
     return out
 
 
+def kernel_cache_folders() -> list[tuple[Path, Path]]:
+    """(this process's numba cache folder, its path relative to a worker's NUMBA_CACHE_DIR)
+    of every source folder of zeckenum that holds kernels, sorted.
+
+    numba keeps one cache folder per *source folder* (`_CacheLocator`: the folder's name
+    plus a hash of its full path), and the kernels live in several sub-packages (core,
+    counting, randomplay, optimal, ...).  Every module that imports `core.jit.kernel` is
+    imported (declaring a kernel compiles nothing) and the cache folder of the first numba
+    dispatcher it defines (not one it imports) is taken; one entry per source folder.
+    """
+    import importlib
+
+    import zeckenum
+    from numba.core.caching import _CacheLocator
+    from numba.core.registry import CPUDispatcher
+
+    root = Path(zeckenum.__file__).parent
+    found: dict[Path, tuple[Path, Path]] = {}
+    for path in sorted(root.rglob("*.py")):
+        if "__pycache__" in path.parts or path.parent in found:
+            continue
+        try:
+            if "zeckenum.core.jit import kernel" not in path.read_text(encoding="utf-8"):
+                continue
+        except (OSError, UnicodeDecodeError):
+            continue
+        parts = path.relative_to(root).with_suffix("").parts
+        module = importlib.import_module(".".join(("zeckenum", *parts)))
+        for value in vars(module).values():
+            if isinstance(value, CPUDispatcher) and value.py_func.__module__ == module.__name__ \
+                    and hasattr(getattr(value, "_cache", None), "_cache_path"):
+                found[path.parent] = (Path(value._cache._cache_path),
+                                      Path(_CacheLocator.get_suitable_cache_subpath(str(path))))
+                break
+    return sorted(found.values())
+
+
 def seed_slot(folder: Path) -> int:
     """Copy this process's compiled zeckenum kernels into a slot folder; files copied.
 
     Run after `warm_up` and before the slot's worker starts (the slot is locked by this
-    process, so nobody else touches it).  Uses numba's own rule for where a cache folder
-    keeps a source folder's files, so the worker finds them and loads instead of
-    compiling (seconds instead of tens of seconds).  Files already there are kept; each
-    copy is atomic (temporary file + rename).  Any failure only means the worker compiles.
+    process, so nobody else touches it).  Every source folder holding kernels is seeded
+    (`kernel_cache_folders`), each where numba's own rule puts it under the worker's
+    NUMBA_CACHE_DIR, so the worker finds them and loads instead of compiling (seconds
+    instead of tens of seconds).  Files already there are kept; each copy is atomic
+    (temporary file + rename).  Any failure only means the worker compiles.
     """
     try:
-        from numba.core.caching import _CacheLocator
-        from zeckenum.counting import spectrum
-
-        src = Path(spectrum.pull_residues._cache._cache_path)
-        dst = Path(folder) / _CacheLocator.get_suitable_cache_subpath(spectrum.__file__)
-        dst.mkdir(parents=True, exist_ok=True)
         copied = 0
-        for f in src.iterdir():
-            if f.suffix not in (".nbi", ".nbc") or (dst / f.name).exists():
+        for src, sub in kernel_cache_folders():
+            if not src.is_dir():
                 continue
-            tmp = dst / f".{f.name}.{os.getpid()}.tmp"
-            tmp.write_bytes(f.read_bytes())
-            os.replace(tmp, dst / f.name)
-            copied += 1
+            dst = Path(folder) / sub
+            dst.mkdir(parents=True, exist_ok=True)
+            for f in src.iterdir():
+                if f.suffix not in (".nbi", ".nbc") or (dst / f.name).exists():
+                    continue
+                tmp = dst / f".{f.name}.{os.getpid()}.tmp"
+                tmp.write_bytes(f.read_bytes())
+                os.replace(tmp, dst / f.name)
+                copied += 1
         return copied
     except Exception as exc:  # noqa: BLE001 - seeding is an optimisation only
         log.info("numba cache seeding skipped: %s", exc)

@@ -1,16 +1,17 @@
-"""Cluster tasks: the shard of an exact count, and the first sweep that plans it.
+"""Cluster tasks of an exact count: its twin, and the first sweep that plans it.
 
 Shard design.  One large n splits by *prime block*: the exact sweep for a block of primes
-(`spectrum.spectrum_residues`) is independent of every other block.  In-process,
-`zeckenum.counting.count.count` runs the blocks in threads; here `spectrum_task(rules, n, block)` is
-its cluster twin.  A worker never receives the state space or the windows: it rebuilds the
-game, its state space and its windows (`windows.sweep_windows`, deterministic) from
-(rules, n), keeps them in a small per-process cache so the other blocks of the same n on
-that worker reuse them, and runs the same `spectrum_residues`.  Only a block of primes goes
-in and one small int64 array (block size x (longest + 1)) comes out.
+(`counting.spectrum.spectrum_residues`) is independent of every other block.  In-process,
+`zeckenum.counting.count.count` runs the blocks in threads; here
+`spectrum_residues_task(rules, n, block)` is its cluster twin.  A worker never receives the
+state space or the windows: it rebuilds the game, its state space and its windows (the
+engine's own `count.count_windows`, deterministic) from (rules, n), keeps them in a small
+per-process cache (`workercache.WorkerCache`) so the other blocks of the same n on that
+worker reuse them, and runs the same `spectrum_residues`.  Only a block of primes goes in
+and one small int64 array (block size x (longest + 1)) comes out.
 
-`prepare_task(rules, n)` runs that first sweep and returns `Facts`: the few numbers the
-client needs to plan the shards (count_bits -> primes, the memory of one block) and to
+`count_facts_task(rules, n)` runs that first sweep and returns `Facts`: the few numbers
+the client needs to plan the shards (count_bits -> primes, the memory of one block) and to
 report the result (states, transitions, shortest, longest).  On a cluster the client sends
 it to every worker at once, so each worker warms its cache in parallel and the client
 itself stays light (it may be a laptop driving a large cluster).  Random play's twins
@@ -21,23 +22,20 @@ from __future__ import annotations
 
 import threading
 import time
-from collections import OrderedDict
 from dataclasses import asdict, dataclass
 
 import numpy as np
-from zeckenum.core.memory import available_bytes, refuse_if_over
+from zeckenum.cluster.workercache import WorkerCache, worker_address
+from zeckenum.core.memory import available_bytes
 from zeckenum.core.statespace import StateSpace, build_space
-from zeckenum.core.sweep import Windows, incoming_bytes_estimate, sweep_windows
-from zeckenum.counting.count import windows_pass_bytes
+from zeckenum.core.sweep import Windows
+from zeckenum.counting.count import count_windows
 from zeckenum.counting.spectrum import peak_words, spectrum_residues
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
 
-CACHE_ENTRIES = 2
-"""Games (rules, n) whose windows a process keeps: the current n and the next."""
-
-_cache: OrderedDict[tuple[str, int], tuple[StateSpace, Windows, Facts]] = OrderedDict()
-_cache_lock = threading.Lock()
+_cache: WorkerCache[tuple[str, int], tuple[StateSpace, Windows, Facts]] = WorkerCache()
+"""Games (rules, n) whose first sweep this process keeps: the current n and the next."""
 _facts_memo: dict[tuple[str, int, bool], Facts] = {}
 """Facts of the games this worker process mapped from the host cache, until released."""
 _facts_lock = threading.Lock()
@@ -106,16 +104,14 @@ def first_sweep(
 ) -> tuple[StateSpace, Windows, Facts]:
     """State space, windows and `Facts` of one game (no caching).
 
-    The incoming moves are kept when they fit a quarter of `limit` (default: the memory
-    the machine has available), exactly as `count.count` decides.
+    The first sweep is the engine's own (`count.count_windows`): refused over `limit`
+    (default: the memory the machine has available), the incoming moves kept when they fit
+    a quarter of it, exactly as `count.count` decides.
     """
     limit = available_bytes() if limit is None else limit
     t0 = time.perf_counter()
     space = build_space(ruleset.instantiate(n))
-    first = windows_pass_bytes(space)
-    refuse_if_over(first, limit, f"counting n={n} (first sweep)")
-    keep = first + incoming_bytes_estimate(space) <= limit // 4
-    windows = sweep_windows(space, keep_incoming=keep, threads=threads)
+    windows, _ = count_windows(space, n, limit, threads)
     seconds = time.perf_counter() - t0
     facts = facts_of(ruleset, n, space, windows, seconds)
     return space, windows, facts
@@ -156,20 +152,13 @@ def prepared(rules: str | RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
     (`hostcache`): run once per host, its arrays memory-mapped by all.
     """
     ruleset = get_rules(rules)
-    key = (ruleset.content_hash(), int(n))
-    with _cache_lock:
-        hit = _cache.get(key)
-        if hit is not None:
-            _cache.move_to_end(key)
-            return hit
+
+    def build() -> tuple[StateSpace, Windows, Facts]:
         if worker_address():
-            entry = host_first_sweep(ruleset, int(n))
-        else:
-            entry = first_sweep(ruleset, int(n))
-        _cache[key] = entry
-        while len(_cache) > CACHE_ENTRIES:
-            _cache.popitem(last=False)
-        return entry
+            return host_first_sweep(ruleset, int(n))
+        return first_sweep(ruleset, int(n))
+
+    return _cache.get((ruleset.content_hash(), int(n)), build)
 
 
 def host_first_sweep(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
@@ -208,8 +197,7 @@ def release_task(rules: str | RuleSet, n: int) -> bool:
     from zeckenum.cluster.hostcache import release
 
     ruleset = get_rules(rules)
-    with _cache_lock:
-        _cache.pop((ruleset.content_hash(), int(n)), None)
+    _cache.pop((ruleset.content_hash(), int(n)))
     with _facts_lock:
         for keep in (True, False):
             _facts_memo.pop((ruleset.content_hash(), int(n), keep), None)
@@ -218,29 +206,18 @@ def release_task(rules: str | RuleSet, n: int) -> bool:
 
 def clear_cache() -> None:
     """Forget every cached first sweep of this process."""
-    with _cache_lock:
-        _cache.clear()
+    _cache.clear()
     with _facts_lock:
         _facts_memo.clear()
 
 
-def worker_address() -> str:
-    """Address of the Dask worker running this code ("" outside a worker)."""
-    try:
-        from distributed import get_worker
-
-        return get_worker().address
-    except (ImportError, ValueError):
-        return ""
-
-
-def prepare_task(rules: str | RuleSet, n: int) -> Facts:
+def count_facts_task(rules: str | RuleSet, n: int) -> Facts:
     """Run (or reuse) the first sweep of (rules, n) here and return its `Facts`."""
     _, _, facts = prepared(rules, n)
     return Facts(**{**facts.to_dict(), "where": worker_address()})
 
 
-def spectrum_task(
+def spectrum_residues_task(
     rules: str | RuleSet, n: int, primes_block: tuple[int, ...] | list[int]
 ) -> tuple[np.ndarray, int]:
     """(residues, word updates) of one shard: residues[q, L] = games of length L mod block[q].

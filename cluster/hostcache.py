@@ -86,8 +86,6 @@ from collections.abc import Callable, Iterator
 from pathlib import Path
 
 import numpy as np
-from zeckenum.core import statespace
-from zeckenum.core import sweep as windows
 from zeckenum.core.statespace import StateSpace
 from zeckenum.core.sweep import Incoming, Windows
 from zeckenum.errors import InputError
@@ -117,15 +115,51 @@ class Unsafe(OSError):
     """A host-cache root or folder that is not private to this uid: never read it."""
 
 
+DIGEST_PACKAGES = ("zeckenum.core", "zeckenum.rules")
+"""Sub-packages of zeckenum whose every source file (.py, .toml) enters `SOURCE_DIGEST`."""
+DIGEST_MODULES = ("zeckenum.counting.count", "zeckenum.cluster.count_tasks",
+                  "zeckenum.cluster.hostcache")
+"""Further modules whose source enters `SOURCE_DIGEST`."""
+
+
+def digest_files() -> list[tuple[str, Path]]:
+    """(name, path) of the source files whose output a host-cache folder holds, sorted by
+    name: every file of zeckenum.core (state space, first sweep, memory rules, ...) and
+    zeckenum.rules (rule model, layering, rule files, shipped rule sets),
+    `zeckenum.counting.count` (whether the first sweep keeps the incoming moves,
+    `count.count_windows`), `zeckenum.cluster.count_tasks` (the facts recorded beside the
+    arrays) and this module (the folder's format).  The name is the package's dotted name
+    and the file's path inside it (a moved file changes it)."""
+    from importlib.util import find_spec
+
+    out: dict[str, Path] = {}
+    for package in DIGEST_PACKAGES:
+        spec = find_spec(package)
+        for where in spec.submodule_search_locations or ():
+            base = Path(where)
+            for f in base.rglob("*"):
+                if f.is_file() and f.suffix in (".py", ".toml") and \
+                        "__pycache__" not in f.parts:
+                    out[f"{package}/{f.relative_to(base).as_posix()}"] = f
+    for module in DIGEST_MODULES:
+        out[module] = Path(find_spec(module).origin)
+    return sorted(out.items())
+
+
 def _source_digest() -> str:
     h = hashlib.sha256()
-    for module in (statespace, windows):
-        h.update(Path(module.__file__).read_bytes())
+    for name, path in digest_files():
+        data = path.read_bytes()
+        h.update(f"{name}\0{len(data)}\0".encode())
+        h.update(data)
     return h.hexdigest()[:16]
 
 
 SOURCE_DIGEST = _source_digest()
-"""Digest of the engine sources whose output the host cache holds."""
+"""Digest of the engine sources whose output the host cache holds (`digest_files`: all of
+zeckenum.core and zeckenum.rules, counting/count.py, cluster/count_tasks.py and this
+module), each file by its path in the package and its bytes: a change to any of them, or
+a file moved, gives new folder names, so no folder written by other code is ever read."""
 
 
 def host_cache_root() -> Path:
@@ -582,7 +616,7 @@ def shared_windows(
     `space` is the game's state space: the mapped arrays are checked against it.  `shared`
     is False when the host cache is refused or cannot be written, and `compute`'s own
     arrays are returned instead.  The returned facts are those recorded (sealed); callers
-    recompute what they rely on (`tasks.host_first_sweep`).
+    recompute what they rely on (`count_tasks.host_first_sweep`).
     """
     try:
         root = private_root()

@@ -1,7 +1,7 @@
 """Kinds of sharded run: what a count and random play each supply to the one driver.
 
-The driver (`run.shards_on_pool`) knows nothing about counting or probabilities.  A
-`ShardKind` tells it how to run the first sweep (`prepare_task`, returning a small facts
+The driver (`driver.ShardDriver`) knows nothing about counting or probabilities.  A
+`ShardKind` tells it how to run the first sweep (`facts_task`, returning a small facts
 object), how to plan the primes (`plan`), which task computes one prime block
 (`shard_task`, returning (residues [prime][column], word updates)), how many columns a
 shard has (for checkpoint checks), the parameters and facts a checkpoint must match (a
@@ -9,10 +9,12 @@ manifest's facts are only ever compared with the recomputed ones, never used), a
 residues of all blocks become the result (`assemble`, the same function the in-process
 path uses).
 
-count   prepare `tasks.prepare_task`, shards `tasks.spectrum_task`, assembly
-        `count.assemble_count`, release `tasks.release_task` (the host's shared sweep)
-random  prepare `random_tasks.random_prepare_task`, shards `random_tasks.random_law_task`
-        (length law) or `random_tasks.random_win_task` (winners only), assembly
+count   facts `count_tasks.count_facts_task`, shards `count_tasks.spectrum_residues_task`,
+        assembly `count.assemble_count`, release `count_tasks.release_task` (the host's
+        shared sweep)
+random  facts `random_tasks.random_facts_task`, shards
+        `random_tasks.random_law_residues_task` (length law) or
+        `random_tasks.random_win_residues_task` (winners only), assembly
         `randomplay.assemble_random`
 """
 
@@ -23,13 +25,18 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from zeckenum.cluster.count_tasks import Facts, prepare_task, release_task, spectrum_task
+from zeckenum.cluster.count_tasks import (
+    Facts,
+    count_facts_task,
+    release_task,
+    spectrum_residues_task,
+)
 from zeckenum.cluster.plan import ShardPlan, make_plan, plan_from_primes
 from zeckenum.cluster.random_tasks import (
     RandomFacts,
-    random_law_task,
-    random_prepare_task,
-    random_win_task,
+    random_facts_task,
+    random_law_residues_task,
+    random_win_residues_task,
 )
 from zeckenum.core.modular import check_mul_primes, mul_primes_exceeding
 from zeckenum.counting.count import assemble_count
@@ -49,7 +56,7 @@ class ShardKind:
 
     name          the checkpoint's "kind" parameter ("count" or "random")
     label         progress bar text ("count", "random law", "random wins")
-    prepare_task  prepare_task(ruleset, n, *prepare_args) -> facts (runs on a worker)
+    facts_task    facts_task(ruleset, n, *facts_args) -> facts (the first sweep, on a worker)
     shard_task    shard_task(ruleset, n, *shard_args, block) -> (residues, word updates),
                   residues int64 of shape (primes in block, columns)
     parameters    the kind parameters a checkpoint must match, "kind" first
@@ -67,8 +74,8 @@ class ShardKind:
     name: str
     label: str
     ruleset: RuleSet
-    prepare_task: Callable[..., Any]
-    prepare_args: tuple
+    facts_task: Callable[..., Any]
+    facts_args: tuple
     shard_task: Callable[..., tuple[np.ndarray, int]]
     shard_args: tuple
     parameters: dict
@@ -106,11 +113,11 @@ def assemble_count_shards(
 
 
 def count_kind(ruleset: RuleSet) -> ShardKind:
-    """The exact count: primes below 2**62 for the size bound, `spectrum_task` shards."""
+    """The exact count: primes below 2**62 for the size bound, `spectrum_residues_task` shards."""
     return ShardKind(
         name="count", label="count", ruleset=ruleset,
-        prepare_task=prepare_task, prepare_args=(),
-        shard_task=spectrum_task, shard_args=(),
+        facts_task=count_facts_task, facts_args=(),
+        shard_task=spectrum_residues_task, shard_args=(),
         parameters={"kind": "count"},
         plan=make_plan,
         columns=lambda facts: facts.longest + 1,
@@ -154,15 +161,15 @@ def assemble_random_shards(
 
 
 def random_kind(ruleset: RuleSet, model: str, players: int, winners_only: bool) -> ShardKind:
-    """Exact random play: the length law (`random_law_task` shards) or, with
-    `winners_only`, the win probabilities (`random_win_task` shards)."""
+    """Exact random play: the length law (`random_law_residues_task` shards) or, with
+    `winners_only`, the win probabilities (`random_win_residues_task` shards)."""
     if winners_only:
-        task, args, label = random_win_task, (model, players), "random wins"
+        task, args, label = random_win_residues_task, (model, players), "random wins"
     else:
-        task, args, label = random_law_task, (model,), "random law"
+        task, args, label = random_law_residues_task, (model,), "random law"
     return ShardKind(
         name="random", label=label, ruleset=ruleset,
-        prepare_task=random_prepare_task, prepare_args=(model, players, winners_only),
+        facts_task=random_facts_task, facts_args=(model, players, winners_only),
         shard_task=task, shard_args=args,
         parameters={"kind": "random", "model": model, "players": players,
                     "winners_only": winners_only},

@@ -8,7 +8,7 @@ count   (`predict_count`)  Exact: the states of the state space (`StateSpace.tot
         transitions, the primes, and the exact sweep's word updates (`tasks.updates_per_prime`
         times the number of primes, equal to `stats["word_updates"]` of the run).  Rate: word
         updates per second of a probe count (`probe_rate`, one thread, in-process).
-random  (`predict_random`)  Exact: random play's first sweep (`random_tasks.random_prepare_task`,
+random  (`predict_random`)  Exact: random play's first sweep (`random_tasks.random_facts_task`,
         the task that plans the sharded run): reachable states, transitions, the denominator M,
         the primes (`core.modular.mul_primes_exceeding` on M, plus the check prime), the shard plan
         of the random kind (`kinds.random_plan`, the driver's own planner) and the word updates
@@ -190,15 +190,15 @@ def probe_random_rate(
 ) -> dict:
     """Word updates per second of one shard of random play on one thread of this machine.
 
-    Runs the random kind's own tasks: the first sweep of the probe game (`prepare_task`,
-    not timed), then its shard task (`random_law_task`, or `random_win_task` with
+    Runs the random kind's own tasks: the first sweep of the probe game (`facts_task`,
+    not timed), then its shard task (`random_law_residues_task`, or `random_win_residues_task` with
     `winners_only`) on a block of `block_primes` primes below 2**50, repeated until it has
     run PROBE_MIN_SECONDS; rate = the word updates those shards report / their seconds.
     """
     ruleset = get_rules(rules)
     kind = random_kind(ruleset, model, players, winners_only)
     t0 = time.perf_counter()
-    kind.prepare_task(ruleset, probe_n, *kind.prepare_args)
+    kind.facts_task(ruleset, probe_n, *kind.facts_args)
     block = mul_primes(max(1, block_primes))
     updates, spent, repeats = 0, 0.0, 0
     while repeats < PROBE_MAX_REPEATS and (repeats == 0 or spent < PROBE_MIN_SECONDS):
@@ -238,9 +238,9 @@ def predict_random(
     refuse_random(probe_n or PROBE_RANDOM_N, ruleset, players, model, max_memory=max_memory)
     kind = random_kind(ruleset, model, players, bool(winners_only))
     # compile / load the kernels outside every measurement
-    kind.prepare_task(ruleset, 5, *kind.prepare_args)
+    kind.facts_task(ruleset, 5, *kind.facts_args)
     kind.shard_task(ruleset, 5, *kind.shard_args, mul_primes(1))
-    facts: RandomFacts = kind.prepare_task(ruleset, n, *kind.prepare_args)
+    facts: RandomFacts = kind.facts_task(ruleset, n, *kind.facts_args)
     plan = kind.plan(facts, 0, workers, blocks, None)
     biggest = max(len(b) for b in plan.blocks)
     rate = probe_random_rate(probe_n or PROBE_RANDOM_N, ruleset, model, players,

@@ -1,33 +1,32 @@
 """Cluster tasks of exact random play: the first sweep that plans it, and its shards.
 
-Shard design, as for counts (`tasks`): one large n splits by *prime block*.  The exact
+Shard design, as for counts (`count_tasks`): one large n splits by *prime block*.  The exact
 sweep of random play for a block of primes below 2**50 is independent of every other
 block: in-process `randomplay.random_play` runs the blocks in threads, and here
-`random_law_task(rules, n, model, block)` (the length law) and
-`random_win_task(rules, n, model, players, block)` (winners only) are their cluster twins,
-calling the same `randomplay.random_law_residues` / `randomplay.random_win_residues`.
+`random_law_residues_task(rules, n, model, block)` (the length law) and
+`random_win_residues_task(rules, n, model, players, block)` (winners only) are their
+cluster twins, calling the same `randomplay.random_law_residues` /
+`randomplay.random_win_residues`.
 
 A worker never receives the skeleton: it rebuilds the game, its state space and the first
 sweep (`randomplay.first_sweep`, deterministic) from (rules, n, model), keeps the skeleton
-in a small per-process cache so the other blocks of the same game on that worker reuse it,
-and sweeps its block.  Only a block of primes goes in; one small int64 array
-(primes in block x columns: longest + 1 lengths, or `players` residues of the length mod
-players) and a word-update count come out.
+in a small per-process cache (`workercache.WorkerCache`) so the other blocks of the same
+game on that worker reuse it, and sweeps its block.  Only a block of primes goes in; one
+small int64 array (primes in block x columns: longest + 1 lengths, or `players` residues of
+the length mod players) and a word-update count come out.
 
-`random_prepare_task` runs that first sweep and returns `RandomFacts`: the few numbers the
+`random_facts_task` runs that first sweep and returns `RandomFacts`: the few numbers the
 client needs to plan the shards (the denominator M -> primes, the memory of one block) and
 to report the result (states, transitions).
 """
 
 from __future__ import annotations
 
-import threading
 import time
-from collections import OrderedDict
 from dataclasses import asdict, dataclass
 
 import numpy as np
-from zeckenum.cluster.count_tasks import worker_address
+from zeckenum.cluster.workercache import WorkerCache, worker_address
 from zeckenum.core.checks import check_model
 from zeckenum.core.modular import check_mul_primes
 from zeckenum.core.statespace import build_space
@@ -43,9 +42,6 @@ from zeckenum.randomplay.exact import (
 )
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
-
-CACHE_ENTRIES = 2
-"""Games (rules, n, model) whose skeleton a process keeps: the current n and the next."""
 
 
 @dataclass(frozen=True)
@@ -103,8 +99,8 @@ class _Swept:
     seconds: float
 
 
-_cache: OrderedDict[tuple[str, int, str], _Swept] = OrderedDict()
-_cache_lock = threading.Lock()
+_cache: WorkerCache[tuple[str, int, str], _Swept] = WorkerCache()
+"""Games (rules, n, model) whose skeleton this process keeps: the current n and the next."""
 
 
 def law_updates_per_prime(skel: Skeleton) -> int:
@@ -127,31 +123,24 @@ def random_prepared(rules: str | RuleSet, n: int, model: str) -> _Swept:
     time."""
     ruleset = get_rules(rules)
     check_model(model)
-    key = (ruleset.content_hash(), int(n), model)
-    with _cache_lock:
-        hit = _cache.get(key)
-        if hit is not None:
-            _cache.move_to_end(key)
-            return hit
+
+    def build() -> _Swept:
         t0 = time.perf_counter()
         space = build_space(ruleset.instantiate(int(n)))
         skel = first_sweep(space, model, threads=1)
-        entry = _Swept(skel=skel, weight_bound=weight_bound(space, skel, model),
-                       law_updates=law_updates_per_prime(skel),
-                       seconds=round(time.perf_counter() - t0, 3))
-        _cache[key] = entry
-        while len(_cache) > CACHE_ENTRIES:
-            _cache.popitem(last=False)
-        return entry
+        return _Swept(skel=skel, weight_bound=weight_bound(space, skel, model),
+                      law_updates=law_updates_per_prime(skel),
+                      seconds=round(time.perf_counter() - t0, 3))
+
+    return _cache.get((ruleset.content_hash(), int(n), model), build)
 
 
 def clear_random_cache() -> None:
     """Forget every cached first sweep of random play in this process."""
-    with _cache_lock:
-        _cache.clear()
+    _cache.clear()
 
 
-def random_prepare_task(
+def random_facts_task(
     rules: str | RuleSet, n: int, model: str, players: int, winners_only: bool
 ) -> RandomFacts:
     """Run (or reuse) the first sweep of (rules, n, model) here and return its facts for a
@@ -200,7 +189,7 @@ def _block(skel_entry: _Swept, primes_block: tuple[int, ...] | list[int]) -> np.
     return np.asarray(block, dtype=np.int64)
 
 
-def random_law_task(
+def random_law_residues_task(
     rules: str | RuleSet, n: int, model: str, primes_block: tuple[int, ...] | list[int]
 ) -> tuple[np.ndarray, int]:
     """(residues, word updates) of one shard of the length law:
@@ -215,7 +204,7 @@ def random_law_task(
     return out, swept.law_updates * block.size
 
 
-def random_win_task(
+def random_win_residues_task(
     rules: str | RuleSet, n: int, model: str, players: int,
     primes_block: tuple[int, ...] | list[int],
 ) -> tuple[np.ndarray, int]:

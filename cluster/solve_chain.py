@@ -36,7 +36,6 @@ from __future__ import annotations
 
 import contextlib
 import io
-import json
 import time
 import zipfile
 from dataclasses import dataclass, field
@@ -45,22 +44,20 @@ from pathlib import Path
 import numpy as np
 from zeckenum import __version__
 from zeckenum.cluster.backend import Watchdog, kept_note, open_pool, stall_seconds
-from zeckenum.cluster.checkpoint import (
+from zeckenum.cluster.errors import CheckpointRefused
+from zeckenum.cluster.manifest import (
+    ManifestDir,
     check_entries,
-    check_parameters,
-    check_rules_text,
+    damaged,
     is_int,
-    read_manifest,
+    open_manifest,
     read_verified,
     refuse_folders_in_the_way,
     remove_stale,
     rules_text,
-    sha256_bytes,
     short,
     warn,
-    write_or_stop,
 )
-from zeckenum.cluster.errors import CheckpointRefused
 from zeckenum.cluster.solve_tasks import layer_classes_task
 from zeckenum.core.checks import check_n, check_players
 from zeckenum.core.statespace import StateSpace, build_space
@@ -71,11 +68,13 @@ from zeckenum.rules.model import RuleSet
 from zeckenum.safeio import check_output_dir
 
 FORMAT = "zeckenum-solve-chain/1"
-MANIFEST = "manifest.json"
 SHARD_STATES = 20_000_000
 """Default states per shard (a few seconds of work each at large n)."""
 
 STAT_KEYS = ("states", "p_positions", "moves_examined", "peak_bits_bytes", "layers")
+
+"""Games (rules, n) whose state space (and reachability bits) this process keeps."""
+
 
 # ------------------------------------------------------------------------------ the plan
 
@@ -169,7 +168,7 @@ def chain_file(i: int) -> str:
 
 
 @dataclass
-class ChainCheckpoint:
+class ChainCheckpoint(ManifestDir):
     """A checkpoint directory of one chained solve: parameters, level ranges, shards.
 
     Invariant: `ranges` equal `plan_ranges(space, requested)` of the run's own state
@@ -183,21 +182,17 @@ class ChainCheckpoint:
     rules_text: str = ""
     requested: int | None = None
 
-    def finished(self) -> int:
-        return sum(1 for e in self.shards if e.get("sha256"))
+    FORMAT = FORMAT
 
-    def save_manifest(self) -> None:
-        data = {"format": FORMAT, "parameters": self.parameters,
-                "rules_text": self.rules_text, "shards_requested": self.requested,
+    def manifest_fields(self) -> dict:
+        return {"parameters": self.parameters, "rules_text": self.rules_text,
+                "shards_requested": self.requested,
                 "ranges": [list(r) for r in self.ranges], "shards": self.shards}
-        write_or_stop(self.root, self.root / MANIFEST,
-                      (json.dumps(data, indent=1) + "\n").encode(), self.finished())
 
     def save_shard(self, i: int, boundary: dict[int, np.ndarray], stats: dict) -> None:
-        data = boundary_bytes(boundary, stats)
         name = chain_file(i)
-        write_or_stop(self.root, self.root / name, data, self.finished())
-        self.shards[i] = {"index": i, "file": name, "sha256": sha256_bytes(data)}
+        sha = self.save_member(name, boundary_bytes(boundary, stats))
+        self.shards[i] = {"index": i, "file": name, "sha256": sha}
         self.save_manifest()
 
     def load_shard(self, i: int, space: StateSpace,
@@ -231,7 +226,7 @@ class ChainCheckpoint:
 def _ranges(root: Path, raw: object) -> list[tuple[int, int]]:
     if not isinstance(raw, list) or not all(
             isinstance(r, list) and len(r) == 2 and all(is_int(x) for x in r) for r in raw):
-        raise CheckpointRefused(f"checkpoint {root / MANIFEST} is damaged (ranges); remove it")
+        raise damaged(root, "ranges")
     return [(r[0], r[1]) for r in raw]
 
 
@@ -245,10 +240,9 @@ def open_chain(root: Path, parameters: dict, space: StateSpace, shards: int | No
     shards or the recorded request)` exactly.
     """
     root = Path(root)
-    data = read_manifest(root, FORMAT, "a checkpoint of a chained solve")
-    if data is not None:
-        check_parameters(root, data.get("parameters"), parameters)
-        text = check_rules_text(root, data, ruleset)
+    opened = open_manifest(root, FORMAT, "a checkpoint of a chained solve", parameters, ruleset)
+    if opened is not None:
+        data, text = opened
         requested = data.get("shards_requested")
         if requested is not None and not (is_int(requested) and 1 <= requested <= 2**31):
             raise CheckpointRefused(f"checkpoint {root} records shards_requested="

@@ -12,34 +12,26 @@ tasks one after the other is `solve_chain.run_solve`.
 
 from __future__ import annotations
 
-import threading
-from collections import OrderedDict
-
 import numpy as np
+from zeckenum.cluster.workercache import WorkerCache
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.optimal.classify import layer_classes, reachable_bits
 from zeckenum.optimal.solve import needs_reach
-from zeckenum.rules.model import RuleSet, get_rules
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import RuleSet
 
-_cache: OrderedDict[tuple[str, int], tuple[StateSpace, dict | None]] = OrderedDict()
-_cache_lock = threading.Lock()
+_cache: WorkerCache[tuple[str, int], tuple[StateSpace, dict | None]] = WorkerCache()
 
 
 def prepared_space(rules: str | RuleSet, n: int) -> tuple[StateSpace, dict | None]:
     """(state space, reachability bits or None) of (rules, n), cached in this process."""
     ruleset = get_rules(rules)
-    key = (ruleset.content_hash(), int(n))
-    with _cache_lock:
-        hit = _cache.get(key)
-        if hit is None:
-            space = build_space(ruleset.instantiate(n))
-            reach = reachable_bits(space)[0] if needs_reach(ruleset) else None
-            hit = (space, reach)
-            _cache[key] = hit
-            while len(_cache) > 2:
-                _cache.popitem(last=False)
-        _cache.move_to_end(key)
-        return hit
+
+    def build() -> tuple[StateSpace, dict | None]:
+        space = build_space(ruleset.instantiate(n))
+        return space, (reachable_bits(space)[0] if needs_reach(ruleset) else None)
+
+    return _cache.get((ruleset.content_hash(), int(n)), build)
 
 
 def layer_classes_task(

@@ -28,8 +28,7 @@ neither numba, Dask nor matplotlib; the first call pays for what it uses.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, fields
-from fractions import Fraction
+from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -43,7 +42,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
     from zeckenum.randomplay.floating import FloatResult
     from zeckenum.randomplay.simulate import SimulationResult
     from zeckenum.rules.model import RuleSet
-    from zeckenum.tables.table import Table
+    from zeckenum.tables.format import Table
 
 def _sharded(workers: int | None, scheduler: str | None, checkpoint: str | Path | None) -> bool:
     """Whether a run leaves the plain in-process engine for a cluster driver."""
@@ -294,68 +293,25 @@ def build_table(
     count, solve, random).  On this machine (no `scheduler`) or with `max_memory`, the
     largest n is refused up front when it cannot run."""
     from zeckenum.errors import InputError
-    from zeckenum.tables import table
+    from zeckenum.tables.build import build_table as build
+    from zeckenum.tables.format import parse_what
 
-    kinds = table.parse_what(what) if isinstance(what, str) else tuple(what)
+    kinds = parse_what(what) if isinstance(what, str) else tuple(what)
     if hi < lo:
         raise InputError(f"--to must be at least --from, got --from {lo} --to {hi}")
     if max_memory is not None or scheduler is None:
         _refuse_table(hi, kinds, rules, max_memory)
-    manifest = table.build_table(lo, hi, kinds, out, rules, workers=workers,
-                                 scheduler=scheduler, checkpoint_dir=checkpoint,
-                                 progress=progress)
+    manifest = build(lo, hi, kinds, out, rules, workers=workers, scheduler=scheduler,
+                     checkpoint_dir=checkpoint, progress=progress)
     return TableBuild(folder=Path(out), kinds=tuple(kinds), manifest=manifest)
-
-
-def _table_class() -> type:
-    """`LoadedTable`: the tables package's `Table` with `to_dict` (built on first use so
-    that importing this module does not import the tables package)."""
-    global _LOADED
-    if _LOADED is None:
-        from zeckenum.tables.table import Table
-
-        @dataclass
-        class LoadedTable(Table):
-            """A table read back by `load_table` (see `zeckenum.tables.table.Table`)."""
-
-            def to_dict(self) -> dict:
-                """JSON-ready: exact integers and rationals ("p/q") as strings, keys as
-                text."""
-                def frac(x: object) -> str:
-                    if isinstance(x, Fraction):
-                        return f"{x.numerator}/{x.denominator}"
-                    return str(x)
-
-                return {
-                    "folder": str(self.folder), "manifest": self.manifest,
-                    "rules": self.ruleset.name, "rules_hash": self.ruleset.content_hash(),
-                    "kinds": list(self.kinds), "ns": list(self.ns),
-                    "summary": {str(n): {k: frac(v) for k, v in row.items()}
-                                for n, row in self.summary.items()},
-                    "spectra": {str(n): {str(k): str(v) for k, v in sp.items()}
-                                for n, sp in self.spectra.items()},
-                    "solve": {str(n): {k: frac(v) for k, v in row.items()}
-                              for n, row in self.solve.items()},
-                    "random": {str(n): {k: frac(v) for k, v in row.items()}
-                               for n, row in self.random.items()},
-                    "random_lengths": {str(n): {str(k): frac(v) for k, v in law.items()}
-                                       for n, law in self.laws.items()},
-                }
-
-        _LOADED = LoadedTable
-    return _LOADED
-
-
-_LOADED: type | None = None
 
 
 def load_table(folder: str | Path) -> Table:
     """A published table read back as untrusted input, with every check of `verify_table`
     short of recomputing (checksums, file list, canonical rows, row invariants)."""
-    from zeckenum.tables.table import load_table as load
+    from zeckenum.tables.format import load_table as load
 
-    t = load(folder)
-    return _table_class()(**{f.name: getattr(t, f.name) for f in fields(t)})
+    return load(folder)
 
 
 def verify_table(folder: str | Path, sample: int = 3, seed: int | None = None, *,
@@ -363,7 +319,7 @@ def verify_table(folder: str | Path, sample: int = 3, seed: int | None = None, *
                  scheduler: str | None = None) -> TableCheck:
     """Check a published table and recompute `sample` n drawn with `seed` (plus the largest
     n; every n with `full`); raises TableCheckFailed (exit 5) on any mismatch."""
-    from zeckenum.tables.table import verify_table as verify
+    from zeckenum.tables.verify import verify_table as verify
 
     rep = verify(folder, sample, seed, full=full, workers=workers, scheduler=scheduler)
     return TableCheck(folder=Path(folder), report=rep)

@@ -130,7 +130,8 @@ def _load_data(table: str | None, lo_hi: tuple[int, int] | None, rules: str,
     """The data of a figure or report: a table read back (random play added up to
     `random_upto`) or a fresh computation over A..B."""
     from zeckenum.analysis.rundata import add_random
-    from zeckenum.present.plots import is_table, read_table
+    from zeckenum.present.plots import read_table
+    from zeckenum.tables.format import is_table
 
     if table and lo_hi:
         raise InputError("give either --table DIR or --range A B, not both")
@@ -212,9 +213,9 @@ def report_command(folder: str, lo_hi: tuple[int, int] | None, rules: str, rando
       zeckenum report runs/small --range 1 40
     """
     from zeckenum.analysis.rundata import run_detail
-    from zeckenum.present.plots import is_table
     from zeckenum.present.report import REPORT_NAME, write_report
     from zeckenum.safeio import check_output_dir, check_output_file
+    from zeckenum.tables.format import is_table
 
     table = folder if is_table(folder) else None
     if table is None and lo_hi is None:

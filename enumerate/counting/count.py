@@ -118,6 +118,23 @@ def refuse_count(
     refuse_if_over(windows_pass_bytes(space, threads), limit, f"counting n={n} (first sweep)")
 
 
+def count_windows(
+    space: StateSpace, n: int, limit: int, threads: int = 1
+) -> tuple[Windows, int]:
+    """(windows, forecast peak bytes) of the first sweep of the count of n, as `count` runs it.
+
+    Refused (`refuse_if_over`) when the forecast `windows_pass_bytes(space, threads)`
+    exceeds `limit`; the incoming moves are kept for the exact sweep when they fit, with
+    that forecast, a quarter of `limit`.  The forecast peak includes the kept moves.  The
+    cluster's first sweep (`cluster.count_tasks`) calls this too, so both decide alike.
+    """
+    first = windows_pass_bytes(space, threads)
+    refuse_if_over(first, limit, f"counting n={n} (first sweep)")
+    keep = first + incoming_bytes_estimate(space) <= limit // 4
+    windows = sweep_windows(space, keep_incoming=keep, threads=threads)
+    return windows, first + (incoming_bytes_estimate(space) if keep else 0)
+
+
 def count(
     n: int,
     rules: str | RuleSet = "standard",
@@ -144,15 +161,11 @@ def count(
     t0 = time.perf_counter()
     spec = ruleset.instantiate(n)
     space = count_space(spec, limit)
-    first = windows_pass_bytes(space, nthreads)
-    refuse_if_over(first, limit, f"counting n={n} (first sweep)")
-    keep = first + incoming_bytes_estimate(space) <= limit // 4
-    windows = sweep_windows(space, keep_incoming=keep, threads=nthreads)
+    windows, first_peak = count_windows(space, n, limit, nthreads)
     t1 = time.perf_counter()
 
     primes, check_prime = primes_for_bits(windows.count_bits, prime_offset)
     all_primes = [*primes, check_prime]
-    first_peak = first + (incoming_bytes_estimate(space) if keep else 0)
     plan = count_block_plan(space, windows, all_primes, nthreads, limit, first_peak)
 
     bar = None

@@ -3,7 +3,7 @@
 Nothing here computes a game.  The data (`zeckenum.analysis.rundata.RunData`) comes from a
 fresh computation (`zeckenum.collect`, i.e. `analysis.rundata.collect`: `count` and
 `random_play` for every n of a range) or from a table directory written by `zeckenum table`
-(`read_table` here: read and checked by `zeckenum.tables.table.load_table`, checksums and
+(`read_table` here: read and checked by `zeckenum.tables.format.load_table`, checksums and
 row invariants included).  `RunData` carries the rule set itself (`ruleset`, and its
 canonical rule-file text `rules_text`): a table's rule set is rebuilt from the rule file
 embedded in its manifest, checked against its hash, and never looked up by name, so
@@ -41,6 +41,7 @@ from matplotlib.figure import Figure  # noqa: E402
 from zeckenum.analysis.rundata import SUMMARY_KEYS, RunData  # noqa: E402
 from zeckenum.core.moments import exact_moments, gaussian_diagnostics  # noqa: E402
 from zeckenum.errors import InputError  # noqa: E402
+from zeckenum.tables.format import is_table, load_table  # noqa: E402
 
 SOURCES = ("games", "random")
 SOURCE_LABEL = {"games": "all games", "random": "random play"}
@@ -53,21 +54,13 @@ def exact_law(weights: dict[int, int] | dict[int, Fraction]) -> dict[int, Fracti
     return {k: Fraction(w) / total for k, w in weights.items()}
 
 
-def is_table(folder: str | Path) -> bool:
-    """Whether `folder` holds a table written by `zeckenum table` (manifest + summary)."""
-    folder = Path(folder)
-    return (folder / "manifest.json").is_file() and (folder / "summary.csv").is_file()
-
-
 def read_table(folder: str | Path) -> RunData:
     """A table directory as RunData, after every check of `verify` short of recomputing
-    (`zeckenum.tables.table.load_table`: checksums, file list, canonical rows, row
+    (`zeckenum.tables.format.load_table`: checksums, file list, canonical rows, row
     invariants); the rule set is the one embedded in the manifest.  The table must hold
     counts (summary.csv, spectra.csv); random play comes from random.csv and
     random_lengths.csv when present, and `analysis.rundata.add_random` fills in what a
     table lacks."""
-    from zeckenum.tables.table import load_table
-
     folder = Path(folder)
     if not is_table(folder):
         raise InputError(f"{folder}: no manifest.json and summary.csv (not a zeckenum table)")

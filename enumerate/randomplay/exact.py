@@ -57,8 +57,8 @@ mod P instead of a window of lengths; it costs O(P) per move instead of O(window
 
 Shards.  One block's sweep is `random_law_residues` (kernel `pull_mod_windows`) or
 `random_win_residues` (kernel `pull_mod_residues`), each returning int64 residues laid out
-[prime][column]; their cluster twins are `zeckenum.cluster.random_tasks.random_law_task`
-and `random_win_task`.  `assemble_random` turns the residues of all blocks into the
+[prime][column]; their cluster twins are `zeckenum.cluster.random_tasks.random_law_residues_task`
+and `random_win_residues_task`.  `assemble_random` turns the residues of all blocks into the
 `RandomResult`, for the in-process path (`random_play`) and the cluster path alike.
 """
 
@@ -840,7 +840,7 @@ def random_law_residues(skel: Skeleton, primes: np.ndarray | list[int], unit: bo
 
     `unit`: every move weight is 1 (model "moves").  One shard of the length law: in-process
     `random_play` runs the blocks in threads, its cluster twin is
-    `zeckenum.cluster.random_tasks.random_law_task`.  Kernel: `pull_mod_windows`.
+    `zeckenum.cluster.random_tasks.random_law_residues_task`.  Kernel: `pull_mod_windows`.
     """
     primes = np.asarray(primes, dtype=np.int64)
     nq = primes.size
@@ -880,7 +880,7 @@ def random_win_residues(skel: Skeleton, primes: np.ndarray | list[int], unit: bo
     (len(primes), players): the winner-only sweep of one prime block.
 
     One shard of the win probabilities: in-process `random_play(winners_only=True)` runs the
-    blocks in threads, its cluster twin is `zeckenum.cluster.random_tasks.random_win_task`.
+    blocks in threads, its cluster twin is `zeckenum.cluster.random_tasks.random_win_residues_task`.
     Kernel: `pull_mod_residues`.
     """
     primes = np.asarray(primes, dtype=np.int64)

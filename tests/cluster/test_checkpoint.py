@@ -19,8 +19,8 @@ from hypothesis import strategies as st
 from killed_client import kill_after_marker
 from manifest_mutations import draw_mutation
 from zeckenum.cluster import run_count
-from zeckenum.cluster.checkpoint import write_atomic
 from zeckenum.cluster.errors import CheckpointRefused
+from zeckenum.safeio import write_atomic
 
 
 def _manifest(folder) -> dict:  # noqa: ANN001

@@ -75,7 +75,8 @@ def test_killing_a_worker_mid_run_gives_the_same_result() -> None:
 
 @pytest.mark.slow
 def test_table_on_cluster_equals_in_process(tmp_path) -> None:  # noqa: ANN001
-    from zeckenum.tables.table import TABLE_KINDS, build_table
+    from zeckenum.tables.build import build_table
+    from zeckenum.tables.format import TABLE_KINDS
 
     what = TABLE_KINDS
     a = build_table(3, 14, what, tmp_path / "local")

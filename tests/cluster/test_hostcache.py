@@ -179,7 +179,7 @@ def test_workers_share_and_release(cache_root: Path, monkeypatch: pytest.MonkeyP
 # Every scenario below damages a host-cache folder and then counts through it.  The count
 # runs in a child process (a damaged folder could crash the kernels of a careless reader,
 # which must not take pytest down) that makes this process look like a Dask worker, so
-# `tasks.prepared` goes through the host cache exactly as on a cluster.  Reference: the
+# `count_tasks.prepared` goes through the host cache exactly as on a cluster.  Reference: the
 # plain-Python brute force tests/support/bruteforce.py (shares no code with zeckenum).
 
 N_TAMPER = 40

@@ -229,7 +229,8 @@ def test_table_on_a_cluster_that_loses_every_worker_stops_and_resumes(
     ClusterStalled (exit 7) naming the kept rows, and a rerun computes only the rest.
     Reference: player 2 wins the standard game for every n > 2 ("The Zeckendorf Game",
     2018, arXiv:1809.04881)."""
-    from zeckenum.tables.table import build_table, load_table
+    from zeckenum.tables.build import build_table
+    from zeckenum.tables.format import load_table
 
     monkeypatch.setenv("ZECKENUM_STALL_TIMEOUT", "3")
     out = tmp_path / "t"

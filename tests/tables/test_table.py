@@ -615,7 +615,7 @@ def test_verify_mutated_tables_hypothesis(small_table, tmp_path_factory) -> None
 
 
 def test_table_resumes_a_partial_directory(tmp_path, monkeypatch) -> None:  # noqa: ANN001
-    import zeckenum.tables.table as table_mod
+    import zeckenum.tables.build as table_mod
 
     whole = tmp_path / "whole"
     r = CliRunner().invoke(table_command, ["--from", "3", "--to", "10", "--what",
@@ -717,7 +717,7 @@ def test_table_unwritable_outputs_exit_6(tmp_path, monkeypatch) -> None:  # noqa
             raise OSError(errno.ENOSPC, "No space left on device")
         real_fsync(fd)
 
-    import zeckenum.tables.table as table_mod
+    import zeckenum.tables.build as table_mod
 
     real_write = table_mod.write_atomic
 
