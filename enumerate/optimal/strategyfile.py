@@ -54,7 +54,8 @@ from pathlib import Path
 
 from zeckenum.errors import CheckFailed, InputError
 from zeckenum.optimal.strategy import STRATEGY_MAX_STATES, Strategy
-from zeckenum.rules.model import BUILTIN, RuleSet, get_rules
+from zeckenum.rules.catalogue import BUILTIN, get_rules
+from zeckenum.rules.model import RuleSet
 from zeckenum.rules.rulefile import (
     MAX_RULE_FILE_BYTES,
     format_rules,

@@ -30,7 +30,7 @@ from zeckenum import __version__
 from zeckenum.cluster.errors import CheckpointRefused
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import InputError, OutputError, ZeckenumError
-from zeckenum.rules.model import get_rules
+from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.rulefile import format_rules
 from zeckenum.safeio import check_output_dir, deliver, read_regular, write_atomic
 from zeckenum.tables.format import (

@@ -105,7 +105,7 @@ def test_everything_sent_to_workers_pickles_by_an_importable_module_path() -> No
 
     from zeckenum.cluster.kinds import count_kind, random_kind
     from zeckenum.cluster.solve_chain import sweep_classes_task
-    from zeckenum.rules.model import get_rules
+    from zeckenum.rules.catalogue import get_rules
 
     rs = get_rules("standard")
     kinds = [count_kind(rs), random_kind(rs, "moves", 2, False), random_kind(rs, "moves", 2, True)]

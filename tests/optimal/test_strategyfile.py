@@ -148,7 +148,7 @@ def test_check_strategy_missing_file(tmp_path) -> None:
 
 @pytest.mark.parametrize("name", ["reversed", "tribonacci", "twos"])
 def test_variant_strategies_pass_checker(tmp_path, name: str) -> None:
-    from zeckenum.rules.model import get_rules
+    from zeckenum.rules.catalogue import get_rules
 
     rules = get_rules(name)
     for n in (2, 6, 10):
