@@ -104,12 +104,12 @@ def test_everything_sent_to_workers_pickles_by_an_importable_module_path() -> No
     import pickle
 
     from zeckenum.cluster.kinds import count_kind, random_kind
-    from zeckenum.cluster.solve_chain import sweep_classes_task
+    from zeckenum.cluster.solve_tasks import layer_classes_task
     from zeckenum.rules.catalogue import get_rules
 
     rs = get_rules("standard")
     kinds = [count_kind(rs), random_kind(rs, "moves", 2, False), random_kind(rs, "moves", 2, True)]
-    sent = [sweep_classes_task, rs]
+    sent = [layer_classes_task, rs]
     for kind in kinds:
         sent += [kind.facts_task, kind.shard_task]
         if kind.release is not None:
