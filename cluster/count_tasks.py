@@ -25,6 +25,7 @@ from collections import OrderedDict
 from dataclasses import asdict, dataclass
 
 import numpy as np
+from zeckenum.core.listing import moves_in
 from zeckenum.core.memory import available_bytes, refuse_if_over
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.sweep import Windows, incoming_bytes_estimate, sweep_windows
@@ -82,13 +83,13 @@ def updates_per_prime(space: StateSpace, windows: Windows) -> int:
     total = 0
     if windows.incoming is None:
         for level in windows.win:
-            lm = space.predecessors(level)
+            lm = moves_in(space, level)
             for d in np.unique(lm.drop):
                 src_level = level + int(d)
                 if src_level not in windows.win:
                     continue
                 sel = lm.drop == d
-                total += int(windows.win[src_level][lm.dest[sel]].astype(np.int64).sum())
+                total += int(windows.win[src_level][lm.other[sel]].astype(np.int64).sum())
         return total
     for level, inc in windows.incoming.items():
         for d in np.unique(inc.drop):

@@ -86,8 +86,9 @@ from collections.abc import Callable, Iterator
 from pathlib import Path
 
 import numpy as np
-from zeckenum.core import statespace
+from zeckenum.core import listing, statespace
 from zeckenum.core import sweep as windows
+from zeckenum.core.listing import moves_in
 from zeckenum.core.statespace import StateSpace
 from zeckenum.core.sweep import Incoming, Windows
 from zeckenum.errors import InputError
@@ -119,7 +120,7 @@ class Unsafe(OSError):
 
 def _source_digest() -> str:
     h = hashlib.sha256()
-    for module in (statespace, windows):
+    for module in (statespace, listing, windows):
         h.update(Path(module.__file__).read_bytes())
     return h.hexdigest()[:16]
 
@@ -426,8 +427,8 @@ def check_windows(
                               f"{src.size} monotonically")
             kept = None
         else:
-            moves = space.predecessors(level)
-            ptr, drop, src = moves.ptr, moves.drop, moves.dest
+            moves = moves_in(space, level)
+            ptr, drop, src = moves.ptr, moves.drop, moves.other
             kept = np.ones(src.size, dtype=bool)
         src64 = src.astype(np.int64)
         if drop.size and (int(drop.min()) < 0 or int(drop.max()) > max_drop):

@@ -33,6 +33,7 @@ from fractions import Fraction
 from math import comb
 
 import numpy as np
+from zeckenum.core.listing import moves_out
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.statespace import build_space, refuse_space, states_upper_bound
 from zeckenum.core.sweep import length_bound
@@ -133,11 +134,11 @@ def explicit_graph(spec: GameSpec, max_memory: int | None = None) -> MoveGraph:
     ptrs, dests, moves, states = [], [], [], []
     base = 0
     for lv in levels:
-        lm = space.moves(lv)
+        lm = moves_out(space, lv)
         lv_off = np.array([offset.get(lv - d, 0) for d in range(space.max_drop + 1)],
                           dtype=np.int64)
         ptrs.append(lm.ptr[:-1] + base)
-        dests.append(lv_off[lm.drop] + lm.dest)
+        dests.append(lv_off[lm.drop] + lm.other)
         moves.append(lm.move.astype(np.int64))
         states.append(lm.states)
         base += int(lm.ptr[-1])

@@ -6,6 +6,7 @@ import itertools
 
 import numpy as np
 import pytest
+from zeckenum.core.listing import moves_in, moves_out
 from zeckenum.core.statespace import build_space
 from zeckenum.rules.model import STANDARD
 
@@ -54,13 +55,13 @@ def test_moves_in_and_out_are_transposes(n: int) -> None:
     space = build_space(STANDARD.instantiate(n))
     out_edges, in_edges = set(), set()
     for level in space.levels:
-        lm = space.moves(level)
+        lm = moves_out(space, level)
         for i in range(lm.size):
             for e in range(lm.ptr[i], lm.ptr[i + 1]):
-                out_edges.add(((level, i), (level - int(lm.drop[e]), int(lm.dest[e]))))
-        inc = space.predecessors(level)
+                out_edges.add(((level, i), (level - int(lm.drop[e]), int(lm.other[e]))))
+        inc = moves_in(space, level)
         for j in range(inc.size):
             for e in range(inc.ptr[j], inc.ptr[j + 1]):
-                in_edges.add(((level + int(inc.drop[e]), int(inc.dest[e])), (level, j)))
+                in_edges.add(((level + int(inc.drop[e]), int(inc.other[e])), (level, j)))
     assert out_edges == in_edges
     assert out_edges
