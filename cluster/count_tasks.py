@@ -4,7 +4,7 @@ Shard design.  One large n splits by *prime block*: the exact sweep for a block 
 (`spectrum.spectrum_residues`) is independent of every other block.  In-process,
 `zeckenum.counting.count.count` runs the blocks in threads; here `spectrum_task(rules, n, block)` is
 its cluster twin.  A worker never receives the state space or the windows: it rebuilds the
-game, its state space and its windows (`windows.sweep_windows`, deterministic) from
+game, its state space and its windows (`core.sweep.sweep_windows`, deterministic) from
 (rules, n), keeps them in a small per-process cache so the other blocks of the same n on
 that worker reuse them, and runs the same `spectrum_residues`.  Only a block of primes goes
 in and one small int64 array (block size x (longest + 1)) comes out.
@@ -101,7 +101,7 @@ def updates_per_prime(space: StateSpace, windows: Windows) -> int:
     return total
 
 
-def first_sweep(
+def count_windows(
     ruleset: RuleSet, n: int, limit: int | None = None, threads: int = 1
 ) -> tuple[StateSpace, Windows, Facts]:
     """State space, windows and `Facts` of one game (no caching).
@@ -163,17 +163,17 @@ def prepared(rules: str | RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
             _cache.move_to_end(key)
             return hit
         if worker_address():
-            entry = host_first_sweep(ruleset, int(n))
+            entry = host_count_windows(ruleset, int(n))
         else:
-            entry = first_sweep(ruleset, int(n))
+            entry = count_windows(ruleset, int(n))
         _cache[key] = entry
         while len(_cache) > CACHE_ENTRIES:
             _cache.popitem(last=False)
         return entry
 
 
-def host_first_sweep(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
-    """`first_sweep` of (rules, n) through this host's shared cache (`hostcache`).
+def host_count_windows(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
+    """`count_windows` of (rules, n) through this host's shared cache (`hostcache`).
 
     The cached arrays are checked against the game's state space when mapped, and the
     `Facts` are recomputed from the space and the checked arrays: only the sweep's time is
@@ -184,7 +184,7 @@ def host_first_sweep(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windows, Fac
     space = build_space(ruleset.instantiate(n))
 
     def compute() -> tuple[Windows, dict]:
-        _, win, facts = first_sweep(ruleset, n)
+        _, win, facts = count_windows(ruleset, n)
         return win, facts.to_dict()
 
     win, recorded, _ = shared_windows(ruleset.content_hash(), n, compute, space)

@@ -583,7 +583,7 @@ def shared_windows(
     `space` is the game's state space: the mapped arrays are checked against it.  `shared`
     is False when the host cache is refused or cannot be written, and `compute`'s own
     arrays are returned instead.  The returned facts are those recorded (sealed); callers
-    recompute what they rely on (`tasks.host_first_sweep`).
+    recompute what they rely on (`tasks.host_count_windows`).
     """
     try:
         root = private_root()

@@ -56,7 +56,7 @@ def graph_bytes(spec: GameSpec, states: int, model: str | None = "moves") -> int
 
     Per state: its counts (int64 per bin), the row pointer as an array and a Python list,
     the two path counts (Python ints of at most L log2(moves + 1) bits, L the game length
-    bound of `windows.length_bound`, else the states), the visit probability (a Fraction
+    bound of `core.sweep.length_bound`, else the states), the visit probability (a Fraction
     whose denominator has at most L log2(max D) bits) and one small dict of the --move
     distribution in flight.  Per move, at most one per move type and state: dest and move
     as arrays (twice while the layers are joined), as Python lists, the listing's int64

@@ -233,7 +233,7 @@ def pull_mod_windows(
     gathers its predecessors' finished rows (times the move's weight unless `unit`),
     shifted by one length; then its words are reduced and multiplied by D(j)^-1, or, for a
     terminal state, added into out[length, q].  `which` selects the moves gathered and
-    whether the states are finished, as in `first_pass_pull`.
+    whether the states are finished, as in `core.sweep.pull_windows`.
     """
     nq = primes.size
     for j in range(win.size):

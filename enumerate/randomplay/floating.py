@@ -225,7 +225,7 @@ RING_GROWTH = 1.25
 def float_sweep_bytes(space: StateSpace, model: str, threads: int) -> tuple[int, int]:
     """(forecast peak bytes of `float_play`, the part of it in value buffers).
 
-    An upper bound when the game has a proven window bound (`windows.window_bound`: the
+    An upper bound when the game has a proven window bound (`core.sweep.window_bound`: the
     standard game, or every move lowering the level), else a bound on everything but the
     value buffers, which `float_sweep` then
     checks layer by layer before it allocates them.
