@@ -18,7 +18,7 @@ layers level + 1 .. level + max_drop stay live.  The moves into each layer are l
 `listing.moves_in` (prefetched in threads, `listing.prefetch_listings`); those whose source
 is reachable are kept (`Incoming`), with their weights, so that the exact sweeps re-read
 them instead of listing them again.  Each finished layer is yielded as a `SweptLayer`
-(`sweep_layers`); `sweep_windows` collects them into the `Windows` of a count, random play
+(`swept_layers`); `sweep_windows` collects them into the `Windows` of a count, random play
 into its `Skeleton` (`randomplay.exact.random_skeleton`).
 
 One kernel, `pull_windows`, gathers a layer.  `gather_passes` plans its calls; the later
@@ -251,7 +251,7 @@ def factor_tables(factor_primes: np.ndarray, bound: int) -> tuple[np.ndarray, np
     return spf, pidx
 
 
-def sweep_layers(
+def swept_layers(
     space: StateSpace, *, pairs: bool = False, paths: bool = False, keep_moves: bool = True,
     factor_primes: np.ndarray | None = None, weight_bound: int = 0, threads: int = 1,
     totals: dict | None = None,
@@ -424,13 +424,13 @@ def sweep_windows(
     space: StateSpace, keep_incoming: bool = True, threads: int = 1
 ) -> Windows:
     """Reachable states, transitions, length windows and the size bound of one game: the
-    first sweep (`sweep_layers`) with path estimates, collected for a count."""
+    first sweep (`swept_layers`) with path estimates, collected for a count."""
     totals: dict = {}
     lmin: dict[int, np.ndarray] = {}
     win: dict[int, np.ndarray] = {}
     ends: dict[int, np.ndarray] = {}
     incoming: dict[int, Incoming] | None = {} if keep_incoming else None
-    for layer in sweep_layers(space, paths=True, keep_moves=keep_incoming, threads=threads,
+    for layer in swept_layers(space, paths=True, keep_moves=keep_incoming, threads=threads,
                               totals=totals):
         lmin[layer.level] = layer.lmin
         win[layer.level] = layer.win

@@ -31,7 +31,7 @@ residues also satisfy sum N == M, which is checked.
 Both sweeps *pull*: layers are visited from the start's level downward and each state
 gathers from its predecessors (the moves into it), inside a layer in ascending rank, which
 is topological (see `statespace`).  The first sweep is the one shared with counting
-(`core.sweep.sweep_layers`, listing by `core.listing`, collected here by
+(`core.sweep.swept_layers`, listing by `core.listing`, collected here by
 `random_skeleton`); it keeps the moves into every layer whose source is reachable
 (`core.sweep.Incoming`, with their weights), so the second sweep only re-reads them.  A
 move may drop the level by up to `max_drop` of the rule set, so the second sweep keeps the
@@ -72,7 +72,7 @@ from zeckenum.core.jit import kernel
 from zeckenum.core.memory import available_bytes, refuse_if_over, resolve_limit
 from zeckenum.core.modular import crt, descending_primes
 from zeckenum.core.statespace import StateSpace, build_space, refuse_space
-from zeckenum.core.sweep import Incoming, drop_stale, gather_passes, sweep_layers
+from zeckenum.core.sweep import Incoming, drop_stale, gather_passes, swept_layers
 from zeckenum.errors import CheckPrimeMismatch, InputError
 from zeckenum.rules.model import GameSpec, get_rules
 
@@ -389,7 +389,7 @@ def _threads(threads: int | None) -> int:
 def random_skeleton(
     space: StateSpace, model: str, exponents: bool = True, threads: int | None = None
 ) -> Skeleton:
-    """The first sweep of random play (`core.sweep.sweep_layers`) collected: reachability,
+    """The first sweep of random play (`core.sweep.swept_layers`) collected: reachability,
     length windows, D(s), the moves in with their weights, and (with `exponents`) the exact
     lcm denominator M of one game and model."""
     check_model(model)
@@ -403,7 +403,7 @@ def random_skeleton(
     win: dict[int, np.ndarray] = {}
     dsum: dict[int, np.ndarray] = {}
     incoming: dict[int, Incoming] = {}
-    for layer in sweep_layers(space, pairs=model == "pairs", factor_primes=factor_primes,
+    for layer in swept_layers(space, pairs=model == "pairs", factor_primes=factor_primes,
                               weight_bound=bound, threads=_threads(threads), totals=totals):
         levels.append(layer.level)
         lmin[layer.level] = layer.lmin
@@ -484,7 +484,7 @@ def _exponent_primes(spec: GameSpec, model: str, exponents: bool) -> tuple[int, 
 def skeleton_bytes_bound(space: StateSpace, model: str, exponents: bool = True,
                          threads: int | None = None) -> int:
     """Forecast peak bytes of random play's first sweep (`random_skeleton`: the layers of
-    `core.sweep.sweep_layers` kept as a `Skeleton`), an upper bound.
+    `core.sweep.swept_layers` kept as a `Skeleton`), an upper bound.
 
     Counts: the rank table; for every state of the space SKELETON_PER_STATE bytes, and for
     every move into a state (counted exactly by `StateSpace.moves_by_level`; only those

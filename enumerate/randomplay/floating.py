@@ -4,7 +4,7 @@ Same pulling sweep as the exact one (`zeckenum.randomplay.exact`, any level drop
 with one double per (state, length) instead of residues: each state gathers its
 predecessors' finished rows.  In the model "moves" a finished row is scaled once by
 c = fl(1 / D(s)) and the moves add it; in the model "pairs" each move multiplies the
-source's row by c = fl(w / D(s)).  The first sweep (`core.sweep.sweep_layers`, shared
+source's row by c = fl(w / D(s)).  The first sweep (`core.sweep.swept_layers`, shared
 with counting and exact random play) runs in a background thread, a layer or two ahead
 (its kernels release the GIL).
 Error analysis (standard model of floating-point arithmetic, u = 2**-53, every quantity
@@ -45,7 +45,7 @@ from zeckenum.core.jit import kernel
 from zeckenum.core.memory import human, refuse_if_over, resolve_limit
 from zeckenum.core.moments import float_moments, gaussian_diagnostics
 from zeckenum.core.statespace import StateSpace, build_space, refuse_space
-from zeckenum.core.sweep import SweptLayer, drop_stale, gather_passes, sweep_layers, window_bound
+from zeckenum.core.sweep import SweptLayer, drop_stale, gather_passes, swept_layers, window_bound
 from zeckenum.errors import MemoryRefused
 from zeckenum.randomplay.exact import (
     SKELETON_PER_STATE,
@@ -330,7 +330,7 @@ def float_play(
     forecast, ring_bytes = float_sweep_bytes(space, model, nthreads)
     refuse_if_over(forecast, limit, f"float random play at n={n}")
     start_level, start_rank = space.rank(space.spec.start)
-    layers = sweep_layers(space, pairs=model == "pairs", threads=nthreads)
+    layers = swept_layers(space, pairs=model == "pairs", threads=nthreads)
     q: queue.Queue = queue.Queue(maxsize=2)
     th = threading.Thread(target=_producer, args=(layers, q), daemon=True)
     th.start()
