@@ -26,6 +26,7 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 from zeckenum.cluster.workercache import WorkerCache, worker_address
+from zeckenum.core.listing import moves_in
 from zeckenum.core.memory import available_bytes
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.sweep import Windows
@@ -81,13 +82,13 @@ def updates_per_prime(space: StateSpace, windows: Windows) -> int:
     total = 0
     if windows.incoming is None:
         for level in windows.win:
-            lm = space.predecessors(level)
+            lm = moves_in(space, level)
             for d in np.unique(lm.drop):
                 src_level = level + int(d)
                 if src_level not in windows.win:
                     continue
                 sel = lm.drop == d
-                total += int(windows.win[src_level][lm.dest[sel]].astype(np.int64).sum())
+                total += int(windows.win[src_level][lm.other[sel]].astype(np.int64).sum())
         return total
     for level, inc in windows.incoming.items():
         for d in np.unique(inc.drop):
@@ -99,7 +100,7 @@ def updates_per_prime(space: StateSpace, windows: Windows) -> int:
     return total
 
 
-def first_sweep(
+def windows_with_facts(
     ruleset: RuleSet, n: int, limit: int | None = None, threads: int = 1
 ) -> tuple[StateSpace, Windows, Facts]:
     """State space, windows and `Facts` of one game (no caching).
@@ -155,14 +156,14 @@ def prepared(rules: str | RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
 
     def build() -> tuple[StateSpace, Windows, Facts]:
         if worker_address():
-            return host_first_sweep(ruleset, int(n))
-        return first_sweep(ruleset, int(n))
+            return host_windows_with_facts(ruleset, int(n))
+        return windows_with_facts(ruleset, int(n))
 
     return _cache.get((ruleset.content_hash(), int(n)), build)
 
 
-def host_first_sweep(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
-    """`first_sweep` of (rules, n) through this host's shared cache (`hostcache`).
+def host_windows_with_facts(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windows, Facts]:
+    """`windows_with_facts` of (rules, n) through this host's shared cache (`hostcache`).
 
     The cached arrays are checked against the game's state space when mapped, and the
     `Facts` are recomputed from the space and the checked arrays: only the sweep's time is
@@ -173,7 +174,7 @@ def host_first_sweep(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windows, Fac
     space = build_space(ruleset.instantiate(n))
 
     def compute() -> tuple[Windows, dict]:
-        _, win, facts = first_sweep(ruleset, n)
+        _, win, facts = windows_with_facts(ruleset, n)
         return win, facts.to_dict()
 
     win, recorded, _ = shared_windows(ruleset.content_hash(), n, compute, space)

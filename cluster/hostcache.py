@@ -86,6 +86,7 @@ from collections.abc import Callable, Iterator
 from pathlib import Path
 
 import numpy as np
+from zeckenum.core.listing import moves_in
 from zeckenum.core.statespace import StateSpace
 from zeckenum.core.sweep import Incoming, Windows
 from zeckenum.errors import InputError
@@ -460,8 +461,8 @@ def check_windows(
                               f"{src.size} monotonically")
             kept = None
         else:
-            moves = space.predecessors(level)
-            ptr, drop, src = moves.ptr, moves.drop, moves.dest
+            moves = moves_in(space, level)
+            ptr, drop, src = moves.ptr, moves.drop, moves.other
             kept = np.ones(src.size, dtype=bool)
         src64 = src.astype(np.int64)
         if drop.size and (int(drop.min()) < 0 or int(drop.max()) > max_drop):
@@ -616,7 +617,7 @@ def shared_windows(
     `space` is the game's state space: the mapped arrays are checked against it.  `shared`
     is False when the host cache is refused or cannot be written, and `compute`'s own
     arrays are returned instead.  The returned facts are those recorded (sealed); callers
-    recompute what they rely on (`count_tasks.host_first_sweep`).
+    recompute what they rely on (`count_tasks.host_windows_with_facts`).
     """
     try:
         root = private_root()

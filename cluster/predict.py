@@ -32,7 +32,7 @@ import math
 import textwrap
 import time
 
-from zeckenum.cluster.count_tasks import Facts, first_sweep
+from zeckenum.cluster.count_tasks import Facts, windows_with_facts
 from zeckenum.cluster.kinds import random_kind
 from zeckenum.cluster.plan import ShardPlan, make_plan, worker_bytes
 from zeckenum.cluster.random_tasks import RandomFacts
@@ -168,7 +168,7 @@ def predict_count(
     ruleset = get_rules(rules)
     refuse_count(n, ruleset, max_memory=max_memory)
     rate = probe_rate(probe_n, ruleset, max_memory)
-    space, windows, facts = first_sweep(ruleset, n)
+    space, windows, facts = windows_with_facts(ruleset, n)
     plan = make_plan(facts, 0, workers, blocks)
     return {
         "rules": ruleset.name,

@@ -9,7 +9,7 @@ cluster twins, calling the same `randomplay.random_law_residues` /
 `randomplay.random_win_residues`.
 
 A worker never receives the skeleton: it rebuilds the game, its state space and the first
-sweep (`randomplay.first_sweep`, deterministic) from (rules, n, model), keeps the skeleton
+sweep (`randomplay.exact.random_skeleton`, deterministic) from (rules, n, model), keeps the skeleton
 in a small per-process cache (`workercache.WorkerCache`) so the other blocks of the same
 game on that worker reuse it, and sweeps its block.  Only a block of primes goes in; one
 small int64 array (primes in block x columns: longest + 1 lengths, or `players` residues of
@@ -32,9 +32,9 @@ from zeckenum.core.modular import check_mul_primes
 from zeckenum.core.statespace import build_space
 from zeckenum.randomplay.exact import (
     Skeleton,
-    first_sweep,
     law_words_per_prime,
     random_law_residues,
+    random_skeleton,
     random_win_residues,
     skeleton_nbytes,
     weight_bound,
@@ -127,7 +127,7 @@ def random_prepared(rules: str | RuleSet, n: int, model: str) -> _Swept:
     def build() -> _Swept:
         t0 = time.perf_counter()
         space = build_space(ruleset.instantiate(int(n)))
-        skel = first_sweep(space, model, threads=1)
+        skel = random_skeleton(space, model, threads=1)
         return _Swept(skel=skel, weight_bound=weight_bound(space, skel, model),
                       law_updates=law_updates_per_prime(skel),
                       seconds=round(time.perf_counter() - t0, 3))

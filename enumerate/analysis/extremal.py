@@ -1,6 +1,6 @@
 """Extremal games: an explicit shortest and longest game, and the greedy longest rule.
 
-`extremal_games(n)` runs the first sweep (`windows.sweep_windows`), which gives every
+`extremal_games(n)` runs the first sweep (`core.sweep.sweep_windows`), which gives every
 reachable state its window [lmin, lmax] of path lengths from the start, then walks back
 from the end position: a state reached by a shortest (longest) game of length L has a
 predecessor whose lmin (lmax) is exactly L - 1, found by undoing each move type and ranking

@@ -34,6 +34,7 @@ from math import comb
 
 import numpy as np
 from zeckenum.core.checks import check_model, check_n
+from zeckenum.core.listing import moves_out
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.statespace import build_space, refuse_space, states_upper_bound
 from zeckenum.core.sweep import length_bound
@@ -56,7 +57,7 @@ def graph_bytes(spec: GameSpec, states: int, model: str | None = "moves") -> int
 
     Per state: its counts (int64 per bin), the row pointer as an array and a Python list,
     the two path counts (Python ints of at most L log2(moves + 1) bits, L the game length
-    bound of `windows.length_bound`, else the states), the visit probability (a Fraction
+    bound of `core.sweep.length_bound`, else the states), the visit probability (a Fraction
     whose denominator has at most L log2(max D) bits) and one small dict of the --move
     distribution in flight.  Per move, at most one per move type and state: dest and move
     as arrays (twice while the layers are joined), as Python lists, the listing's int64
@@ -134,11 +135,11 @@ def explicit_graph(spec: GameSpec, max_memory: int | None = None) -> MoveGraph:
     ptrs, dests, moves, states = [], [], [], []
     base = 0
     for lv in levels:
-        lm = space.moves(lv)
+        lm = moves_out(space, lv)
         lv_off = np.array([offset.get(lv - d, 0) for d in range(space.max_drop + 1)],
                           dtype=np.int64)
         ptrs.append(lm.ptr[:-1] + base)
-        dests.append(lv_off[lm.drop] + lm.dest)
+        dests.append(lv_off[lm.drop] + lm.other)
         moves.append(lm.move.astype(np.int64))
         states.append(lm.states)
         base += int(lm.ptr[-1])

@@ -6,14 +6,16 @@ level is the token count, which no move raises.  Inside a layer, states are orde
 co-lexicographically (the count in the largest bin is the most significant digit) and
 ranked densely 0, 1, 2, ... in that order.  Every move of the standard game raises the
 count of a bin above every bin it lowers, so it goes to a state of higher co-lexicographic
-rank: inside a layer, ascending rank is a topological order.  `layer_moves` checks this for
-every move it lists, so a rule set that breaks it is refused instead of miscounted.
+rank: inside a layer, ascending rank is a topological order.  `listing.list_moves` checks
+this for every move it lists, so a rule set that breaks it is refused instead of
+miscounted (`listing.refuse_order`).
 
 No state is ever hashed: a vector's rank is computed from the table `tab` in O(bins).
 
     tab[k, v, t] = number of count vectors over bins 0..k-1 with value v and level t
 
 The same arrays serve counting, random play and solving; kernels take plain arrays only.
+The moves of a layer are listed by `listing` and swept by `sweep`.
 """
 
 from __future__ import annotations
@@ -195,92 +197,13 @@ def move_applies(
     return True
 
 
-@kernel
-def layer_moves(
-    states: np.ndarray,
-    level: int,
-    tab: np.ndarray,
-    values: np.ndarray,
-    weights: np.ndarray,
-    n: int,
-    mv_bins: np.ndarray,
-    mv_delta: np.ndarray,
-    mv_drop: np.ndarray,
-    sign: int,
-):
-    """Every legal move into or out of every state of one layer, as a compressed list.
-
-    sign = +1 lists moves out of each state: move e leads to the state of rank dest[e] in
-    layer level - drop[e].  sign = -1 lists moves into each state: move e comes from the
-    state of rank dest[e] in layer level + drop[e] (every count vector of value n is a
-    state; whether it is reachable is the sweeps' business).  Either way the rows of state i
-    are ptr[i]..ptr[i+1]-1 and move[e] is the move's index in the rule set.  `bad` is -1, or
-    the rank of a state with a move inside the layer that breaks ascending-rank order (out
-    of a state to a lower or equal rank, or into it from a higher or equal rank).
-    """
-    size = states.shape[0]
-    nmoves = mv_bins.shape[0]
-    width = mv_bins.shape[1]
-    max_level = tab.shape[2] - 1
-    ptr = np.zeros(size + 1, dtype=np.int64)
-    for i in range(size):
-        deg = 0
-        for m in range(nmoves):
-            if move_applies(states, i, m, sign, level, max_level, mv_bins, mv_delta, mv_drop):
-                deg += 1
-        ptr[i + 1] = ptr[i] + deg
-    total = ptr[size]
-    drop = np.zeros(total, dtype=np.int64)
-    dest = np.zeros(total, dtype=np.int64)
-    move = np.zeros(total, dtype=np.int32)
-    bad = -1
-    work = np.zeros(values.size, dtype=np.int64)
-    for i in range(size):
-        e = ptr[i]
-        for m in range(nmoves):
-            if not move_applies(states, i, m, sign, level, max_level, mv_bins, mv_delta, mv_drop):
-                continue
-            work[:] = states[i, :]
-            for j in range(width):
-                work[mv_bins[m, j]] += sign * mv_delta[m, j]
-            d = mv_drop[m]
-            r = rank_of(work, tab, values, weights, n, level - sign * d)
-            if d == 0 and sign * (r - i) <= 0 and bad < 0:
-                bad = i
-            drop[e] = d
-            dest[e] = r
-            move[e] = m
-            e += 1
-    return ptr, drop, dest, move, bad
-
-
-@kernel
-def layer_terminals(
-    states: np.ndarray, level: int, max_level: int, mv_bins: np.ndarray, mv_delta: np.ndarray,
-    mv_drop: np.ndarray,
-) -> np.ndarray:
-    """Ranks of the states of one layer where no move applies (the games' end positions)."""
-    out = np.empty(states.shape[0], dtype=np.int64)
-    count = 0
-    for i in range(states.shape[0]):
-        stuck = True
-        for m in range(mv_bins.shape[0]):
-            if move_applies(states, i, m, 1, level, max_level, mv_bins, mv_delta, mv_drop):
-                stuck = False
-                break
-        if stuck:
-            out[count] = i
-            count += 1
-    return out[:count]
-
-
 @dataclass(frozen=True, eq=False)
 class StateSpace:
     """The ranked state space of one game: layer sizes and the ranking table.
 
     Layers are visited from `top` (the start's level) down to 0; only layers with at least
     one state of value n exist.  Layer sizes count every state of value n at that level; the
-    reachable ones are found by the first sweep (see `windows`).
+    reachable ones are found by the first sweep (see `sweep`).
     """
 
     spec: GameSpec
@@ -315,7 +238,7 @@ class StateSpace:
         return math.ceil(float(per_level.max(initial=0.0)))
 
     def moves_by_level(self, sign: int = -1) -> np.ndarray:
-        """Per level 0..top, the number of (state, move) pairs `layer_moves` lists with this
+        """Per level 0..top, the number of (state, move) pairs `listing.list_moves` lists with this
         sign (-1: moves into the layer's states, +1: out of them), exactly, as float64.
 
         A move's reverse applies to a state iff the state holds at least the tokens the
@@ -347,62 +270,12 @@ class StateSpace:
         s = self.spec
         return layer_states(self.tab, s.values, s.weights, s.n, level)
 
-    def moves(self, level: int, states: np.ndarray | None = None) -> LayerMoves:
-        """Moves out of every state of one layer (see `layer_moves`, sign +1)."""
-        return self._listing(level, states, +1)
-
-    def predecessors(self, level: int, states: np.ndarray | None = None) -> LayerMoves:
-        """Moves into every state of one layer; dest[e] is then the source's rank."""
-        return self._listing(level, states, -1)
-
-    def terminals(self, level: int, states: np.ndarray | None = None) -> np.ndarray:
-        """Ranks of the states of a layer without any legal move."""
-        s = self.spec
-        if states is None:
-            states = self.states(level)
-        return layer_terminals(states, level, self.top, s.mv_bins, s.mv_delta, s.mv_drop)
-
-    def _listing(self, level: int, states: np.ndarray | None, sign: int) -> LayerMoves:
-        s = self.spec
-        if states is None:
-            states = self.states(level)
-        ptr, drop, dest, move, bad = layer_moves(
-            states, level, self.tab, s.values, s.weights, s.n, s.mv_bins, s.mv_delta, s.mv_drop,
-            sign,
-        )
-        if bad >= 0:
-            raise InputError(
-                f"rule set {s.rules.name!r}: a move inside level {level} does not raise the "
-                "state's rank, so the layers are not in topological order"
-            )
-        return LayerMoves(level, states, ptr, drop, dest, move)
-
     def rank(self, counts: np.ndarray) -> tuple[int, int]:
         """(level, rank) of a count vector."""
         s = self.spec
         counts = np.asarray(counts, dtype=np.int64)
         level = int((counts * s.weights).sum())
         return level, int(rank_of(counts, self.tab, s.values, s.weights, s.n, level))
-
-
-@dataclass(frozen=True, eq=False)
-class LayerMoves:
-    """The states of one layer and all their moves out (or in), compressed rows.
-
-    See `layer_moves`: for moves in, `dest` holds the source's rank and `drop` how far the
-    source's level lies above this one.
-    """
-
-    level: int
-    states: np.ndarray
-    ptr: np.ndarray
-    drop: np.ndarray
-    dest: np.ndarray
-    move: np.ndarray
-
-    @property
-    def size(self) -> int:
-        return int(self.states.shape[0])
 
 
 def build_space(spec: GameSpec, max_memory: int | None = None) -> StateSpace:

@@ -1,77 +1,138 @@
-"""First sweep: reachability, per-state length windows, and the a-priori size bound.
+"""The first sweep, shared by counting and random play: reachability, per-state length
+windows, the moves kept for the exact sweeps, and what sizes them.
 
 For every state s reachable from the start, the sweep finds the shortest and the longest
-number of moves of a path start -> s (its *length window* [lmin, lmin + win - 1]) and an
-upper estimate of log2(number of such paths).  The windows size the exact sweep (each state
-stores one residue per length in its window and per prime); the path-count estimate at the
-terminal states bounds every length count and so fixes how many primes are needed.
+number of moves of a path start -> s (its *length window* [lmin, lmin + win - 1]).  On
+request it also gathers
+
+* an upper estimate of log2(number of such paths) (`paths`, counting): at the terminal
+  states it bounds every length count and so fixes how many primes the exact count needs;
+* for every prime p up to a bound on the total move weight D(s) (`factor_primes`, exact
+  random play), the largest sum of v_p(D(s)) along a path start -> s: at the terminal
+  states this gives the exact common denominator of the random-play probabilities.
 
 The sweep *pulls*: layers are visited from the start's level downward, and each state
 gathers from its predecessors (moves into it), inside a layer in ascending rank, which is
-topological (see `statespace`).  The moves into each layer, restricted to reachable
-sources, are kept (`Incoming`) when they fit the memory budget, so that the exact sweep's
-prime blocks re-read them instead of re-deriving them.  Each finished layer keeps two int32
-arrays (lmin, win); only the layers a move can still reach are held as working arrays.
+topological (see `statespace`).  A move may drop the level by up to `max_drop`, so the
+layers level + 1 .. level + max_drop stay live.  The moves into each layer are listed by
+`listing.moves_in` (prefetched in threads, `listing.prefetch_listings`); those whose source
+is reachable are kept (`Incoming`), with their weights, so that the exact sweeps re-read
+them instead of listing them again.  Each finished layer is yielded as a `SweptLayer`
+(`swept_layers`); `sweep_windows` collects them into the `Windows` of a count, random play
+into its `Skeleton` (`randomplay.exact.random_skeleton`).
+
+One kernel, `pull_windows`, gathers a layer.  `gather_passes` plans its calls; the later
+sweeps of random play (exact and float) use the same plan and `drop_stale`.
 """
 
 from __future__ import annotations
 
 import math
-from collections import deque
-from collections.abc import Iterator
-from concurrent.futures import Future, ThreadPoolExecutor
-from dataclasses import dataclass
+from collections.abc import Iterator, Mapping
+from dataclasses import dataclass, field
 
 import numpy as np
 from zeckenum.core.jit import kernel
-from zeckenum.core.statespace import LayerMoves, StateSpace
+from zeckenum.core.listing import LayerMoves, prefetch_listings
+from zeckenum.core.statespace import StateSpace
 from zeckenum.rules.model import GameSpec
 
 UNREACHED = np.iinfo(np.int32).max
+"""lmin of a state no path reaches (while the sweep runs)."""
+
+
+@kernel(inline=True)
+def _log2_add(x: float, y: float) -> float:
+    """log2(2**x + 2**y) for x finite, y finite or -inf (one rounding order, kept fixed:
+    the path estimate's bits must not depend on how the kernel is called)."""
+    if y == -np.inf:
+        return x
+    if x >= y:
+        return x + np.log2(1.0 + np.exp2(y - x))
+    return y + np.log2(1.0 + np.exp2(x - y))
 
 
 @kernel
 def pull_windows(
-    dst_lmin: np.ndarray,
-    dst_lmax: np.ndarray,
-    dst_lp: np.ndarray,
-    ptr: np.ndarray,
-    drop: np.ndarray,
-    src: np.ndarray,
-    which_drop: int,
-    src_lmin: np.ndarray,
-    src_lmax: np.ndarray,
-    src_lp: np.ndarray,
-    keep: np.ndarray,
+    lmin: np.ndarray, lmax: np.ndarray, lp: np.ndarray, ex: np.ndarray,
+    up_lmin: np.ndarray, up_lmax: np.ndarray, up_lp: np.ndarray, up_ex: np.ndarray,
+    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, keep: np.ndarray, dsum: np.ndarray,
+    spf: np.ndarray, pidx: np.ndarray, end_ex: np.ndarray, stats: np.ndarray,
+    which: int = -1,
 ) -> None:
-    """Gather windows and log2 path counts along the moves into one layer from `which_drop` up.
+    """Reachability, length windows, log2 path counts and lcm exponents gathered into one
+    layer (see the module docstring).
 
-    lmin/lmax are path lengths in moves; lp is log2 of the number of paths (-inf: none).
-    keep[e] is set for every move whose source is reachable.  With which_drop == 0 the
-    source arrays are the destination arrays, finished in ascending rank.
+    lmin/lmax are path lengths in moves (lmin == UNREACHED: not reached); lp is log2 of the
+    number of paths (-inf: none), or empty when not estimated; ex[j, b] (one column per
+    factor prime, none when not tracked) is, once state j is complete, the largest sum of
+    v_{p_b}(D(s)) over the states s of a path start -> j *including j itself* (what its
+    moves carry on).  Sources of drop-0 moves are this layer's arrays (finished, ascending
+    rank), of the other moves the up_* arrays.  `which` selects the moves gathered
+    (`gather_passes`): -1 all of them, every drop being 0 or 1 (up_* is the layer one
+    level up); d >= 1 only the moves of drop d (up_* is the layer d levels up), leaving the
+    states unfinished; 0 only the drop-0 moves, then finishing the states.  keep[e] marks
+    the moves whose source is reachable.  Finished terminal states (dsum 0) fold into
+    end_ex (max); stats = [states, moves, terminals, shortest, longest, max D], over the
+    reached states and kept moves.  spf[x]: smallest prime factor of x, pidx[p]: column of
+    prime p.
     """
-    for j in range(dst_lmin.size):
+    nbp = ex.shape[1]
+    paths = lp.size > 0
+    for j in range(lmin.size):
         for e in range(ptr[j], ptr[j + 1]):
-            if drop[e] != which_drop:
-                continue
+            # two written-out branches: selecting an array per move would cost reference
+            # counting on every move
             i = src[e]
-            if src_lmin[i] == UNREACHED:
+            if which >= 0 and drop[e] != which:
                 continue
-            keep[e] = True
-            a = src_lmin[i] + 1
-            b = src_lmax[i] + 1
-            if a < dst_lmin[j]:
-                dst_lmin[j] = a
-            if b > dst_lmax[j]:
-                dst_lmax[j] = b
-            x = src_lp[i]
-            y = dst_lp[j]
-            if y == -np.inf:
-                dst_lp[j] = x
-            elif x >= y:
-                dst_lp[j] = x + np.log2(1.0 + np.exp2(y - x))
+            if drop[e] == 0:
+                a = lmin[i]
+                if a == UNREACHED:
+                    continue
+                z = lmax[i]
+                for b in range(nbp):
+                    if ex[i, b] > ex[j, b]:
+                        ex[j, b] = ex[i, b]
+                if paths:
+                    lp[j] = _log2_add(lp[i], lp[j])
             else:
-                dst_lp[j] = y + np.log2(1.0 + np.exp2(x - y))
+                a = up_lmin[i]
+                if a == UNREACHED:
+                    continue
+                z = up_lmax[i]
+                for b in range(nbp):
+                    if up_ex[i, b] > ex[j, b]:
+                        ex[j, b] = up_ex[i, b]
+                if paths:
+                    lp[j] = _log2_add(up_lp[i], lp[j])
+            keep[e] = True
+            stats[1] += 1
+            if a + 1 < lmin[j]:
+                lmin[j] = a + 1
+            if z + 1 > lmax[j]:
+                lmax[j] = z + 1
+        if which > 0 or lmin[j] == UNREACHED:
+            continue
+        stats[0] += 1
+        d = dsum[j]
+        if d == 0:
+            stats[2] += 1
+            if lmin[j] < stats[3]:
+                stats[3] = lmin[j]
+            if lmax[j] > stats[4]:
+                stats[4] = lmax[j]
+            for b in range(nbp):
+                if ex[j, b] > end_ex[b]:
+                    end_ex[b] = ex[j, b]
+            continue
+        if d > stats[5]:
+            stats[5] = d
+        if nbp > 0:
+            while d > 1:
+                p = spf[d]
+                ex[j, pidx[p]] += 1
+                d //= p
 
 
 @dataclass(frozen=True, eq=False)
@@ -79,16 +140,198 @@ class Incoming:
     """Moves into the states of one layer whose source is reachable (compressed rows).
 
     Rows of state j: ptr[j]..ptr[j+1]-1; move e comes from rank src[e] of the layer
-    drop[e] levels above.
+    drop[e] levels above, with weight w[e] (w empty: every weight is 1).  Dtypes: ptr
+    int64, drop int8, src int32, w int64.
     """
 
     ptr: np.ndarray
     drop: np.ndarray
     src: np.ndarray
+    w: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
 
     @property
     def nbytes(self) -> int:
-        return self.ptr.nbytes + self.drop.nbytes + self.src.nbytes
+        return self.ptr.nbytes + self.drop.nbytes + self.src.nbytes + self.w.nbytes
+
+
+@kernel
+def compact_rows(
+    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray, keep: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Compressed rows restricted to kept entries: (ptr int64, drop int8, src int32, w int64).
+
+    w holds a per-entry weight (random play's move weights) or is empty, and is then
+    returned empty.
+    """
+    size = ptr.size - 1
+    total = 0
+    for e in range(keep.size):
+        if keep[e]:
+            total += 1
+    new_ptr = np.zeros(size + 1, dtype=np.int64)
+    new_drop = np.empty(total, dtype=np.int8)
+    new_src = np.empty(total, dtype=np.int32)
+    new_w = np.empty(total if w.size else 0, dtype=np.int64)
+    k = 0
+    for j in range(size):
+        for e in range(ptr[j], ptr[j + 1]):
+            if keep[e]:
+                new_drop[k] = drop[e]
+                new_src[k] = src[e]
+                if w.size:
+                    new_w[k] = w[e]
+                k += 1
+        new_ptr[j + 1] = k
+    return new_ptr, new_drop, new_src, new_w
+
+
+def compress_incoming(moves: LayerMoves, keep: np.ndarray) -> Incoming:
+    """The moves in of `moves` restricted to kept ones, in compact dtypes (int32 ranks,
+    int8 drops), with their weights."""
+    if moves.other.size and int(moves.other.max()) >= 2**31:
+        raise ValueError("a layer with 2**31 states or more does not fit int32 ranks")
+    return Incoming(*compact_rows(moves.ptr, moves.drop, moves.other, moves.w, keep))
+
+
+def gather_passes(
+    drop: np.ndarray, max_drop: int, level: int, live: Mapping[int, object],
+    merge: bool = True,
+) -> list[tuple[int, int]]:
+    """The kernel calls that gather one layer: [(which, source level)].
+
+    `which` is the sweep kernels' pass selector.  With `merge`, when no move of the game
+    drops the level by more than 1, there is one pass, which = -1 (drop-0 moves from the
+    layer itself, drop-1 moves from the layer one level up) -- or which = 0 (drop-0 moves
+    only) when that layer is not live.  Otherwise one pass per drop d >= 1 present among the
+    moves `drop` whose source layer level + d is live, in ascending d, then the finishing
+    pass which = 0 over the moves inside the layer, in ascending rank.  (A layer that is
+    not live holds no reachable state.)  The last pass always has which <= 0, so every
+    state is finished.  A float sum gathered by the passes depends on their plan: each
+    sweep keeps its own `merge` fixed.
+    """
+    if merge and max_drop <= 1:
+        return [(-1, level + 1)] if level + 1 in live else [(0, level)]
+    present = np.flatnonzero(np.bincount(drop)) if drop.size else np.zeros(0, dtype=np.int64)
+    ups = [(int(d), level + int(d)) for d in present if d > 0 and level + int(d) in live]
+    return ups + [(0, level)]
+
+
+def drop_stale(live: dict, level: int, max_drop: int) -> None:
+    """Forget the live layers no layer below `level` can gather from (above level +
+    max_drop - 1)."""
+    for stale in [lv for lv in live if lv > level + max_drop - 1]:
+        del live[stale]
+
+
+@dataclass(frozen=True, eq=False)
+class SweptLayer:
+    """One finished layer of the first sweep.
+
+    lmin / win int32 per rank (win 0: unreachable, lmin then 0); dsum int64 = D(s), the
+    total weight of the moves out of s (0: no move); ends: ranks of the reached states
+    without moves (int64, ascending); incoming: the kept moves in (None when not kept).
+    """
+
+    level: int
+    lmin: np.ndarray
+    win: np.ndarray
+    dsum: np.ndarray
+    ends: np.ndarray
+    incoming: Incoming | None
+
+
+def factor_tables(factor_primes: np.ndarray, bound: int) -> tuple[np.ndarray, np.ndarray]:
+    """(spf, pidx) for `pull_windows`: spf[x] the smallest prime factor of 2 <= x <= bound,
+    pidx[p] the column of prime p, from all the primes up to `bound` (ascending)."""
+    spf = np.zeros(bound + 1, dtype=np.int64)
+    for p in factor_primes[::-1]:
+        spf[p::p] = p
+    pidx = np.zeros(bound + 1, dtype=np.int64)
+    pidx[factor_primes] = np.arange(factor_primes.size)
+    return spf, pidx
+
+
+def swept_layers(
+    space: StateSpace, *, pairs: bool = False, paths: bool = False, keep_moves: bool = True,
+    factor_primes: np.ndarray | None = None, weight_bound: int = 0, threads: int = 1,
+    totals: dict | None = None,
+) -> Iterator[SweptLayer]:
+    """The first sweep, one finished layer at a time (from the start's level down).
+
+    pairs         weights of the random model "pairs" (D(s) and the kept moves' w), else 1
+    paths         estimate log2 of the number of paths (counting)
+    keep_moves    keep each layer's reachable moves in (`Incoming`)
+    factor_primes all primes up to `weight_bound` >= every D(s) (ascending int64): track
+                  the lcm exponents of D along the paths (exact random play); a D(s) above
+                  the bound is a RuntimeError
+    threads       layers listed ahead in parallel
+
+    When the iterator is exhausted, `totals` (if given) holds start_level, start_rank,
+    states, transitions, terminals, shortest, longest (over reached states and kept moves),
+    max_weight (largest D met), max_indegree (most kept moves into one state), max_drop,
+    max_window, terminal_paths_log2 (with `paths`, else -inf) and denominator (with
+    `factor_primes`: lcm over games of the product of D(s), else 1).
+    """
+    spec = space.spec
+    max_drop = space.max_drop
+    if factor_primes is None:
+        factor_primes = spf = pidx = np.zeros(0, dtype=np.int64)
+    else:
+        spf, pidx = factor_tables(factor_primes, weight_bound)
+    nbp = factor_primes.size
+    start_level, start_rank = space.rank(spec.start)
+    levels = [lv for lv in space.levels if lv <= start_level]
+    end_ex = np.zeros(nbp, dtype=np.int32)
+    stats = np.array([0, 0, 0, UNREACHED, -1, 0], dtype=np.int64)
+    z32 = np.zeros(0, dtype=np.int32)
+    empty = (z32, z32, np.zeros(0), np.zeros((0, nbp), dtype=np.int32))
+    live: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = {}
+    max_in = max_window = 0
+    term_lp = -np.inf
+    for level, lm in zip(levels, prefetch_listings(space, levels, threads, pairs), strict=True):
+        size = lm.size
+        lmin = np.full(size, UNREACHED, dtype=np.int32)
+        lmax = np.full(size, -1, dtype=np.int32)
+        lp = np.full(size if paths else 0, -np.inf, dtype=np.float64)
+        ex = np.zeros((size, nbp), dtype=np.int32)
+        if level == start_level:
+            lmin[start_rank] = lmax[start_rank] = 0
+            if paths:
+                lp[start_rank] = 0.0
+        if nbp and lm.dsum.size and int(lm.dsum.max()) > weight_bound:
+            raise RuntimeError(f"a total move weight exceeds the a-priori bound {weight_bound}")
+        keep = np.zeros(lm.other.size, dtype=np.bool_)
+        # the path estimate is a float sum: always gathered drop by drop, drop 0 last
+        for which, src_level in gather_passes(lm.drop, max_drop, level, live, not paths):
+            pull_windows(lmin, lmax, lp, ex, *live.get(src_level, empty), lm.ptr, lm.drop,
+                         lm.other, keep, lm.dsum, spf, pidx, end_ex, stats, which)
+        reached = lmin != UNREACHED
+        ends = np.flatnonzero(reached & (lm.dsum == 0))
+        if paths and ends.size:
+            lps = lp[ends]
+            top = lps.max()
+            term_lp = np.logaddexp2(term_lp, top + np.log2(np.exp2(lps - top).sum()))
+        inc = compress_incoming(lm, keep) if keep_moves else None
+        if inc is not None and size:
+            max_in = max(max_in, int(np.diff(inc.ptr).max()))
+        win = np.where(reached, lmax - lmin + 1, 0).astype(np.int32)
+        max_window = max(max_window, int(win.max(initial=0)))
+        yield SweptLayer(level=level, lmin=np.where(reached, lmin, 0).astype(np.int32),
+                         win=win, dsum=lm.dsum, ends=ends, incoming=inc)
+        live[level] = (lmin, lmax, lp, ex)
+        drop_stale(live, level, max_drop)
+    if totals is not None:
+        m = 1
+        for b, p in enumerate(factor_primes):
+            if end_ex[b]:
+                m *= int(p) ** int(end_ex[b])
+        totals.update(
+            start_level=start_level, start_rank=start_rank, denominator=m,
+            states=int(stats[0]), transitions=int(stats[1]), terminals=int(stats[2]),
+            shortest=int(stats[3]), longest=int(stats[4]), max_weight=int(stats[5]),
+            max_indegree=max_in, max_drop=max_drop, max_window=max_window,
+            terminal_paths_log2=float(term_lp),
+        )
 
 
 @dataclass(frozen=True, eq=False)
@@ -177,147 +420,27 @@ def incoming_bytes_estimate(space: StateSpace) -> int:
     return 8 * (space.total_states() + len(space.levels)) + math.ceil(5 * moves)
 
 
-def prefetch_listings(
-    space: StateSpace, levels: list[int], threads: int
-) -> Iterator[tuple[np.ndarray, LayerMoves, np.ndarray]]:
-    """(states, moves into them, terminal ranks) of each level in turn, derived ahead.
-
-    Deriving a layer's moves needs no values, so up to `threads` layers are derived in
-    parallel (the kernels release the GIL) while the caller sweeps the current one.
-    """
-
-    def derive(level: int) -> tuple[np.ndarray, LayerMoves, np.ndarray]:
-        states = space.states(level)
-        return states, space.predecessors(level, states), space.terminals(level, states)
-
-    with ThreadPoolExecutor(max_workers=max(1, threads)) as pool:
-        pending: deque[Future] = deque()
-        queue = iter(levels)
-        for level in queue:
-            pending.append(pool.submit(derive, level))
-            if len(pending) > threads:
-                break
-        while pending:
-            yield pending.popleft().result()
-            nxt = next(queue, None)
-            if nxt is not None:
-                pending.append(pool.submit(derive, nxt))
-
-
 def sweep_windows(
     space: StateSpace, keep_incoming: bool = True, threads: int = 1
 ) -> Windows:
-    """Reachable states, transitions, length windows and the size bound of one game."""
-    spec = space.spec
-    start_level, start_rank = space.rank(spec.start)
-    live: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
+    """Reachable states, transitions, length windows and the size bound of one game: the
+    first sweep (`swept_layers`) with path estimates, collected for a count."""
+    totals: dict = {}
+    lmin: dict[int, np.ndarray] = {}
+    win: dict[int, np.ndarray] = {}
+    ends: dict[int, np.ndarray] = {}
     incoming: dict[int, Incoming] | None = {} if keep_incoming else None
-
-    out_lmin: dict[int, np.ndarray] = {}
-    out_win: dict[int, np.ndarray] = {}
-    out_term: dict[int, np.ndarray] = {}
-    states = transitions = terminals = 0
-    shortest, longest = UNREACHED, -1
-    term_lp = -np.inf
-    max_window = 0
-    levels = [lv for lv in space.levels if lv <= start_level]
-    listings = prefetch_listings(space, levels, threads)
-    for level in levels:
-        size = space.layer_size(level)
-        lmin = np.full(size, UNREACHED, dtype=np.int32)
-        lmax = np.full(size, -1, dtype=np.int32)
-        lp = np.full(size, -np.inf, dtype=np.float64)
-        if level == start_level:
-            lmin[start_rank] = lmax[start_rank] = 0
-            lp[start_rank] = 0.0
-        live[level] = (lmin, lmax, lp)
-        layer, inc, ends = next(listings)
-        keep = np.zeros(inc.dest.size, dtype=np.bool_)
-        for d in gather_order(inc.drop):
-            if level + d in live:
-                pull_windows(lmin, lmax, lp, inc.ptr, inc.drop, inc.dest, d, *live[level + d],
-                             keep)
-        reached = lmin != UNREACHED
-        states += int(reached.sum())
-        transitions += int(keep.sum())
-        ends = ends[reached[ends]]
-        out_term[level] = ends
-        if ends.size:
-            terminals += int(ends.size)
-            shortest = min(shortest, int(lmin[ends].min()))
-            longest = max(longest, int(lmax[ends].max()))
-            lps = lp[ends]
-            top = lps.max()
-            term_lp = np.logaddexp2(term_lp, top + np.log2(np.exp2(lps - top).sum()))
-        win = np.where(reached, lmax - lmin + 1, 0).astype(np.int32)
-        max_window = max(max_window, int(win.max(initial=0)))
-        out_lmin[level] = np.where(reached, lmin, 0).astype(np.int32)
-        out_win[level] = win
-        if incoming is not None:
-            incoming[level] = compress_incoming(inc.ptr, inc.drop, inc.dest, keep)
-        for stale in [lv for lv in live if lv > level + space.max_drop - 1]:
-            del live[stale]
+    for layer in swept_layers(space, paths=True, keep_moves=keep_incoming, threads=threads,
+                              totals=totals):
+        lmin[layer.level] = layer.lmin
+        win[layer.level] = layer.win
+        ends[layer.level] = layer.ends
+        if incoming is not None and layer.incoming is not None:
+            incoming[layer.level] = layer.incoming
     return Windows(
-        lmin=out_lmin,
-        win=out_win,
-        terminal_ranks=out_term,
-        incoming=incoming,
-        states=states,
-        transitions=transitions,
-        terminals=terminals,
-        shortest=int(shortest),
-        longest=int(longest),
-        terminal_paths_log2=float(term_lp),
-        max_window=max_window,
+        lmin=lmin, win=win, terminal_ranks=ends, incoming=incoming,
+        states=totals["states"], transitions=totals["transitions"],
+        terminals=totals["terminals"], shortest=totals["shortest"],
+        longest=totals["longest"], terminal_paths_log2=totals["terminal_paths_log2"],
+        max_window=totals["max_window"],
     )
-
-
-def gather_order(drop: np.ndarray) -> list[int]:
-    """The distinct drops of a layer's incoming moves, 0 last.
-
-    Layers above are final before a layer starts; the moves inside it (drop 0) must come
-    after, in ascending rank, so each state is complete before another state reads it.
-    """
-    present = np.flatnonzero(np.bincount(drop)) if drop.size else np.zeros(0, dtype=np.int64)
-    return sorted((int(x) for x in present), key=lambda d: (d == 0, d))
-
-
-@kernel
-def compact_rows(
-    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray, keep: np.ndarray
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Compressed rows restricted to kept entries: (ptr int64, drop int8, src int32, w int64).
-
-    w holds a per-entry weight (random play's move weights) or is empty, and is then
-    returned empty.
-    """
-    size = ptr.size - 1
-    total = 0
-    for e in range(keep.size):
-        if keep[e]:
-            total += 1
-    new_ptr = np.zeros(size + 1, dtype=np.int64)
-    new_drop = np.empty(total, dtype=np.int8)
-    new_src = np.empty(total, dtype=np.int32)
-    new_w = np.empty(total if w.size else 0, dtype=np.int64)
-    k = 0
-    for j in range(size):
-        for e in range(ptr[j], ptr[j + 1]):
-            if keep[e]:
-                new_drop[k] = drop[e]
-                new_src[k] = src[e]
-                if w.size:
-                    new_w[k] = w[e]
-                k += 1
-        new_ptr[j + 1] = k
-    return new_ptr, new_drop, new_src, new_w
-
-
-def compress_incoming(
-    ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, keep: np.ndarray
-) -> Incoming:
-    """The rows restricted to kept moves, in compact dtypes (int32 ranks, int8 drops)."""
-    if src.size and int(src.max()) >= 2**31:
-        raise ValueError("a layer with 2**31 states or more does not fit int32 ranks")
-    new_ptr, new_drop, new_src, _ = compact_rows(ptr, drop, src, np.zeros(0, np.int64), keep)
-    return Incoming(new_ptr, new_drop, new_src)

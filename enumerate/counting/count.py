@@ -5,14 +5,14 @@ The path of one number, from the command line to the kernel and back:
 1. `cli.count_command` parses N and calls `count(n)`.
 2. `count` instantiates the rule set (`rules.RuleSet.instantiate`) and ranks its states
    (`statespace.build_space`).
-3. `windows.sweep_windows` walks the layers once: reachable states, moves, each state's
+3. `core.sweep.sweep_windows` walks the layers once: reachable states, moves, each state's
    window of path lengths, and a float estimate of the number of games that fixes how many
    primes the exact sweep needs (`modular.primes_for_bits`, plus one check prime).
 4. The primes are cut into blocks that fit in memory (`count_block_plan`, by the one planner
    `core.blocks.block_plan`); each block is one independent shard,
    `spectrum.spectrum_residues`, run in threads here (`core.blocks.run_blocks`) or on a
    cluster.
-   Its kernel `spectrum.push_residues` adds rows of residues along every move.
+   Its kernel `spectrum.pull_residues` gathers rows of residues along every move.
 5. `modular.reconstruct` rebuilds each length's count by the CRT and checks it against the
    check prime; the `results.CountResult` goes back to the CLI or the notebook.
 """
@@ -36,15 +36,15 @@ from zeckenum.rules.model import RuleSet
 
 
 def listing_bytes(space: StateSpace) -> int:
-    """Bytes of the largest layer's move listing (`StateSpace.predecessors`): its states
-    (int64 per bin), ptr and terminal ranks (int64 per state), and per move into the layer
-    (exactly counted, `StateSpace.moves_by_level`) drop, dest (int64), move (int32) and
-    the first sweep's keep flag."""
+    """Bytes of the largest layer's move listing (`core.listing.moves_in`), an upper bound:
+    its states (int64 per bin), ptr and D (int64 per state), and per move into the layer
+    (exactly counted, `StateSpace.moves_by_level`) drop (int8, counted as 8), source
+    (int64), move (int32) and the first sweep's keep flag."""
     return space.listing_peak(8 * space.spec.nbins + 16, 8 + 8 + 4 + 1)
 
 
 def windows_pass_bytes(space: StateSpace, threads: int = 1) -> int:
-    """Forecast peak bytes of the first sweep (`windows.sweep_windows`), an upper bound.
+    """Forecast peak bytes of the first sweep (`core.sweep.sweep_windows`), an upper bound.
 
     Counts the rank table, lmin and win (int32 each) for every state of the space, the
     working arrays (lmin, lmax int32, log2 paths float64) of the max_drop + 1 live layers,

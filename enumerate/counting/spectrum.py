@@ -19,8 +19,9 @@ from collections.abc import Callable
 
 import numpy as np
 from zeckenum.core.jit import kernel
+from zeckenum.core.listing import moves_in
 from zeckenum.core.statespace import StateSpace
-from zeckenum.core.sweep import Windows, gather_order
+from zeckenum.core.sweep import Windows, drop_stale, gather_passes
 
 
 @kernel
@@ -153,19 +154,17 @@ def spectrum_residues(
             inc = windows.incoming[level]
             ptr, drop, src = inc.ptr, inc.drop, inc.src
         else:
-            lm = space.predecessors(level)
-            ptr, drop, src = lm.ptr, lm.drop, lm.dest
-        for d in gather_order(drop):
-            if level + d not in live:
-                continue
-            svals, soff = live[level + d]
+            lm = moves_in(space, level)
+            ptr, drop, src = lm.ptr, lm.drop, lm.other
+        # modular sums: any order gives the same residues; drop 0 comes last
+        for d, src_level in gather_passes(drop, space.max_drop, level, live, merge=False):
+            svals, soff = live[src_level]
             updates += pull_residues(
                 vals, off, lmin, win, ptr, drop, src, d,
-                svals, soff, windows.lmin[level + d], windows.win[level + d], p,
+                svals, soff, windows.lmin[src_level], windows.win[src_level], p,
             )
         collect_terminals(vals, off, lmin, win, windows.terminal_ranks[level], p, spectrum)
-        for stale in [lv for lv in live if lv > level + space.max_drop - 1]:
-            del live[stale]
+        drop_stale(live, level, space.max_drop)
         if on_layer is not None:
             on_layer(int(np.count_nonzero(win)))
     return spectrum, updates

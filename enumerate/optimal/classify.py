@@ -35,18 +35,20 @@ from collections.abc import Callable
 
 import numpy as np
 from zeckenum.core.jit import kernel
+from zeckenum.core.listing import (
+    move_dense,
+    move_spans,
+    neighbour_rank,
+    rank_prefix,
+    refuse_order,
+    shifted_suffix,
+)
 from zeckenum.core.statespace import StateSpace
-from zeckenum.errors import InputError
 from zeckenum.optimal.walk import (
     _legal_moves,
-    _prepare,
     _step_down,
-    _succ_rank,
-    _suffix,
     _terms,
     _walk_start,
-    densify_moves,
-    find_move_spans,
     is_unit_game,
 )
 
@@ -80,8 +82,8 @@ def classify_layer_2p(
     the rank (the sweep order would then be wrong; the caller refuses the rule set).
     """
     nbins = values.size
-    lo, hi = find_move_spans(mv_bins, mv_delta)
-    dd = densify_moves(mv_bins, mv_delta, lo, hi)
+    lo, hi = move_spans(mv_bins, mv_delta)
+    dd = move_dense(mv_bins, mv_delta, lo, hi)
     c = np.zeros(nbins, dtype=np.int64)
     lowv = np.zeros(nbins + 1, dtype=np.int64)
     lowt = np.zeros(nbins + 1, dtype=np.int64)
@@ -112,7 +114,8 @@ def classify_layer_2p(
         for q in range(nl):
             m = cand[q]
             d = mv_drop[m]
-            r = _succ_rank(c, m, tab, values, weights, dd, lo, hi, d, lowv, lowt, i, suf)
+            r = neighbour_rank(c, m, 1, lo, hi, dd, tab, values, weights, lowv, lowt,
+                               i - suf[0, lo[m]], suf[d, hi[m] + 1])
             examined += 1
             if d == 0 and r <= i:
                 bad = i
@@ -152,8 +155,8 @@ def classify_layer_multi(
     walk, `reach`, `use_reach` and `bad` as in `classify_layer_2p`.
     """
     nbins = values.size
-    lo, hi = find_move_spans(mv_bins, mv_delta)
-    dd = densify_moves(mv_bins, mv_delta, lo, hi)
+    lo, hi = move_spans(mv_bins, mv_delta)
+    dd = move_dense(mv_bins, mv_delta, lo, hi)
     c = np.zeros(nbins, dtype=np.int64)
     lowv = np.zeros(nbins + 1, dtype=np.int64)
     lowt = np.zeros(nbins + 1, dtype=np.int64)
@@ -184,9 +187,8 @@ def classify_layer_multi(
         for q in range(nl):
             m = cand[q]
             d = mv_drop[m]
-            r = _succ_rank(
-                c, m, tab, values, weights, dd, lo, hi, d, lowv, lowt, i, suf,
-            )
+            r = neighbour_rank(c, m, 1, lo, hi, dd, tab, values, weights, lowv, lowt,
+                               i - suf[0, lo[m]], suf[d, hi[m] + 1])
             examined += 1
             if d == 0 and r <= i:
                 bad = i
@@ -233,8 +235,8 @@ def reach_layer(
     before they are read.  `bad` as in `classify_layer_2p`.
     """
     nbins = values.size
-    lo, hi = find_move_spans(mv_bins, mv_delta)
-    dd = densify_moves(mv_bins, mv_delta, lo, hi)
+    lo, hi = move_spans(mv_bins, mv_delta)
+    dd = move_dense(mv_bins, mv_delta, lo, hi)
     lowv = np.zeros(nbins + 1, dtype=np.int64)
     lowt = np.zeros(nbins + 1, dtype=np.int64)
     pre = np.zeros(nbins + 1, dtype=np.int64)
@@ -250,29 +252,21 @@ def reach_layer(
             continue
         reached += 1
         c = states[i]
-        _prepare(c, tab, values, weights, lowv, lowt, pre, suf, ready)
+        rank_prefix(c, tab, values, weights, lowv, lowt, pre, suf, ready)
         nl = _legal_moves(c, mv_bins, mv_delta, cand)
         for q in range(nl):
             m = cand[q]
             d = mv_drop[m]
             if not ready[d]:
-                _suffix(d, tab, lowv, lowt, suf)
+                shifted_suffix(-d, tab, lowv, lowt, suf[d])
                 ready[d] = True
-            r = _succ_rank(
-                c, m, tab, values, weights, dd, lo, hi, d, lowv, lowt, i, suf,
-            )
+            r = neighbour_rank(c, m, 1, lo, hi, dd, tab, values, weights, lowv, lowt,
+                               i - suf[0, lo[m]], suf[d, hi[m] + 1])
             moves += 1
             if d == 0 and r <= i:
                 bad = i
             bits[base[d] + (r >> 3)] |= np.uint8(1 << (r & 7))
     return reached, moves, bad
-
-
-def _refuse_order(space: StateSpace, level: int, rank: int) -> None:
-    raise InputError(
-        f"rule set {space.spec.rules.name!r}: a move inside level {level} (from rank {rank}) "
-        "does not raise the state's rank, so the layers are not in topological order"
-    )
 
 
 def _flight(
@@ -322,7 +316,7 @@ def reachable_bits(space: StateSpace) -> tuple[dict[int, np.ndarray], dict]:
             spec.mv_drop, span, flat, base,
         )
         if bad >= 0:
-            _refuse_order(space, level, int(bad))
+            refuse_order(space.spec, level, int(bad))
         done[level] = flat[:nb0].copy()
         live.pop(level, None)
         for d in range(1, span + 1):
@@ -386,7 +380,7 @@ def layer_classes(
             )
             cur = buf[:, :nb0].copy()
         if bad >= 0:
-            _refuse_order(space, level, int(bad))
+            refuse_order(space.spec, level, int(bad))
         held_bytes = sum(a.nbytes for a in held.values()) + buf.nbytes + cur.nbytes
         stats["peak_bits_bytes"] = max(stats["peak_bits_bytes"], held_bytes)
         del buf

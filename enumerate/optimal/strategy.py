@@ -15,6 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 from zeckenum.core.checks import check_n
 from zeckenum.core.jit import kernel
+from zeckenum.core.listing import moves_out
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.errors import InputError
 from zeckenum.optimal.solve import SolveResult, solve
@@ -140,12 +141,12 @@ def move_graph(space: StateSpace, classes: dict[int, np.ndarray]) -> dict[str, n
     ptrs, dests, movs, states = [], [], [], []
     edge_base = 0
     for lv in levels:
-        lm = space.moves(lv)
+        lm = moves_out(space, lv)
         is_n[offset[lv] : offset[lv] + lm.size] = classes[lv]
         lv_off = np.array([offset.get(lv - int(d), 0) for d in range(space.max_drop + 1)],
                           dtype=np.int64)
         ptrs.append(lm.ptr[:-1] + edge_base)
-        dests.append(lv_off[lm.drop] + lm.dest)
+        dests.append(lv_off[lm.drop] + lm.other)
         movs.append(lm.move)
         states.append(lm.states)
         edge_base += int(lm.ptr[-1])

@@ -4,15 +4,17 @@ States of a layer (value n, one level) are ranked co-lexicographically (`core.st
 The classification kernels (`classify`) walk each layer in descending rank like an odometer
 (`_walk_start`, `_step_down`: the lowest bin whose count can drop drops, the bins below refill
 with their largest feasible counts, feasibility read off the rank table), and compute the
-successors' ranks on the fly (`_succ_rank`) from suffix sums of the co-lexicographic ranking:
-a move changes only the rank terms of the bins between its lowest and highest touched bin
-(`find_move_spans`, `densify_moves`), and a step of the walk only those of the bins it changed
-(`_terms`).  Each state's recomputed rank is checked against the walk's position by the
-kernels that use the walk.
+successors' ranks on the fly with the core's one ranking step (`core.listing.neighbour_rank`)
+from suffix sums of the co-lexicographic ranking: a move changes only the rank terms of the
+bins between its lowest and highest touched bin (`core.listing.move_spans`, `move_dense`),
+and a step of the walk only those of the bins it changed (`_terms`, which keeps the suffix
+rows of every drop up to date as the walk moves).  Each state's recomputed rank is checked
+against the walk's position by the kernels that use the walk.
 
-`_prepare` / `_suffix` give the same suffix sums for a state taken from a listed layer (the
-reachability kernel `classify.reach_layer` walks `StateSpace.states`).  Every function here is
-a numba kernel or an inlined kernel helper; `walk_layer` exists for checks and tests.
+For a state taken from a listed layer (the reachability kernel `classify.reach_layer` walks
+`StateSpace.states`) the same sums come from `core.listing.rank_prefix` /
+`shifted_suffix`, exactly as in the move listing.  Every function here is a numba kernel or
+an inlined kernel helper; `walk_layer` exists for checks and tests.
 
 Relation to the state space's own primitives.  The ranks are those of
 `statespace.rank_of` (the walk checks every state's rank against its position), and
@@ -23,7 +25,7 @@ in one process, alternating, on a shared two-core machine (min of 5-9 runs):
 `move_applies` in the classification kernels made `layer_classes` 14% slower at the
 standard game n = 220 (4.00 s against 3.51 s) and 9% slower at twos n = 80, and the
 reachability sweep 44% slower at twos n = 80; `rank_of` per move (O(bins)) instead of
-`_succ_rank` (O(bins the move spans) after an O(bins) `_prepare` per state) made the
+`neighbour_rank` (O(bins the move spans) after an O(bins) `rank_prefix` per state) made the
 reachability kernel 21% slower at twos n = 90 (1.86 s against 1.54 s), 5% faster at
 reversed n = 160 and equal at tribonacci n = 200.
 """
@@ -34,117 +36,12 @@ import numpy as np
 from zeckenum.core.jit import kernel
 
 
-@kernel
-def find_move_spans(mv_bins: np.ndarray, mv_delta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """(lo, hi): lowest and highest 0-based bin each move changes (padding entries ignored)."""
-    nm = mv_bins.shape[0]
-    lo = np.zeros(nm, dtype=np.int64)
-    hi = np.zeros(nm, dtype=np.int64)
-    for m in range(nm):
-        a = 1 << 30
-        b = -1
-        for j in range(mv_bins.shape[1]):
-            if mv_delta[m, j] != 0:
-                a = min(a, mv_bins[m, j])
-                b = max(b, mv_bins[m, j])
-        lo[m] = a
-        hi[m] = b
-    return lo, hi
-
-
 @kernel(inline=True)
 def _tab(tab: np.ndarray, k: int, v: int, t: int) -> int:
     """tab[k, v, t], or 0 outside the table (negative value or level)."""
     if v < 0 or t < 0:
         return 0
     return tab[k, v, t]
-
-
-@kernel(inline=True)
-def _prepare(
-    c: np.ndarray, tab: np.ndarray, values: np.ndarray, weights: np.ndarray,
-    lowv: np.ndarray, lowt: np.ndarray, pre: np.ndarray, suf: np.ndarray,
-    ready: np.ndarray,
-) -> None:
-    """Prefix data of one state for `_succ_rank`.
-
-    lowv[k], lowt[k]: value and level of bins 0..k-1.  The co-lexicographic rank is
-    sum_k tab[k+1, lowv[k+1], lowt[k+1]] - tab[k+1, lowv[k], lowt[k]]; pre[k] sums the terms
-    of bins below k, suf[d, k] the terms of bins k and above with every level lowered by d
-    (the terms above a move's highest bin, in the layer d lower).  suf[0] follows from pre;
-    suf[d > 0] is filled on first use (`_suffix`), ready[d] tells whether it is.
-    """
-    nb_ = values.size
-    lowv[0] = 0
-    lowt[0] = 0
-    pre[0] = 0
-    for k in range(nb_):
-        lowv[k + 1] = lowv[k] + c[k] * values[k]
-        lowt[k + 1] = lowt[k] + c[k] * weights[k]
-        pre[k + 1] = pre[k] + tab[k + 1, lowv[k + 1], lowt[k + 1]] - tab[k + 1, lowv[k], lowt[k]]
-    total = pre[nb_]
-    for k in range(nb_ + 1):
-        suf[0, k] = total - pre[k]
-    ready[0] = True
-    for d in range(1, ready.size):
-        ready[d] = False
-
-
-@kernel(inline=True)
-def _suffix(
-    d: int, tab: np.ndarray, lowv: np.ndarray, lowt: np.ndarray, suf: np.ndarray,
-) -> None:
-    """Fill suf[d, :] (see `_prepare`)."""
-    nb_ = lowv.size - 1
-    suf[d, nb_] = 0
-    for k in range(nb_ - 1, -1, -1):
-        suf[d, k] = (
-            suf[d, k + 1]
-            + _tab(tab, k + 1, lowv[k + 1], lowt[k + 1] - d)
-            - _tab(tab, k + 1, lowv[k], lowt[k] - d)
-        )
-
-
-@kernel
-def densify_moves(mv_bins: np.ndarray, mv_delta: np.ndarray, lo: np.ndarray,
-               hi: np.ndarray) -> np.ndarray:
-    """dd[m, j]: change of bin lo[m] + j under move m, for j = 0 .. hi[m] - lo[m]."""
-    nm = mv_bins.shape[0]
-    width = 1
-    for m in range(nm):
-        width = max(width, hi[m] - lo[m] + 1)
-    dd = np.zeros((nm, width), dtype=np.int64)
-    for m in range(nm):
-        for j in range(mv_bins.shape[1]):
-            if mv_delta[m, j] != 0:
-                dd[m, mv_bins[m, j] - lo[m]] += mv_delta[m, j]
-    return dd
-
-
-@kernel(inline=True)
-def _succ_rank(
-    c: np.ndarray, m: int, tab: np.ndarray, values: np.ndarray, weights: np.ndarray,
-    dd: np.ndarray, lo: np.ndarray, hi: np.ndarray, d: int,
-    lowv: np.ndarray, lowt: np.ndarray, rank: int, suf: np.ndarray,
-) -> int:
-    """Rank (in its layer, d levels lower) of the state reached from c (of rank `rank`) by
-    legal move m.
-
-    Only the terms of bins lo[m] .. hi[m] change (see `_prepare`): the terms below lo[m]
-    sum to rank - suf[0, lo[m]]; dd is `densify_moves`.
-    """
-    a = lo[m]
-    r = rank - suf[0, a] + suf[d, hi[m] + 1]
-    v = lowv[a]
-    t = lowt[a]
-    for k in range(a, hi[m] + 1):
-        ck = c[k] + dd[m, k - a]
-        v2 = v + ck * values[k]
-        t2 = t + ck * weights[k]
-        r += tab[k + 1, v2, t2] - tab[k + 1, v, t]
-        v = v2
-        t = t2
-    return r
 
 
 @kernel(inline=True)

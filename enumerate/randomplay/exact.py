@@ -31,16 +31,13 @@ sum N == M, which is checked.
 
 Both sweeps *pull*: layers are visited from the start's level downward and each state
 gathers from its predecessors (the moves into it), inside a layer in ascending rank, which
-is topological (see `statespace`).  A move may drop the level by up to `max_drop` of the
-rule set, so the layers level + 1 .. level + max_drop stay live (the first sweep keeps them
-in a dict, the second in a ring of max_drop + 1 reused buffers).  When max_drop <= 1 one
-kernel call gathers a layer (drop 0 from itself, drop 1 from the layer above); otherwise one
-call per drop d >= 1 present gathers from the layer level + d, and a last call gathers the
-moves inside the layer in ascending rank and finishes the states (`gather_passes`).  The
-first sweep keeps the moves into every layer whose
-source is reachable (`Incoming`), so the second sweep only re-reads them; they are listed
-by `listing_kernel`, which ranks each move's source incrementally from the state's own
-rank (O(bins the move changes) per move instead of O(bins)).  When a state is
+is topological (see `statespace`).  The first sweep is the one shared with counting
+(`core.sweep.swept_layers`, listing by `core.listing`, collected here by
+`random_skeleton`); it keeps the moves into every layer whose source is reachable
+(`core.sweep.Incoming`, with their weights), so the second sweep only re-reads them.  A
+move may drop the level by up to `max_drop` of the rule set, so the second sweep keeps the
+layers level + 1 .. level + max_drop in a ring of max_drop + 1 reused buffers, gathered
+by the calls `core.sweep.gather_passes` plans.  When a state is
 complete, its row is reduced mod q and multiplied once by D(s)^-1; a move then adds its
 source's row times its integer weight -- in the model "moves" every weight is 1, so the
 edges are pure vectorised adds and the only multiplications are one per (state, word).
@@ -66,9 +63,6 @@ from __future__ import annotations
 
 import math
 import os
-from collections import deque
-from collections.abc import Iterator, Mapping
-from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 from fractions import Fraction
 
@@ -87,265 +81,10 @@ from zeckenum.core.modular import (
     reconstruct_fractions,
     small_primes_upto,
 )
-from zeckenum.core.statespace import LayerMoves, StateSpace, build_space, move_applies, refuse_space
-from zeckenum.core.sweep import compact_rows
-from zeckenum.errors import InputError
+from zeckenum.core.statespace import StateSpace, build_space, refuse_space
+from zeckenum.core.sweep import Incoming, drop_stale, gather_passes, swept_layers
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import GameSpec
-
-UNREACHED = np.iinfo(np.int32).max
-
-
-# ----------------------------------------------------------------------------- weights
-
-
-@kernel(inline=True)
-def move_weight(
-    states: np.ndarray, i: int, m: int, back: bool, mv_bins: np.ndarray, mv_delta: np.ndarray,
-    tk_cnt: np.ndarray,
-) -> int:
-    """Weight (model "pairs") of move m out of state i, or, with `back`, of move m out of
-    the source of the move m into state i: prod over taken bins of binomial(count, taken)."""
-    x = 1
-    for j in range(mv_bins.shape[1]):
-        c = tk_cnt[m, j]
-        if c > 0:
-            a = states[i, mv_bins[m, j]]
-            if back:
-                a -= mv_delta[m, j]
-            b = 1
-            for t in range(c):
-                b = b * (a - t) // (t + 1)
-            x *= b
-    return x
-
-
-@kernel
-def total_weights(
-    states: np.ndarray, level: int, max_level: int, mv_bins: np.ndarray, mv_delta: np.ndarray,
-    mv_drop: np.ndarray, tk_cnt: np.ndarray, pairs: bool,
-) -> np.ndarray:
-    """D[i]: total weight of the moves out of state i of a layer (0 exactly when none)."""
-    size = states.shape[0]
-    dsum = np.zeros(size, dtype=np.int64)
-    for i in range(size):
-        tot = 0
-        for m in range(mv_bins.shape[0]):
-            if move_applies(states, i, m, 1, level, max_level, mv_bins, mv_delta, mv_drop):
-                if pairs:
-                    tot += move_weight(states, i, m, False, mv_bins, mv_delta, tk_cnt)
-                else:
-                    tot += 1
-        dsum[i] = tot
-    return dsum
-
-
-@kernel
-def incoming_weights(
-    states: np.ndarray, ptr: np.ndarray, move: np.ndarray, mv_bins: np.ndarray,
-    mv_delta: np.ndarray, tk_cnt: np.ndarray,
-) -> np.ndarray:
-    """w[e]: model-"pairs" weight of every move e into the states of a layer."""
-    w = np.ones(move.size, dtype=np.int64)
-    for i in range(states.shape[0]):
-        for e in range(ptr[i], ptr[i + 1]):
-            w[e] = move_weight(states, i, move[e], True, mv_bins, mv_delta, tk_cnt)
-    return w
-
-
-# ----------------------------------------------------------------------------- listing
-
-
-@kernel
-def listing_kernel(
-    states: np.ndarray, level: int, tab: np.ndarray, values: np.ndarray, weights: np.ndarray,
-    n: int, mv_bins: np.ndarray, mv_delta: np.ndarray, mv_drop: np.ndarray,
-    mv_lo: np.ndarray, mv_hi: np.ndarray, tk_cnt: np.ndarray, pairs: bool,
-):
-    """Moves into every state of a layer with their sources' ranks, and D per state.
-
-    Returns (ptr, drop int8, src int64, move int32, dsum, bad): the same moves into state j,
-    in the same order, as `StateSpace.predecessors` (move e comes from rank src[e] of
-    layer level + drop[e]), D(j) = total weight of the moves out of j (as
-    `total_weights`), and bad = -1 or a state with a move in from the same layer that does
-    not come from a lower rank.
-
-    Ranks are found incrementally.  With the co-lexicographic rank of `statespace.rank_of`,
-    rank = sum over bins k (top down) of term_k = tab[k+1, v_k, t_k] -
-    tab[k+1, v_k - c_k values[k], t_k - c_k weights[k]], v_k / t_k the value / level left
-    for bins 0..k.  A move changes only bins mv_lo[m] .. mv_hi[m]; the source has the same
-    counts elsewhere, the same value, and a level larger by its drop d.  So above mv_hi the
-    source's terms are the state's terms at levels t_k + d, and below mv_lo (where v and t
-    are again equal) they are the state's terms.  Per state the suffix sums of its terms
-    at shift d = 0, 1, .. max drop and the prefix sums are computed once (O(bins)), then
-    each move costs O(mv_hi - mv_lo + 1) table reads.
-    """
-    size = states.shape[0]
-    nb_ = values.size
-    nmoves = mv_bins.shape[0]
-    width = mv_bins.shape[1]
-    max_level = tab.shape[2] - 1
-    maxd = 0
-    for m in range(nmoves):
-        if mv_drop[m] > maxd:
-            maxd = mv_drop[m]
-    ptr = np.zeros(size + 1, dtype=np.int64)
-    dsum = np.zeros(size, dtype=np.int64)
-    for i in range(size):
-        deg = 0
-        tot = 0
-        for m in range(nmoves):
-            if move_applies(states, i, m, -1, level, max_level, mv_bins, mv_delta, mv_drop):
-                deg += 1
-            if move_applies(states, i, m, 1, level, max_level, mv_bins, mv_delta, mv_drop):
-                if pairs:
-                    tot += move_weight(states, i, m, False, mv_bins, mv_delta, tk_cnt)
-                else:
-                    tot += 1
-        ptr[i + 1] = ptr[i] + deg
-        dsum[i] = tot
-    total = ptr[size]
-    drop = np.empty(total, dtype=np.int8)
-    src = np.empty(total, dtype=np.int64)
-    move = np.empty(total, dtype=np.int32)
-    vk = np.zeros(nb_ + 1, dtype=np.int64)  # value left for bins 0..k-1 (index k)
-    tk = np.zeros(nb_ + 1, dtype=np.int64)
-    above = np.zeros((maxd + 1, nb_ + 1), dtype=np.int64)  # sum of terms of bins >= k
-    below = np.zeros(nb_ + 1, dtype=np.int64)  # sum of terms of bins < k
-    term = np.zeros(nb_, dtype=np.int64)
-    work = np.zeros(nb_, dtype=np.int64)
-    bad = -1
-    for i in range(size):
-        if ptr[i + 1] == ptr[i]:
-            continue
-        v = n
-        t = level
-        vk[nb_] = v
-        tk[nb_] = t
-        for d in range(maxd + 1):
-            above[d, nb_] = 0
-        for k in range(nb_ - 1, -1, -1):
-            c = states[i, k]
-            for d in range(maxd + 1):
-                x = 0
-                if c > 0 and t + d <= max_level:
-                    x = tab[k + 1, v, t + d] - tab[k + 1, v - c * values[k],
-                                                   t + d - c * weights[k]]
-                above[d, k] = above[d, k + 1] + x
-                if d == 0:
-                    term[k] = x
-            v -= c * values[k]
-            t -= c * weights[k]
-            vk[k] = v
-            tk[k] = t
-        below[0] = 0
-        for k in range(nb_):
-            below[k + 1] = below[k] + term[k]
-        e = ptr[i]
-        for m in range(nmoves):
-            if not move_applies(states, i, m, -1, level, max_level, mv_bins, mv_delta,
-                                mv_drop):
-                continue
-            d = mv_drop[m]
-            lo = mv_lo[m]
-            hi = mv_hi[m]
-            for k in range(lo, hi + 1):
-                work[k] = states[i, k]
-            for j in range(width):
-                b = mv_bins[m, j]
-                work[b] -= mv_delta[m, j]
-            r = above[d, hi + 1] + below[lo]
-            v = vk[hi + 1]
-            t = tk[hi + 1] + d
-            for k in range(hi, lo - 1, -1):
-                c = work[k]
-                if c > 0:
-                    r += tab[k + 1, v, t] - tab[k + 1, v - c * values[k], t - c * weights[k]]
-                    v -= c * values[k]
-                    t -= c * weights[k]
-            if d == 0 and r >= i and bad < 0:
-                bad = i
-            drop[e] = d
-            src[e] = r
-            move[e] = m
-            e += 1
-    return ptr, drop, src, move, dsum, bad
-
-
-# ----------------------------------------------------------------------------- first sweep
-
-
-@kernel
-def first_pass_pull(
-    lmin: np.ndarray, lmax: np.ndarray, ex: np.ndarray, up_lmin: np.ndarray,
-    up_lmax: np.ndarray, up_ex: np.ndarray, ptr: np.ndarray, drop: np.ndarray, src: np.ndarray,
-    keep: np.ndarray, dsum: np.ndarray, spf: np.ndarray, pidx: np.ndarray, end_ex: np.ndarray,
-    stats: np.ndarray, which: int = -1,
-) -> None:
-    """Reachability, length windows and lcm exponents gathered into one layer.
-
-    Sources of drop-0 moves are this layer's arrays (finished, ascending rank), of the other
-    moves the up_* arrays.  `which` selects the moves gathered (see `gather_passes`): -1
-    all of them, every drop being 0 or 1 (up_* is the layer one level up); d >= 1 only
-    the moves of drop d (up_* is the layer d levels up), leaving the states unfinished; 0
-    only the drop-0 moves, then finishing the states.  lmin == UNREACHED marks an
-    unreached state.  Once state j is complete, ex[j, b] = max over paths start -> j of
-    sum v_{p_b}(D(s)) over the states s on the path *including j itself* (what its moves
-    carry on).  keep[e] marks the moves whose source is reachable.  Terminal states fold
-    into end_ex (max) and stats = [states, moves, terminals, shortest, longest, max D].
-    """
-    nbp = ex.shape[1]
-    for j in range(lmin.size):
-        for e in range(ptr[j], ptr[j + 1]):
-            # two written-out branches: selecting an array per move would cost reference
-            # counting on every move
-            i = src[e]
-            if which >= 0 and drop[e] != which:
-                continue
-            if drop[e] == 0:
-                a = lmin[i]
-                if a == UNREACHED:
-                    continue
-                z = lmax[i]
-                for b in range(nbp):
-                    if ex[i, b] > ex[j, b]:
-                        ex[j, b] = ex[i, b]
-            else:
-                a = up_lmin[i]
-                if a == UNREACHED:
-                    continue
-                z = up_lmax[i]
-                for b in range(nbp):
-                    if up_ex[i, b] > ex[j, b]:
-                        ex[j, b] = up_ex[i, b]
-            keep[e] = True
-            stats[1] += 1
-            if a + 1 < lmin[j]:
-                lmin[j] = a + 1
-            if z + 1 > lmax[j]:
-                lmax[j] = z + 1
-        if which > 0 or lmin[j] == UNREACHED:
-            continue
-        stats[0] += 1
-        d = dsum[j]
-        if d == 0:
-            stats[2] += 1
-            if lmin[j] < stats[3]:
-                stats[3] = lmin[j]
-            if lmax[j] > stats[4]:
-                stats[4] = lmax[j]
-            for b in range(nbp):
-                if ex[j, b] > end_ex[b]:
-                    end_ex[b] = ex[j, b]
-            continue
-        if d > stats[5]:
-            stats[5] = d
-        if nbp > 0:
-            while d > 1:
-                p = spf[d]
-                ex[j, pidx[p]] += 1
-                d //= p
-
 
 # ----------------------------------------------------------------------------- second sweep
 
@@ -383,7 +122,7 @@ def pull_mod_windows(
     gathers its predecessors' finished rows (times the move's weight unless `unit`),
     shifted by one length; then its words are reduced and multiplied by D(j)^-1, or, for a
     terminal state, added into out[length, q].  `which` selects the moves gathered and
-    whether the states are finished, as in `first_pass_pull`.
+    whether the states are finished, as in `core.sweep.pull_windows`.
     """
     nq = primes.size
     for j in range(win.size):
@@ -500,20 +239,6 @@ def max_weight_bound(spec: GameSpec, model: str) -> int:
 
 
 @dataclass(frozen=True, eq=False)
-class Incoming:
-    """Moves into the states of one layer whose source is reachable (compressed rows).
-
-    Rows of state j: ptr[j]..ptr[j+1]-1; move e comes from rank src[e] of the layer
-    drop[e] levels above, with weight w[e] (w empty: every weight is 1).
-    """
-
-    ptr: np.ndarray
-    drop: np.ndarray
-    src: np.ndarray
-    w: np.ndarray
-
-
-@dataclass(frozen=True, eq=False)
 class Skeleton:
     """Result of the first sweep: reachable states, windows, weights and the denominator.
 
@@ -541,180 +266,39 @@ class Skeleton:
     max_drop: int = 1
 
 
-def gather_passes(
-    drop: np.ndarray, max_drop: int, level: int, live: Mapping[int, object]
-) -> list[tuple[int, int]]:
-    """The kernel calls that gather one layer: [(which, source level)].
-
-    `which` is the kernels' pass selector.  When no move of the game drops the level by
-    more than 1 there is one pass, which = -1 (drop-0 moves from the layer itself, drop-1
-    moves from the layer one level up) -- or which = 0 (drop-0 moves only) when that layer
-    is not live.  Otherwise one pass per drop d >= 1 present among the moves `drop` whose
-    source layer level + d is live, in ascending d, then the finishing pass which = 0 over
-    the moves inside the layer, in ascending rank.  (A layer that is not live holds no
-    reachable state.)  The last pass always has which <= 0, so every state is finished.
-    """
-    if max_drop <= 1:
-        return [(-1, level + 1)] if level + 1 in live else [(0, level)]
-    present = np.flatnonzero(np.bincount(drop)) if drop.size else np.zeros(0, dtype=np.int64)
-    ups = [(int(d), level + int(d)) for d in present if d > 0 and level + int(d) in live]
-    return ups + [(0, level)]
-
-
-def drop_stale(live: dict, level: int, max_drop: int) -> None:
-    """Forget the live layers no layer below `level` can gather from (above level +
-    max_drop - 1)."""
-    for stale in [lv for lv in live if lv > level + max_drop - 1]:
-        del live[stale]
-
-
-def changed_span(spec: GameSpec) -> tuple[np.ndarray, np.ndarray]:
-    """(lo, hi): per move, the lowest and highest bin whose count it changes."""
-    lo = np.zeros(spec.mv_bins.shape[0], dtype=np.int64)
-    hi = np.zeros(spec.mv_bins.shape[0], dtype=np.int64)
-    for m in range(spec.mv_bins.shape[0]):
-        bins = [int(b) for b, d in zip(spec.mv_bins[m], spec.mv_delta[m], strict=True) if d]
-        lo[m], hi[m] = (min(bins), max(bins)) if bins else (0, -1)
-    return lo, hi
-
-
-def layer_listing(space: StateSpace, level: int, model: str):
-    """(states, moves into them, D per state, weights of the moves in) of one layer."""
-    spec = space.spec
-    _bins, tk_cnt = take_arrays(spec)
-    lo, hi = changed_span(spec)
-    states = space.states(level)
-    ptr, drop, src, move, dsum, bad = listing_kernel(
-        states, level, space.tab, spec.values, spec.weights, spec.n, spec.mv_bins,
-        spec.mv_delta, spec.mv_drop, lo, hi, tk_cnt, model == "pairs",
-    )
-    if bad >= 0:
-        raise InputError(
-            f"rule set {spec.rules.name!r}: a move inside level {level} does not raise the "
-            "state's rank, so the layers are not in topological order"
-        )
-    lm = LayerMoves(level, states, ptr, drop, src, move)
-    if model == "pairs":
-        w = incoming_weights(states, lm.ptr, lm.move, spec.mv_bins, spec.mv_delta, tk_cnt)
-    else:
-        w = np.zeros(0, dtype=np.int64)
-    return states, lm, dsum, w
-
-
-def _listings(space: StateSpace, levels: list[int], model: str, threads: int) -> Iterator:
-    """`layer_listing` of each level in turn, derived up to `threads` layers ahead."""
-    with ThreadPoolExecutor(max_workers=max(1, threads)) as pool:
-        pending: deque[Future] = deque()
-        todo = iter(levels)
-        for level in todo:
-            pending.append(pool.submit(layer_listing, space, level, model))
-            if len(pending) > threads:
-                break
-        while pending:
-            yield pending.popleft().result()
-            nxt = next(todo, None)
-            if nxt is not None:
-                pending.append(pool.submit(layer_listing, space, nxt, model))
-
-
 def _threads(threads: int | None) -> int:
     return max(1, threads or os.cpu_count() or 1)
 
 
-@dataclass(frozen=True, eq=False)
-class SweptLayer:
-    """One finished layer of the first sweep: windows, D per state and moves in."""
-
-    level: int
-    lmin: np.ndarray
-    win: np.ndarray
-    dsum: np.ndarray
-    incoming: Incoming
-
-
-def skeleton_layers(
-    space: StateSpace, model: str, exponents: bool = True, threads: int | None = None,
-    totals: dict | None = None,
-) -> Iterator[SweptLayer]:
-    """The first sweep, one finished layer at a time (from the start's level down).
-
-    When the iterator is exhausted, `totals` (if given) holds start_level, start_rank,
-    denominator (1 without `exponents`), states, transitions, terminals, shortest, longest,
-    max_weight and max_indegree.
-    """
-    check_model(model)
-    spec = space.spec
-    max_drop = space.max_drop
-    if exponents:
-        dbound = max_weight_bound(spec, model)
-        plist = small_primes_upto(dbound)
-        spf = np.zeros(dbound + 1, dtype=np.int64)
-        for p in plist[::-1]:
-            spf[p::p] = p
-        pidx = np.zeros(dbound + 1, dtype=np.int64)
-        pidx[plist] = np.arange(plist.size)
-    else:
-        plist = spf = pidx = np.zeros(0, dtype=np.int64)
-    nbp = plist.size
-    start_level, start_rank = space.rank(spec.start)
-    levels = [lv for lv in space.levels if lv <= start_level]
-    end_ex = np.zeros(nbp, dtype=np.int32)
-    stats = np.array([0, 0, 0, np.iinfo(np.int64).max, -1, 0], dtype=np.int64)
-    z32 = np.zeros(0, dtype=np.int32)
-    empty = (z32, z32, np.zeros((0, nbp), dtype=np.int32))
-    live: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
-    max_in = 0
-    for level, (states, lm, dsum, w) in zip(
-        levels, _listings(space, levels, model, _threads(threads)), strict=True
-    ):
-        size = states.shape[0]
-        lmin = np.full(size, UNREACHED, dtype=np.int32)
-        lmax = np.full(size, -1, dtype=np.int32)
-        ex = np.zeros((size, nbp), dtype=np.int32)
-        if level == start_level:
-            lmin[start_rank] = lmax[start_rank] = 0
-        if exponents and dsum.size and int(dsum.max()) > dbound:
-            raise RuntimeError(f"a total move weight exceeds the a-priori bound {dbound}")
-        keep = np.zeros(lm.dest.size, dtype=np.bool_)
-        for which, src_level in gather_passes(lm.drop, max_drop, level, live):
-            first_pass_pull(lmin, lmax, ex, *live.get(src_level, empty), lm.ptr, lm.drop,
-                            lm.dest, keep, dsum, spf, pidx, end_ex, stats, which)
-        reached = lmin != UNREACHED
-        inc = Incoming(*compact_rows(lm.ptr, lm.drop, lm.dest, w, keep))
-        if size:
-            max_in = max(max_in, int(np.diff(inc.ptr).max()))
-        yield SweptLayer(
-            level=level, lmin=np.where(reached, lmin, 0).astype(np.int32),
-            win=np.where(reached, lmax - lmin + 1, 0).astype(np.int32), dsum=dsum,
-            incoming=inc,
-        )
-        live[level] = (lmin, lmax, ex)
-        drop_stale(live, level, max_drop)
-    if totals is not None:
-        m = 1
-        for b, p in enumerate(plist):
-            if end_ex[b]:
-                m *= int(p) ** int(end_ex[b])
-        totals.update(
-            start_level=start_level, start_rank=start_rank, denominator=m,
-            states=int(stats[0]), transitions=int(stats[1]), terminals=int(stats[2]),
-            shortest=int(stats[3]), longest=int(stats[4]), max_weight=int(stats[5]),
-            max_indegree=max_in, max_drop=max_drop,
-        )
-
-
-def first_sweep(
+def random_skeleton(
     space: StateSpace, model: str, exponents: bool = True, threads: int | None = None
 ) -> Skeleton:
-    """Reachability, length windows, moves in, and (with `exponents`) the exact lcm
-    denominator M of one game and model."""
+    """The first sweep of random play (`core.sweep.swept_layers`) collected: reachability,
+    length windows, D(s), the moves in with their weights, and (with `exponents`) the exact
+    lcm denominator M of one game and model."""
+    check_model(model)
+    factor_primes, bound = None, 0
+    if exponents:
+        bound = max_weight_bound(space.spec, model)
+        factor_primes = small_primes_upto(bound)
     totals: dict = {}
-    layers = list(skeleton_layers(space, model, exponents, threads, totals))
-    return Skeleton(
-        levels=[x.level for x in layers], lmin={x.level: x.lmin for x in layers},
-        win={x.level: x.win for x in layers}, dsum={x.level: x.dsum for x in layers},
-        incoming={x.level: x.incoming for x in layers}, **totals,
-    )
+    levels: list[int] = []
+    lmin: dict[int, np.ndarray] = {}
+    win: dict[int, np.ndarray] = {}
+    dsum: dict[int, np.ndarray] = {}
+    incoming: dict[int, Incoming] = {}
+    for layer in swept_layers(space, pairs=model == "pairs", factor_primes=factor_primes,
+                              weight_bound=bound, threads=_threads(threads), totals=totals):
+        levels.append(layer.level)
+        lmin[layer.level] = layer.lmin
+        win[layer.level] = layer.win
+        dsum[layer.level] = layer.dsum
+        assert layer.incoming is not None
+        incoming[layer.level] = layer.incoming
+    keys = ("start_level", "start_rank", "denominator", "states", "transitions", "terminals",
+            "shortest", "longest", "max_weight", "max_indegree", "max_drop")
+    return Skeleton(levels=levels, lmin=lmin, win=win, dsum=dsum, incoming=incoming,
+                    **{k: totals[k] for k in keys})
 
 
 def weight_bound(space: StateSpace, skel: Skeleton, model: str) -> int:
@@ -752,8 +336,8 @@ def _exponent_primes(spec: GameSpec, model: str, exponents: bool) -> tuple[int, 
 
 def skeleton_bytes_bound(space: StateSpace, model: str, exponents: bool = True,
                          threads: int | None = None) -> int:
-    """Forecast peak bytes of random play's first sweep (`skeleton_layers` kept as a
-    `Skeleton`), an upper bound.
+    """Forecast peak bytes of random play's first sweep (`random_skeleton`: the layers of
+    `core.sweep.swept_layers` kept as a `Skeleton`), an upper bound.
 
     Counts: the rank table; for every state of the space SKELETON_PER_STATE bytes, and for
     every move into a state (counted exactly by `StateSpace.moves_by_level`; only those
@@ -1167,7 +751,7 @@ def random_play(
     t0 = time.perf_counter()
     what = f"random play at n={n}"
     space = random_space(rs.instantiate(n), model, limit, what, threads=threads)
-    skel = first_sweep(space, model, threads=threads)
+    skel = random_skeleton(space, model, threads=threads)
     t1 = time.perf_counter()
     first_bytes = skeleton_bytes_bound(space, model, True, threads)
     block_bytes: list[int] = []

@@ -4,8 +4,9 @@ Same pulling sweep as the exact one (`zeckenum.randomplay.exact`, any level drop
 with one double per (state, length) instead of residues: each state gathers its
 predecessors' finished rows.  In the model "moves" a finished row is scaled once by
 c = fl(1 / D(s)) and the moves add it; in the model "pairs" each move multiplies the
-source's row by c = fl(w / D(s)).  The first sweep runs in a background thread, a layer or
-two ahead (its kernels release the GIL).
+source's row by c = fl(w / D(s)).  The first sweep (`core.sweep.swept_layers`, shared
+with counting and exact random play) runs in a background thread, a layer or two ahead
+(its kernels release the GIL).
 Error analysis (standard model of floating-point arithmetic, u = 2**-53, every quantity
 non-negative so no cancellation can occur):
 
@@ -45,14 +46,10 @@ from zeckenum.core.jit import kernel
 from zeckenum.core.memory import human, refuse_if_over, resolve_limit
 from zeckenum.core.moments import float_moments, gaussian_diagnostics
 from zeckenum.core.statespace import StateSpace, build_space, refuse_space
-from zeckenum.core.sweep import window_bound
+from zeckenum.core.sweep import SweptLayer, drop_stale, gather_passes, swept_layers, window_bound
 from zeckenum.errors import MemoryRefused
 from zeckenum.randomplay.exact import (
     SKELETON_PER_STATE,
-    SweptLayer,
-    drop_stale,
-    gather_passes,
-    skeleton_layers,
     winner_of_length,
 )
 from zeckenum.rules.catalogue import get_rules
@@ -86,7 +83,7 @@ def pull_float_windows(
     off[j] .. off[j+1]-1.  State j gathers its predecessors' finished rows (times
     fl(w / D(source)) unless `unit`); then kfin[j] = K(j) + (moves in) - 1, and with
     `unit` a non-terminal row is scaled by fl(1 / D(j)).  acc[2] counts the products done.
-    `which` selects the moves gathered (`randomplay.gather_passes`): -1 all (drops 0 and
+    `which` selects the moves gathered (`core.sweep.gather_passes`): -1 all (drops 0 and
     1, up_* one level up), d >= 1 those of drop d (up_* d levels up) leaving the states
     unfinished, with kfin[j] holding the running max of K(source) + 2; 0 the drop-0 moves,
     then finishing.  kfin must start at 0.
@@ -228,7 +225,7 @@ RING_GROWTH = 1.25
 def float_sweep_bytes(space: StateSpace, model: str, threads: int) -> tuple[int, int]:
     """(forecast peak bytes of `float_play`, the part of it in value buffers).
 
-    An upper bound when the game has a proven window bound (`windows.window_bound`: the
+    An upper bound when the game has a proven window bound (`core.sweep.window_bound`: the
     standard game, or every move lowering the level), else a bound on everything but the
     value buffers, which `float_sweep` then
     checks layer by layer before it allocates them.
@@ -331,7 +328,7 @@ def float_play(
     forecast, ring_bytes = float_sweep_bytes(space, model, nthreads)
     refuse_if_over(forecast, limit, f"float random play at n={n}")
     start_level, start_rank = space.rank(space.spec.start)
-    layers = skeleton_layers(space, model, exponents=False, threads=nthreads)
+    layers = swept_layers(space, pairs=model == "pairs", threads=nthreads)
     q: queue.Queue = queue.Queue(maxsize=2)
     th = threading.Thread(target=_producer, args=(layers, q), daemon=True)
     th.start()

@@ -410,7 +410,7 @@ def test_unwritable_checkpoint_directories_are_refused_before_the_first_sweep(
         raise AssertionError("the first sweep ran before the directory was checked")
 
     tasks.clear_cache()
-    monkeypatch.setattr(tasks, "first_sweep", no_sweep)
+    monkeypatch.setattr(tasks, "windows_with_facts", no_sweep)
     blocker = tmp_path / "a-file"
     blocker.write_text("in the way")
     cases = [blocker, blocker / "sub" / "ck"]

@@ -1,7 +1,7 @@
 """The host cache: one first sweep per host, shared by the worker processes through memory
-maps.  References: the in-process first sweep (`cluster.count_tasks.first_sweep`, checked against
-the brute force in tests/counting/test_count_reference.py) and `zeckenum.count`; the concurrency
-checks are common practice (one file lock, one writer).
+maps.  References: the in-process first sweep (`cluster.count_tasks.windows_with_facts`,
+checked against the brute force in tests/counting/test_count_reference.py) and
+`zeckenum.count`; the concurrency checks are common practice (one file lock, one writer).
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 import zeckenum
 from zeckenum.cluster import hostcache
-from zeckenum.cluster.count_tasks import first_sweep
+from zeckenum.cluster.count_tasks import windows_with_facts
 from zeckenum.rules.catalogue import get_rules
 
 
@@ -50,7 +50,7 @@ def _same_windows(a, b) -> None:  # noqa: ANN001
                                           ("tribonacci", 25)])
 def test_round_trip_is_exact(cache_root: Path, rules: str, n: int) -> None:
     rs = get_rules(rules)
-    _, win, facts = first_sweep(rs, n)
+    _, win, facts = windows_with_facts(rs, n)
     calls = []
 
     def compute():  # noqa: ANN202
@@ -75,7 +75,7 @@ def test_count_from_mapped_windows_equals_count(cache_root: Path) -> None:
     from zeckenum.counting.spectrum import spectrum_residues
 
     rs = get_rules("standard")
-    space, win, facts = first_sweep(rs, 60)
+    space, win, facts = windows_with_facts(rs, 60)
     mapped, _, _ = _share(rs, 60,
                                             lambda: (win, facts.to_dict()))
     primes, check = primes_for_bits(mapped.count_bits)
@@ -87,7 +87,7 @@ def test_count_from_mapped_windows_equals_count(cache_root: Path) -> None:
 
 def test_damaged_folder_is_recomputed(cache_root: Path, caplog: pytest.LogCaptureFixture) -> None:
     rs = get_rules("standard")
-    _, win, facts = first_sweep(rs, 30)
+    _, win, facts = windows_with_facts(rs, 30)
     _share(rs, 30, lambda: (win, facts.to_dict()))
     folder = hostcache.sweep_folder(rs.content_hash(), 30)
     (folder / "meta.json").write_text("{not json")
@@ -109,7 +109,7 @@ def test_unwritable_cache_falls_back_to_own_copy(tmp_path: Path,
     blocker.write_text("not a folder")
     monkeypatch.setenv("ZECKENUM_HOST_CACHE", str(blocker / "below"))
     rs = get_rules("standard")
-    _, win, facts = first_sweep(rs, 20)
+    _, win, facts = windows_with_facts(rs, 20)
     got, _, shared = _share(rs, 20,
                                               lambda: (win, facts.to_dict()))
     assert not shared and got is win
@@ -119,7 +119,7 @@ _PROCESS = textwrap.dedent(
     """
     import os, sys, time
     from zeckenum.cluster import hostcache
-    from zeckenum.cluster.count_tasks import first_sweep
+    from zeckenum.cluster.count_tasks import windows_with_facts
     from zeckenum.rules.catalogue import get_rules
 
     rs = get_rules("standard")
@@ -129,7 +129,7 @@ _PROCESS = textwrap.dedent(
         with open(marks, "a") as f:
             f.write(f"{os.getpid()}\\n")
         time.sleep(1.0)  # let the other process reach the lock meanwhile
-        _, win, facts = first_sweep(rs, 50)
+        _, win, facts = windows_with_facts(rs, 50)
         return win, facts.to_dict()
 
     from zeckenum.core.statespace import build_space
@@ -152,7 +152,7 @@ def test_two_processes_compute_once(cache_root: Path, tmp_path: Path) -> None:
         outs.append(out.split())
     assert len(marks.read_text().split()) == 1  # one sweep for the host
     assert outs[0] == outs[1] and outs[0][0] == "True"
-    _, win, _ = first_sweep(get_rules("standard"), 50)
+    _, win, _ = windows_with_facts(get_rules("standard"), 50)
     assert outs[0][1:] == [str(win.states), str(win.transitions),
                            str(int(sum(a.sum() for a in win.win.values())))]
 
@@ -221,7 +221,7 @@ def _shared_folder(n: int) -> Path:
     """Write the host-cache folder of the standard game's first sweep of n (as a worker
     would) and return it."""
     rs = get_rules("standard")
-    _, win, facts = first_sweep(rs, n)
+    _, win, facts = windows_with_facts(rs, n)
     _, _, shared = _share(rs, n, lambda: (win, facts.to_dict()))
     assert shared
     return hostcache.sweep_folder(rs.content_hash(), n)
@@ -298,7 +298,7 @@ def test_out_of_range_values_give_a_recompute_not_a_crash(cache_root: Path,
 def _refused(cache_root: Path, caplog: pytest.LogCaptureFixture) -> None:
     """The first sweep is computed privately: nothing read from or written to the root."""
     rs = get_rules("standard")
-    _, win, facts = first_sweep(rs, 20)
+    _, win, facts = windows_with_facts(rs, 20)
     before = sorted(p.name for p in cache_root.iterdir()) if cache_root.is_dir() else None
     calls = []
 
@@ -348,7 +348,7 @@ def test_world_readable_sweep_folder_is_not_read(cache_root: Path,
     folder = _shared_folder(N_TAMPER)
     os.chmod(folder, 0o777)
     rs = get_rules("standard")
-    _, win, facts = first_sweep(rs, N_TAMPER)
+    _, win, facts = windows_with_facts(rs, N_TAMPER)
     calls = []
 
     def compute():  # noqa: ANN202
@@ -364,12 +364,12 @@ _WRITE_AND_WAIT = textwrap.dedent(
     """
     import sys
     from zeckenum.cluster import hostcache
-    from zeckenum.cluster.count_tasks import first_sweep
+    from zeckenum.cluster.count_tasks import windows_with_facts
     from zeckenum.rules.catalogue import get_rules
 
     rs = get_rules("standard")
     n = int(sys.argv[1])
-    space, win, facts = first_sweep(rs, n)
+    space, win, facts = windows_with_facts(rs, n)
     got, _, shared = hostcache.shared_windows(rs.content_hash(), n,
                                               lambda: (win, facts.to_dict()), space)
     print("READY" if shared else "NOT-SHARED", flush=True)
@@ -396,7 +396,7 @@ def test_folder_of_a_dead_run_is_replaced(cache_root: Path,
     rs = get_rules("standard")
     folder = hostcache.sweep_folder(rs.content_hash(), 30)
     assert folder.is_dir()
-    _, win, facts = first_sweep(rs, 30)
+    _, win, facts = windows_with_facts(rs, 30)
     calls = []
 
     def compute():  # noqa: ANN202
@@ -433,7 +433,7 @@ def test_round_trip_without_kept_moves(cache_root: Path) -> None:
     rs = get_rules("standard")
     space = build_space(rs.instantiate(45))
     win = sweep_windows(space, keep_incoming=False)
-    _, full, facts = first_sweep(rs, 45)
+    _, full, facts = windows_with_facts(rs, 45)
     got, _, shared = _share(rs, 45, lambda: (win, facts.to_dict()))
     assert shared and got.incoming is None
     for k in hostcache.SCALARS:
@@ -469,7 +469,7 @@ def test_any_changed_byte_is_refused_before_use(tmp_path_factory: pytest.TempPat
     from zeckenum.errors import InputError
 
     rs = get_rules("standard")
-    space, win, facts = first_sweep(rs, 25)
+    space, win, facts = windows_with_facts(rs, 25)
     root = tmp_path_factory.mktemp("sealed")
     os.chmod(root, 0o700)
     folder = root / "sweep"
@@ -503,7 +503,7 @@ def test_a_file_changed_after_a_check_is_checked_again(cache_root: Path) -> None
     import time
 
     rs = get_rules("standard")
-    _, win, facts = first_sweep(rs, 30)
+    _, win, facts = windows_with_facts(rs, 30)
     calls = []
 
     def compute():  # noqa: ANN202

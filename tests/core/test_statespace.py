@@ -6,6 +6,7 @@ import itertools
 
 import numpy as np
 import pytest
+from zeckenum.core.listing import moves_in, moves_out
 from zeckenum.core.statespace import build_space
 from zeckenum.rules.model import STANDARD
 
@@ -54,13 +55,39 @@ def test_moves_in_and_out_are_transposes(n: int) -> None:
     space = build_space(STANDARD.instantiate(n))
     out_edges, in_edges = set(), set()
     for level in space.levels:
-        lm = space.moves(level)
+        lm = moves_out(space, level)
         for i in range(lm.size):
             for e in range(lm.ptr[i], lm.ptr[i + 1]):
-                out_edges.add(((level, i), (level - int(lm.drop[e]), int(lm.dest[e]))))
-        inc = space.predecessors(level)
+                out_edges.add(((level, i), (level - int(lm.drop[e]), int(lm.other[e]))))
+        inc = moves_in(space, level)
         for j in range(inc.size):
             for e in range(inc.ptr[j], inc.ptr[j + 1]):
-                in_edges.add(((level + int(inc.drop[e]), int(inc.dest[e])), (level, j)))
+                in_edges.add(((level + int(inc.drop[e]), int(inc.other[e])), (level, j)))
     assert out_edges == in_edges
     assert out_edges
+
+
+# Source: common practice (a move that keeps the level and lowers the co-lexicographic rank
+# breaks the in-layer order every sweep relies on; the one listing must refuse it, both
+# directions, with the one error, never list it).
+def test_listing_refuses_a_move_against_the_rank_order() -> None:
+    import dataclasses
+
+    from zeckenum.errors import InputError
+
+    spec = STANDARD.instantiate(6)
+    splits = spec.mv_drop == 0
+    assert splits.any()
+    delta = spec.mv_delta.copy()
+    delta[splits] = -delta[splits]  # F(k-2) + F(k+1) -> 2 F(k): same level, lower rank
+    bad = dataclasses.replace(spec, mv_delta=delta)
+    space = build_space(bad)
+    for listing in (moves_in, moves_out):
+        refused = 0
+        for level in space.levels:
+            try:
+                listing(space, level)
+            except InputError as exc:
+                assert "not in topological order" in str(exc)
+                refused += 1
+        assert refused > 0, listing.__name__

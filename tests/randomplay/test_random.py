@@ -222,28 +222,76 @@ def test_mulmod_and_reduce_match_python_integers() -> None:
                 assert reduce62(x, p, pinv) == x % p, (x, p)
 
 
-# Source: common practice (the incremental ranks of the random sweeps' listing agree with
-# the state space's own listing of moves into each layer, for every shipped rule set).
+# Source: common practice (the incremental ranks of the shared listing agree with a listing
+# written here from scratch: every move applied to every state's count vector, its other end
+# looked up in a dict of its layer's states, weights by math.comb).
+def _reference_moves_in(space, level: int, states: np.ndarray):
+    from math import comb
+
+    spec = space.spec
+    index: dict[int, dict[tuple, int]] = {}
+
+    def rank_in(lv: int, counts: tuple) -> int:
+        if lv not in index:
+            index[lv] = {tuple(int(x) for x in r): k for k, r in enumerate(space.states(lv))}
+        return index[lv][counts]
+
+    def applies(counts: list[int], m: int, sign: int) -> bool:
+        target = level - sign * int(spec.mv_drop[m])
+        if not 0 <= target <= space.top:
+            return False
+        after = list(counts)
+        for b, d in zip(spec.mv_bins[m], spec.mv_delta[m], strict=True):
+            after[int(b)] += sign * int(d)
+        return min(after) >= 0
+
+    ptr, drop, src, move, dsum, weight = [0], [], [], [], [], []
+    for row in states:
+        counts = [int(x) for x in row]
+        total = 0
+        for m in range(spec.mv_bins.shape[0]):
+            if applies(counts, m, +1):
+                w = 1
+                for b, d in zip(spec.mv_bins[m], spec.mv_delta[m], strict=True):
+                    if d < 0:
+                        w *= comb(counts[int(b)], -int(d))
+                total += w
+            if applies(counts, m, -1):
+                source = list(counts)
+                for b, d in zip(spec.mv_bins[m], spec.mv_delta[m], strict=True):
+                    source[int(b)] -= int(d)
+                w = 1
+                for b, d in zip(spec.mv_bins[m], spec.mv_delta[m], strict=True):
+                    if d < 0:
+                        w *= comb(source[int(b)], -int(d))
+                weight.append(w)
+                d = int(spec.mv_drop[m])
+                drop.append(d)
+                src.append(rank_in(level + d, tuple(source)))
+                move.append(m)
+        ptr.append(len(drop))
+        dsum.append(total)
+    return [np.array(x, dtype=np.int64) for x in (ptr, drop, src, move, dsum, weight)]
+
+
 def test_incremental_listing_matches_statespace() -> None:
+    from zeckenum.core.listing import moves_in
     from zeckenum.core.statespace import build_space
-    from zeckenum.randomplay.exact import layer_listing, take_arrays, total_weights
     from zeckenum.rules.catalogue import BUILTIN
 
     for name, rs in BUILTIN.items():
         for n in (1, 2, 7, 16, 29):
             space = build_space(rs.instantiate(n))
-            spec = space.spec
-            _bins, tk_cnt = take_arrays(spec)
             for level in space.levels:
-                states, lm, dsum, _w = layer_listing(space, level, "pairs")
-                ref = space.predecessors(level, states)
-                assert np.array_equal(ref.ptr, lm.ptr), (name, n, level)
-                assert np.array_equal(ref.drop, lm.drop), (name, n, level)
-                assert np.array_equal(ref.dest, lm.dest), (name, n, level)
-                assert np.array_equal(ref.move, lm.move), (name, n, level)
-                d2 = total_weights(states, level, space.top, spec.mv_bins, spec.mv_delta,
-                                   spec.mv_drop, tk_cnt, True)
-                assert np.array_equal(dsum, d2), (name, n, level)
+                lm = moves_in(space, level, pairs=True)
+                states = lm.states
+                ptr, drop, src, move, d2, w = _reference_moves_in(space, level, states)
+                assert np.array_equal(ptr, lm.ptr), (name, n, level)
+                assert np.array_equal(drop, lm.drop), (name, n, level)
+                assert np.array_equal(src, lm.other), (name, n, level)
+                assert np.array_equal(move, lm.move), (name, n, level)
+                assert np.array_equal(lm.dsum, d2), (name, n, level)
+                assert np.array_equal(lm.w, w), (name, n, level)
 
 
 # Source: fractions.Fraction brute force; the exact result does not depend on the prime
