@@ -9,9 +9,9 @@ cluster twins, calling the same `randomplay.random_law_residues` /
 `randomplay.random_win_residues`.
 
 A worker never receives the skeleton: it rebuilds the game, its state space and the first
-sweep (`randomplay.exact.random_skeleton`, deterministic) from (rules, n, model), keeps the skeleton
-in a small per-process cache (`workercache.WorkerCache`) so the other blocks of the same
-game on that worker reuse it, and sweeps its block.  Only a block of primes goes in; one
+sweep (`randomplay.skeleton.random_skeleton`, deterministic) from (rules, n, model), keeps
+the skeleton in a small per-process cache (`workercache.WorkerCache`) so the other blocks of
+the same game on that worker reuse it, and sweeps its block.  Only a block of primes goes in; one
 small int64 array (primes in block x columns: longest + 1 lengths, or `players` residues of
 the length mod players) and a word-update count come out.
 
@@ -31,15 +31,12 @@ from zeckenum.core.checks import check_model
 from zeckenum.core.modular import check_mul_primes
 from zeckenum.core.statespace import build_space
 from zeckenum.randomplay.exact import (
-    Skeleton,
     law_words_per_prime,
     random_law_residues,
-    random_skeleton,
     random_win_residues,
-    skeleton_nbytes,
-    weight_bound,
     win_words_per_prime,
 )
+from zeckenum.randomplay.skeleton import Skeleton, random_skeleton, skeleton_nbytes, weight_bound
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
 

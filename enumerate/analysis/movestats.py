@@ -39,7 +39,7 @@ from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.statespace import build_space, refuse_space, states_upper_bound
 from zeckenum.core.sweep import length_bound
 from zeckenum.errors import InputError
-from zeckenum.randomplay.exact import max_weight_bound
+from zeckenum.randomplay.skeleton import max_weight_bound
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import GameSpec, RuleSet
 

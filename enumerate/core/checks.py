@@ -8,6 +8,8 @@ The limits are plain constants so that the CLI declares the same ranges on its o
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 from zeckenum.errors import InputError
 
@@ -53,6 +55,11 @@ def check_threads(threads: object) -> int | None:
     ):
         raise InputError(f"threads must be an integer from 1 to {MAX_THREADS}, got {threads!r}")
     return int(threads)
+
+
+def thread_count(threads: int | None) -> int:
+    """Threads to run: `threads` when given (already checked), else every core."""
+    return max(1, threads or os.cpu_count() or 1)
 
 
 def check_prime_offset(prime_offset: object) -> int:

@@ -126,7 +126,7 @@ def small_primes_upto(m: int) -> np.ndarray:
 def check_mul_primes(primes: list[int], max_indegree: int, max_weight: int) -> None:
     """Refuse residue primes outside the proved ranges of `mulmod` and `reduce62` (see their
     docstrings), for a game with at most `max_indegree` moves into one state and
-    total move weights at most `max_weight` (random play: `randomplay.exact.weight_bound`)."""
+    total move weights at most `max_weight` (random play: `randomplay.skeleton.weight_bound`)."""
     if max(primes) >= MUL_PRIME_CEILING or min(primes) <= MUL_PRIME_FLOOR:
         raise InputError("residue primes must lie between 2**13 and 2**50")
     if (max_indegree + 1) * max(primes) >= 2**62:

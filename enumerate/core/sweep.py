@@ -19,7 +19,7 @@ layers level + 1 .. level + max_drop stay live.  The moves into each layer are l
 is reachable are kept (`Incoming`), with their weights, so that the exact sweeps re-read
 them instead of listing them again.  Each finished layer is yielded as a `SweptLayer`
 (`swept_layers`); `sweep_windows` collects them into the `Windows` of a count, random play
-into its `Skeleton` (`randomplay.exact.random_skeleton`).
+into its `Skeleton` (`randomplay.skeleton.random_skeleton`).
 
 One kernel, `pull_windows`, gathers a layer.  `gather_passes` plans its calls; the later
 sweeps of random play (exact and float) use the same plan and `drop_stale`.

@@ -19,12 +19,11 @@ The path of one number, from the command line to the kernel and back:
 
 from __future__ import annotations
 
-import os
 import time
 
 import numpy as np
 from zeckenum.core.blocks import BlockPlan, block_plan, run_blocks
-from zeckenum.core.checks import check_n, check_prime_offset, check_threads
+from zeckenum.core.checks import check_n, check_prime_offset, check_threads, thread_count
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.modular import primes_for_bits, reconstruct
 from zeckenum.core.statespace import StateSpace, build_space, refuse_space
@@ -156,7 +155,7 @@ def count(
     check_prime_offset(prime_offset)
     ruleset = get_rules(rules)
     limit = resolve_limit(max_memory)
-    nthreads = check_threads(threads) or (os.cpu_count() or 1)
+    nthreads = thread_count(check_threads(threads))
 
     t0 = time.perf_counter()
     spec = ruleset.instantiate(n)

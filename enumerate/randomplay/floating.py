@@ -32,7 +32,6 @@ bound is evaluated in exact rational arithmetic and rounded upward.
 from __future__ import annotations
 
 import math
-import os
 import queue
 import threading
 import time
@@ -41,17 +40,15 @@ from dataclasses import dataclass, field
 from fractions import Fraction
 
 import numpy as np
-from zeckenum.core.checks import check_random_args, check_threads
+from zeckenum.core.checks import check_random_args, check_threads, thread_count
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import human, refuse_if_over, resolve_limit
 from zeckenum.core.moments import float_moments, gaussian_diagnostics
 from zeckenum.core.statespace import StateSpace, build_space, refuse_space
 from zeckenum.core.sweep import SweptLayer, drop_stale, gather_passes, swept_layers, window_bound
 from zeckenum.errors import MemoryRefused
-from zeckenum.randomplay.exact import (
-    SKELETON_PER_STATE,
-    winner_of_length,
-)
+from zeckenum.randomplay.exact import winner_of_length
+from zeckenum.randomplay.skeleton import SKELETON_PER_STATE
 from zeckenum.rules.catalogue import get_rules
 
 U = Fraction(1, 2**53)
@@ -324,7 +321,7 @@ def float_play(
     spec = rs.instantiate(n)
     refuse_space(spec, limit, f"float random play at n={n}")
     space = build_space(spec, limit)
-    nthreads = max(1, threads or os.cpu_count() or 1)
+    nthreads = thread_count(threads)
     forecast, ring_bytes = float_sweep_bytes(space, model, nthreads)
     refuse_if_over(forecast, limit, f"float random play at n={n}")
     start_level, start_rank = space.rank(space.spec.start)

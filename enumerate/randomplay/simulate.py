@@ -24,7 +24,8 @@ from zeckenum.core.checks import check_random_args
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.errors import InputError
-from zeckenum.randomplay.exact import take_arrays, winner_of_length
+from zeckenum.randomplay.exact import winner_of_length
+from zeckenum.randomplay.skeleton import take_arrays
 from zeckenum.rules.catalogue import get_rules
 
 Z95 = 1.959963984540054
