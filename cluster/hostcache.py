@@ -4,7 +4,7 @@ Every worker process of a cluster needs the first sweep of the n it counts (`tas
 the largest part of it, the kept incoming-move lists, is the same for all of them.  Worker
 processes on one host therefore share it: the first process that needs (rules, n) takes a
 file lock, runs the sweep and writes its arrays into a folder of the host cache (one .npy
-file per kind of array, every layer's rows concatenated, plus a small JSON of offsets and
+file per array, every layer's rows concatenated, plus a small JSON of offsets and
 numbers); the others wait on the lock and map the same files.  The pages are then held
 once per host, in RAM and in the shared CPU caches, instead of once per worker, and the
 sweep runs once per host instead of once per worker.
@@ -97,7 +97,7 @@ log = logging.getLogger("zeckenum.cluster")
 FORMAT = "zeckenum-first-sweep/2"
 SCALARS = ("states", "transitions", "terminals", "shortest", "longest",
            "terminal_paths_log2", "max_window")
-KINDS: dict[str, np.dtype] = {
+ARRAY_DTYPES: dict[str, np.dtype] = {
     "lmin": np.dtype("<i4"), "win": np.dtype("<i4"), "term": np.dtype("<i8"),
     "inc_ptr": np.dtype("<i8"), "inc_drop": np.dtype("<i1"), "inc_src": np.dtype("<i4"),
 }
@@ -250,9 +250,9 @@ def seal(folder: Path) -> None:
     renamed into place."""
     meta = json.loads((folder / META).read_text())
     meta["files"] = {}
-    for kind in meta["offsets"]:
-        size, digest = _file_sha256(folder / f"{kind}.npy")
-        meta["files"][kind] = {"bytes": size, "sha256": digest}
+    for name in meta["offsets"]:
+        size, digest = _file_sha256(folder / f"{name}.npy")
+        meta["files"][name] = {"bytes": size, "sha256": digest}
     text = json.dumps(meta).encode()
     (folder / META).write_bytes(text)
     (folder / SEAL).write_text(hashlib.sha256(text).hexdigest())
@@ -262,20 +262,20 @@ def save_windows(folder: Path, win: Windows, facts: dict) -> None:
     """Write `win` and `facts` into `folder` (created complete and sealed, by rename, or not
     at all)."""
     levels = sorted(win.lmin)
-    kinds: dict[str, list[np.ndarray]] = {
+    arrays: dict[str, list[np.ndarray]] = {
         "lmin": [win.lmin[lv] for lv in levels],
         "win": [win.win[lv] for lv in levels],
         "term": [win.terminal_ranks[lv] for lv in levels],
     }
     if win.incoming is not None:
         inc = [win.incoming[lv] for lv in levels]
-        kinds["inc_ptr"] = [i.ptr for i in inc]
-        kinds["inc_drop"] = [i.drop for i in inc]
-        kinds["inc_src"] = [i.src for i in inc]
+        arrays["inc_ptr"] = [i.ptr for i in inc]
+        arrays["inc_drop"] = [i.drop for i in inc]
+        arrays["inc_src"] = [i.src for i in inc]
     tmp = Path(tempfile.mkdtemp(prefix=f".{folder.name}.", dir=folder.parent))  # mode 0700
     try:
-        offsets = {k: _write_concat(tmp / f"{k}.npy", parts, KINDS[k])
-                   for k, parts in kinds.items()}
+        offsets = {k: _write_concat(tmp / f"{k}.npy", parts, ARRAY_DTYPES[k])
+                   for k, parts in arrays.items()}
         meta = {
             "format": FORMAT, "levels": levels, "facts": facts,
             "scalars": {k: getattr(win, k) for k in SCALARS}, "offsets": offsets,
@@ -298,14 +298,14 @@ and range checks; identity = (device, inode, size, mtime_ns, ctime_ns) from `fst
 the kernel updates ctime on every change to a file, so changed files are checked again."""
 
 
-def _map_array(folder: Path, kind: str, record: dict, count: int,
+def _map_array(folder: Path, name: str, record: dict, count: int,
                verify: bool = True, known: tuple[int, ...] | None = None
                ) -> tuple[np.ndarray, tuple[int, ...], bool]:
-    """(array, file identity, hashed) of the array file `kind` of `folder`, memory-mapped
+    """(array, file identity, hashed) of the array file `name` of `folder`, memory-mapped
     copy-on-write, after checking that it is a regular file of the recorded size and
     SHA-256 (hashing the mapping itself; skipped when not `verify` or when the file's
-    identity is `known`) holding `count` values of the kind's dtype."""
-    path = member(folder, f"{kind}.npy", "host-cache array")
+    identity is `known`) holding `count` values of that array's dtype."""
+    path = member(folder, f"{name}.npy", "host-cache array")
     fd = os.open(path, os.O_RDONLY | os.O_NOFOLLOW | os.O_NONBLOCK)
     try:
         st = os.fstat(fd)
@@ -331,18 +331,18 @@ def _map_array(folder: Path, kind: str, record: dict, count: int,
     except ValueError as exc:
         raise Damaged(f"{path}: {exc}") from None
     start = head.tell()
-    if (dtype != KINDS[kind] or tuple(shape) != (count,) or fortran
+    if (dtype != ARRAY_DTYPES[name] or tuple(shape) != (count,) or fortran
             or size != start + count * dtype.itemsize):
-        raise Damaged(f"{path} holds {shape} {dtype}, expected ({count},) {KINDS[kind]}")
+        raise Damaged(f"{path} holds {shape} {dtype}, expected ({count},) {ARRAY_DTYPES[name]}")
     return np.frombuffer(mm, dtype=dtype, count=count, offset=start), ident, hashed
 
 
-def _offsets(meta: dict, kind: str, nlevels: int) -> list[int]:
-    off = meta["offsets"][kind]
+def _offsets(meta: dict, name: str, nlevels: int) -> list[int]:
+    off = meta["offsets"][name]
     if (not isinstance(off, list) or len(off) != nlevels + 1
             or not all(isinstance(x, int) and not isinstance(x, bool) for x in off)
             or off[0] != 0 or any(b < a for a, b in zip(off, off[1:], strict=False))):
-        raise Damaged(f"offsets of {kind} are not {nlevels + 1} increasing integers from 0")
+        raise Damaged(f"offsets of {name} are not {nlevels + 1} increasing integers from 0")
     return off
 
 
@@ -371,25 +371,25 @@ def load_windows(
     levels = sorted(lv for lv in space.levels if lv <= start_level)
     if meta.get("levels") != levels:
         raise Damaged(f"{folder} holds other levels than the game")
-    kinds = set(meta["offsets"])
-    if kinds not in ({"lmin", "win", "term"}, set(KINDS)) or set(meta["files"]) != kinds:
-        raise Damaged(f"{folder} holds the arrays {sorted(kinds)}")
+    arrays = set(meta["offsets"])
+    if arrays not in ({"lmin", "win", "term"}, set(ARRAY_DTYPES)) or set(meta["files"]) != arrays:
+        raise Damaged(f"{folder} holds the arrays {sorted(arrays)}")
 
     prior = _verified.pop(str(folder), None)
     known = prior[1] if prior is not None and prior[0] == sealed else {}
     idents: dict[str, tuple[int, ...]] = {}
     hashed: list[bool] = []
 
-    def split(kind: str) -> dict[int, np.ndarray]:
-        off = _offsets(meta, kind, len(levels))
-        data, idents[kind], fresh = _map_array(folder, kind, meta["files"][kind], off[-1],
-                                               written is None, known.get(kind))
+    def split(name: str) -> dict[int, np.ndarray]:
+        off = _offsets(meta, name, len(levels))
+        data, idents[name], fresh = _map_array(folder, name, meta["files"][name], off[-1],
+                                               written is None, known.get(name))
         hashed.append(fresh)
         return {lv: data[off[i] : off[i + 1]] for i, lv in enumerate(levels)}
 
     lmin, win, term = split("lmin"), split("win"), split("term")
     incoming = None
-    if "inc_ptr" in kinds:
+    if "inc_ptr" in arrays:
         ptr, drop, src = split("inc_ptr"), split("inc_drop"), split("inc_src")
         incoming = {lv: Incoming(ptr[lv], drop[lv], src[lv]) for lv in levels}
     paths_log2 = meta["scalars"]["terminal_paths_log2"]

@@ -103,7 +103,7 @@ def show_command(name_or_file: str, n: int) -> None:
     \b
     Examples:
       zeckenum rules show standard
-      zeckenum rules show enumerate/rulesets/tribonacci.toml --n 20
+      zeckenum rules show enumerate/rules/rulesets/tribonacci.toml --n 20
     """
     rules = resolve(name_or_file)
     click.echo(f"rule set {rules.name!r}  hash {rules.content_hash()}")

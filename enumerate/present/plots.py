@@ -13,7 +13,7 @@ Every figure function returns a `matplotlib.figure.Figure` built without pyplot 
 canvas, no global state), so tests can inspect its axes and lines; `save_figure` writes it
 as PNG and SVG.
 
-Kinds (`KINDS`, the names `zeckenum plot KIND` takes):
+Figures (`FIGURES`, the names `zeckenum plot KIND` takes):
 
 distribution  length law of all games (games of each length / all games) and of random play
               at one n, each with the normal curve of the same mean and variance
@@ -263,23 +263,24 @@ def figure_gaussian(data: RunData) -> Figure:
     return fig
 
 
-KINDS = ("distribution", "shape", "wins", "moments", "gaussian")
+FIGURES = ("distribution", "shape", "wins", "moments", "gaussian")
 
 
-def make_figure(kind: str, data: RunData, n: int | None = None,
+def make_figure(figure: str, data: RunData, n: int | None = None,
                 source: str = "games") -> Figure:
-    """The figure of one kind (`KINDS`); `n` for "distribution" (default: the largest n)."""
-    if kind == "distribution":
+    """The figure named `figure` (one of `FIGURES`); `n` for "distribution" (default: the
+    largest n)."""
+    if figure == "distribution":
         return figure_distribution(data, data.ns[-1] if n is None else n)
-    if kind == "shape":
+    if figure == "shape":
         return figure_shape(data, source)
-    if kind == "wins":
+    if figure == "wins":
         return figure_wins(data)
-    if kind == "moments":
+    if figure == "moments":
         return figure_moments(data)
-    if kind == "gaussian":
+    if figure == "gaussian":
         return figure_gaussian(data)
-    raise InputError(f"unknown plot kind {kind!r} (use one of: {', '.join(KINDS)})")
+    raise InputError(f"unknown plot kind {figure!r} (use one of: {', '.join(FIGURES)})")
 
 
 def figure_paths(prefix: str | Path) -> list[Path]:

@@ -2,7 +2,7 @@
 
 `write_report(data, folder)` renders `RunData` (see `plots`) into `folder/report.html`:
 every figure is embedded as a base64 PNG (no external file, no script, no network), every
-table is plain HTML.  Sections: the figures of `plots.KINDS`; one row per n (states, moves,
+table is plain HTML.  Sections: the figures of `plots.FIGURES`; one row per n (states, moves,
 games, extremes, exact mean and variance of the length of all games and of random play,
 player 1's win probability); the fitted leading terms; at one detail n the explicit
 shortest and longest games, the greedy longest game, the number of games at the lengths
