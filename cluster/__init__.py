@@ -10,7 +10,7 @@ client plans (primes from the first sweep's size bound, equal blocks), submits o
 block (per (n, block) for ranges), gathers, checkpoints each shard as it arrives, and
 rebuilds the integers by the CRT.  Exact random play shards the same way
 (`random_tasks.random_law_residues_task`, `random_win_residues_task`, primes below 2**50),
-driven by the same `run.ShardDriver`.  Optimal play of one n runs as a checkpointed chain of
+driven by the same `driver.ShardDriver`.  Optimal play of one n runs as a checkpointed chain of
 level ranges (`solve_chain.run_solve`; resumable, not parallel).
 
 Modules: `count_tasks` and `random_tasks` (the twins that run on workers, `<wrapper>_task`,
@@ -19,8 +19,10 @@ per-worker cache of rebuilt inputs), `kinds` (what each kind of run supplies to 
 driver), `plan` (shard plans), `manifest` (the manifest format shared by shard and chain
 checkpoints), `checkpoint` (atomic shard files + manifest, resume), `backend` (threads /
 LocalCluster / remote scheduler, numba cache slots), `hostcache` (one first sweep per host),
-`run` (`run_count`, `run_counts`, `run_random`, the driver), `solve_chain` (`run_solve`),
-`predict` (the `plan` command's forecast).  Published tables live in `zeckenum.tables`.
+`driver` (`ShardDriver`, the one driver of sharded runs), `run` (`run_count`,
+`run_counts`, `run_random`), `solve_tasks` (the solve twin `layer_classes_task`),
+`solve_chain` (`run_solve`), `predict` (the `plan` command's forecast).  Published tables
+live in `zeckenum.tables`.
 """
 
 from zeckenum.cluster.run import run_count, run_counts, run_random
