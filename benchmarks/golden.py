@@ -10,6 +10,12 @@ exactly.  This is a regression check of the code against itself, not a correctne
 
 Each command runs as `python -m zeckenum ...` in a subprocess with a fresh temporary
 directory, so the recording also covers the command line.
+
+`benchmarks/golden/outputs-3c47acc.json` is the recording made before the restructure into
+sub-packages (commit 3c47acc); the restructured code reproduces it exactly, so a later
+change that must not alter results compares against it directly:
+`python benchmarks/golden.py compare benchmarks/golden/outputs-3c47acc.json`.  A change that
+alters results on purpose records a new file beside it and says why in its commit.
 """
 
 from __future__ import annotations
