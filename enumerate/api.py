@@ -53,11 +53,25 @@ def count(
     n: int, rules: str | RuleSet = "standard", *, threads: int | None = None,
     prime_offset: int = 0, max_memory: int | None = None, progress: bool = False,
     workers: int | None = None, scheduler: str | None = None,
-    checkpoint: str | Path | None = None,
+    checkpoint: str | Path | None = None, points_per_shard: int | None = None,
 ) -> CountResult:
     """Exact census of all games at n (`zeckenum.counting.count.count`), or the same
     result computed prime block by prime block on a cluster and/or checkpointed
-    (`zeckenum.cluster.run.run_count`) when `workers`, `scheduler` or `checkpoint` is given."""
+    (`zeckenum.cluster.run.run_count`) when `workers`, `scheduler` or `checkpoint` is given.
+
+    With `points_per_shard` the census is computed by evaluation points
+    (`zeckenum.counting.points.count_points`: shards of (prime, block of points), the same
+    result with more work and less memory per shard; in-process only for now)."""
+    if points_per_shard is not None:
+        if _sharded(workers, scheduler, checkpoint):
+            from zeckenum.errors import InputError
+
+            raise InputError("--points-per-shard runs in this process only: it cannot be "
+                             "combined with --workers, --scheduler or --checkpoint yet")
+        from zeckenum.counting.points import count_points
+
+        return count_points(n, rules, points_per_shard=points_per_shard, threads=threads,
+                            prime_offset=prime_offset, max_memory=max_memory)
     if _sharded(workers, scheduler, checkpoint):
         from zeckenum.cluster.run import run_count
 

@@ -13,6 +13,7 @@ from zeckenum.cli.options import (
     PRIME_OFFSET,
     THREADS,
     backend_options,
+    bounded,
     json_option,
     max_memory_option,
     n_argument,
@@ -45,10 +46,14 @@ def format_count(res: CountResult) -> str:
     width = len(str(res.longest))
     for length, c in res.length_counts.items():
         lines.append(f"  {length:>{max(6, width)}}  {c}")
+    if s.get("method") == "points":
+        how = (f"{plural(len(res.primes), 'prime')} < 2^50 + 1 check prime, each at "
+               f"{s['points']} points ({plural(s['shards'], 'shard')}), CRT")
+    else:
+        how = f"{plural(len(res.primes), 'prime')} < 2^62 + 1 check prime, CRT"
     lines += [
         "",
-        f"  exact via {plural(len(res.primes), 'prime')} < 2^62 "
-        f"+ 1 check prime, CRT; "
+        f"  exact via {how}; "
         f"{s.get('word_updates', 0):,} word updates in {s.get('seconds_total', 0):.2f} s",
     ]
     return "\n".join(lines)
@@ -75,6 +80,10 @@ def check_out_path(out: str) -> Path:
               help="Threads for the exact sweep (default: all cores).")
 @click.option("--prime-offset", type=PRIME_OFFSET, default=0, show_default=True,
               help="Skip this many primes below 2^62 (use another prime set to re-check).")
+@click.option("--points-per-shard", "points_per_shard", type=bounded(1, 1 << 20), default=None,
+              help="Count by evaluation points instead of length windows: every (prime, "
+                   "block of at most K points) is one shard (more work, less memory per "
+                   "shard; in-process only for now).")
 @max_memory_option
 @progress_option()
 @rules_option()
@@ -84,8 +93,8 @@ def check_out_path(out: str) -> Path:
     checkpoint="Keep each finished block in DIR; rerunning resumes from it.",
 )
 def count_command(
-    n, as_json, out, threads, prime_offset, max_memory, progress, rules, workers, scheduler,  # noqa: ANN001
-    checkpoint_dir,  # noqa: ANN001
+    n, as_json, out, threads, prime_offset, points_per_shard, max_memory, progress, rules,  # noqa: ANN001
+    workers, scheduler, checkpoint_dir,  # noqa: ANN001
 ) -> None:
     """Count every game started from N (by default: the standard game, N tokens in F1).
 
@@ -103,7 +112,8 @@ def count_command(
     out_path = check_out_path(out) if out else None
     res = api.count(n, rules, threads=threads, prime_offset=prime_offset,
                     max_memory=max_memory, progress=resolve_progress(progress),
-                    workers=workers, scheduler=scheduler, checkpoint=checkpoint_dir)
+                    workers=workers, scheduler=scheduler, checkpoint=checkpoint_dir,
+                    points_per_shard=points_per_shard)
     if out_path is not None:
         try:
             deliver_result(out_path, res.file_text(out_path), "the spectrum")

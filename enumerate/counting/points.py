@@ -1,0 +1,290 @@
+"""The length spectrum by evaluation points: a shard is (prime, block of points), of any size.
+
+For a game, let G(x) = sum over games of x ** (number of moves) = sum_L count_L x^L, a
+polynomial of degree `longest`.  Per state s, V(s) = sum over paths start -> s of
+x ** (path length) satisfies V(start) = 1 and V(s) = x * sum of V over the predecessors of
+s (every move is one move of the game), and G(x) is the sum of V over the terminal states.
+So one sweep over the states, carrying per state one residue per evaluation point instead
+of a window of lengths (`counting.spectrum`), evaluates G at those points modulo a prime.
+
+Choosing the points.  With N = 2**m > longest and a prime p = 1 (mod N) below 2**50
+(`ntt_primes`), the N-th roots of unity w**k (w of order N, `root_of_unity`) are distinct
+points mod p, and count_L mod p = N**-1 * sum_k G(w**k) w**(-k L) (the inverse number-
+theoretic transform, `counts_from_values`).  The coefficients of degree above `longest`
+must come out 0: a built-in check of every prime's values.  Counts of any size follow by
+the CRT over primes whose product exceeds the first sweep's size bound 2**count_bits, and
+one more prime checks them (`core.modular.reconstruct`, `CheckPrimeMismatch`).
+
+Cost.  Per state and point: one add per incoming move (mod p) and one product by x
+(`core.modular.mulmod`).  A window of lengths costs per state its window width (an
+average of a few tens to a few hundred at n = 100..300) instead of the N points, so this
+path does more word updates than the windowed one; what it buys is shards of any size:
+every (prime, point block) pair is independent, the memory of a shard is its block of
+points times the layers in flight, and a block can be one point.
+
+Kernel `pull_points`, wrapper `spectrum_points(space, windows, prime, points)`.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Sequence
+
+import numpy as np
+from zeckenum.core.blocks import run_blocks
+from zeckenum.core.checks import check_n, check_prime_offset, check_threads, thread_count
+from zeckenum.core.jit import kernel
+from zeckenum.core.listing import moves_in
+from zeckenum.core.memory import refuse_if_over, resolve_limit
+from zeckenum.core.modular import MUL_PRIME_CEILING, MUL_PRIME_FLOOR, is_prime, mulmod
+from zeckenum.core.statespace import StateSpace
+from zeckenum.core.sweep import Windows, drop_stale
+from zeckenum.counting.count import assemble_count, count_space, count_windows
+from zeckenum.counting.result import CountResult
+from zeckenum.errors import CheckPrimeMismatch
+from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import RuleSet
+
+
+def transform_order(longest: int) -> int:
+    """N = the least power of two above `longest` (the number of evaluation points)."""
+    return 1 << max(0, int(longest)).bit_length()
+
+
+def ntt_primes(order: int, count: int, offset: int = 0) -> list[int]:
+    """The primes number offset .. offset+count-1, counted downward from 2**50, that are
+    1 mod `order` (so that their multiplicative group has elements of order `order`)."""
+    out: list[int] = []
+    c = (MUL_PRIME_CEILING - 2) // order
+    while len(out) < offset + count:
+        p = c * order + 1
+        if p <= MUL_PRIME_FLOOR:
+            raise ValueError(f"fewer than {offset + count} primes = 1 mod {order} below 2**50")
+        if is_prime(p):
+            out.append(p)
+        c -= 1
+    return out[offset:]
+
+
+def ntt_primes_for_bits(bits: int, order: int, offset: int = 0) -> tuple[list[int], int]:
+    """(primes = 1 mod order whose product exceeds 2**bits, one more check prime)."""
+    need = 1
+    while True:
+        ps = ntt_primes(order, need + 1, offset)
+        prod = 1
+        for q in ps[:need]:
+            prod *= q
+        if prod.bit_length() > bits:
+            return ps[:need], ps[need]
+        need += 1
+
+
+def root_of_unity(p: int, order: int) -> int:
+    """An element of multiplicative order exactly `order` (a power of two) mod p."""
+    if order == 1:
+        return 1
+    for g in range(2, 1000):
+        w = pow(g, (p - 1) // order, p)
+        if pow(w, order // 2, p) != 1:
+            return w
+    raise ValueError(f"no root of unity of order {order} found mod {p}")
+
+
+@kernel
+def pull_points(
+    dst: np.ndarray, ptr: np.ndarray, drop: np.ndarray, src_rank: np.ndarray,
+    which_drop: int, src: np.ndarray, npts: int, p: int, xs: np.ndarray, pinv: float,
+    finish: bool, skip: int,
+) -> int:
+    """Add into every state's row (npts residues mod p) the rows of its predecessors
+    `which_drop` levels up; with `finish`, then multiply each state's row by the points
+    `xs` (its value is complete: x times the sum over its predecessors), except the state
+    of rank `skip` (the start, whose value is 1).
+
+    The pass with `finish` is the drop-0 pass, in ascending rank: a predecessor inside the
+    layer has a lower rank, so it is finished before it is read.  Returns word updates.
+    """
+    updates = 0
+    for j in range(ptr.size - 1):
+        d0 = j * npts
+        dv = dst[d0 : d0 + npts]
+        for e in range(ptr[j], ptr[j + 1]):
+            if drop[e] != which_drop:
+                continue
+            s0 = src_rank[e] * npts
+            sv = src[s0 : s0 + npts]
+            for t in range(npts):
+                x = dv[t] + sv[t]
+                dv[t] = x - p if x >= p else x
+            updates += npts
+        if finish and j != skip:
+            for t in range(npts):
+                dv[t] = mulmod(dv[t], xs[t], p, pinv)
+            updates += npts
+    return updates
+
+
+@kernel
+def collect_points(vals: np.ndarray, ends: np.ndarray, npts: int, p: int,
+                   out: np.ndarray) -> None:
+    """out[t] += the rows of the terminal states `ends` (ranks), mod p."""
+    for i in ends:
+        s0 = i * npts
+        for t in range(npts):
+            x = out[t] + vals[s0 + t]
+            out[t] = x - p if x >= p else x
+
+
+def points_peak_words(space: StateSpace, npts: int) -> int:
+    """int64 words of one shard's buffers: max_drop + 1 layers of npts words per state."""
+    largest = max(space.layer_size(lv) for lv in space.levels)
+    return (space.max_drop + 1) * largest * npts
+
+
+def spectrum_points(
+    space: StateSpace, windows: Windows, prime: int, points: Sequence[int] | np.ndarray,
+) -> tuple[np.ndarray, int]:
+    """(values, word updates): values[t] = G(points[t]) mod prime, G the length polynomial.
+
+    The local form of one shard of the evaluation-point count: a pure function of the game,
+    its first sweep (reachability, terminal states, kept incoming moves), a prime below
+    2**50 and a block of points in [0, prime).
+    """
+    p = int(prime)
+    xs = np.asarray(points, dtype=np.int64)
+    npts = xs.size
+    pinv = 1.0 / p
+    out = np.zeros(npts, dtype=np.int64)
+    start_level, start_rank = space.rank(space.spec.start)
+    levels = [lv for lv in space.levels if lv <= start_level]
+    span = min(space.max_drop + 1, len(levels))
+    cap = max(space.layer_size(lv) for lv in levels) * npts
+    ring = [np.empty(cap, dtype=np.int64) for _ in range(span)]
+    live: dict[int, np.ndarray] = {}
+    updates = 0
+    for k, level in enumerate(levels):
+        size = space.layer_size(level)
+        vals = ring[k % span][: size * npts]
+        vals[:] = 0
+        skip = -1
+        if level == start_level:
+            vals[start_rank * npts : (start_rank + 1) * npts] = 1
+            skip = start_rank
+        live[level] = vals
+        if windows.incoming is not None:
+            inc = windows.incoming[level]
+            ptr, drop, src = inc.ptr, inc.drop, inc.src
+        else:
+            lm = moves_in(space, level)
+            ptr, drop, src = lm.ptr, lm.drop, lm.other
+        for d in range(1, space.max_drop + 1):
+            if level + d in live:
+                updates += pull_points(vals, ptr, drop, src, d, live[level + d], npts, p, xs,
+                                       pinv, False, skip)
+        updates += pull_points(vals, ptr, drop, src, 0, vals, npts, p, xs, pinv, True, skip)
+        collect_points(vals, windows.terminal_ranks[level], npts, p, out)
+        drop_stale(live, level, space.max_drop)
+    return out, updates
+
+
+def counts_from_values(values: Sequence[int], p: int, w: int) -> list[int]:
+    """count_L mod p for L = 0 .. N-1 from values[k] = G(w**k) mod p (N = len(values), w of
+    order N): the inverse number-theoretic transform (iterative, O(N log N), Python ints)."""
+    n = len(values)
+    a = [int(v) % p for v in values]
+    j = 0
+    for i in range(1, n):  # bit-reversal permutation
+        bit = n >> 1
+        while j & bit:
+            j ^= bit
+            bit >>= 1
+        j |= bit
+        if i < j:
+            a[i], a[j] = a[j], a[i]
+    winv = pow(w, p - 2, p)
+    length = 2
+    while length <= n:
+        step = pow(winv, n // length, p)
+        for s in range(0, n, length):
+            f = 1
+            half = length // 2
+            for t in range(s, s + half):
+                u, v = a[t], a[t + half] * f % p
+                a[t], a[t + half] = (u + v) % p, (u - v) % p
+                f = f * step % p
+        length <<= 1
+    ninv = pow(n, p - 2, p)
+    return [x * ninv % p for x in a]
+
+
+def point_blocks(order: int, per_shard: int) -> list[tuple[int, int]]:
+    """[lo, hi) index ranges of the N points cut into blocks of at most `per_shard`."""
+    return [(lo, min(order, lo + per_shard)) for lo in range(0, order, per_shard)]
+
+
+def count_points(
+    n: int, rules: str | RuleSet = "standard", *, points_per_shard: int | None = None,
+    threads: int | None = None, prime_offset: int = 0, max_memory: int | None = None,
+) -> CountResult:
+    """The exact census of `counting.count.count`, computed by evaluation points.
+
+    Every (prime, block of at most `points_per_shard` points; default all N) is one shard,
+    run in threads here.  The result equals `count`'s (the tests check it for every shard
+    shape); its stats name the method, N and the shards.
+    """
+    n = check_n(n)
+    check_prime_offset(prime_offset)
+    ruleset = get_rules(rules)
+    limit = resolve_limit(max_memory)
+    nthreads = thread_count(check_threads(threads))
+    t0 = time.perf_counter()
+    space = count_space(ruleset.instantiate(n), limit)
+    windows, first_peak = count_windows(space, n, limit, nthreads)
+    t1 = time.perf_counter()
+    order = transform_order(windows.longest)
+    per = order if points_per_shard is None else max(1, min(int(points_per_shard), order))
+    primes, check_prime = ntt_primes_for_bits(windows.count_bits, order, prime_offset)
+    all_primes = [*primes, check_prime]
+    shards = [(q, lo, hi) for q in all_primes for lo, hi in point_blocks(order, per)]
+    shard_bytes = 8 * points_peak_words(space, per)
+    refuse_if_over(first_peak + nthreads * shard_bytes, limit,
+                   f"the evaluation-point count of n = {n}")
+    roots = {q: root_of_unity(q, order) for q in all_primes}
+
+    def run(shard: tuple[int, int, int]) -> tuple[np.ndarray, int]:
+        q, lo, hi = shard
+        w = roots[q]
+        pts = [pow(w, k, q) for k in range(lo, hi)]
+        return spectrum_points(space, windows, q, pts)
+
+    parts = run_blocks(shards, run, nthreads)
+    t2 = time.perf_counter()
+    values: dict[int, list[int]] = {q: [0] * order for q in all_primes}
+    for (q, lo, _hi), (vals, _u) in zip(shards, parts, strict=True):
+        values[q][lo : lo + vals.size] = [int(v) for v in vals]
+    residues = np.zeros((len(all_primes), windows.longest + 1), dtype=np.int64)
+    for row, q in enumerate(all_primes):
+        coeffs = counts_from_values(values[q], q, roots[q])
+        if any(coeffs[windows.longest + 1 :]):
+            raise CheckPrimeMismatch(
+                f"the length polynomial mod {q} has a term above the longest game "
+                f"({windows.longest} moves): the evaluations are not trusted")
+        residues[row, :] = coeffs[: windows.longest + 1]
+    return assemble_count(
+        ruleset.name, ruleset.content_hash(), n, windows.states, windows.transitions,
+        windows.shortest, windows.longest, primes, check_prime, residues,
+        stats={
+            "method": "points",
+            "seconds_total": round(time.perf_counter() - t0, 3),
+            "seconds_windows": round(t1 - t0, 3),
+            "seconds_exact": round(t2 - t1, 3),
+            "word_updates": int(sum(u for _v, u in parts)),
+            "threads": nthreads,
+            "points": order,
+            "points_per_shard": per,
+            "shards": len(shards),
+            "shard_peak_bytes": int(shard_bytes),
+            "forecast_peak_bytes": int(first_peak + nthreads * shard_bytes),
+            "count_bits": windows.count_bits,
+        },
+    )
