@@ -158,6 +158,7 @@ MEASURE = textwrap.dedent("""
         "pairs": lambda n: random_play(n, model="pairs", threads=2),
         "float": lambda n: float_play(n, threads=2),
         "solve": lambda n: solve(n),
+        "points": lambda n: zeckenum.count(n, threads=2, points_per_shard=64),
     }[kind]
     call(8)  # load the kernels outside the measurement
     open("/proc/self/clear_refs", "w").write("5")  # restart the high-water mark here
@@ -177,7 +178,8 @@ def measured_peak(kind: str, n: int) -> tuple[int, int]:
     return int(d["forecast"]), int(d["measured"])
 
 
-@pytest.mark.parametrize("kind,n", [("count", 130), ("law", 100), ("float", 130)])
+@pytest.mark.parametrize("kind,n", [("count", 130), ("law", 100), ("float", 130),
+                                    ("points", 130)])
 def test_forecast_is_not_below_the_measured_peak(kind: str, n: int) -> None:
     forecast, measured = measured_peak(kind, n)
     assert measured > 16 * MiB, "the run is too small to measure"
