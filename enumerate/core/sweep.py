@@ -33,7 +33,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from zeckenum.core.jit import kernel
-from zeckenum.core.listing import LayerMoves, prefetch_listings
+from zeckenum.core.listing import LayerMoves, moves_in, prefetch_listings
 from zeckenum.core.statespace import StateSpace
 from zeckenum.rules.model import GameSpec
 
@@ -360,6 +360,18 @@ class Windows:
     @property
     def count_bits(self) -> int:
         return bits_bound(self.terminal_paths_log2, self.longest)
+
+
+def moves_into(space: StateSpace, windows: Windows, level: int
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(ptr, drop, source rank) of the moves into the states of `level`: the first sweep's
+    kept `Incoming` when it kept them, else listed again (`listing.moves_in`); the later
+    sweeps of a count (`counting.spectrum`, `counting.points`) read them this way."""
+    if windows.incoming is not None:
+        inc = windows.incoming[level]
+        return inc.ptr, inc.drop, inc.src
+    lm = moves_in(space, level)
+    return lm.ptr, lm.drop, lm.other
 
 
 def bits_bound(paths_log2: float, depth: int) -> int:

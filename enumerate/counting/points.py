@@ -34,11 +34,10 @@ import numpy as np
 from zeckenum.core.blocks import run_blocks
 from zeckenum.core.checks import check_n, check_prime_offset, check_threads, thread_count
 from zeckenum.core.jit import kernel
-from zeckenum.core.listing import moves_in
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.modular import MUL_PRIME_CEILING, MUL_PRIME_FLOOR, is_prime, mulmod
 from zeckenum.core.statespace import StateSpace
-from zeckenum.core.sweep import Windows, drop_stale
+from zeckenum.core.sweep import Windows, drop_stale, moves_into
 from zeckenum.counting.count import assemble_count, count_space, count_windows
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import CheckPrimeMismatch
@@ -171,12 +170,7 @@ def spectrum_points(
             vals[start_rank * npts : (start_rank + 1) * npts] = 1
             skip = start_rank
         live[level] = vals
-        if windows.incoming is not None:
-            inc = windows.incoming[level]
-            ptr, drop, src = inc.ptr, inc.drop, inc.src
-        else:
-            lm = moves_in(space, level)
-            ptr, drop, src = lm.ptr, lm.drop, lm.other
+        ptr, drop, src = moves_into(space, windows, level)
         for d in range(1, space.max_drop + 1):
             if level + d in live:
                 updates += pull_points(vals, ptr, drop, src, d, live[level + d], npts, p, xs,

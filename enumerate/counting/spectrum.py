@@ -19,9 +19,8 @@ from collections.abc import Callable
 
 import numpy as np
 from zeckenum.core.jit import kernel
-from zeckenum.core.listing import moves_in
 from zeckenum.core.statespace import StateSpace
-from zeckenum.core.sweep import Windows, drop_stale, gather_passes
+from zeckenum.core.sweep import Windows, drop_stale, gather_passes, moves_into
 
 
 @kernel
@@ -150,12 +149,7 @@ def spectrum_residues(
         if level == start_level:
             vals[off[start_rank] : off[start_rank + 1]] = 1  # the empty game, every prime
         live[level] = (vals, off)
-        if windows.incoming is not None:
-            inc = windows.incoming[level]
-            ptr, drop, src = inc.ptr, inc.drop, inc.src
-        else:
-            lm = moves_in(space, level)
-            ptr, drop, src = lm.ptr, lm.drop, lm.other
+        ptr, drop, src = moves_into(space, windows, level)
         # modular sums: any order gives the same residues; drop 0 comes last
         for d, src_level in gather_passes(drop, space.max_drop, level, live, merge=False):
             svals, soff = live[src_level]
