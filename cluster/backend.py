@@ -44,6 +44,7 @@ from collections.abc import Callable, Iterator
 from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
 
+from zeckenum.core.checks import thread_count
 from zeckenum.core.jit import cache_base
 from zeckenum.errors import ClusterStalled, InputError
 
@@ -319,7 +320,7 @@ class ThreadPool(Pool):
     kind = "in-process"
 
     def __init__(self, threads: int | None = None) -> None:
-        self.threads = threads or os.cpu_count() or 1
+        self.threads = thread_count(threads)
         self._ex = ThreadPoolExecutor(max_workers=self.threads)
 
     def submit(self, fn, *args, priority=0, prefer=None):  # noqa: ANN001, ANN002

@@ -2,9 +2,10 @@
 
 Two families of word-size primes, each with the arithmetic its kernels need:
 
-* Add primes, just below PRIME_CEILING = 2**62 (`primes_below_ceiling`, `primes_for_bits`):
-  counts of games only add residues (int64 lanes: a sum of two residues stays below 2**63,
-  so a modular add is add, compare, subtract, and vectorises).  Used by the count.
+* Add primes, just below PRIME_CEILING = 2**62 (`primes_for_bits`, by `primes_stepping_down`
+  and `primes_covering`): counts of games only add residues (int64 lanes: a sum of two
+  residues stays below 2**63, so a modular add is add, compare, subtract, and vectorises).
+  Used by the count.
 * Mul primes, between MUL_PRIME_FLOOR = 2**13 and MUL_PRIME_CEILING = 2**50 (`mul_primes`,
   `mul_primes_exceeding`): random play also multiplies residues, by move weights and by
   inverses of total weights (`inverse_table`).  Products use a float64 estimate of the
@@ -22,9 +23,10 @@ per reconstructed number.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from fractions import Fraction
 from functools import lru_cache
+from itertools import islice
 
 import numpy as np
 from zeckenum.core.jit import kernel
@@ -73,9 +75,28 @@ def descending_primes(ceiling: int, count: int) -> tuple[int, ...]:
     return tuple(out)
 
 
-def primes_below_ceiling(count: int, offset: int = 0) -> list[int]:
-    """The primes number offset .. offset+count-1 counted downward from 2**62 (all odd)."""
-    return list(descending_primes(PRIME_CEILING, offset + count)[offset:])
+def primes_stepping_down(start: int, step: int, floor: int = 2) -> Iterator[int]:
+    """The primes among start, start - step, start - 2 step, ... above `floor`, largest
+    first (step 2 from an odd start: every odd number; step N from c N + 1: the primes
+    that are 1 mod N)."""
+    c = start
+    while c > floor:
+        if is_prime(c):
+            yield c
+        c -= step
+
+
+def primes_covering(candidates: Iterable[int], bound: int) -> tuple[list[int], int]:
+    """(the fewest leading primes of `candidates`, at least one, whose product exceeds
+    `bound`; the next one, the check prime)."""
+    primes: list[int] = []
+    product = 1
+    for p in candidates:
+        if primes and product > bound:
+            return primes, p
+        primes.append(p)
+        product *= p
+    raise ValueError(f"too few primes for a product above a {bound.bit_length()}-bit bound")
 
 
 def primes_for_bits(bits: int, offset: int = 0) -> tuple[list[int], int]:
@@ -84,15 +105,8 @@ def primes_for_bits(bits: int, offset: int = 0) -> tuple[list[int], int]:
     `offset` skips that many primes from the top, so two runs with offsets apart by more
     than the number used work with disjoint prime sets.
     """
-    count = 1
-    while True:
-        primes = primes_below_ceiling(count + 1, offset)
-        product = 1
-        for p in primes[:count]:
-            product *= p
-        if product.bit_length() > bits:
-            return primes[:count], primes[count]
-        count += 1
+    return primes_covering(islice(primes_stepping_down(PRIME_CEILING - 1, 2), offset, None),
+                           2**bits - 1)
 
 
 def mul_primes(count: int, offset: int = 0) -> list[int]:

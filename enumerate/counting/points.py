@@ -28,14 +28,21 @@ Kernel `pull_points`, wrapper `spectrum_points(space, windows, prime, points)`.
 from __future__ import annotations
 
 import time
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
+from itertools import islice
 
 import numpy as np
 from zeckenum.core.blocks import run_blocks
 from zeckenum.core.checks import check_n, check_prime_offset, check_threads, thread_count
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import refuse_if_over, resolve_limit
-from zeckenum.core.modular import MUL_PRIME_CEILING, MUL_PRIME_FLOOR, is_prime, mulmod
+from zeckenum.core.modular import (
+    MUL_PRIME_CEILING,
+    MUL_PRIME_FLOOR,
+    mulmod,
+    primes_covering,
+    primes_stepping_down,
+)
 from zeckenum.core.statespace import StateSpace
 from zeckenum.core.sweep import Windows, drop_stale, moves_into
 from zeckenum.counting.count import assemble_count, count_space, count_windows
@@ -50,32 +57,24 @@ def transform_order(longest: int) -> int:
     return 1 << max(0, int(longest)).bit_length()
 
 
+def _ntt_candidates(order: int, offset: int) -> Iterator[int]:
+    """The primes below 2**50 and above 2**13 that are 1 mod `order` (so that their
+    multiplicative group has elements of order `order`), largest first, skipping `offset`."""
+    start = (MUL_PRIME_CEILING - 2) // order * order + 1
+    return islice(primes_stepping_down(start, order, MUL_PRIME_FLOOR), offset, None)
+
+
 def ntt_primes(order: int, count: int, offset: int = 0) -> list[int]:
-    """The primes number offset .. offset+count-1, counted downward from 2**50, that are
-    1 mod `order` (so that their multiplicative group has elements of order `order`)."""
-    out: list[int] = []
-    c = (MUL_PRIME_CEILING - 2) // order
-    while len(out) < offset + count:
-        p = c * order + 1
-        if p <= MUL_PRIME_FLOOR:
-            raise ValueError(f"fewer than {offset + count} primes = 1 mod {order} below 2**50")
-        if is_prime(p):
-            out.append(p)
-        c -= 1
-    return out[offset:]
+    """The primes number offset .. offset+count-1 of `_ntt_candidates`."""
+    out = list(islice(_ntt_candidates(order, offset), count))
+    if len(out) < count:
+        raise ValueError(f"fewer than {offset + count} primes = 1 mod {order} below 2**50")
+    return out
 
 
 def ntt_primes_for_bits(bits: int, order: int, offset: int = 0) -> tuple[list[int], int]:
     """(primes = 1 mod order whose product exceeds 2**bits, one more check prime)."""
-    need = 1
-    while True:
-        ps = ntt_primes(order, need + 1, offset)
-        prod = 1
-        for q in ps[:need]:
-            prod *= q
-        if prod.bit_length() > bits:
-            return ps[:need], ps[need]
-        need += 1
+    return primes_covering(_ntt_candidates(order, offset), 2**bits - 1)
 
 
 def root_of_unity(p: int, order: int) -> int:
