@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 from fractions import Fraction
 from typing import TYPE_CHECKING
 
+from zeckenum.core.text import frac_str
 from zeckenum.errors import InputError
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
@@ -25,10 +26,6 @@ if TYPE_CHECKING:  # pragma: no cover - types only
 SUMMARY_KEYS = ("states", "transitions", "games", "shortest", "longest", "shortest_games",
                 "longest_games")
 """The census fields of `RunData.summary` (keys of `CountResult.to_dict()`)."""
-
-
-def _frac(x: Fraction) -> str:
-    return f"{x.numerator}/{x.denominator}"
 
 
 @dataclass(frozen=True)
@@ -83,9 +80,9 @@ class RunData:
             "rules_hash": self.rule_set().content_hash(),
             "spectra": {str(n): {str(k): str(v) for k, v in sp.items()}
                         for n, sp in sorted(self.spectra.items())},
-            "random_lengths": {str(n): {str(k): _frac(Fraction(v)) for k, v in law.items()}
+            "random_lengths": {str(n): {str(k): frac_str(Fraction(v)) for k, v in law.items()}
                                for n, law in sorted(self.random.items())},
-            "player1_wins": {str(n): _frac(Fraction(w)) for n, w in sorted(self.wins.items())},
+            "player1_wins": {str(n): frac_str(Fraction(w)) for n, w in sorted(self.wins.items())},
             "summary": {str(n): {k: str(v) for k, v in row.items()}
                         for n, row in sorted(self.summary.items())},
             "provenance": dict(self.provenance),

@@ -29,9 +29,8 @@ from zeckenum.cli.options import (
     rules_option,
 )
 from zeckenum.core.checks import RANDOM_MAX_PLAYERS
-from zeckenum.core.text import DIGITS, decimal, plural
+from zeckenum.core.text import DIGITS, decimal, frac_str, plural
 from zeckenum.errors import InputError
-from zeckenum.randomplay.exact import frac_str
 from zeckenum.randomplay.simulate import MAX_GAMES
 
 CONVENTION = "a game with no move (n = 1) counts as a win for player P (the last player)"

@@ -25,6 +25,7 @@ from fractions import Fraction
 
 import numpy as np
 from scipy import stats
+from zeckenum.core.text import frac_str
 
 
 def exact_moments(dist: dict[int, Fraction]) -> dict:
@@ -55,7 +56,7 @@ def moments_to_dict(m: dict) -> dict:
     """JSON form of `exact_moments`: rationals as "num/den", with decimal companions."""
 
     def fs(x):
-        return None if x is None else f"{x.numerator}/{x.denominator}"
+        return None if x is None else frac_str(x)
 
     out = {}
     names = {"mean": "mean_length", "variance": "variance", "mu3": "central_moment_3",

@@ -40,6 +40,12 @@ def _exponent(x: Fraction) -> int:
     return e
 
 
+def frac_str(x: Fraction) -> str:
+    """A reduced rational as "num/den" (Fraction is always reduced): how every exact
+    probability and moment is written in JSON, tables and checkpoints."""
+    return f"{x.numerator}/{x.denominator}"
+
+
 def decimal(x: Fraction | int | float | None, digits: int = DIGITS) -> str:
     """`x` to `digits` significant digits: positional for 1e-5 <= |x| < 1e12, else with an
     exponent ('1.5e-400'); trailing zeros dropped; '-' for None."""

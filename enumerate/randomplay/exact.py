@@ -85,6 +85,7 @@ from zeckenum.core.modular import (
 )
 from zeckenum.core.statespace import StateSpace
 from zeckenum.core.sweep import drop_stale, gather_passes
+from zeckenum.core.text import frac_str
 from zeckenum.randomplay.skeleton import (
     Skeleton,
     random_skeleton,
@@ -504,11 +505,6 @@ class RandomResult:
             }
         )
         return d
-
-
-def frac_str(x: Fraction) -> str:
-    """A reduced rational as "num/den" (Fraction is always reduced)."""
-    return f"{x.numerator}/{x.denominator}"
 
 
 def assemble_random(

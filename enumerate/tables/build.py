@@ -28,6 +28,7 @@ from pathlib import Path
 
 from zeckenum import __version__
 from zeckenum.cluster.errors import CheckpointRefused
+from zeckenum.core.text import frac_str
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import InputError, OutputError, ZeckenumError
 from zeckenum.rules.catalogue import get_rules
@@ -70,7 +71,7 @@ def random_rows(rules, n: int, prime_offset: int = 0,  # noqa: ANN001
     The summary holds each player's exact win probability and the length's mean and
     variance; the length rows the exact probability of every length that occurs.
     """
-    from zeckenum.randomplay.exact import frac_str, random_play
+    from zeckenum.randomplay.exact import random_play
 
     r = random_play(n, rules, players=2, prime_offset=prime_offset)
     law = r.length_probability or {}
@@ -201,8 +202,6 @@ def _take_over(t: Table, rows: _Rows) -> None:
             rows.add("solve", n, {"row": {"n": n, "winner": int(w) if w else None,
                                           "p_positions": t.solve[n]["p_positions"]}})
         if "random" in t.kinds:
-            from zeckenum.randomplay.exact import frac_str
-
             rows.add("random", n, {
                 "row": {"n": n, **{k: frac_str(v) for k, v in t.random[n].items()}},
                 "lengths": [{"n": n, "length": L, "probability": frac_str(p)}

@@ -58,6 +58,7 @@ from fractions import Fraction
 from pathlib import Path
 
 from zeckenum.cluster.errors import TableCheckFailed
+from zeckenum.core.text import frac_str
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import InputError
 from zeckenum.rules.model import STANDARD, RuleSet
@@ -246,9 +247,7 @@ class Table:
     def to_dict(self) -> dict:
         """JSON-ready: exact integers and rationals ("p/q") as strings, keys as text."""
         def frac(x: object) -> str:
-            if isinstance(x, Fraction):
-                return f"{x.numerator}/{x.denominator}"
-            return str(x)
+            return frac_str(x) if isinstance(x, Fraction) else str(x)
 
         return {
             "folder": str(self.folder), "manifest": self.manifest,
@@ -499,8 +498,6 @@ def _check_solve(t: Table, texts: dict[str, str]) -> list[int]:
 
 
 def _check_random(t: Table, texts: dict[str, str]) -> list[int]:
-    from zeckenum.randomplay.exact import frac_str
-
     rows = _by_n("random.csv", _cells("random.csv", texts["random.csv"], RANDOM_FIELDS))
     t.laws = _long("random_lengths.csv", _cells("random_lengths.csv",
                                                 texts["random_lengths.csv"], LENGTH_FIELDS),
