@@ -25,9 +25,11 @@ from zeckenum.counting.points import (
     counts_from_values,
     ntt_primes,
     ntt_primes_for_bits,
+    residues_from_values,
     root_of_unity,
     transform_order,
 )
+from zeckenum.errors import CheckPrimeMismatch
 
 
 @pytest.mark.parametrize("order", [1, 2, 8, 64, 1024])
@@ -61,11 +63,29 @@ def test_inverse_transform_recovers_a_random_polynomial(order: int) -> None:
     assert counts_from_values(values, p, w) == coeffs
 
 
-def test_transform_order_is_the_least_power_of_two_above_longest() -> None:
-    for longest in range(0, 70):
-        order = transform_order(longest)
-        assert order > longest and order & (order - 1) == 0
-        assert order == 1 or order // 2 <= longest
+def test_transform_order_is_the_least_power_of_two_above_the_span() -> None:
+    for span in range(0, 70):
+        order = transform_order(span)
+        assert order > span and order & (order - 1) == 0
+        assert order == 1 or order // 2 <= span
+
+
+@pytest.mark.parametrize(("shortest", "longest"), [(0, 0), (0, 7), (5, 5), (9, 20), (40, 71)])
+def test_residues_from_values_rebuild_a_shifted_polynomial(shortest: int, longest: int) -> None:
+    # common practice: evaluate sum c_L x^L (support shortest..longest) at the N-th roots
+    # of unity by the definition, then interpolate
+    rng = random.Random(shortest * 100 + longest)
+    order = transform_order(longest - shortest)
+    p = ntt_primes(order, 1)[0]
+    w = root_of_unity(p, order)
+    coeffs = [0] * shortest + [rng.randrange(p) for _ in range(longest - shortest + 1)]
+    values = [sum(c * pow(w, k * j, p) for j, c in enumerate(coeffs)) % p
+              for k in range(order)]
+    assert residues_from_values(values, p, w, shortest, longest) == coeffs
+    if order > longest - shortest + 1:  # room for a term outside the lengths: caught
+        bad = [(v + pow(w, k * (longest + 1), p)) % p for k, v in enumerate(values)]
+        with pytest.raises(CheckPrimeMismatch, match="outside the game lengths"):
+            residues_from_values(bad, p, w, shortest, longest)
 
 
 @pytest.mark.parametrize("n", [1, 2, 3, 6, 11, 17])
