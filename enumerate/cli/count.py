@@ -83,7 +83,7 @@ def check_out_path(out: str) -> Path:
 @click.option("--points-per-shard", "points_per_shard", type=bounded(1, 1 << 20), default=None,
               help="Count by evaluation points instead of length windows: every (prime, "
                    "block of at most K points) is one shard (more work, less memory per "
-                   "shard; in-process only for now).")
+                   "shard); with --workers/--scheduler/--checkpoint, shards of the cluster.")
 @max_memory_option
 @progress_option()
 @rules_option()
