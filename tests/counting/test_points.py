@@ -135,7 +135,7 @@ def test_command_line_counts_by_points_and_refuses_what_it_cannot_do() -> None:
     assert {int(k): int(v) for k, v in got["length_counts"].items()} == ref["length_counts"]
     assert got["stats"]["method"] == "points"
     for bad in (["--points-per-shard", "0"], ["--points-per-shard", "x"],
-                ["--points-per-shard", "2", "--checkpoint", "somewhere"]):
+                ["--points-per-shard", "-1"]):
         res = runner.invoke(main, ["count", "9", *bad])
         assert res.exit_code == 2, (bad, res.output)
         lines = res.output.strip().splitlines()
