@@ -348,3 +348,30 @@ def test_two_workers_every_shard_shape_equals_in_process(pool, tmp_path) -> None
                                points_per_shard=per)[25]
         assert single.stats["shards_reused"] == single.stats["shards_total"]
         assert single == got[25]
+
+
+@pytest.mark.slow  # about 10 s
+def test_n_120_interrupted_on_two_workers_resumes_to_the_windowed_spectrum(
+        pool, tmp_path) -> None:  # noqa: ANN001
+    # the windowed count takes primes below 2**62, the points route NTT primes below 2**50
+    # that are 1 mod N: two independent modular computations of the same integers
+    from zeckenum.cluster.run import count_on_pool
+
+    n, per = 120, 64
+
+    def stop_after_ten(_n: int, _i: int, seen: list = []) -> None:  # noqa: B006
+        seen.append(_i)
+        if len(seen) == 10:
+            raise Interrupt
+
+    with pytest.raises(Interrupt):
+        count_on_pool([n], "standard", pool, checkpoint_dir=tmp_path, points_per_shard=per,
+                      on_shard=stop_after_ten)
+    res = count_on_pool([n], "standard", pool, checkpoint_dir=tmp_path,
+                        points_per_shard=per)[n]
+    assert res.stats["shards_reused"] == 10
+    assert res.stats["shards_computed"] == res.stats["shards_total"] - 10 > 0
+    ref = zeckenum.count(n)
+    assert res.length_counts == ref.length_counts and res.games == ref.games
+    assert not set(res.primes) & set(ref.primes)
+    assert res == zeckenum.count(n, points_per_shard=per)
