@@ -3,6 +3,8 @@
 * the plain-Python brute forces of tests/support (bruteforce.census for the standard game,
   rules_bruteforce.Game.spectrum for every shipped rule set): the spectrum must be equal
   for every shard shape (points per shard 1, 2, 3, 5 and all);
+* networkx: the games of each length by a DP over the topological order of the explicit
+  move graph (n up to 40, shards of 1, 7 and all points);
 * sympy for primality and for the inverse transform: a polynomial with random
   coefficients, evaluated at the roots of unity with plain Python ints, must come back
   coefficient by coefficient (common practice: the number-theoretic transform is the
@@ -14,12 +16,14 @@
 from __future__ import annotations
 
 import random
+from collections import Counter
 
+import networkx as nx
 import pytest
 import rules_bruteforce as rbf
 import sympy as sp
 import zeckenum
-from bruteforce import census
+from bruteforce import census, move_graph, start_state
 from zeckenum.counting.points import (
     count_points,
     counts_from_values,
@@ -108,6 +112,36 @@ def test_variant_spectra_equal_the_rule_set_brute_force(name: str, n: int,
     ref = rbf.Game(rbf.DESCRIPTIONS[name], n).spectrum()
     res = count_points(n, name, points_per_shard=per_shard, threads=2)
     assert res.length_counts == dict(sorted(ref.items()))
+
+
+def _networkx_length_counts(n: int) -> dict[int, int]:
+    """Games of each length by a DP over networkx's topological order of the move graph."""
+    g = move_graph(n)
+    start = start_state(n)
+    by_len: dict[tuple[int, ...], Counter[int]] = {v: Counter() for v in g.nodes}
+    by_len[start][0] = 1
+    for v in nx.topological_sort(g):
+        for w in g.successors(v):
+            for length, c in by_len[v].items():
+                by_len[w][length + 1] += c
+    (end,) = [v for v in g.nodes if g.out_degree(v) == 0]
+    return dict(sorted(by_len[end].items()))
+
+
+@pytest.mark.parametrize("n", [18, 25, 33, 40])
+@pytest.mark.parametrize("per_shard", [1, 7, None])
+def test_spectrum_equals_networkx_path_counts_for_every_shard_shape(
+        n: int, per_shard: int | None) -> None:
+    res = count_points(n, points_per_shard=per_shard, threads=2)
+    assert res.length_counts == _networkx_length_counts(n)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("n", [120, 150])
+def test_large_n_equal_the_windowed_count(n: int) -> None:
+    ref = zeckenum.count(n)
+    res = count_points(n, points_per_shard=64, threads=2)
+    assert res.length_counts == ref.length_counts and res.games == ref.games
 
 
 @pytest.mark.parametrize("n", [40, 75])
