@@ -229,11 +229,12 @@ def shared_bytes(sizes: CountSizes, keep: bool) -> int:
 
 
 def window_block_bytes(sizes: CountSizes, keep: bool) -> int:
-    """Fixed bytes of a windows shard besides its ring: the moves into the largest layer are
-    read from the kept lists (two int64 words per state) or listed again."""
+    """Fixed bytes of a windows shard besides its ring: the word offsets of the two layers
+    in flight (`spectrum.layer_offsets`, int64 per state) and, when the moves are not kept,
+    one listing of the largest layer."""
     if keep:
         return sizes.largest_layer * 16
-    return sizes.listing_bytes + sizes.largest_layer * 8
+    return sizes.listing_bytes + sizes.largest_layer * 16
 
 
 def point_shard_bytes(sizes: CountSizes, keep: bool, per_shard: int) -> int:
@@ -410,6 +411,6 @@ def space_floor(space: StateSpace, threads: int) -> int:
     words = 8 * points_peak_words(space, 1)
     t = min(threads, 2)  # every route has at least two shards (one prime + the check prime)
     keep = max(4 * (sweep + est), sweep + est + t * min(largest * 16, words))
-    again = sweep + t * (lst + min(largest * 8, words))
+    again = sweep + t * (lst + min(largest * 16, words))
     table = rank_table_bytes(spec.nbins, spec.n, spec.start_level)
     return max(table + 8 * states_upper_bound(spec.values, spec.n), sweep, min(keep, again))
