@@ -134,12 +134,7 @@ def count(
     points_per_shard  force the evaluation-point route with blocks of this many points
     """
     # the route module builds on this one (and on counting.points, which does too)
-    from zeckenum.counting.route import (
-        choose_count_route,
-        count_sizes,
-        refuse_below,
-        space_floor,
-    )
+    from zeckenum.counting.route import choose_count_route, count_sizes, routed_space
 
     n = check_n(n)
     check_prime_offset(prime_offset)
@@ -150,8 +145,7 @@ def count(
 
     t0 = time.perf_counter()
     spec = ruleset.instantiate(n)
-    space = count_space(spec, limit)
-    refuse_below(space_floor(space, nthreads), limit, what)
+    space = routed_space(spec, limit, nthreads, what)
     windows, first_peak = count_windows(space, n, limit, nthreads)
     sizes = count_sizes(space, windows, nthreads, prime_offset,
                         updates=windows.incoming is not None)

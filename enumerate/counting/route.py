@@ -56,10 +56,11 @@ import numpy as np
 from zeckenum.core.blocks import block_plan
 from zeckenum.core.memory import human
 from zeckenum.core.modular import primes_for_bits
-from zeckenum.core.statespace import StateSpace, rank_table_bytes, states_upper_bound
+from zeckenum.core.statespace import StateSpace, build_space, rank_table_bytes, states_upper_bound
 from zeckenum.core.sweep import Windows, incoming_bytes_estimate, moves_into
 from zeckenum.counting.count import (
     COUNT_PRIMES_PER_BLOCK,
+    count_space,
     listing_bytes,
     windows_bytes,
     windows_pass_bytes,
@@ -67,6 +68,7 @@ from zeckenum.counting.count import (
 from zeckenum.counting.points import ntt_primes_for_bits, points_peak_words, transform_order
 from zeckenum.counting.spectrum import peak_words
 from zeckenum.errors import MemoryRefused
+from zeckenum.rules.model import GameSpec
 
 ROUTES = ("windows", "points")
 
@@ -414,3 +416,21 @@ def space_floor(space: StateSpace, threads: int) -> int:
     again = sweep + t * (lst + min(largest * 16, words))
     table = rank_table_bytes(spec.nbins, spec.n, spec.start_level)
     return max(table + 8 * states_upper_bound(spec.values, spec.n), sweep, min(keep, again))
+
+
+FLOOR_TABLE_BYTES = 16 * 2**20
+"""A rank table this small is built even over a smaller limit, to name the smallest
+limit that works (`routed_space`)."""
+
+
+def routed_space(spec: GameSpec, limit: int, threads: int, what: str) -> StateSpace:
+    """The state space of a count, after the up-front refusal of a limit below
+    `space_floor` (naming it).  A rank table of at most FLOOR_TABLE_BYTES is built to
+    compute that floor even when the limit is below it; a larger one is refused as
+    before (`count.count_space`), by its exact size."""
+    table = rank_table_bytes(spec.nbins, spec.n, spec.start_level)
+    if table > max(limit, FLOOR_TABLE_BYTES):
+        return count_space(spec, limit)
+    space = build_space(spec, max(limit, table))
+    refuse_below(space_floor(space, threads), limit, what)
+    return space
