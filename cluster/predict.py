@@ -56,6 +56,7 @@ from zeckenum.counting.route import (
     RoutePlan,
     choose_count_route,
     count_sizes,
+    refuse_below,
     routed_space,
 )
 from zeckenum.counting.spectrum import spectrum_residues
@@ -364,6 +365,19 @@ def probe_random_rate(
     }
 
 
+def primes_per_block_within(facts: RandomFacts, limit: int, what: str) -> int:
+    """The most primes a block may hold so that one worker's skeleton, shared data and one
+    block (`plan.worker_bytes`: words_one words per prime + fixed bytes) fit `limit`;
+    MemoryRefused naming the smallest working limit when not even one prime fits.
+
+    Hook: exact random play shards only by primes today; a points route for random play
+    would be chosen here like the count's (`counting.route.choose_count_route`)."""
+    base = facts.window_bytes + facts.shared_bytes + facts.fixed_bytes
+    one = 8 * max(1, facts.words_one)
+    refuse_below(base + one, limit, what)
+    return (limit - base) // one
+
+
 def predict_random(
     n: int, rules: str | RuleSet = "standard", workers: int = 1, *,
     model: str = "moves", players: int = 2, winners_only: bool = False,
@@ -374,9 +388,11 @@ def predict_random(
     Exact (equal to what the run reports): reachable states, transitions, the denominator's
     bits, the CRT primes and the check prime, the shards, the word updates (per prime and in
     all); memory per worker = the first sweep's skeleton + one block's ring buffers
-    (`plan.worker_bytes`).  Time from `probe_random_rate` at `probe_n` (default
-    PROBE_RANDOM_N) with blocks as large as the plan's largest.  `workers` are K Dask
-    workers (`workers=K`) or K threads in-process (`threads=K`): the driver plans both alike.
+    (`plan.worker_bytes`); with `max_memory` (per worker) the blocks hold at most as many
+    primes as fit it (`primes_per_block_within`).  Time from `probe_random_rate` at
+    `probe_n` (default PROBE_RANDOM_N) with blocks as large as the plan's largest.
+    `workers` are K Dask workers (`workers=K`) or K threads in-process (`threads=K`): the
+    driver plans both alike.
     The first sweeps of n and of the probe are refused up front against `max_memory`.
     """
     check_random_args(n, players, model)
@@ -392,6 +408,11 @@ def predict_random(
     kind.shard_task(ruleset, 5, *kind.shard_args, mul_primes(1))
     facts: RandomFacts = kind.facts_task(ruleset, n, *kind.facts_args)
     plan = kind.plan(facts, 0, workers, blocks, None)
+    limit = None if max_memory is None else resolve_limit(max_memory)
+    if limit is not None and blocks is None and worker_bytes(facts, plan) > limit:
+        # the default shape does not fit one worker: blocks as large as fit
+        cap = primes_per_block_within(facts, limit, f"random play n={n} (one shard per worker)")
+        plan = kind.plan(facts, 0, workers, None, cap)
     biggest = max(len(b) for b in plan.blocks)
     rate = probe_random_rate(probe_n or PROBE_RANDOM_N, ruleset, model, players,
                              bool(winners_only), biggest)
