@@ -5,7 +5,7 @@ calibrated on this machine.
 
 count   (`predict_count`)  Exact: the states of the state space (`StateSpace.total_states()`),
         and from the first sweep (cheap next to the exact sweep) the reachable states,
-        transitions, the primes, and the exact sweep's word updates (`tasks.updates_per_prime`
+        transitions, the primes, and the exact sweep's word updates (`counting.route.sweep_updates`
         times the number of primes, equal to `stats["word_updates"]` of the run).  Rate: word
         updates per second of a probe count (`probe_rate`, one thread, in-process).
 random  (`predict_random`)  Exact: random play's first sweep (`random_tasks.random_facts_task`,

@@ -171,6 +171,23 @@ class RoutePlan:
         return d
 
 
+def sweep_updates(space: StateSpace, windows: Windows) -> tuple[int, int]:
+    """(word updates of `spectrum_residues` per prime, moves `pull_points` reads per point):
+    over the moves into every swept layer from a swept layer (`moves_into`: the kept ones,
+    or all listed again), the sum of their sources' window widths, and their number."""
+    win_updates = point_moves = 0
+    for level in windows.win:
+        _ptr, drop, src = moves_into(space, windows, level)
+        for d in np.unique(drop):
+            src_level = level + int(d)
+            if src_level not in windows.win:
+                continue
+            sel = drop == d
+            point_moves += int(np.count_nonzero(sel))
+            win_updates += int(windows.win[src_level][src[sel]].astype(np.int64).sum())
+    return win_updates, point_moves
+
+
 def count_sizes(space: StateSpace, windows: Windows, threads: int = 1,
                 prime_offset: int = 0, updates: bool = True) -> CountSizes:
     """The `CountSizes` of a count from its state space and first sweep, every number from
@@ -182,16 +199,7 @@ def count_sizes(space: StateSpace, windows: Windows, threads: int = 1,
     listing part of the first sweep); `updates=False` skips them (both 0: not forecast;
     the route rule does not depend on them)."""
     levels = sorted(windows.win, reverse=True)
-    win_updates = point_moves = 0
-    for level in levels if updates else ():
-        _ptr, drop, src = moves_into(space, windows, level)
-        for d in np.unique(drop):
-            src_level = level + int(d)
-            if src_level not in windows.win:
-                continue
-            sel = drop == d
-            point_moves += int(np.count_nonzero(sel))
-            win_updates += int(windows.win[src_level][src[sel]].astype(np.int64).sum())
+    win_updates, point_moves = sweep_updates(space, windows) if updates else (0, 0)
     layer_sizes = tuple(int(windows.win[lv].size) for lv in levels)
     order = transform_order(windows.longest - windows.shortest)
     wprimes, _ = primes_for_bits(windows.count_bits, prime_offset)
@@ -426,11 +434,13 @@ limit that works (`routed_space`)."""
 def routed_space(spec: GameSpec, limit: int, threads: int, what: str) -> StateSpace:
     """The state space of a count, after the up-front refusal of a limit below
     `space_floor` (naming it).  A rank table of at most FLOOR_TABLE_BYTES is built to
-    compute that floor even when the limit is below it; a larger one is refused as
-    before (`count.count_space`), by its exact size."""
+    compute that floor even when the limit is below it; a larger one only after the
+    up-front refusals of `count.count_space` (rank table and states bound, which allocate
+    nothing)."""
     table = rank_table_bytes(spec.nbins, spec.n, spec.start_level)
-    if table > max(limit, FLOOR_TABLE_BYTES):
-        return count_space(spec, limit)
-    space = build_space(spec, max(limit, table))
+    if table <= FLOOR_TABLE_BYTES:
+        space = build_space(spec, max(limit, table))
+    else:  # refused before anything is allocated when the table and states do not fit
+        space = count_space(spec, limit)
     refuse_below(space_floor(space, threads), limit, what)
     return space
