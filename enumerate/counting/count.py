@@ -123,7 +123,8 @@ def count(
 ) -> CountResult:
     """Exact number of games of every length for the game `rules` started from n.
 
-    threads           shards run at once, in threads (default: all cores)
+    threads           shards run at once, in threads (default: all cores, fewer when the
+                      memory limit allows fewer)
     prime_offset      skip that many primes (two offsets far enough apart give disjoint
                       prime sets: an independent recomputation)
     max_memory        byte limit for the run (default: what the machine has available); it
@@ -134,7 +135,12 @@ def count(
     points_per_shard  force the evaluation-point route with blocks of this many points
     """
     # the route module builds on this one (and on counting.points, which does too)
-    from zeckenum.counting.route import choose_count_route, count_sizes, routed_space
+    from zeckenum.counting.route import (
+        choose_count_route,
+        count_sizes,
+        fitting_threads,
+        routed_space,
+    )
 
     n = check_n(n)
     check_prime_offset(prime_offset)
@@ -145,12 +151,15 @@ def count(
 
     t0 = time.perf_counter()
     spec = ruleset.instantiate(n)
-    space = routed_space(spec, limit, nthreads, what)
+    auto = threads is None  # threads not given: fewer when the memory is short
+    space = routed_space(spec, limit, 1 if auto else nthreads, what)
+    if auto:
+        nthreads = fitting_threads(space, limit, nthreads)
     windows, first_peak = count_windows(space, n, limit, nthreads)
     sizes = count_sizes(space, windows, nthreads, prime_offset,
                         updates=windows.incoming is not None)
     route = choose_count_route(sizes, limit, nthreads, points_per_shard=points_per_shard,
-                               what=what)
+                               what=what, fewer=auto)
     if not route.keep_moves and windows.incoming is not None:
         windows = replace(windows, incoming=None)  # list them again per shard: less memory
     t1 = time.perf_counter()

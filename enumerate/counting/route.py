@@ -363,12 +363,35 @@ def refuse_below(need: int, limit: int, what: str) -> None:
 
 def choose_count_route(
     sizes: CountSizes, limit: int, threads: int, *, points_per_shard: int | None = None,
-    route: str | None = None, what: str = "the count",
+    route: str | None = None, what: str = "the count", fewer: bool = False,
 ) -> RoutePlan:
     """The route and shape of a count under `limit` bytes with `threads` shards in flight
     (the rule in the module docstring).  `route` forces "windows" or "points";
     `points_per_shard` forces the points route with that K (capped at N).  Keep variants
-    need `sizes.kept`.  MemoryRefused names the smallest working limit."""
+    need `sizes.kept`.  With `fewer`, when nothing fits `threads` shards in flight, fewer
+    (down to one) are tried.  MemoryRefused names the smallest working limit (for the
+    fewest shards in flight tried)."""
+    for t in range(threads, 0 if fewer else threads - 1, -1):
+        try:
+            return _choose(sizes, limit, t, points_per_shard, route, what)
+        except MemoryRefused:
+            if t == 1 or not fewer:
+                raise
+    raise AssertionError("unreachable")  # pragma: no cover
+
+
+def fitting_threads(space: StateSpace, limit: int, threads: int) -> int:
+    """The most threads t <= `threads` whose `space_floor` fits `limit` (1 when none does):
+    a count whose threads are not given runs fewer when memory is short."""
+    for t in range(threads, 1, -1):
+        if space_floor(space, t) <= limit:
+            return t
+    return 1
+
+
+def _choose(sizes: CountSizes, limit: int, threads: int, points_per_shard: int | None,
+            route: str | None, what: str) -> RoutePlan:
+    """`choose_count_route` for exactly `threads` shards in flight."""
     if points_per_shard is not None:
         route = "points"
     if route is not None and route not in ROUTES:

@@ -207,3 +207,16 @@ def test_points_per_shard_forces_the_points_route_and_is_refused_when_too_big() 
     with pytest.raises(MemoryRefused, match="needs at least"):
         count(14, threads=1, max_memory=min(need, keep_floor(sizes)) - 1,
               points_per_shard=sizes.points)
+
+
+def test_threads_not_given_shrink_to_the_memory_given_fail_over_it() -> None:
+    import os
+
+    if (os.cpu_count() or 1) < 2:
+        pytest.skip("needs two cores to run fewer threads than cores")
+    _space, _windows, sizes = sized(14)
+    limit = smallest_limit(unkept(sizes), 1, "points")
+    res = count(14, max_memory=limit)  # threads: all cores, fewer when short
+    assert res.stats["threads"] == 1 and res.length_counts == census(14)["length_counts"]
+    with pytest.raises(MemoryRefused, match="needs at least"):
+        count(14, threads=2, max_memory=limit)
