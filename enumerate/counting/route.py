@@ -357,7 +357,8 @@ def refuse_below(need: int, limit: int, what: str) -> None:
     below `need`."""
     if limit < need:
         raise MemoryRefused(
-            f"{what} needs at least {human(need)} but the limit is {human(limit)}; "
+            f"{what} needs at least {human(need)} (estimated for its smallest shape) but "
+            f"the limit is {human(limit)}; "
             f"--max-memory {limit_text(need)} or more")
 
 
