@@ -49,6 +49,7 @@ from zeckenum.core.memory import human, resolve_limit
 from zeckenum.core.modular import primes_for_bits
 from zeckenum.core.statespace import StateSpace, build_space, rank_table_bytes
 from zeckenum.core.sweep import incoming_bytes_estimate
+from zeckenum.core.text import plural
 from zeckenum.counting.count import (
     count_space,
     count_windows,
@@ -302,9 +303,9 @@ def format_budget(p: dict) -> str:
     if f is None:
         lines.append("  no n fits this budget and memory")
     else:
-        shape = (f"{f['shards']:,} shards of {f['points_per_shard']} points"
+        shape = (f"{f['shards']:,} shards of {plural(f['points_per_shard'], 'point')}"
                  if f["route"] == "points" else
-                 f"{f['shards']:,} shards of up to {f['primes_per_shard']} primes")
+                 f"{f['shards']:,} shards of up to {plural(f['primes_per_shard'], 'prime')}")
         lines += [
             f"  largest n           {p['largest_n']}",
             f"  forecast (model)    {f['predicted_seconds']:.0f} s, {f['route']} route, "
