@@ -32,7 +32,6 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 from zeckenum.cluster.workercache import WorkerCache, worker_address
-from zeckenum.core.listing import moves_in
 from zeckenum.core.memory import available_bytes
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.sweep import Windows
@@ -43,6 +42,7 @@ from zeckenum.counting.points import (
     spectrum_points,
     transform_order,
 )
+from zeckenum.counting.route import sweep_updates
 from zeckenum.counting.spectrum import peak_words, spectrum_residues
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
@@ -89,29 +89,6 @@ class Facts:
         return asdict(self)
 
 
-def updates_per_prime(space: StateSpace, windows: Windows) -> int:
-    """Word updates `spectrum_residues` does per prime: one per (kept move, source length)."""
-    total = 0
-    if windows.incoming is None:
-        for level in windows.win:
-            lm = moves_in(space, level)
-            for d in np.unique(lm.drop):
-                src_level = level + int(d)
-                if src_level not in windows.win:
-                    continue
-                sel = lm.drop == d
-                total += int(windows.win[src_level][lm.other[sel]].astype(np.int64).sum())
-        return total
-    for level, inc in windows.incoming.items():
-        for d in np.unique(inc.drop):
-            src_level = level + int(d)
-            if src_level not in windows.win:
-                continue
-            sel = inc.drop == d
-            total += int(windows.win[src_level][inc.src[sel]].astype(np.int64).sum())
-    return total
-
-
 def windows_with_facts(
     ruleset: RuleSet, n: int, limit: int | None = None, threads: int = 1
 ) -> tuple[StateSpace, Windows, Facts]:
@@ -153,7 +130,7 @@ def facts_of(
         shared_bytes=sum(inc.nbytes for inc in (windows.incoming or {}).values()),
         fixed_bytes=fixed,
         window_bytes=8 * space.total_states(),
-        updates_one=updates_per_prime(space, windows),
+        updates_one=sweep_updates(space, windows)[0],
         seconds_windows=round(seconds, 3),
     )
 

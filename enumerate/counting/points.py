@@ -32,15 +32,12 @@ Kernel `pull_points`, wrapper `spectrum_points(space, windows, prime, points)`.
 
 from __future__ import annotations
 
-import time
 from collections.abc import Iterator, Sequence
 from itertools import islice
 
 import numpy as np
 from zeckenum.core.blocks import run_blocks
-from zeckenum.core.checks import check_n, check_prime_offset, check_threads, thread_count
 from zeckenum.core.jit import kernel
-from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.modular import (
     MUL_PRIME_CEILING,
     MUL_PRIME_FLOOR,
@@ -50,11 +47,13 @@ from zeckenum.core.modular import (
 )
 from zeckenum.core.statespace import StateSpace
 from zeckenum.core.sweep import Windows, drop_stale, moves_into
-from zeckenum.counting.count import assemble_count, count_space, count_windows
+from zeckenum.counting.count import count
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import CheckPrimeMismatch
-from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
+
+MAX_POINTS_PER_SHARD = 1 << 20
+"""Points per shard that means "all N" (N stays far below it: spans below 2**20)."""
 
 
 def transform_order(span: int) -> int:
@@ -245,33 +244,18 @@ def point_blocks(order: int, per_shard: int) -> list[tuple[int, int]]:
     return [(lo, min(order, lo + per_shard)) for lo in range(0, order, per_shard)]
 
 
-def count_points(
-    n: int, rules: str | RuleSet = "standard", *, points_per_shard: int | None = None,
-    threads: int | None = None, prime_offset: int = 0, max_memory: int | None = None,
-) -> CountResult:
-    """The exact census of `counting.count.count`, computed by evaluation points.
-
-    Every (prime, block of at most `points_per_shard` points; default all N) is one shard,
-    run in threads here.  The result equals `count`'s (the tests check it for every shard
-    shape); its stats name the method, N and the shards.
-    """
-    n = check_n(n)
-    check_prime_offset(prime_offset)
-    ruleset = get_rules(rules)
-    limit = resolve_limit(max_memory)
-    nthreads = thread_count(check_threads(threads))
-    t0 = time.perf_counter()
-    space = count_space(ruleset.instantiate(n), limit)
-    windows, first_peak = count_windows(space, n, limit, nthreads)
-    t1 = time.perf_counter()
-    order = transform_order(windows.longest - windows.shortest)
-    per = order if points_per_shard is None else max(1, min(int(points_per_shard), order))
+def points_residues(
+    space: StateSpace, windows: Windows, order: int, per_shard: int, threads: int,
+    prime_offset: int = 0,
+) -> tuple[list[int], int, np.ndarray, int]:
+    """(primes, check prime, residues [prime][length], word updates) of the count by
+    evaluation points after its first sweep: every (prime = 1 mod `order`, block of at most
+    `per_shard` of the `order` points) is one shard, `threads` at a time; each prime's values
+    are interpolated (`residues_from_values`).  The rows are in the order primes + [check],
+    as `count.assemble_count` reads them."""
     primes, check_prime = ntt_primes_for_bits(windows.count_bits, order, prime_offset)
     all_primes = [*primes, check_prime]
-    shards = [(q, lo, hi) for q in all_primes for lo, hi in point_blocks(order, per)]
-    shard_bytes = 8 * points_peak_words(space, per)
-    refuse_if_over(first_peak + nthreads * shard_bytes, limit,
-                   f"the evaluation-point count of n = {n}")
+    shards = [(q, lo, hi) for q in all_primes for lo, hi in point_blocks(order, per_shard)]
     roots = {q: root_of_unity(q, order) for q in all_primes}
 
     def run(shard: tuple[int, int, int]) -> tuple[np.ndarray, int]:
@@ -280,8 +264,7 @@ def count_points(
         pts = [pow(w, k, q) for k in range(lo, hi)]
         return spectrum_points(space, windows, q, pts)
 
-    parts = run_blocks(shards, run, nthreads)
-    t2 = time.perf_counter()
+    parts = run_blocks(shards, run, threads)
     values: dict[int, list[int]] = {q: [0] * order for q in all_primes}
     for (q, lo, _hi), (vals, _u) in zip(shards, parts, strict=True):
         values[q][lo : lo + vals.size] = [int(v) for v in vals]
@@ -289,21 +272,21 @@ def count_points(
     for row, q in enumerate(all_primes):
         residues[row, :] = residues_from_values(values[q], q, roots[q], windows.shortest,
                                                 windows.longest)
-    return assemble_count(
-        ruleset.name, ruleset.content_hash(), n, windows.states, windows.transitions,
-        windows.shortest, windows.longest, primes, check_prime, residues,
-        stats={
-            "method": "points",
-            "seconds_total": round(time.perf_counter() - t0, 3),
-            "seconds_windows": round(t1 - t0, 3),
-            "seconds_exact": round(t2 - t1, 3),
-            "word_updates": int(sum(u for _v, u in parts)),
-            "threads": nthreads,
-            "points": order,
-            "points_per_shard": per,
-            "shards": len(shards),
-            "shard_peak_bytes": int(shard_bytes),
-            "forecast_peak_bytes": int(first_peak + nthreads * shard_bytes),
-            "count_bits": windows.count_bits,
-        },
-    )
+    return primes, check_prime, residues, int(sum(u for _v, u in parts))
+
+
+def count_points(
+    n: int, rules: str | RuleSet = "standard", *, points_per_shard: int | None = None,
+    threads: int | None = None, prime_offset: int = 0, max_memory: int | None = None,
+) -> CountResult:
+    """The exact census of `counting.count.count`, computed by evaluation points.
+
+    `count` forced onto the points route: every (prime, block of at most
+    `points_per_shard` points; default all N) is one shard, run in threads here.  The
+    result equals the windowed one (the tests check it for every shard shape); its stats
+    name the method, N and the shards; a limit too small for `threads` such shards is
+    refused naming the smallest that works.
+    """
+    per = MAX_POINTS_PER_SHARD if points_per_shard is None else points_per_shard
+    return count(n, rules, threads=threads, prime_offset=prime_offset,
+                 max_memory=max_memory, points_per_shard=per)
