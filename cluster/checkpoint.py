@@ -75,6 +75,7 @@ from zeckenum.cluster.manifest import (
     damaged,
     is_int,
     open_manifest,
+    read_manifest,
     read_verified,
     refuse_folders_in_the_way,
     remove_stale,
@@ -362,6 +363,27 @@ def open_existing(root: Path, wanted: dict, ruleset: RuleSet | None = None) -> S
     if not isinstance(shards, list):
         raise damaged(root, "shards")
     return Stored(root=root, data=data, shards=shards)
+
+
+def stored_points_shape(root: Path) -> int | None:
+    """The points per shard of the count-by-points checkpoint in `root`, or None (no
+    manifest, another route, or nothing readable).
+
+    Only picks which kind of run then opens the checkpoint (`open_existing`) and verifies
+    it against its own recomputed plan (`Stored.verify`): a wrong value here is refused
+    there, never used.  A damaged manifest is left to `open_existing` to report."""
+    try:
+        data = read_manifest(Path(root), FORMAT, "a zeckenum shard checkpoint")
+    except CheckpointRefused:
+        return None
+    if not isinstance(data, dict):
+        return None
+    params, plan = data.get("parameters"), data.get("plan")
+    if not (isinstance(params, dict) and params.get("route") == "points"
+            and isinstance(plan, dict)):
+        return None
+    per = plan.get("points_per_shard")
+    return per if is_int(per) and per >= 1 else None
 
 
 def create(

@@ -63,7 +63,7 @@ from zeckenum.cluster.backend import (
     kept_note,
     stall_seconds,
 )
-from zeckenum.cluster.kinds import ShardKind
+from zeckenum.cluster.kinds import ShardKind, points_kind
 from zeckenum.cluster.plan import AnyPlan, worker_bytes
 from zeckenum.core.memory import available_bytes, refuse_if_over
 from zeckenum.counting.count import check_n
@@ -77,6 +77,8 @@ class _Job:
     """Book-keeping of one n while its shards run."""
 
     n: int
+    kind: ShardKind | None = None  # None: the driver's kind; else a resumed or fallback one
+    fell_back: bool = False  # planned by the fallback: only its facts tasks (tagged) count
     facts: Any = None
     plan: AnyPlan | None = None
     cp: ckpt.Checkpoint | None = None
@@ -220,8 +222,15 @@ class ShardDriver:
         job = self.jobs[n]
         root = self.folder(n)
         if root is not None:
+            if (self.kind.fallback is not None and self.blocks is None
+                    and self.max_primes_per_block is None):
+                # a checkpoint of the fallback (shape left to the planner) resumes as such
+                per = ckpt.stored_points_shape(root)
+                if per is not None:
+                    job.kind = points_kind(self.ruleset, per)
             job.stored = ckpt.open_existing(
-                root, wanted_parameters(self.kind, n, self.prime_offset), self.ruleset)
+                root, wanted_parameters(self.kind_of(job), n, self.prime_offset),
+                self.ruleset)
         self.unreleased.append(n)
         targets = ([w for w in self.workers if w]
                    if (self.single and isinstance(self.pool, DaskPool)) else [])
@@ -229,9 +238,10 @@ class ShardDriver:
             self.submit(("facts", n), w)
 
     def submit(self, tag: tuple, prefer: str | None) -> None:
-        """Submit the task of `tag`: ("facts", n) the kind's facts task, ("shard", n, i)
+        """Submit the task of `tag`: ("facts", n) the kind's facts task (("facts", n,
+        "fallback"): the fallback kind's, `falls_back`), ("shard", n, i)
         the shard task of block i; `prefer` a loose hint (or None)."""
-        kind = self.kind
+        kind = self.kind_of(self.jobs[tag[1]])
         if tag[0] == "facts":
             fut = self.pool.submit(kind.facts_task, self.ruleset, tag[1], *kind.facts_args,
                                    prefer=prefer)
@@ -283,7 +293,7 @@ class ShardDriver:
         tag = self.tags.pop(fut)
         if tag[0] == "facts":  # the first answer plans; the others only warmed caches
             job = self.jobs[tag[1]]
-            if job.facts is None:
+            if job.facts is None and (len(tag) == 3) == job.fell_back:
                 self.adopt(job, value)
             return
         _, n, i = tag
@@ -306,16 +316,39 @@ class ShardDriver:
 
     # --------------------------------------------------------------- plan and checkpoint
 
-    def plan_for(self, facts: Any) -> AnyPlan:
-        return self.kind.plan(facts, self.prime_offset, self.nworkers, self.blocks,
-                              self.max_primes_per_block)
+    def kind_of(self, job: _Job) -> ShardKind:
+        """The kind n runs as: the driver's, or the one it fell back on (`adopt`)."""
+        return job.kind if job.kind is not None else self.kind
+
+    def plan_for(self, job: _Job, facts: Any) -> AnyPlan:
+        return self.kind_of(job).plan(facts, self.prime_offset, self.nworkers, self.blocks,
+                                      self.max_primes_per_block)
+
+    def in_flight(self) -> int:
+        """Shards one worker runs at once: every thread of the in-process pool, else one."""
+        return self.nworkers if isinstance(self.pool, ThreadPool) else 1
 
     def refuse_over_limit(self, job: _Job, facts: Any, plan: AnyPlan) -> None:
         """MemoryRefused when the shards of `plan` in flight exceed one worker's limit."""
         if self.limit is not None:
-            threads = self.nworkers if isinstance(self.pool, ThreadPool) else 1
-            refuse_if_over(worker_bytes(facts, plan, threads), self.limit,
+            refuse_if_over(worker_bytes(facts, plan, self.in_flight()), self.limit,
                            f"the shards of n={job.n} in flight on one worker")
+
+    def falls_back(self, job: _Job, facts: Any, plan: AnyPlan) -> bool:
+        """Switch n to its kind's fallback when `plan` does not fit a worker and the run
+        left the shape to the planner (no explicit blocks, no checkpoint of this kind):
+        its first sweep is asked again in the fallback's terms (a cached, cheap task)."""
+        kind = self.kind_of(job)
+        if (kind.fallback is None or job.kind is not None or self.limit is None
+                or self.blocks is not None or self.max_primes_per_block is not None
+                or worker_bytes(facts, plan, self.in_flight()) <= self.limit):
+            return False
+        fallback = kind.fallback(self.limit, self.in_flight())
+        if fallback is None:
+            return False
+        job.kind, job.fell_back = fallback, True
+        self.submit(("facts", job.n, "fallback"), None)
+        return True
 
     def adopt(self, job: _Job, facts: Any) -> None:
         """Plan n from its first sweep's facts (or resume from its checkpoint) and submit
@@ -323,23 +356,27 @@ class ShardDriver:
         if job.stored is not None:  # resume: the manifest is checked against these facts
             self.resume(job, job.stored, facts)
             return
+        plan = self.plan_for(job, facts)
+        if self.falls_back(job, facts, plan):
+            return
         job.facts = facts
-        job.plan = self.plan_for(facts)
+        job.plan = plan
         self.refuse_over_limit(job, facts, job.plan)
         job.residues = [None] * len(job.plan.blocks)
         job.updates = [0] * len(job.plan.blocks)
         root = self.folder(job.n)
         if root is not None:
-            job.cp = ckpt.create(root, job.plan, facts.to_dict(), self.kind.parameters,
-                                 self.kind.columns(facts), self.ruleset)
+            kind = self.kind_of(job)
+            job.cp = ckpt.create(root, job.plan, facts.to_dict(), kind.parameters,
+                                 kind.columns(facts), self.ruleset)
         self.start_shards(job)
 
     def resume(self, job: _Job, stored: ckpt.Stored, facts: Any) -> None:
         """Resume from a manifest: its facts, primes, blocks and columns must equal the
         ones recomputed from this run's own first sweep (`facts`, on a worker on a
         cluster), before any shard is reused; only the recomputed values are used."""
-        kind = self.kind
-        fresh = self.plan_for(facts)
+        kind = self.kind_of(job)
+        fresh = self.plan_for(job, facts)
         cp = stored.verify(kind.parameters, facts.to_dict(), kind.fact_keys, fresh,
                            kind.columns(facts), self.ruleset)
         if self.explicit and fresh != cp.plan:
@@ -419,10 +456,10 @@ class ShardDriver:
             "shards_computed": job.computed,
             "shards_reused": job.reused,
             "shards_rejected": job.rejected,
-            **self.kind.extra_stats(job.facts),
+            **self.kind_of(job).extra_stats(job.facts),
         }
         residues = np.concatenate(job.residues, axis=0)
-        self.results[job.n] = self.kind.assemble(job.facts, job.plan, residues, stats)
+        self.results[job.n] = self.kind_of(job).assemble(job.facts, job.plan, residues, stats)
         self.release(job.n)
 
     def release(self, n: int) -> None:

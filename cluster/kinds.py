@@ -57,6 +57,7 @@ from zeckenum.core.modular import check_mul_primes, mul_primes_exceeding
 from zeckenum.counting.count import assemble_count
 from zeckenum.counting.points import residues_from_values, root_of_unity, transform_order
 from zeckenum.counting.result import CountResult
+from zeckenum.counting.route import best_points
 from zeckenum.randomplay.exact import (
     LAW_PRIMES_PER_BLOCK,
     WIN_PRIMES_PER_BLOCK,
@@ -86,6 +87,9 @@ class ShardKind:
                   worker's address are left out: they differ between machines)
     release       release(ruleset, n), run on every Dask worker when n is done (frees what
                   the workers keep of n), or None
+    fallback      fallback(limit, in_flight) -> the kind to run instead when this kind's
+                  plan does not fit `limit` bytes per worker with `in_flight` shards at
+                  once (the windowed count falls back on evaluation points), or None
     checked       parameters a checkpoint must match that this kind's manifests do not
                   record (a missing one is read as `manifest.LEGACY_PARAMETERS` has it):
                   the windowed count's {"route": "windows"}, so that its manifests stay
@@ -106,6 +110,7 @@ class ShardKind:
     extra_stats: Callable[[Any], dict]
     fact_keys: tuple[str, ...] = ()
     release: Callable[..., Any] | None = None
+    fallback: Callable[[int, int], ShardKind | None] | None = None
     checked: dict = field(default_factory=dict)
 
 
@@ -135,7 +140,12 @@ def assemble_count_shards(
 
 
 def count_kind(ruleset: RuleSet) -> ShardKind:
-    """The exact count: primes below 2**62 for the size bound, `spectrum_residues_task` shards."""
+    """The exact count: primes below 2**62 for the size bound, `spectrum_residues_task` shards.
+
+    When its prime blocks do not fit a worker's memory it falls back on the count by
+    evaluation points with the largest shards that fit (`points_kind` with a limit): the
+    same rule as in-process (`counting.route`): the windowed sweep where it fits, else points.
+    """
     return ShardKind(
         name="count", label="count", ruleset=ruleset,
         facts_task=count_facts_task, facts_args=(),
@@ -149,7 +159,18 @@ def count_kind(ruleset: RuleSet) -> ShardKind:
         fact_keys=COUNT_FACT_KEYS,
         release=release_task,
         checked={"route": "windows"},
+        fallback=lambda limit, in_flight: points_kind(ruleset, None, limit, in_flight),
     )
+
+
+def points_within(facts: PointsFacts, limit: int, in_flight: int) -> int:
+    """The largest K (0 if none) whose `in_flight` shards of K points fit `limit` bytes
+    beside the worker's first-sweep data (`plan.worker_bytes`' terms), evened out over the
+    N points (`counting.route.best_points`)."""
+    order = transform_order(facts.longest - facts.shortest)
+    room = limit - facts.window_bytes - facts.shared_bytes
+    return best_points(room, max(1, in_flight), 8 * facts.points_words_one, facts.fixed_bytes,
+                       order)
 
 
 def assemble_points_shards(
@@ -183,15 +204,23 @@ def assemble_points_shards(
     )
 
 
-def points_kind(ruleset: RuleSet, points_per_shard: int | None) -> ShardKind:
+def points_kind(ruleset: RuleSet, points_per_shard: int | None, limit: int | None = None,
+                in_flight: int = 1) -> ShardKind:
     """The exact count by evaluation points: NTT primes below 2**50 for the size bound,
     `spectrum_points_task` shards of at most `points_per_shard` points (`points_plan`;
-    None: all N, split further when there are fewer shards than workers)."""
+    None: all N, split further when there are fewer shards than workers, and with `limit`
+    at most the largest K whose `in_flight` shards fit `limit` bytes per worker,
+    `points_within`)."""
     per = check_points_per_shard(points_per_shard)
 
     def plan(facts: PointsFacts, prime_offset: int = 0, workers: int = 1,
              blocks: int | None = None, max_primes_per_block: int | None = None) -> PointsPlan:
-        return points_plan(facts, prime_offset, per, workers)
+        k = per
+        if k is None and limit is not None:
+            k = points_within(facts, limit, in_flight)
+            unlimited = points_plan(facts, prime_offset, None, workers)
+            k = min(k, unlimited.per_shard) if k >= 1 else 1  # 0: refused by the driver
+        return points_plan(facts, prime_offset, k, workers)
 
     return ShardKind(
         name="count", label="count by points", ruleset=ruleset,

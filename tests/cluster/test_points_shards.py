@@ -112,6 +112,44 @@ def test_memory_per_worker_follows_the_points_per_shard(tmp_path) -> None:  # no
     assert res == zeckenum.count(n, points_per_shard=order // 4)
 
 
+def test_a_checkpointed_count_over_its_limit_falls_back_on_points_and_resumes_so(
+        tmp_path) -> None:  # noqa: ANN001
+    from zeckenum.cluster.count_tasks import points_facts_of, windows_with_facts
+    from zeckenum.cluster.plan import make_plan, points_plan, worker_bytes
+
+    n = 60
+    space, _, facts = windows_with_facts(zeckenum.STANDARD, n)
+    pf = points_facts_of(facts, space)
+    windows_need = worker_bytes(facts, make_plan(facts, 0, 2), threads=2)
+    one_point = worker_bytes(pf, points_plan(pf, 0, 1), threads=2)
+    assert one_point < windows_need  # else this n cannot show the fallback
+    limit = (one_point + windows_need) // 2
+    ran: list[int] = []
+
+    def stop_after_two(_n: int, i: int) -> None:
+        ran.append(i)
+        if len(ran) == 2:
+            raise Interrupt
+
+    with pytest.raises(Interrupt):
+        run_count(n, checkpoint_dir=tmp_path, threads=2, max_memory=limit,
+                  on_shard=stop_after_two)
+    m = _manifest(tmp_path)
+    assert m["parameters"]["route"] == "points"
+    per = m["plan"]["points_per_shard"]
+    assert worker_bytes(pf, points_plan(pf, 0, per), threads=2) <= limit
+    # resumed without any option: the checkpoint's own route and shape, 2 shards reused
+    res = run_count(n, checkpoint_dir=tmp_path, threads=2)
+    assert res.stats["shards_reused"] == 2
+    _assert_exact(res, n)
+    assert res == zeckenum.count(n, points_per_shard=per)
+    # with room for the prime blocks the same count stays windowed (no fallback)
+    wide = run_count(n, checkpoint_dir=tmp_path / "wide", threads=2,
+                     max_memory=windows_need)
+    assert _manifest(tmp_path / "wide")["parameters"].get("route", "windows") == "windows"
+    assert wide.length_counts == res.length_counts
+
+
 # ------------------------------------------------------------------ results, in threads
 
 
@@ -243,17 +281,19 @@ def test_route_and_shape_mismatches_are_refused_with_one_line(tmp_path) -> None:
     with pytest.raises(CheckpointRefused) as info:
         run_count(n, checkpoint_dir=windows, points_per_shard=4)
     _one_line(info.value, "route='windows'", "route='points'")
-    for call in (lambda: run_count(n, checkpoint_dir=points),
-                 lambda: run_count(n, checkpoint_dir=points, blocks=2)):
-        with pytest.raises(CheckpointRefused) as info:
-            call()
-        _one_line(info.value, "route='points'", "route='windows'")
+    with pytest.raises(CheckpointRefused) as info:  # prime blocks asked for explicitly
+        run_count(n, checkpoint_dir=points, blocks=2)
+    _one_line(info.value, "route='points'", "route='windows'")
     with pytest.raises(CheckpointRefused) as info:
         run_count(n, checkpoint_dir=points, points_per_shard=5)
     _one_line(info.value, "points_per_shard", "shard shape")
     for f, data in before.items():  # a refusal leaves the directory alone
         assert (f / "manifest.json").read_bytes() == data
     assert isinstance(info.value, InputError)  # exit status 2
+    # with the shape left to the planner, a points checkpoint resumes as points
+    again = run_count(n, checkpoint_dir=points)
+    assert again.stats["shards_computed"] == 0 and again.stats["shards_reused"] > 0
+    assert again == zeckenum.count(n, points_per_shard=4)
 
 
 def test_command_line_runs_points_with_a_checkpoint_and_refuses_another_route(
@@ -270,10 +310,14 @@ def test_command_line_runs_points_with_a_checkpoint_and_refuses_another_route(
     assert {int(k): int(v) for k, v in got["length_counts"].items()} == census(10)[
         "length_counts"]
     assert got["stats"]["method"] == "points"
-    res = runner.invoke(main, ["count", "10", "--checkpoint", ck])
+    again = runner.invoke(main, ["count", "10", "--checkpoint", ck, "--json"])
+    assert again.exit_code == 0, again.output  # the shape left to the planner: resumed
+    assert json.loads(again.output)["length_counts"] == got["length_counts"]
+    res = runner.invoke(main, ["count", "10", "--points-per-shard", "4", "--checkpoint", ck])
     assert res.exit_code == 2, res.output
     lines = res.output.strip().splitlines()
-    assert len(lines) == 1 and lines[0].startswith("zeckenum: error: ") and "route" in lines[0]
+    assert len(lines) == 1 and lines[0].startswith("zeckenum: error: ")
+    assert "points_per_shard" in lines[0]
 
 
 # A battery of generated manifest mutations (hypothesis, tests/support/manifest_mutations.py):
