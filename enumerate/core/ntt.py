@@ -88,6 +88,53 @@ def counts_from_values(values: Sequence[int], p: int, w: int) -> list[int]:
     return [x * ninv % p for x in a]
 
 
+def transform_size(degree: int) -> int:
+    """N = the least number of the form 2**k or 3 * 2**k above `degree` (a polynomial of
+    that degree is known from N values; the factor 3 wastes at most a third of the
+    points, a power of two alone up to half)."""
+    two = 1 << max(0, int(degree)).bit_length()
+    three = 3 * two // 4
+    return three if three > degree and three % 3 == 0 else two
+
+
+def root_of_order(p: int, order: int) -> int:
+    """An element of multiplicative order exactly `order` = 2**k or 3 * 2**k mod p
+    (p = 1 mod order)."""
+    if order == 1:
+        return 1
+    factors = [r for r in (2, 3) if order % r == 0]
+    for g in range(2, 1000):
+        w = pow(g, (p - 1) // order, p)
+        if all(pow(w, order // r, p) != 1 for r in factors):
+            return w
+    raise ValueError(f"no root of unity of order {order} found mod {p}")
+
+
+def coefficients_from_values(values: Sequence[int], p: int, w: int) -> list[int]:
+    """coefficient_j mod p for j = 0 .. N-1 from values[k] = G(w**k) mod p, w of order
+    N = len(values) = 2**k or 3 * 2**k.
+
+    For N = 3 M: c_j = 3**-1 * sum_{b < 3} w**(-j b) C_b[j mod M], where C_b are the
+    coefficients of the values at the indices b, b + 3, ... (an M-point transform with the
+    root w**3, `counts_from_values`, which already divides by M)."""
+    n = len(values)
+    if n & (n - 1) == 0:
+        return counts_from_values(values, p, w)
+    if n % 3 or (n // 3) & (n // 3 - 1):
+        raise ValueError(f"transform sizes are 2**k or 3 * 2**k, got {n}")
+    m = n // 3
+    w3 = pow(w, 3, p)
+    parts = [counts_from_values(list(values[b::3]), p, w3) for b in range(3)]
+    winv = pow(w, p - 2, p)
+    third = pow(3, p - 2, p)
+    out, f = [], 1  # f = w**(-j)
+    for j in range(n):
+        r = j % m
+        out.append((parts[0][r] + f * (parts[1][r] + f * parts[2][r])) % p * third % p)
+        f = f * winv % p
+    return out
+
+
 def point_blocks(order: int, per_shard: int) -> list[tuple[int, int]]:
     """[lo, hi) index ranges of the N points cut into blocks of at most `per_shard`."""
     return [(lo, min(order, lo + per_shard)) for lo in range(0, order, per_shard)]

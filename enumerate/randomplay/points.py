@@ -15,10 +15,12 @@ per-state factor x_t * D(s)**-1 is applied once per (state, point) from a small 
 pure vectorised add) or the row times its weight (model "pairs").
 
 Points and the transform.  G(x) = x**shortest * Q(x) with Q of degree longest - shortest
-(every game has between `shortest` and `longest` moves).  With N = the least power of two
-above longest - shortest (`law_order`) and q = 1 (mod N), the points are the N-th roots of
-unity w**k; Q(w**k) = G(w**k) * w**(-k shortest), and the inverse transform
-(`core.ntt.counts_from_values`) gives the coefficients P_(shortest+j) mod q for j < N.
+(every game has between `shortest` and `longest` moves).  With N = the least number
+2**k or 3 * 2**k above longest - shortest (`law_order`; a power of two alone would waste
+up to half of the points, this at most a third) and q = 1 (mod N), the points are the
+N-th roots of unity w**k; Q(w**k) = G(w**k) * w**(-k shortest), and the inverse transform
+(`core.ntt.coefficients_from_values`: radix 2, with one radix-3 step when 3 divides N)
+gives the coefficients P_(shortest+j) mod q for j < N.
 The coefficients above longest - shortest must be 0: a built-in check of every prime's
 values (CheckPrimeMismatch).  The primes are NTT-friendly (1 mod N) and lie in the proved
 ranges of the mul arithmetic (`core.modular.check_mul_primes`); their product exceeds the
@@ -54,7 +56,13 @@ from zeckenum.core.checks import (
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.modular import check_mul_primes, inverse_table, mulmod, reduce62
-from zeckenum.core.ntt import counts_from_values, ntt_primes_for_bits, point_blocks, root_of_unity
+from zeckenum.core.ntt import (
+    coefficients_from_values,
+    ntt_primes_for_bits,
+    point_blocks,
+    root_of_order,
+    transform_size,
+)
 from zeckenum.core.sweep import drop_stale, gather_passes
 from zeckenum.errors import CheckPrimeMismatch, InputError
 from zeckenum.randomplay.exact import RandomResult, assemble_random
@@ -74,8 +82,9 @@ MAX_POINTS_PER_SHARD = 1 << 20
 
 
 def law_order(shortest: int, longest: int) -> int:
-    """N = the least power of two above longest - shortest (the number of points)."""
-    return 1 << max(0, int(longest) - int(shortest)).bit_length()
+    """N = the least 2**k or 3 * 2**k above longest - shortest (the number of points,
+    `core.ntt.transform_size`)."""
+    return transform_size(max(0, int(longest) - int(shortest)))
 
 
 def check_points_per_shard(value: object) -> int:
@@ -230,7 +239,7 @@ def law_from_values(
     for v in values:
         shifted.append(int(v) * f % q)
         f = f * step % q
-    coeffs = counts_from_values(shifted, q, w)
+    coeffs = coefficients_from_values(shifted, q, w)
     top = longest - shortest
     if any(coeffs[top + 1 : order]):
         raise CheckPrimeMismatch(
@@ -277,7 +286,7 @@ def random_play_points(
     forecast = first + running * shard_bytes
     refuse_if_over(forecast, limit, f"the exact length law by evaluation points at n={n} "
                                     f"({running} shards of {per} points at once)")
-    roots = {q: root_of_unity(q, order) for q in allp}
+    roots = {q: root_of_order(q, order) for q in allp}
     shards = [(q, lo, hi) for q in allp for lo, hi in point_blocks(order, per)]
     unit = model == "moves"
 

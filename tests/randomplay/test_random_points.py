@@ -28,7 +28,12 @@ sys.path.insert(0, str(Path(__file__).parents[1] / "support"))
 import zeckenum.randomplay.points as rpp  # noqa: E402
 from fraction_bruteforce import length_law, win_law  # noqa: E402
 from zeckenum.cli.group import main  # noqa: E402
-from zeckenum.core.ntt import ntt_primes_for_bits, root_of_unity  # noqa: E402
+from zeckenum.core.ntt import (  # noqa: E402
+    coefficients_from_values,
+    ntt_primes,
+    ntt_primes_for_bits,
+    root_of_order,
+)
 from zeckenum.errors import CheckPrimeMismatch, InputError, MemoryRefused  # noqa: E402
 from zeckenum.randomplay.exact import random_play  # noqa: E402
 from zeckenum.randomplay.points import law_order, random_play_points  # noqa: E402
@@ -130,12 +135,35 @@ def test_primes_are_ntt_friendly_and_cover_the_denominator() -> None:
     prod = 1
     for q in (*res.primes, res.check_prime):
         assert sp.isprime(q) and q % order == 1 and 2**13 < q < 2**50
-        assert sp.n_order(root_of_unity(q, order), q) == order
+        assert sp.n_order(root_of_order(q, order), q) == order
     for q in res.primes:
         prod *= q
     assert prod > res.denominator and res.check_prime not in res.primes
     again, check = ntt_primes_for_bits(res.denominator.bit_length(), order)
     assert (again, check) == (list(res.primes), res.check_prime)
+
+
+# Source: a naive sum of the powers (every size), and sympy's number-theoretic transform
+# (sympy.discrete.transforms.ntt, powers of two only) on random coefficients.
+@pytest.mark.parametrize("order", [1, 2, 3, 4, 6, 8, 12, 48, 64, 384])
+def test_inverse_transform_recovers_random_polynomials(order: int) -> None:
+    import random
+
+    from sympy.discrete.transforms import ntt
+
+    rng = random.Random(order)
+    p = ntt_primes(order, 1)[0]
+    w = root_of_order(p, order)
+    assert sp.n_order(w, p) == order
+    coeffs = [rng.randrange(p) for _ in range(order)]
+    values = [sum(c * pow(w, k * j, p) for j, c in enumerate(coeffs)) % p
+              for k in range(order)]
+    assert coefficients_from_values(values, p, w) == coeffs
+    if order & (order - 1) == 0:
+        # sympy's forward transform uses the root g**((p-1)/N) of its primitive root g
+        ws = pow(sp.primitive_root(p), (p - 1) // order, p)
+        values = [int(x) for x in ntt(coeffs, p)]
+        assert coefficients_from_values(values, p, ws) == coeffs
 
 
 def _corrupt(monkeypatch: pytest.MonkeyPatch, how: str) -> None:
