@@ -41,7 +41,7 @@ def main() -> int:
         s = res.stats
         print(f"| {n} | {t1 - t0:.2f} | {ref.stats['word_updates']:.3g} | {t2 - t1:.2f} | "
               f"{s['word_updates']:.3g} | {s['word_updates'] / s['seconds_exact']:.3g} | "
-              f"{s['shards']} | {s['shard_peak_bytes'] / 2**20:.1f} MiB | "
+              f"{s['shards']} | {s['memory_per_shard_bytes'] / 2**20:.1f} MiB | "
               f"{(t2 - t1) / (t1 - t0):.2f} |")
     return 0
 

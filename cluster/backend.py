@@ -57,14 +57,15 @@ STALL_TIMEOUT = 600.0
 """Default seconds without any worker and without a finished task before a run stops."""
 STALL_ENV = "ZECKENUM_STALL_TIMEOUT"
 
-WARM_KINDS = ("count", "random", "solve")
+WARM_KINDS = ("count", "points", "random", "solve")
 """Kinds of run whose kernels `warm_up` knows how to compile."""
 
 
 def warm_up(kinds: tuple[str, ...] = ("count",)) -> None:
     """Compile (or load) the kernels of each kind of run in `kinds` in this process, once:
-    "count" (a tiny `count`), "random" (a tiny `random_play`, length law and winners) and
-    "solve" (tiny solves: two and three players, with and without the reachability sweep)."""
+    "count" (a tiny `count`), "points" (a tiny count by evaluation points), "random" (a
+    tiny `random_play`, length law and winners) and "solve" (tiny solves: two and three
+    players, with and without the reachability sweep)."""
     with _warm:
         for kind in kinds:
             if kind in _warmed:
@@ -73,6 +74,10 @@ def warm_up(kinds: tuple[str, ...] = ("count",)) -> None:
                 from zeckenum.counting.count import count
 
                 count(5, threads=1)
+            elif kind == "points":
+                from zeckenum.counting.points import count_points
+
+                count_points(5, points_per_shard=1, threads=1)
             elif kind == "random":
                 from zeckenum.randomplay.exact import random_play
 

@@ -41,6 +41,14 @@ the field and both values).  The reading, writing and checks every checkpoint sh
 * every shard entry names its canonical file (`shard-<i>.npy`); any other name (`../x`, an
   absolute path, another shard's file) refuses the directory.
 
+A count by evaluation points (`plan.PointsPlan`) keeps the same layout: its parameters
+add route "points" (a prime-block manifest has no route and reads as "windows", so either
+resumed as the other is refused by `manifest.check_parameters`), its plan records the
+route, N ("points", also the manifest's "columns") and the points per shard, and must
+equal the recomputed plan exactly (another shard shape is refused with one line); a shard
+file holds the int64 values of one (prime, block of points), shape (hi - lo,), each below
+its prime.
+
 A shard file itself may be damaged without anyone editing the manifest: each finished shard
 is re-read with `safeio.member` (a regular file inside the directory, not a symlink) and
 `safeio.read_regular` capped at its exact expected size, then checked (SHA-256, shape and
@@ -52,6 +60,7 @@ reported with one warning line and recomputed, never used and never opened block
 from __future__ import annotations
 
 import io
+import json
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -74,7 +83,7 @@ from zeckenum.cluster.manifest import (
     short,
     warn,
 )
-from zeckenum.cluster.plan import ShardPlan, split_evenly
+from zeckenum.cluster.plan import AnyPlan, PointsPlan, ShardPlan, split_evenly
 from zeckenum.errors import OutputError
 from zeckenum.rules.model import RuleSet
 
@@ -102,7 +111,7 @@ COUNT_KIND = {"kind": "count"}
 """The kind parameters of a count (and of every manifest written before kinds existed)."""
 
 
-def parameters(plan: ShardPlan, kind: dict | None = None) -> dict:
+def parameters(plan: AnyPlan, kind: dict | None = None) -> dict:
     """What must match for a checkpoint to be reused: the kind of run first ("kind" and the
     kind's own parameters, default a count), then rule set, n, prime offset and version."""
     kind = COUNT_KIND if kind is None else kind
@@ -131,7 +140,7 @@ class Checkpoint(ManifestDir):
     """
 
     root: Path
-    plan: ShardPlan
+    plan: AnyPlan
     facts: dict
     shards: list[dict] = field(default_factory=list)
     kind: dict = field(default_factory=lambda: dict(COUNT_KIND))
@@ -185,8 +194,8 @@ class Checkpoint(ManifestDir):
         entry = self.shards[i]
         if not entry.get("sha256"):
             return None
-        block = np.asarray(self.plan.blocks[i], dtype=np.int64)
-        shape = (block.size, self.shard_columns)
+        moduli = self.plan.shard_moduli(i)
+        shape = self.plan.shard_shape(i, self.shard_columns)
         name = self.shard_name(i)
         path = self.root / name
         residues = None
@@ -202,7 +211,7 @@ class Checkpoint(ManifestDir):
                 problem = f"has shape {residues.shape}, expected {shape}"
                 residues = None
             elif residues.size and (
-                residues.min() < 0 or np.any(residues >= block[:, None])
+                residues.min() < 0 or np.any(residues >= moduli)
             ):
                 problem = "holds residues outside [0, p)"
                 residues = None
@@ -235,12 +244,13 @@ class Stored:
     data: dict
     shards: list[dict]
 
-    def verify(self, kind: dict, facts: dict, fact_keys: tuple[str, ...], fresh: ShardPlan,
+    def verify(self, kind: dict, facts: dict, fact_keys: tuple[str, ...], fresh: AnyPlan,
                columns: int, ruleset: RuleSet) -> Checkpoint:
         """The checkpoint to resume, built from the recomputed `facts` (`to_dict` form) and
-        the recomputed plan `fresh` (its primes, check prime and game; its blocking is
-        ignored): CheckpointRefused on any result-bearing fact, prime, check prime, block
-        split or column count that differs from the manifest's."""
+        the recomputed plan `fresh` (its primes, check prime and game; the blocking of a
+        prime-block plan is ignored, a points plan must be the same): CheckpointRefused on
+        any result-bearing fact, prime, check prime, block split, shard shape or column
+        count that differs from the manifest's."""
         root, data = self.root, self.data
         stored_facts = data.get("facts")
         if not isinstance(stored_facts, dict):
@@ -273,14 +283,12 @@ class Stored:
                     f"checkpoint {root} records {where}check_prime="
                     f"{short(doc.get('check_prime'))}, but the recomputed check prime is "
                     f"{want_check}; use another directory")
-        allp = fresh.all_primes
-        blocks = plan.get("blocks")
-        nb = len(blocks) if isinstance(blocks, list) else 0
-        split = split_evenly(allp, nb) if 1 <= nb <= len(allp) else None
-        if split is None or not same(blocks, [[str(p) for p in b] for b in split]):
-            raise CheckpointRefused(
-                f"checkpoint {root} records plan.blocks that are not an even split of the "
-                f"{len(allp)} recomputed primes (check prime last); use another directory")
+        verified: AnyPlan
+        if isinstance(fresh, PointsPlan):
+            verified = same_points_plan(root, plan, fresh)
+        else:
+            verified = prime_block_plan(root, plan, fresh)
+        nb = len(verified.blocks)
         if not same(data.get("columns"), columns):
             raise CheckpointRefused(
                 f"checkpoint {root} records columns={short(data.get('columns'))}, but the "
@@ -289,12 +297,53 @@ class Stored:
                                {"word_updates": _word_updates_ok})
         shards = [e if e["sha256"] else blank_entry(i) for i, e in enumerate(shards)]
         refuse_folders_in_the_way(root, [shard_name(i) for i in range(nb)])
-        verified = ShardPlan(rules=fresh.rules, rules_hash=fresh.rules_hash, n=fresh.n,
-                             prime_offset=fresh.prime_offset, primes=fresh.primes,
-                             check_prime=fresh.check_prime, blocks=split)
         remove_stale(root)
         return Checkpoint(root=root, plan=verified, facts=dict(facts), shards=shards,
                           kind=dict(kind), columns=columns, rules_text=rules_text(ruleset))
+
+
+def prime_block_plan(root: Path, plan: dict, fresh: ShardPlan) -> ShardPlan:
+    """The plan of a prime-block manifest: `fresh` with the manifest's blocking, refused
+    unless that blocking is an even split of exactly the recomputed primes (and the plan
+    records no other route)."""
+    if "route" in plan and not same(plan["route"], ShardPlan.route):
+        raise CheckpointRefused(
+            f"checkpoint {root} records plan.route={short(plan['route'])}, not "
+            f"{ShardPlan.route!r}; use another directory")
+    allp = fresh.all_primes
+    blocks = plan.get("blocks")
+    nb = len(blocks) if isinstance(blocks, list) else 0
+    split = split_evenly(allp, nb) if 1 <= nb <= len(allp) else None
+    if split is None or not same(blocks, [[str(p) for p in b] for b in split]):
+        raise CheckpointRefused(
+            f"checkpoint {root} records plan.blocks that are not an even split of the "
+            f"{len(allp)} recomputed primes (check prime last); use another directory")
+    return ShardPlan(rules=fresh.rules, rules_hash=fresh.rules_hash, n=fresh.n,
+                     prime_offset=fresh.prime_offset, primes=fresh.primes,
+                     check_prime=fresh.check_prime, blocks=split)
+
+
+def _canonical(value: object) -> str:
+    """JSON text that tells types apart (true is not 1, 3.0 is not 3), keys sorted."""
+    return json.dumps(value, sort_keys=True)
+
+
+def same_points_plan(root: Path, plan: dict, fresh: PointsPlan) -> PointsPlan:
+    """`fresh` when the manifest's plan is exactly its JSON form (route, N, points per
+    shard, blocks), else CheckpointRefused naming the first field that differs."""
+    want = fresh.to_dict()
+    for key in ("route", "points", "points_per_shard", *want):
+        if _canonical(plan.get(key)) != _canonical(want[key]):
+            what = ("another shard shape" if key in ("points", "points_per_shard", "blocks")
+                    else "another plan")
+            raise CheckpointRefused(
+                f"checkpoint {root} records plan.{key}={short(plan.get(key))}, not "
+                f"{short(want[key])} ({what}); use another directory")
+    extra = sorted(set(plan) - set(want), key=str)
+    if extra:
+        raise CheckpointRefused(f"checkpoint {root} records plan.{short(extra[0])}, which a "
+                                "points plan does not have; use another directory")
+    return fresh
 
 
 def open_existing(root: Path, wanted: dict, ruleset: RuleSet | None = None) -> Stored | None:
@@ -316,7 +365,7 @@ def open_existing(root: Path, wanted: dict, ruleset: RuleSet | None = None) -> S
 
 
 def create(
-    root: Path, plan: ShardPlan, facts: dict, kind: dict | None = None,
+    root: Path, plan: AnyPlan, facts: dict, kind: dict | None = None,
     columns: int | None = None, ruleset: RuleSet | None = None,
 ) -> Checkpoint:
     """A new checkpoint for `plan` in `root` (created if needed), manifest written.

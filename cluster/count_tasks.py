@@ -16,6 +16,12 @@ report the result (states, transitions, shortest, longest).  On a cluster the cl
 it to every worker at once, so each worker warms its cache in parallel and the client
 itself stays light (it may be a laptop driving a large cluster).  Random play's twins
 live in `random_tasks`.
+
+The count by evaluation points (`counting.points`) shards by (prime, block of point
+indices): `spectrum_points_task(rules, n, (prime, N, lo, hi))` is the twin of one shard
+of `points.count_points`; it uses the same cached first sweep and returns the values
+G(w**k) mod prime, k in [lo, hi), as one int64 row.  `points_facts_task` adds to the
+`Facts` the words per point of a shard (`PointsFacts`), which sizes its memory.
 """
 
 from __future__ import annotations
@@ -26,11 +32,17 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 from zeckenum.cluster.workercache import WorkerCache, worker_address
-from zeckenum.core.listing import moves_in
 from zeckenum.core.memory import available_bytes
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.sweep import Windows
 from zeckenum.counting.count import count_windows
+from zeckenum.counting.points import (
+    points_peak_words,
+    root_of_unity,
+    spectrum_points,
+    transform_order,
+)
+from zeckenum.counting.route import sweep_updates
 from zeckenum.counting.spectrum import peak_words, spectrum_residues
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
@@ -77,29 +89,6 @@ class Facts:
         return asdict(self)
 
 
-def updates_per_prime(space: StateSpace, windows: Windows) -> int:
-    """Word updates `spectrum_residues` does per prime: one per (kept move, source length)."""
-    total = 0
-    if windows.incoming is None:
-        for level in windows.win:
-            lm = moves_in(space, level)
-            for d in np.unique(lm.drop):
-                src_level = level + int(d)
-                if src_level not in windows.win:
-                    continue
-                sel = lm.drop == d
-                total += int(windows.win[src_level][lm.other[sel]].astype(np.int64).sum())
-        return total
-    for level, inc in windows.incoming.items():
-        for d in np.unique(inc.drop):
-            src_level = level + int(d)
-            if src_level not in windows.win:
-                continue
-            sel = inc.drop == d
-            total += int(windows.win[src_level][inc.src[sel]].astype(np.int64).sum())
-    return total
-
-
 def windows_with_facts(
     ruleset: RuleSet, n: int, limit: int | None = None, threads: int = 1
 ) -> tuple[StateSpace, Windows, Facts]:
@@ -141,7 +130,7 @@ def facts_of(
         shared_bytes=sum(inc.nbytes for inc in (windows.incoming or {}).values()),
         fixed_bytes=fixed,
         window_bytes=8 * space.total_states(),
-        updates_one=updates_per_prime(space, windows),
+        updates_one=sweep_updates(space, windows)[0],
         seconds_windows=round(seconds, 3),
     )
 
@@ -228,3 +217,47 @@ def spectrum_residues_task(
     """
     space, windows, _ = prepared(rules, n)
     return spectrum_residues(space, windows, list(primes_block))
+
+
+@dataclass(frozen=True)
+class PointsFacts(Facts):
+    """`Facts` plus what a shard of the count by evaluation points needs to be sized.
+
+    points_words_one  int64 words one point of a shard holds at its peak
+                      (`points.points_peak_words(space, 1)`: max_drop + 1 layers of the
+                      largest layer)
+    """
+
+    points_words_one: int = 0
+
+
+def points_facts_of(facts: Facts, space: StateSpace) -> PointsFacts:
+    """`facts` (of the game `space`) with the words per point of a points shard."""
+    return PointsFacts(**facts.to_dict(), points_words_one=points_peak_words(space, 1))
+
+
+def points_facts_task(rules: str | RuleSet, n: int) -> PointsFacts:
+    """Run (or reuse) the first sweep of (rules, n) here and return its `PointsFacts`."""
+    space, _, facts = prepared(rules, n)
+    return points_facts_of(Facts(**{**facts.to_dict(), "where": worker_address()}), space)
+
+
+def spectrum_points_task(
+    rules: str | RuleSet, n: int, shard: tuple[int, int, int, int] | list[int]
+) -> tuple[np.ndarray, int]:
+    """(values, word updates) of one shard (prime, N, lo, hi) of the count by evaluation
+    points: values[k - lo] = G(w**k) mod prime for k in [lo, hi), w of order N mod prime
+    (`points.root_of_unity`), G the game's length polynomial.
+
+    The cluster twin of one shard of `points.count_points`: rebuilds (or reuses) the game's
+    windows in this process and calls the same `points.spectrum_points`.  N must be the
+    game's own (`points.transform_order` of its length span), else ValueError.
+    """
+    space, windows, _ = prepared(rules, n)
+    q, order, lo, hi = (int(x) for x in shard)
+    own = transform_order(windows.longest - windows.shortest)
+    if order != own or not 0 <= lo < hi <= order:
+        raise ValueError(f"shard {tuple(shard)} does not fit the {own} points of n = {n}")
+    w = root_of_unity(q, order)
+    values, updates = spectrum_points(space, windows, q, [pow(w, k, q) for k in range(lo, hi)])
+    return np.asarray(values, dtype=np.int64), int(updates)

@@ -11,7 +11,9 @@ supplies what differs.  The flow for one n:
    2**50 with a product above its denominator), plus the check prime, cut into equal
    blocks, a multiple of the workers (`plan.plan_from_primes`).
 3. Shards: one shard task per block (`count_tasks.spectrum_residues_task`,
-   `random_tasks.random_law_residues_task`, `random_tasks.random_win_residues_task`); each
+   `random_tasks.random_law_residues_task`, `random_tasks.random_win_residues_task`; a
+   count by evaluation points: one per (prime, block of points),
+   `count_tasks.spectrum_points_task`, planned by `plan.points_plan`); each
    finished shard is written to the checkpoint (if any) as soon as it arrives (`collect`,
    `store_shard`).
 4. The kind's assembly rebuilds the result by the CRT, checked against the check prime,
@@ -62,7 +64,7 @@ from zeckenum.cluster.backend import (
     stall_seconds,
 )
 from zeckenum.cluster.kinds import ShardKind
-from zeckenum.cluster.plan import ShardPlan, worker_bytes
+from zeckenum.cluster.plan import AnyPlan, worker_bytes
 from zeckenum.core.memory import available_bytes, refuse_if_over
 from zeckenum.counting.count import check_n
 from zeckenum.errors import InputError
@@ -76,7 +78,7 @@ class _Job:
 
     n: int
     facts: Any = None
-    plan: ShardPlan | None = None
+    plan: AnyPlan | None = None
     cp: ckpt.Checkpoint | None = None
     stored: ckpt.Stored | None = None  # a manifest to verify against the first sweep
     residues: list = field(default_factory=list)
@@ -99,13 +101,15 @@ def worker_limit(pool: Pool) -> int | None:
 
 
 def wanted_parameters(kind: ShardKind, n: int, prime_offset: int) -> dict:
-    """The parameters a checkpoint of this run must have been written for, kind first."""
+    """The parameters a checkpoint of this run must have been written for, kind first
+    (then the kind's `checked` ones, e.g. a count's route)."""
     from zeckenum import __version__
 
     return {
         "kind": kind.name,
         "rules": kind.ruleset.name, "rules_hash": kind.ruleset.content_hash(), "n": n,
         "prime_offset": prime_offset, "version": __version__,
+        **kind.checked,
         **{k: v for k, v in kind.parameters.items() if k != "kind"},
     }
 
@@ -234,7 +238,8 @@ class ShardDriver:
         else:
             _, n, i = tag
             fut = self.pool.submit(kind.shard_task, self.ruleset, n, *kind.shard_args,
-                                   self.jobs[n].plan.blocks[i], priority=1, prefer=prefer)
+                                   self.jobs[n].plan.shard_input(i), priority=1,
+                                   prefer=prefer)
         self.tags[fut] = tag
         if prefer is not None:
             self.hints[fut] = prefer
@@ -301,11 +306,11 @@ class ShardDriver:
 
     # --------------------------------------------------------------- plan and checkpoint
 
-    def plan_for(self, facts: Any) -> ShardPlan:
+    def plan_for(self, facts: Any) -> AnyPlan:
         return self.kind.plan(facts, self.prime_offset, self.nworkers, self.blocks,
                               self.max_primes_per_block)
 
-    def refuse_over_limit(self, job: _Job, facts: Any, plan: ShardPlan) -> None:
+    def refuse_over_limit(self, job: _Job, facts: Any, plan: AnyPlan) -> None:
         """MemoryRefused when the shards of `plan` in flight exceed one worker's limit."""
         if self.limit is not None:
             threads = self.nworkers if isinstance(self.pool, ThreadPool) else 1

@@ -12,6 +12,10 @@ path uses).
 count   facts `count_tasks.count_facts_task`, shards `count_tasks.spectrum_residues_task`,
         assembly `count.assemble_count`, release `count_tasks.release_task` (the host's
         shared sweep)
+count by evaluation points (route "points", `points_kind`): facts
+        `count_tasks.points_facts_task`, plan `plan.points_plan`, shards
+        `count_tasks.spectrum_points_task` (prime, block of points), assembly
+        `points.residues_from_values` per prime, then `count.assemble_count`
 random  facts `random_tasks.random_facts_task`, shards
         `random_tasks.random_law_residues_task` (length law) or
         `random_tasks.random_win_residues_task` (winners only), assembly
@@ -21,17 +25,28 @@ random  facts `random_tasks.random_facts_task`, shards
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 from zeckenum.cluster.count_tasks import (
     Facts,
+    PointsFacts,
     count_facts_task,
+    points_facts_task,
     release_task,
+    spectrum_points_task,
     spectrum_residues_task,
 )
-from zeckenum.cluster.plan import ShardPlan, make_plan, plan_from_primes
+from zeckenum.cluster.plan import (
+    AnyPlan,
+    PointsPlan,
+    ShardPlan,
+    check_points_per_shard,
+    make_plan,
+    plan_from_primes,
+    points_plan,
+)
 from zeckenum.cluster.random_tasks import (
     RandomFacts,
     random_facts_task,
@@ -40,6 +55,7 @@ from zeckenum.cluster.random_tasks import (
 )
 from zeckenum.core.modular import check_mul_primes, mul_primes_exceeding
 from zeckenum.counting.count import assemble_count
+from zeckenum.counting.points import residues_from_values, root_of_unity, transform_order
 from zeckenum.counting.result import CountResult
 from zeckenum.randomplay.exact import (
     LAW_PRIMES_PER_BLOCK,
@@ -59,7 +75,8 @@ class ShardKind:
     facts_task    facts_task(ruleset, n, *facts_args) -> facts (the first sweep, on a worker)
     shard_task    shard_task(ruleset, n, *shard_args, block) -> (residues, word updates),
                   residues int64 of shape (primes in block, columns)
-    parameters    the kind parameters a checkpoint must match, "kind" first
+    parameters    the kind parameters a checkpoint must match, "kind" first (written
+                  into its manifest)
     plan          plan(facts, prime_offset, workers, blocks, max_primes_per_block)
     columns       columns(facts): residues per prime of every shard
     assemble      assemble(facts, plan, residues of all blocks stacked, stats) -> result
@@ -69,6 +86,10 @@ class ShardKind:
                   worker's address are left out: they differ between machines)
     release       release(ruleset, n), run on every Dask worker when n is done (frees what
                   the workers keep of n), or None
+    checked       parameters a checkpoint must match that this kind's manifests do not
+                  record (a missing one is read as `manifest.LEGACY_PARAMETERS` has it):
+                  the windowed count's {"route": "windows"}, so that its manifests stay
+                  as they were and a points checkpoint is still refused
     """
 
     name: str
@@ -79,12 +100,13 @@ class ShardKind:
     shard_task: Callable[..., tuple[np.ndarray, int]]
     shard_args: tuple
     parameters: dict
-    plan: Callable[..., ShardPlan]
+    plan: Callable[..., AnyPlan]
     columns: Callable[[Any], int]
-    assemble: Callable[[Any, ShardPlan, np.ndarray, dict], Any]
+    assemble: Callable[[Any, Any, np.ndarray, dict], Any]
     extra_stats: Callable[[Any], dict]
     fact_keys: tuple[str, ...] = ()
     release: Callable[..., Any] | None = None
+    checked: dict = field(default_factory=dict)
 
 
 # ----------------------------------------------------------------------------- count
@@ -122,6 +144,63 @@ def count_kind(ruleset: RuleSet) -> ShardKind:
         plan=make_plan,
         columns=lambda facts: facts.longest + 1,
         assemble=assemble_count_shards,
+        extra_stats=lambda facts: {"count_bits": facts.count_bits,
+                                   "terminal_states": facts.terminals},
+        fact_keys=COUNT_FACT_KEYS,
+        release=release_task,
+        checked={"route": "windows"},
+    )
+
+
+def assemble_points_shards(
+    facts: Facts, plan: PointsPlan, values: np.ndarray, stats: dict
+) -> CountResult:
+    """The count from the values of all shards of a points plan, stacked in block order:
+    per prime its N values (every index covered exactly once, else ValueError), the
+    inverse transform (`points.residues_from_values`, which checks that no term lies
+    outside the game's lengths), then `count.assemble_count` as in-process."""
+    order = plan.order
+    allp = plan.all_primes
+    table = {q: np.zeros(order, dtype=np.int64) for q in allp}
+    seen = {q: np.zeros(order, dtype=np.int64) for q in allp}
+    at = 0
+    for q, lo, hi in plan.blocks:
+        table[q][lo:hi] = values[at : at + hi - lo]
+        seen[q][lo:hi] += 1
+        at += hi - lo
+    if at != values.size or any(np.any(seen[q] != 1) for q in allp):
+        raise ValueError("the shards of a points plan do not cover every point once")
+    residues = np.zeros((len(allp), facts.longest + 1), dtype=np.int64)
+    for row, q in enumerate(allp):
+        residues[row, :] = residues_from_values(table[q].tolist(), q, root_of_unity(q, order),
+                                                facts.shortest, facts.longest)
+    stats = {k: v for k, v in stats.items() if k != "prime_blocks"}
+    stats.update(method="points", points=order, points_per_shard=plan.per_shard,
+                 shards=len(plan.blocks))
+    return assemble_count(
+        facts.rules, facts.rules_hash, facts.n, facts.states, facts.transitions,
+        facts.shortest, facts.longest, list(plan.primes), plan.check_prime, residues, stats,
+    )
+
+
+def points_kind(ruleset: RuleSet, points_per_shard: int | None) -> ShardKind:
+    """The exact count by evaluation points: NTT primes below 2**50 for the size bound,
+    `spectrum_points_task` shards of at most `points_per_shard` points (`points_plan`;
+    None: all N, split further when there are fewer shards than workers)."""
+    per = check_points_per_shard(points_per_shard)
+
+    def plan(facts: PointsFacts, prime_offset: int = 0, workers: int = 1,
+             blocks: int | None = None, max_primes_per_block: int | None = None) -> PointsPlan:
+        return points_plan(facts, prime_offset, per, workers)
+
+    return ShardKind(
+        name="count", label="count by points", ruleset=ruleset,
+        facts_task=points_facts_task, facts_args=(),
+        shard_task=spectrum_points_task, shard_args=(),
+        parameters={"kind": "count", "route": "points"},
+        plan=plan,
+        columns=lambda facts: transform_order(facts.longest - facts.shortest),
+        assemble=assemble_points_shards,
         extra_stats=lambda facts: {"count_bits": facts.count_bits,
                                    "terminal_states": facts.terminals},
         fact_keys=COUNT_FACT_KEYS,

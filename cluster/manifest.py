@@ -49,8 +49,10 @@ MAX_JSON_DEPTH = 64
 """Deepest bracket nesting of a manifest (ours is 4 deep, 6 counting the brackets inside
 its rule text); deeper is refused unparsed."""
 SHA_RE = re.compile(r"^[0-9a-f]{64}$")
-LEGACY_PARAMETERS = {"kind": "count"}
-"""How a missing parameter is read: a manifest without a kind was written by a count."""
+LEGACY_PARAMETERS = {"kind": "count", "route": "windows"}
+"""How a missing parameter is read: a manifest without a kind was written by a count, one
+without a route by the windowed count (prime blocks; a count by evaluation points records
+route "points")."""
 _MISSING = object()
 
 

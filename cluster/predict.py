@@ -5,7 +5,7 @@ calibrated on this machine.
 
 count   (`predict_count`)  Exact: the states of the state space (`StateSpace.total_states()`),
         and from the first sweep (cheap next to the exact sweep) the reachable states,
-        transitions, the primes, and the exact sweep's word updates (`tasks.updates_per_prime`
+        transitions, the primes, and the exact sweep's word updates (`counting.route.sweep_updates`
         times the number of primes, equal to `stats["word_updates"]` of the run).  Rate: word
         updates per second of a probe count (`probe_rate`, one thread, in-process).
 random  (`predict_random`)  Exact: random play's first sweep (`random_tasks.random_facts_task`,
@@ -31,6 +31,7 @@ from __future__ import annotations
 import math
 import textwrap
 import time
+from dataclasses import replace
 
 from zeckenum.cluster.count_tasks import Facts, windows_with_facts
 from zeckenum.cluster.kinds import random_kind
@@ -39,10 +40,26 @@ from zeckenum.cluster.random_tasks import RandomFacts
 from zeckenum.cluster.solve_chain import plan_ranges
 from zeckenum.core.checks import check_n, check_players, check_random_args
 from zeckenum.core.memory import human, resolve_limit
-from zeckenum.core.modular import mul_primes
+from zeckenum.core.modular import mul_primes, primes_for_bits
 from zeckenum.core.statespace import StateSpace, build_space
+from zeckenum.core.sweep import moves_into
 from zeckenum.core.text import plural
-from zeckenum.counting.count import count, refuse_count
+from zeckenum.counting.count import count, count_space, count_windows, refuse_count
+from zeckenum.counting.points import (
+    ntt_primes,
+    root_of_unity,
+    spectrum_points,
+    transform_order,
+)
+from zeckenum.counting.route import (
+    CountSizes,
+    RoutePlan,
+    choose_count_route,
+    count_sizes,
+    refuse_below,
+    routed_space,
+)
+from zeckenum.counting.spectrum import spectrum_residues
 from zeckenum.errors import InputError
 from zeckenum.optimal.classify import reachable_bits
 from zeckenum.optimal.solve import (
@@ -157,15 +174,21 @@ def shard_forecast(facts: Facts | RandomFacts, plan: ShardPlan, workers: int, ra
 def predict_count(
     n: int, rules: str | RuleSet = "standard", workers: int = 1, *,
     blocks: int | None = None, probe_n: int = PROBE_N, max_memory: int | None = None,
+    cores_per_worker: int | None = None,
 ) -> dict:
     """Forecast of `run_count(n, workers=workers)`: exact sizes, shards, memory, time.
 
     Runs the first sweep of n, so it is refused first, like the count itself
-    (`count.refuse_count`), against `max_memory` (default: what is available)."""
+    (`count.refuse_count`), against `max_memory` (default: what is available).  With
+    `max_memory` (per worker) or `cores_per_worker`, the route and shard shape are chosen
+    under that memory (`predict_count_route`)."""
     n = check_n(n)
     _check_workers(workers)
     check_probe(probe_n)
     ruleset = get_rules(rules)
+    if max_memory is not None or cores_per_worker is not None:
+        return predict_count_route(n, ruleset, workers, resolve_limit(max_memory),
+                                   cores_per_worker or 1, probe_n)
     refuse_count(n, ruleset, max_memory=max_memory)
     rate = probe_rate(probe_n, ruleset, max_memory)
     space, windows, facts = windows_with_facts(ruleset, n)
@@ -178,6 +201,134 @@ def predict_count(
         "transitions": facts.transitions,
         "count_bits": facts.count_bits,
         **shard_forecast(facts, plan, workers, rate),
+    }
+
+
+def probe_route_rate(route: RoutePlan, probe_n: int = PROBE_N,
+                     rules: str | RuleSet = "standard") -> dict:
+    """Word updates per second of one shard of `route`'s kind on one thread of this machine,
+    and, when the route lists the moves again per shard, the seconds that costs per move.
+
+    The probe game's first sweep (not timed), then one shard of the route's shape on the
+    kept moves, repeated until it has run PROBE_MIN_SECONDS: a block of `primes_per_shard`
+    primes below 2**62 (`spectrum_residues`) or a block of `points_per_shard` points (at
+    most the probe's N) mod one prime (`spectrum_points`); rate = the word updates they
+    report / their seconds.  Re-listing (`core.sweep.moves_into` without kept moves) is
+    timed over every layer of the probe: seconds per move listed."""
+    check_probe(probe_n)
+    ruleset = get_rules(rules)
+    count(5, ruleset, threads=1)  # compile / load kernels outside the measurement
+    count(5, ruleset, threads=1, points_per_shard=1)
+    space = count_space(ruleset.instantiate(probe_n), resolve_limit(None))
+    windows, _ = count_windows(space, probe_n, resolve_limit(None))
+    if route.route == "points":
+        order = transform_order(windows.longest - windows.shortest)
+        q = ntt_primes(order, 1)[0]
+        w = root_of_unity(q, order)
+        pts = [pow(w, k, q) for k in range(min(route.points_per_shard, order))]
+
+        def shard() -> int:
+            return spectrum_points(space, windows, q, pts)[1]
+    else:
+        block = primes_for_bits(62 * route.primes_per_shard)[0][: route.primes_per_shard]
+
+        def shard() -> int:
+            return spectrum_residues(space, windows, block)[1]
+    t0 = time.perf_counter()
+    updates, spent, repeats = 0, 0.0, 0
+    while repeats < PROBE_MAX_REPEATS and (repeats == 0 or spent < PROBE_MIN_SECONDS):
+        t1 = time.perf_counter()
+        updates += shard()
+        spent += time.perf_counter() - t1
+        repeats += 1
+    relist = 0.0
+    if not route.keep_moves:
+        bare = replace(windows, incoming=None)
+        t1 = time.perf_counter()
+        listed = sum(int(moves_into(space, bare, lv)[1].size) for lv in windows.win)
+        relist = (time.perf_counter() - t1) / max(1, listed)
+    return {
+        "probe_n": probe_n,
+        "probe_seconds": round(time.perf_counter() - t0, 3),
+        "updates_per_second": _rate(updates, max(spent, 1e-6), f"count n={probe_n}"),
+        "relist_seconds_per_move": relist,
+    }
+
+
+def route_forecast(sizes: CountSizes, route: RoutePlan, workers: int, cores: int,
+                   seconds_first: float, rate: dict) -> dict:
+    """Shards, memory and time of a routed count.  Each of `workers` workers holds the first
+    sweep's data once and runs `cores` shards at a time; a shard takes its word updates /
+    rate["updates_per_second"] (one core's probe rate: the cores are assumed not to slow
+    each other down) plus, when the moves are listed again, every move x
+    rate["relist_seconds_per_move"].  Time = the first sweep (every worker runs it, in
+    parallel) + the busiest core's shards."""
+    if route.route == "points":
+        per_shard = route.points_per_shard * sizes.point_updates
+        shape = {"points": route.points, "points_per_shard": route.points_per_shard}
+    else:
+        per_shard = route.primes_per_shard * sizes.window_updates
+        shape = {"primes_per_shard": route.primes_per_shard}
+    speed = rate["updates_per_second"]
+    shard_seconds = per_shard / speed + sizes.moves * rate.get("relist_seconds_per_move", 0.0)
+    per_core = -(-route.shards // (workers * cores))
+    one_worker = -(-route.shards // cores)
+    return {
+        "route": route.route,
+        "keep_moves": route.keep_moves,
+        "primes": route.primes,
+        "shards": route.shards,
+        **shape,
+        "memory_per_shard_bytes": route.shard_bytes,
+        "memory_per_shard": human(route.shard_bytes),
+        "memory_shared_bytes": route.shared_bytes,
+        "memory_per_worker_bytes": route.peak_bytes,
+        "memory_per_worker": human(route.peak_bytes),
+        "word_updates": route.word_updates,
+        "word_updates_per_shard": per_shard,
+        "seconds_first_sweep": round(seconds_first, 3),
+        "updates_per_second": round(speed),
+        "seconds_per_shard": round(shard_seconds, 3),
+        "predicted_seconds": round(seconds_first + per_core * shard_seconds, 1),
+        "predicted_seconds_one_worker": round(seconds_first + one_worker * shard_seconds, 1),
+    }
+
+
+def predict_count_route(n: int, ruleset: RuleSet, workers: int, limit: int, cores: int,
+                        probe_n: int = PROBE_N) -> dict:
+    """Forecast of a count whose route and shape are chosen under `limit` bytes per worker
+    with `cores` shards in flight per worker (`counting.route.choose_count_route`, the
+    rule `count` runs by): the first sweep of n exactly as the run does it (refused alike;
+    the moves kept by the same rule), its `CountSizes`, the chosen plan (MemoryRefused
+    naming the smallest working limit), and the time from a probe of the chosen route's
+    shard kind (`probe_route_rate`)."""
+    what = f"counting n={n}"
+    count(5, ruleset, threads=1)  # compile / load the first sweep outside its timing
+    t0 = time.perf_counter()
+    space = routed_space(ruleset.instantiate(n), limit, cores, what)
+    windows, _ = count_windows(space, n, limit, cores)
+    seconds = time.perf_counter() - t0
+    sizes = count_sizes(space, windows, cores)
+    route = choose_count_route(sizes, limit, cores, what=what)
+    rate = probe_route_rate(route, probe_n, ruleset)
+    return {
+        "rules": ruleset.name,
+        "n": n,
+        "workers": workers,
+        "cores_per_worker": cores,
+        "max_memory_bytes": limit,
+        "max_memory": human(limit),
+        "states_in_space": space.total_states(),
+        "reachable_states": sizes.states,
+        "transitions": sizes.moves,
+        "count_bits": sizes.count_bits,
+        "shortest": sizes.shortest,
+        "longest": sizes.longest,
+        "largest_layer": sizes.largest_layer,
+        "mean_window": round(sizes.window_updates / max(1, sizes.moves), 1),
+        **route_forecast(sizes, route, workers, cores, seconds, rate),
+        "probe": f"{route.route} shard, n={rate['probe_n']} in {rate['probe_seconds']} s",
+        "variants": [dict(v) for v in route.variants],
     }
 
 
@@ -214,6 +365,19 @@ def probe_random_rate(
     }
 
 
+def primes_per_block_within(facts: RandomFacts, limit: int, what: str) -> int:
+    """The most primes a block may hold so that one worker's skeleton, shared data and one
+    block (`plan.worker_bytes`: words_one words per prime + fixed bytes) fit `limit`;
+    MemoryRefused naming the smallest working limit when not even one prime fits.
+
+    Hook: exact random play shards only by primes today; a points route for random play
+    would be chosen here like the count's (`counting.route.choose_count_route`)."""
+    base = facts.window_bytes + facts.shared_bytes + facts.fixed_bytes
+    one = 8 * max(1, facts.words_one)
+    refuse_below(base + one, limit, what)
+    return (limit - base) // one
+
+
 def predict_random(
     n: int, rules: str | RuleSet = "standard", workers: int = 1, *,
     model: str = "moves", players: int = 2, winners_only: bool = False,
@@ -224,9 +388,11 @@ def predict_random(
     Exact (equal to what the run reports): reachable states, transitions, the denominator's
     bits, the CRT primes and the check prime, the shards, the word updates (per prime and in
     all); memory per worker = the first sweep's skeleton + one block's ring buffers
-    (`plan.worker_bytes`).  Time from `probe_random_rate` at `probe_n` (default
-    PROBE_RANDOM_N) with blocks as large as the plan's largest.  `workers` are K Dask
-    workers (`workers=K`) or K threads in-process (`threads=K`): the driver plans both alike.
+    (`plan.worker_bytes`); with `max_memory` (per worker) the blocks hold at most as many
+    primes as fit it (`primes_per_block_within`).  Time from `probe_random_rate` at
+    `probe_n` (default PROBE_RANDOM_N) with blocks as large as the plan's largest.
+    `workers` are K Dask workers (`workers=K`) or K threads in-process (`threads=K`): the
+    driver plans both alike.
     The first sweeps of n and of the probe are refused up front against `max_memory`.
     """
     check_random_args(n, players, model)
@@ -242,6 +408,11 @@ def predict_random(
     kind.shard_task(ruleset, 5, *kind.shard_args, mul_primes(1))
     facts: RandomFacts = kind.facts_task(ruleset, n, *kind.facts_args)
     plan = kind.plan(facts, 0, workers, blocks, None)
+    limit = None if max_memory is None else resolve_limit(max_memory)
+    if limit is not None and blocks is None and worker_bytes(facts, plan) > limit:
+        # the default shape does not fit one worker: blocks as large as fit
+        cap = primes_per_block_within(facts, limit, f"random play n={n} (one shard per worker)")
+        plan = kind.plan(facts, 0, workers, None, cap)
     biggest = max(len(b) for b in plan.blocks)
     rate = probe_random_rate(probe_n or PROBE_RANDOM_N, ruleset, model, players,
                              bool(winners_only), biggest)
@@ -434,6 +605,36 @@ def _solve_rows(p: dict) -> list[tuple[str, str]]:
     return rows
 
 
+def _route_rows(p: dict) -> list[tuple[str, str]]:
+    """Rows of a count planned under a memory limit: route, shape, memory, time."""
+    if p["route"] == "points":
+        shape = (f"{p['shards']:,} of (prime, {plural(p['points_per_shard'], 'point')}); "
+                 f"{p['primes']} primes x {p['points']} points")
+    else:
+        shape = f"{p['shards']:,} (up to {plural(p['primes_per_shard'], 'prime')} each)"
+    moves = "kept from the first sweep" if p["keep_moves"] else "listed again per shard"
+    rows = [
+        ("states (whole space, exact)", f"{p['states_in_space']:,}"),
+        ("reachable states (exact)", f"{p['reachable_states']:,}"),
+        ("transitions (exact)", f"{p['transitions']:,}"),
+        ("size bound", f"{p['count_bits']} bits"),
+        ("memory limit per worker", f"{p['max_memory']} ({p['cores_per_worker']} "
+                                    "shard(s) in flight)"),
+        ("route", f"{p['route']} (moves {moves})"),
+        ("shards", shape),
+        ("memory per shard (exact)", p["memory_per_shard"]),
+        ("memory per worker (exact)", f"{p['memory_per_worker']} (first sweep's data "
+                                      f"{human(p['memory_shared_bytes'])} + shards)"),
+        ("word updates (exact)", f"{p['word_updates']:,}"),
+        ("first sweep (measured)", f"{p['seconds_first_sweep']:.2f} s"),
+        ("rate (probe " + p["probe"] + ")", f"{p['updates_per_second']:,} updates/s"),
+        (f"predicted time, {p['workers']} worker(s)", f"{p['predicted_seconds']:.1f} s"),
+    ]
+    if p["workers"] > 1:
+        rows.append(("predicted time, 1 worker", f"{p['predicted_seconds_one_worker']:.1f} s"))
+    return rows
+
+
 _HEADS = {
     "count": (("rules", "n", "workers"), _count_rows),
     "random": (("rules", "n", "model", "players", "winners_only", "workers"), _random_rows),
@@ -446,7 +647,7 @@ def format_prediction(p: dict) -> str:
     table; the kind is p["kind"] (a count's forecast has none)."""
     kind = p.get("kind", "count")
     keys, rows_of = _HEADS[kind]
-    rows = rows_of(p)
+    rows = _route_rows(p) if "route" in p else rows_of(p)
     width = max(len(k) for k, _ in rows)
     head = f"zeckenum plan {kind}  " + "  ".join(f"{k}={p[k]}" for k in keys)
     lines = [head, ""] + [f"  {k:<{width}}  {v}" for k, v in rows]

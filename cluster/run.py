@@ -8,7 +8,9 @@ These functions check their arguments and open the backend (`backend.open_pool`)
 driver, `driver.ShardDriver`, runs both kinds, a `kinds.ShardKind` supplying what differs
 (the flow of one n, placement, resume and the watchdog are described in `driver`).
 Ranges of n (`run_counts`) submit one task per (n, block); on a cluster the largest n go
-first.
+first.  With `points_per_shard=K` a count runs by evaluation points (`kinds.points_kind`):
+one task per (n, prime, block of at most K points), the same result as
+`zeckenum.count(n, points_per_shard=K)` in-process.
 """
 
 from __future__ import annotations
@@ -18,7 +20,8 @@ from pathlib import Path
 
 from zeckenum.cluster.backend import Pool, ThreadPool, open_pool, stall_seconds
 from zeckenum.cluster.driver import ShardDriver
-from zeckenum.cluster.kinds import count_kind, random_kind
+from zeckenum.cluster.kinds import ShardKind, count_kind, points_kind, random_kind
+from zeckenum.cluster.plan import check_points_per_shard
 from zeckenum.core.checks import check_n, check_random_args
 from zeckenum.counting.count import refuse_count
 from zeckenum.counting.result import CountResult
@@ -42,20 +45,39 @@ def count_on_pool(
     on_shard: Callable[[int, int], None] | None = None,
     stall_timeout: float | None = None,
     max_memory: int | None = None,
+    points_per_shard: int | None = None,
 ) -> dict[int, CountResult]:
     """Exact counts of every n in `ns` with shards on `pool`; {n: CountResult}.
 
-    checkpoint_dir  one folder per run of one n; with several n, sub-folders n-<n>
-    on_shard(n, i)  called after shard i of n is stored (and checkpointed)
-    stall_timeout   see `driver.ShardDriver`
+    checkpoint_dir    one folder per run of one n; with several n, sub-folders n-<n>
+    on_shard(n, i)    called after shard i of n is stored (and checkpointed)
+    stall_timeout     see `driver.ShardDriver`
+    points_per_shard  count by evaluation points, shards of at most this many points
+                      (`count_kind_for`)
     """
     return ShardDriver(
-        count_kind(get_rules(rules)), ns, pool, prime_offset=prime_offset,
+        count_kind_for(get_rules(rules), points_per_shard, blocks, max_primes_per_block),
+        ns, pool, prime_offset=prime_offset,
         checkpoint_dir=checkpoint_dir, blocks=blocks,
         max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
         stall_timeout=stall_timeout,
         max_memory=max_memory,
     ).run()
+
+
+def count_kind_for(
+    ruleset: RuleSet, points_per_shard: int | None, blocks: int | None = None,
+    max_primes_per_block: int | None = None,
+) -> ShardKind:
+    """The windowed count (prime blocks), or with `points_per_shard` the count by
+    evaluation points; InputError for a bad `points_per_shard` or one given with a prime
+    blocking (`blocks`, `max_primes_per_block`), which does not apply to points."""
+    if check_points_per_shard(points_per_shard) is None:
+        return count_kind(ruleset)
+    if blocks is not None or max_primes_per_block is not None:
+        raise InputError("points per shard cut a count into (prime, block of points) "
+                         "shards: blocks and max primes per block do not apply")
+    return points_kind(ruleset, points_per_shard)
 
 
 def random_on_pool(
@@ -104,6 +126,7 @@ def run_counts(
     on_shard: Callable[[int, int], None] | None = None,
     stall_timeout: float | None = None,
     max_memory: int | None = None,
+    points_per_shard: int | None = None,
 ) -> dict[int, CountResult]:
     """Exact counts for every n in `ns` on the chosen backend ({n: CountResult}).
 
@@ -112,15 +135,18 @@ def run_counts(
     (its blocks in threads); on a cluster, all (n, block) tasks are in flight at once.
     stall_timeout: seconds with no worker and no finished task before `ClusterStalled`
     (exit 7; None: $ZECKENUM_STALL_TIMEOUT, else 600).
+    points_per_shard: count by evaluation points (`count_kind_for`), several n alike.
     """
     ns = list(ns)
+    count_kind_for(get_rules(rules), points_per_shard, blocks, max_primes_per_block)
     if checkpoint_dir is not None:  # refused before a cluster starts
         check_output_dir(checkpoint_dir, "checkpoint directory")
     stall = stall_seconds(stall_timeout)
     opts = dict(prime_offset=prime_offset, checkpoint_dir=checkpoint_dir, blocks=blocks,
                 max_primes_per_block=max_primes_per_block, progress=progress, on_shard=on_shard,
-                stall_timeout=stall, max_memory=max_memory)
-    with open_pool(workers, scheduler, threads, warm=("count",)) as pool:
+                stall_timeout=stall, max_memory=max_memory, points_per_shard=points_per_shard)
+    warm = ("count",) if points_per_shard is None else ("count", "points")
+    with open_pool(workers, scheduler, threads, warm=warm) as pool:
         if isinstance(pool, ThreadPool) and len(ns) > 1:
             out: dict[int, CountResult] = {}
             for n in sorted(set(ns)):
@@ -145,10 +171,12 @@ def run_count(
     on_shard: Callable[[int, int], None] | None = None,
     stall_timeout: float | None = None,
     max_memory: int | None = None,
+    points_per_shard: int | None = None,
 ) -> CountResult:
     """`zeckenum.count(n)` computed shard by shard, optionally on Dask and checkpointed.
 
-    Equal to `count(n, rules, prime_offset=prime_offset)` (stats aside).  stats adds
+    Equal to `count(n, rules, prime_offset=prime_offset, points_per_shard=...)` (stats
+    aside; with `points_per_shard`, by evaluation points: other primes).  stats adds
     shards_total / shards_computed / shards_reused / shards_rejected and the backend.
     stall_timeout: as `run_counts`.
     `max_memory`: the first sweep's forecast is refused here, before any worker starts
@@ -163,7 +191,7 @@ def run_count(
         progress=progress, prime_offset=prime_offset, blocks=blocks,
         max_primes_per_block=max_primes_per_block, threads=threads, on_shard=on_shard,
         stall_timeout=stall_timeout,
-        max_memory=max_memory,
+        max_memory=max_memory, points_per_shard=points_per_shard,
     )
     return res[n]
 
@@ -218,4 +246,5 @@ def run_random(
         )
 
 
-__all__ = ["count_on_pool", "random_on_pool", "run_count", "run_counts", "run_random"]
+__all__ = ["count_kind_for", "count_on_pool", "random_on_pool", "run_count", "run_counts",
+           "run_random"]

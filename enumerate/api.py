@@ -61,23 +61,20 @@ def count(
 
     With `points_per_shard` the census is computed by evaluation points
     (`zeckenum.counting.points.count_points`: shards of (prime, block of points), the same
-    result with more work and less memory per shard; in-process only for now)."""
-    if points_per_shard is not None:
-        if _sharded(workers, scheduler, checkpoint):
-            from zeckenum.errors import InputError
-
-            raise InputError("--points-per-shard runs in this process only: it cannot be "
-                             "combined with --workers, --scheduler or --checkpoint yet")
-        from zeckenum.counting.points import count_points
-
-        return count_points(n, rules, points_per_shard=points_per_shard, threads=threads,
-                            prime_offset=prime_offset, max_memory=max_memory)
+    result with more work and less memory per shard), in-process or, with `workers`,
+    `scheduler` or `checkpoint`, through the same sharded driver (the same result)."""
     if _sharded(workers, scheduler, checkpoint):
         from zeckenum.cluster.run import run_count
 
         return run_count(n, rules, workers=workers, scheduler=scheduler,
                          checkpoint_dir=checkpoint, progress=progress,
-                         prime_offset=prime_offset, threads=threads, max_memory=max_memory)
+                         prime_offset=prime_offset, threads=threads, max_memory=max_memory,
+                         points_per_shard=points_per_shard)
+    if points_per_shard is not None:
+        from zeckenum.counting.points import count_points
+
+        return count_points(n, rules, points_per_shard=points_per_shard, threads=threads,
+                            prime_offset=prime_offset, max_memory=max_memory)
     from zeckenum.counting import count as engine
 
     return engine.count(n, rules, threads=threads, prime_offset=prime_offset,

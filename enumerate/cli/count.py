@@ -83,7 +83,7 @@ def check_out_path(out: str) -> Path:
 @click.option("--points-per-shard", "points_per_shard", type=bounded(1, 1 << 20), default=None,
               help="Count by evaluation points instead of length windows: every (prime, "
                    "block of at most K points) is one shard (more work, less memory per "
-                   "shard; in-process only for now).")
+                   "shard); with --workers/--scheduler/--checkpoint, shards of the cluster.")
 @max_memory_option
 @progress_option()
 @rules_option()
@@ -99,13 +99,17 @@ def count_command(
     """Count every game started from N (by default: the standard game, N tokens in F1).
 
     Prints reachable states, transitions, the exact number of games, the shortest and
-    longest lengths and the number of games of each length.
+    longest lengths and the number of games of each length.  --max-memory chooses the
+    route and its shards: blocks of primes over length windows when they fit, else
+    blocks of evaluation points as large as fit (a limit too small for any shape is
+    refused naming the smallest that works).
 
     \b
     Examples:
       zeckenum count 30
       zeckenum count 200 --json --out spectrum200.csv
       zeckenum count 40 --rules reversed
+      zeckenum count 200 --max-memory 300M
       zeckenum count 180 --workers 2 --checkpoint ckpt180
     """
     lost: OutputError | None = None

@@ -17,7 +17,13 @@ from collections.abc import Callable
 from typing import Any
 
 import click
-from zeckenum.core.checks import MAX_N, MAX_PRIME_OFFSET, MAX_THREADS, RANDOM_MODELS
+from zeckenum.core.checks import (
+    MAX_N,
+    MAX_PRIME_OFFSET,
+    MAX_THREADS,
+    RANDOM_MODELS,
+    parse_duration,
+)
 from zeckenum.core.memory import parse_size
 from zeckenum.errors import ZeckenumError
 
@@ -83,6 +89,21 @@ PRIME_OFFSET = bounded(0, MAX_PRIME_OFFSET)
 SHARDS = bounded(1, MAX_SHARDS)
 SEED = bounded(0, 2**63 - 1)
 PROBE = bounded(20, 400)
+
+
+class Duration(click.ParamType):
+    """A time budget such as 90s, 30m, 1h, 2d or plain seconds (`core.checks.parse_duration`)."""
+
+    name = "TIME"
+
+    def convert(self, value, param, ctx):  # noqa: ANN001, ANN201
+        try:
+            return parse_duration(value)
+        except ZeckenumError as exc:
+            self.fail(str(exc), param, ctx)
+
+
+DURATION = Duration()
 """A probe's n (`cluster.predict.check_probe`): enough work to time, about a second."""
 
 

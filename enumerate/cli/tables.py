@@ -14,10 +14,12 @@ import click
 from zeckenum import api
 from zeckenum.cli.errors import OneLineCommand, OneLineGroup
 from zeckenum.cli.options import (
+    DURATION,
     POSITIVE,
     SEED,
     SHARDS,
     backend_options,
+    bounded,
     json_option,
     max_memory_option,
     model_option,
@@ -125,24 +127,49 @@ def _echo_prediction(p: dict, as_json: bool) -> None:
 
 
 @plan_command.command("count", cls=OneLineCommand)
-@n_argument()
+@n_argument(required=False)
 @workers_option(_plan_workers, default=1)
+@click.option("--cores-per-worker", "cores", type=bounded(1, 1024), default=None,
+              help="Shards each worker runs at once (default 1); with --max-memory per "
+                   "worker they share its memory.")
+@click.option("--budget", type=DURATION, default=None,
+              help="Instead of N: print the largest n whose forecast fits this time "
+                   "(e.g. 30m, 1h, 90s, 3600) on --workers of --max-memory each.")
 @rules_option()
 @probe_option("n of the calibration count on this machine (20..400).", 90)
 @json_option("Print one JSON object.")
 @max_memory_option
-def plan_count_command(n, workers, rules, probe_n, as_json, max_memory) -> None:  # noqa: ANN001
+def plan_count_command(n, workers, cores, budget, rules, probe_n, as_json,  # noqa: ANN001
+                       max_memory) -> None:  # noqa: ANN001
     """Forecast an exact count: sizes, shards, memory, time.
 
     Runs the first sweep of N (exact sizes and word updates) and a small calibration count.
+    With --max-memory (per worker) the route and shard shape are the ones the run would
+    choose under it: windowed prime blocks when they fit, else blocks of evaluation
+    points; a limit too small for any shape is refused naming the smallest that works.
+    With --budget T (and no N): the largest n whose forecast fits T.
 
     \b
-    Example:
+    Examples:
       zeckenum plan count 250 --workers 8
+      zeckenum plan count 300 --max-memory 2G --json
+      zeckenum plan count --budget 30m --workers 100 --cores-per-worker 32 --max-memory 64G
     """
+    if budget is not None:
+        if n is not None:
+            raise InputError("plan count takes either N or --budget, not both")
+        from zeckenum.cluster.budget import format_budget, largest_n_within
+
+        p = largest_n_within(budget, rules, workers, cores or 1, max_memory,
+                             probe_n=probe_n)
+        click.echo(json.dumps(p) if as_json else format_budget(p))
+        return
+    if n is None:
+        raise InputError("plan count needs N (or --budget T)")
     from zeckenum.cluster.predict import predict_count
 
-    p = predict_count(n, rules, workers, probe_n=probe_n, max_memory=max_memory)
+    p = predict_count(n, rules, workers, probe_n=probe_n, max_memory=max_memory,
+                      cores_per_worker=cores)
     _echo_prediction(p, as_json)
 
 

@@ -9,6 +9,7 @@ The limits are plain constants so that the CLI declares the same ranges on its o
 from __future__ import annotations
 
 import os
+import re
 
 import numpy as np
 from zeckenum.errors import InputError
@@ -104,3 +105,19 @@ def check_players(players: int) -> None:
         raise InputError(
             f"players must be an integer from 2 to {SOLVE_MAX_PLAYERS}, got {players}"
         )
+
+
+_SECONDS_PER = {"": 1, "s": 1, "m": 60, "h": 3600, "d": 86400}
+MAX_DURATION = 366 * 86400
+"""Longest accepted time budget (a year): a forecast further out says nothing."""
+
+
+def parse_duration(text: object) -> float:
+    """Seconds in a time budget such as '90', '90s', '30m', '1.5h', '2d' (> 0, at most a
+    year), else InputError."""
+    m = re.fullmatch(r"\s*(\d{1,12}(?:\.\d{1,9})?)\s*([smhd]?)\s*", str(text).lower())
+    seconds = float(m.group(1)) * _SECONDS_PER[m.group(2)] if m else 0.0
+    if not m or not 0 < seconds <= MAX_DURATION:
+        raise InputError(f"cannot read the time budget {str(text)[:40]!r} (a positive time "
+                         "up to a year, e.g. 90s, 30m, 1h, 2d or seconds)")
+    return seconds

@@ -193,6 +193,18 @@ def compress_incoming(moves: LayerMoves, keep: np.ndarray) -> Incoming:
     return Incoming(*compact_rows(moves.ptr, moves.drop, moves.other, moves.w, keep))
 
 
+@kernel
+def drops_present(drop: np.ndarray, max_drop: int) -> np.ndarray:
+    """seen[d] for d in 0..max_drop: whether some move drops the level by d (no temporary
+    the size of the moves, unlike a bincount of int8 drops)."""
+    seen = np.zeros(max_drop + 1, dtype=np.bool_)
+    for e in range(drop.size):
+        d = drop[e]
+        if 0 <= d <= max_drop:  # any other drop reads no live layer (as before)
+            seen[d] = True
+    return seen
+
+
 def gather_passes(
     drop: np.ndarray, max_drop: int, level: int, live: Mapping[int, object],
     merge: bool = True,
@@ -211,7 +223,7 @@ def gather_passes(
     """
     if merge and max_drop <= 1:
         return [(-1, level + 1)] if level + 1 in live else [(0, level)]
-    present = np.flatnonzero(np.bincount(drop)) if drop.size else np.zeros(0, dtype=np.int64)
+    present = np.flatnonzero(drops_present(drop, max_drop))
     ups = [(int(d), level + int(d)) for d in present if d > 0 and level + int(d) in live]
     return ups + [(0, level)]
 

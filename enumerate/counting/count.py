@@ -8,8 +8,10 @@ The path of one number, from the command line to the kernel and back:
 3. `core.sweep.sweep_windows` walks the layers once: reachable states, moves, each state's
    window of path lengths, and a float estimate of the number of games that fixes how many
    primes the exact sweep needs (`modular.primes_for_bits`, plus one check prime).
-4. The primes are cut into blocks that fit in memory (`count_block_plan`, by the one planner
-   `core.blocks.block_plan`); each block is one independent shard,
+4. `counting.route.choose_count_route` picks the route and shard shape from the first
+   sweep's exact sizes and the memory limit: blocks of primes (cut by the one planner
+   `core.blocks.block_plan`) of the windowed sweep when they fit, else (prime, block of
+   evaluation points) shards of `counting.points`.  Each block is one independent shard,
    `spectrum.spectrum_residues`, run in threads here (`core.blocks.run_blocks`) or on a
    cluster.
    Its kernel `spectrum.pull_residues` gathers rows of residues along every move.
@@ -20,16 +22,17 @@ The path of one number, from the command line to the kernel and back:
 from __future__ import annotations
 
 import time
+from dataclasses import replace
 
 import numpy as np
-from zeckenum.core.blocks import BlockPlan, block_plan, run_blocks
+from zeckenum.core.blocks import run_blocks, split_evenly
 from zeckenum.core.checks import check_n, check_prime_offset, check_threads, thread_count
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.modular import primes_for_bits, reconstruct
 from zeckenum.core.statespace import StateSpace, build_space, refuse_space
 from zeckenum.core.sweep import Windows, incoming_bytes_estimate, sweep_windows
 from zeckenum.counting.result import CountResult
-from zeckenum.counting.spectrum import peak_words, spectrum_residues
+from zeckenum.counting.spectrum import spectrum_residues
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
 
@@ -67,32 +70,6 @@ def windows_bytes(space: StateSpace, windows: Windows) -> int:
     arrays = [*windows.lmin.values(), *windows.win.values(), *windows.terminal_ranks.values()]
     kept = sum(inc.nbytes for inc in (windows.incoming or {}).values())
     return int(space.tab.nbytes) + sum(int(a.nbytes) for a in arrays) + kept
-
-
-def count_block_plan(
-    space: StateSpace, windows: Windows, primes: list[int], threads: int, limit: int,
-    first_bytes: int = 0,
-) -> BlockPlan:
-    """The count's plan (`core.blocks.block_plan`): `primes` cut into blocks so that
-    `threads` blocks in flight fit under `limit` bytes, else MemoryRefused.
-
-    A block of b primes holds b words per (state, length) of the layers in flight, plus
-    fixed buffers of the largest layer.  Blocks aim at COUNT_PRIMES_PER_BLOCK primes and
-    shrink (down to one prime) until `threads` of them fit the limit; what the first sweep
-    left (`windows_bytes`: rank table, windows, kept moves) is shared by all blocks and
-    counted once, or `first_bytes` (the first sweep's forecast peak) when larger: the
-    allocator may keep what the first sweep touched.
-    """
-    largest = space.largest_layer()
-    per_block_fixed = listing_bytes(space) + largest * 8
-    if windows.incoming is not None:
-        per_block_fixed = largest * 16
-    return block_plan(
-        primes, threads, per_block=COUNT_PRIMES_PER_BLOCK,
-        prime_bytes=peak_words(space, windows, 1) * 8, block_bytes=per_block_fixed,
-        shared_bytes=max(windows_bytes(space, windows), int(first_bytes)), limit=limit,
-        what="the exact sweep",
-    )
 
 
 def count_space(spec, limit: int) -> StateSpace:  # noqa: ANN001 - a GameSpec
@@ -142,50 +119,90 @@ def count(
     prime_offset: int = 0,
     max_memory: int | None = None,
     progress: bool = False,
+    points_per_shard: int | None = None,
 ) -> CountResult:
     """Exact number of games of every length for the game `rules` started from n.
 
-    threads       worker threads for prime blocks (default: all cores)
-    prime_offset  skip that many primes below 2**62 (two offsets far enough apart give
-                  disjoint prime sets: an independent recomputation)
-    max_memory    byte limit for the run (default: what the machine has available); a run
-                  whose estimate exceeds it is refused before the heavy work starts
+    threads           shards run at once, in threads (default: all cores, fewer when the
+                      memory limit allows fewer)
+    prime_offset      skip that many primes (two offsets far enough apart give disjoint
+                      prime sets: an independent recomputation)
+    max_memory        byte limit for the run (default: what the machine has available); it
+                      chooses the route and shard shape (`counting.route.choose_count_route`:
+                      the windowed sweep when it fits, else evaluation points with the
+                      largest block that fits); a limit too small for any shape is refused
+                      (MemoryRefused, naming the smallest that works) before the exact sweep
+    points_per_shard  force the evaluation-point route with blocks of this many points
     """
+    # the route module builds on this one (and on counting.points, which does too)
+    from zeckenum.counting.route import (
+        choose_count_route,
+        count_sizes,
+        fitting_threads,
+        routed_space,
+    )
+
     n = check_n(n)
     check_prime_offset(prime_offset)
     ruleset = get_rules(rules)
     limit = resolve_limit(max_memory)
     nthreads = thread_count(check_threads(threads))
+    what = f"counting n={n}"
 
     t0 = time.perf_counter()
     spec = ruleset.instantiate(n)
-    space = count_space(spec, limit)
+    auto = threads is None  # threads not given: fewer when the memory is short
+    space = routed_space(spec, limit, 1 if auto else nthreads, what)
+    if auto:
+        nthreads = fitting_threads(space, limit, nthreads)
     windows, first_peak = count_windows(space, n, limit, nthreads)
+    sizes = count_sizes(space, windows, nthreads, prime_offset,
+                        updates=windows.incoming is not None)
+    route = choose_count_route(sizes, limit, nthreads, points_per_shard=points_per_shard,
+                               what=what, fewer=auto)
+    if not route.keep_moves and windows.incoming is not None:
+        windows = replace(windows, incoming=None)  # list them again per shard: less memory
     t1 = time.perf_counter()
+    shape = {
+        "route": route.route,
+        "keep_moves": route.keep_moves,
+        "shards": route.shards,
+        "memory_per_shard_bytes": route.shard_bytes,
+        "forecast_word_updates": route.word_updates or None,
+        "count_bits": windows.count_bits,
+        "terminal_states": windows.terminals,
+    }
 
-    primes, check_prime = primes_for_bits(windows.count_bits, prime_offset)
-    all_primes = [*primes, check_prime]
-    plan = count_block_plan(space, windows, all_primes, nthreads, limit, first_peak)
+    if route.route == "points":
+        from zeckenum.counting.points import points_residues
 
-    bar = None
-    if progress:
-        from tqdm import tqdm
+        primes, check_prime, residues, updates = points_residues(
+            space, windows, sizes.points, route.points_per_shard, route.threads, prime_offset)
+        shape.update(method="points", points=sizes.points,
+                     points_per_shard=route.points_per_shard)
+    else:
+        primes, check_prime = primes_for_bits(windows.count_bits, prime_offset)
+        blocks = split_evenly([*primes, check_prime], route.shards)
+        bar = None
+        if progress:
+            from tqdm import tqdm
 
-        bar = tqdm(
-            total=windows.states * len(plan.blocks), unit="state", desc=f"count n={n}",
-            unit_scale=True,
-        )
+            bar = tqdm(
+                total=windows.states * len(blocks), unit="state", desc=f"count n={n}",
+                unit_scale=True,
+            )
 
-    def run(block: tuple[int, ...]) -> tuple[np.ndarray, int]:
-        return spectrum_residues(space, windows, list(block), bar.update if bar else None)
+        def run(block: tuple[int, ...]) -> tuple[np.ndarray, int]:
+            return spectrum_residues(space, windows, list(block), bar.update if bar else None)
 
-    parts = run_blocks(plan.blocks, run, plan.threads)
-    if bar is not None:
-        bar.close()
+        parts = run_blocks(blocks, run, route.threads)
+        if bar is not None:
+            bar.close()
+        residues = np.concatenate([p[0] for p in parts], axis=0)
+        updates = sum(p[1] for p in parts)
+        shape.update(prime_blocks=len(blocks), primes_per_shard=route.primes_per_shard,
+                     planned_peak_bytes=int(route.peak_bytes))
     t2 = time.perf_counter()
-
-    residues = np.concatenate([p[0] for p in parts], axis=0)
-    updates = sum(p[1] for p in parts)
     return assemble_count(
         ruleset.name, ruleset.content_hash(), n, windows.states, windows.transitions,
         windows.shortest, windows.longest,
@@ -195,12 +212,9 @@ def count(
             "seconds_windows": round(t1 - t0, 3),
             "seconds_exact": round(t2 - t1, 3),
             "word_updates": int(updates),
-            "threads": plan.threads,
-            "prime_blocks": len(plan.blocks),
-            "planned_peak_bytes": int(plan.peak_bytes),
-            "forecast_peak_bytes": int(max(plan.peak_bytes, first_peak)),
-            "count_bits": windows.count_bits,
-            "terminal_states": windows.terminals,
+            "threads": route.threads,
+            "forecast_peak_bytes": int(max(route.peak_bytes, first_peak)),
+            **shape,
         },
     )
 

@@ -7,13 +7,18 @@ s (every move is one move of the game), and G(x) is the sum of V over the termin
 So one sweep over the states, carrying per state one residue per evaluation point instead
 of a window of lengths (`counting.spectrum`), evaluates G at those points modulo a prime.
 
-Choosing the points.  With N = 2**m > longest and a prime p = 1 (mod N) below 2**50
-(`ntt_primes`), the N-th roots of unity w**k (w of order N, `root_of_unity`) are distinct
-points mod p, and count_L mod p = N**-1 * sum_k G(w**k) w**(-k L) (the inverse number-
-theoretic transform, `counts_from_values`).  The coefficients of degree above `longest`
-must come out 0: a built-in check of every prime's values.  Counts of any size follow by
-the CRT over primes whose product exceeds the first sweep's size bound 2**count_bits, and
-one more prime checks them (`core.modular.reconstruct`, `CheckPrimeMismatch`).
+Choosing the points.  Every game has between `shortest` and `longest` moves, so
+G(x) = x**shortest * Q(x) with Q of degree span = longest - shortest.  With N = 2**m > span
+and a prime p = 1 (mod N) below 2**50 (`ntt_primes`), the N-th roots of unity w**k (w of
+order N, `root_of_unity`) are distinct nonzero points mod p; Q(w**k) = G(w**k) *
+w**(-k shortest), and q_j mod p = N**-1 * sum_k Q(w**k) w**(-k j) (the inverse number-
+theoretic transform, `counts_from_values`), count_L = q_(L - shortest)
+(`residues_from_values`).  The coefficients of degree above `span` must come out 0: a
+built-in check of every prime's values.  Taking N above the span rather than above
+`longest` halves the points at n = 300 (span 435, longest 730: 512 points, not 1024).
+Counts of any size follow by the CRT over primes whose product exceeds the first sweep's
+size bound 2**count_bits, and one more prime checks them (`core.modular.reconstruct`,
+`CheckPrimeMismatch`).
 
 Cost.  Per state and point: one add per incoming move (mod p) and one product by x
 (`core.modular.mulmod`).  A window of lengths costs per state its window width (an
@@ -27,15 +32,12 @@ Kernel `pull_points`, wrapper `spectrum_points(space, windows, prime, points)`.
 
 from __future__ import annotations
 
-import time
 from collections.abc import Iterator, Sequence
 from itertools import islice
 
 import numpy as np
 from zeckenum.core.blocks import run_blocks
-from zeckenum.core.checks import check_n, check_prime_offset, check_threads, thread_count
 from zeckenum.core.jit import kernel
-from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.modular import (
     MUL_PRIME_CEILING,
     MUL_PRIME_FLOOR,
@@ -45,16 +47,19 @@ from zeckenum.core.modular import (
 )
 from zeckenum.core.statespace import StateSpace
 from zeckenum.core.sweep import Windows, drop_stale, moves_into
-from zeckenum.counting.count import assemble_count, count_space, count_windows
+from zeckenum.counting.count import count
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import CheckPrimeMismatch
-from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
 
+MAX_POINTS_PER_SHARD = 1 << 20
+"""Points per shard that means "all N" (N stays far below it: spans below 2**20)."""
 
-def transform_order(longest: int) -> int:
-    """N = the least power of two above `longest` (the number of evaluation points)."""
-    return 1 << max(0, int(longest)).bit_length()
+
+def transform_order(span: int) -> int:
+    """N = the least power of two above `span` = longest - shortest (the number of
+    evaluation points)."""
+    return 1 << max(0, int(span)).bit_length()
 
 
 def _ntt_candidates(order: int, offset: int) -> Iterator[int]:
@@ -210,38 +215,47 @@ def counts_from_values(values: Sequence[int], p: int, w: int) -> list[int]:
     return [x * ninv % p for x in a]
 
 
+def residues_from_values(
+    values: Sequence[int], p: int, w: int, shortest: int, longest: int,
+) -> list[int]:
+    """count_L mod p for L = 0 .. longest from values[k] = G(w**k) mod p, k < N = len(values)
+    (w of order N > longest - shortest): Q(w**k) = G(w**k) w**(-k shortest), inverse
+    transform, shift by `shortest`.  Raises CheckPrimeMismatch when Q has a term above the
+    span (the evaluations are then not those of a game's length polynomial)."""
+    n = len(values)
+    span = longest - shortest
+    if not 0 <= shortest <= longest or n <= span:
+        raise ValueError(f"{n} points cannot interpolate lengths {shortest}..{longest}")
+    unshift = pow(pow(w, shortest, p), p - 2, p)
+    q_values, f = [], 1
+    for v in values:
+        q_values.append(int(v) * f % p)
+        f = f * unshift % p
+    coeffs = counts_from_values(q_values, p, w)
+    if any(coeffs[span + 1 :]):
+        raise CheckPrimeMismatch(
+            f"the length polynomial mod {p} has a term outside the game lengths "
+            f"{shortest}..{longest}: the evaluations are not trusted")
+    return [0] * shortest + coeffs[: span + 1]
+
+
 def point_blocks(order: int, per_shard: int) -> list[tuple[int, int]]:
     """[lo, hi) index ranges of the N points cut into blocks of at most `per_shard`."""
     return [(lo, min(order, lo + per_shard)) for lo in range(0, order, per_shard)]
 
 
-def count_points(
-    n: int, rules: str | RuleSet = "standard", *, points_per_shard: int | None = None,
-    threads: int | None = None, prime_offset: int = 0, max_memory: int | None = None,
-) -> CountResult:
-    """The exact census of `counting.count.count`, computed by evaluation points.
-
-    Every (prime, block of at most `points_per_shard` points; default all N) is one shard,
-    run in threads here.  The result equals `count`'s (the tests check it for every shard
-    shape); its stats name the method, N and the shards.
-    """
-    n = check_n(n)
-    check_prime_offset(prime_offset)
-    ruleset = get_rules(rules)
-    limit = resolve_limit(max_memory)
-    nthreads = thread_count(check_threads(threads))
-    t0 = time.perf_counter()
-    space = count_space(ruleset.instantiate(n), limit)
-    windows, first_peak = count_windows(space, n, limit, nthreads)
-    t1 = time.perf_counter()
-    order = transform_order(windows.longest)
-    per = order if points_per_shard is None else max(1, min(int(points_per_shard), order))
+def points_residues(
+    space: StateSpace, windows: Windows, order: int, per_shard: int, threads: int,
+    prime_offset: int = 0,
+) -> tuple[list[int], int, np.ndarray, int]:
+    """(primes, check prime, residues [prime][length], word updates) of the count by
+    evaluation points after its first sweep: every (prime = 1 mod `order`, block of at most
+    `per_shard` of the `order` points) is one shard, `threads` at a time; each prime's values
+    are interpolated (`residues_from_values`).  The rows are in the order primes + [check],
+    as `count.assemble_count` reads them."""
     primes, check_prime = ntt_primes_for_bits(windows.count_bits, order, prime_offset)
     all_primes = [*primes, check_prime]
-    shards = [(q, lo, hi) for q in all_primes for lo, hi in point_blocks(order, per)]
-    shard_bytes = 8 * points_peak_words(space, per)
-    refuse_if_over(first_peak + nthreads * shard_bytes, limit,
-                   f"the evaluation-point count of n = {n}")
+    shards = [(q, lo, hi) for q in all_primes for lo, hi in point_blocks(order, per_shard)]
     roots = {q: root_of_unity(q, order) for q in all_primes}
 
     def run(shard: tuple[int, int, int]) -> tuple[np.ndarray, int]:
@@ -250,34 +264,29 @@ def count_points(
         pts = [pow(w, k, q) for k in range(lo, hi)]
         return spectrum_points(space, windows, q, pts)
 
-    parts = run_blocks(shards, run, nthreads)
-    t2 = time.perf_counter()
+    parts = run_blocks(shards, run, threads)
     values: dict[int, list[int]] = {q: [0] * order for q in all_primes}
     for (q, lo, _hi), (vals, _u) in zip(shards, parts, strict=True):
         values[q][lo : lo + vals.size] = [int(v) for v in vals]
     residues = np.zeros((len(all_primes), windows.longest + 1), dtype=np.int64)
     for row, q in enumerate(all_primes):
-        coeffs = counts_from_values(values[q], q, roots[q])
-        if any(coeffs[windows.longest + 1 :]):
-            raise CheckPrimeMismatch(
-                f"the length polynomial mod {q} has a term above the longest game "
-                f"({windows.longest} moves): the evaluations are not trusted")
-        residues[row, :] = coeffs[: windows.longest + 1]
-    return assemble_count(
-        ruleset.name, ruleset.content_hash(), n, windows.states, windows.transitions,
-        windows.shortest, windows.longest, primes, check_prime, residues,
-        stats={
-            "method": "points",
-            "seconds_total": round(time.perf_counter() - t0, 3),
-            "seconds_windows": round(t1 - t0, 3),
-            "seconds_exact": round(t2 - t1, 3),
-            "word_updates": int(sum(u for _v, u in parts)),
-            "threads": nthreads,
-            "points": order,
-            "points_per_shard": per,
-            "shards": len(shards),
-            "shard_peak_bytes": int(shard_bytes),
-            "forecast_peak_bytes": int(first_peak + nthreads * shard_bytes),
-            "count_bits": windows.count_bits,
-        },
-    )
+        residues[row, :] = residues_from_values(values[q], q, roots[q], windows.shortest,
+                                                windows.longest)
+    return primes, check_prime, residues, int(sum(u for _v, u in parts))
+
+
+def count_points(
+    n: int, rules: str | RuleSet = "standard", *, points_per_shard: int | None = None,
+    threads: int | None = None, prime_offset: int = 0, max_memory: int | None = None,
+) -> CountResult:
+    """The exact census of `counting.count.count`, computed by evaluation points.
+
+    `count` forced onto the points route: every (prime, block of at most
+    `points_per_shard` points; default all N) is one shard, run in threads here.  The
+    result equals the windowed one (the tests check it for every shard shape); its stats
+    name the method, N and the shards; a limit too small for `threads` such shards is
+    refused naming the smallest that works.
+    """
+    per = MAX_POINTS_PER_SHARD if points_per_shard is None else points_per_shard
+    return count(n, rules, threads=threads, prime_offset=prime_offset,
+                 max_memory=max_memory, points_per_shard=per)

@@ -101,7 +101,9 @@ def collect_terminals(
 def layer_offsets(win: np.ndarray, nprimes: int) -> np.ndarray:
     """Word offsets of each state's rows in a layer array (length size + 1, int64)."""
     off = np.zeros(win.size + 1, dtype=np.int64)
-    np.cumsum(win.astype(np.int64) * nprimes, out=off[1:])
+    off[1:] = win
+    np.cumsum(off[1:], out=off[1:])  # in place: no temporary of the layer's size
+    off *= nprimes
     return off
 
 

@@ -3,6 +3,8 @@
 * the plain-Python brute forces of tests/support (bruteforce.census for the standard game,
   rules_bruteforce.Game.spectrum for every shipped rule set): the spectrum must be equal
   for every shard shape (points per shard 1, 2, 3, 5 and all);
+* networkx: the games of each length by a DP over the topological order of the explicit
+  move graph (n up to 40, shards of 1, 7 and all points);
 * sympy for primality and for the inverse transform: a polynomial with random
   coefficients, evaluated at the roots of unity with plain Python ints, must come back
   coefficient by coefficient (common practice: the number-theoretic transform is the
@@ -14,20 +16,24 @@
 from __future__ import annotations
 
 import random
+from collections import Counter
 
+import networkx as nx
 import pytest
 import rules_bruteforce as rbf
 import sympy as sp
 import zeckenum
-from bruteforce import census
+from bruteforce import census, move_graph, start_state
 from zeckenum.counting.points import (
     count_points,
     counts_from_values,
     ntt_primes,
     ntt_primes_for_bits,
+    residues_from_values,
     root_of_unity,
     transform_order,
 )
+from zeckenum.errors import CheckPrimeMismatch
 
 
 @pytest.mark.parametrize("order", [1, 2, 8, 64, 1024])
@@ -61,11 +67,29 @@ def test_inverse_transform_recovers_a_random_polynomial(order: int) -> None:
     assert counts_from_values(values, p, w) == coeffs
 
 
-def test_transform_order_is_the_least_power_of_two_above_longest() -> None:
-    for longest in range(0, 70):
-        order = transform_order(longest)
-        assert order > longest and order & (order - 1) == 0
-        assert order == 1 or order // 2 <= longest
+def test_transform_order_is_the_least_power_of_two_above_the_span() -> None:
+    for span in range(0, 70):
+        order = transform_order(span)
+        assert order > span and order & (order - 1) == 0
+        assert order == 1 or order // 2 <= span
+
+
+@pytest.mark.parametrize(("shortest", "longest"), [(0, 0), (0, 7), (5, 5), (9, 20), (40, 71)])
+def test_residues_from_values_rebuild_a_shifted_polynomial(shortest: int, longest: int) -> None:
+    # common practice: evaluate sum c_L x^L (support shortest..longest) at the N-th roots
+    # of unity by the definition, then interpolate
+    rng = random.Random(shortest * 100 + longest)
+    order = transform_order(longest - shortest)
+    p = ntt_primes(order, 1)[0]
+    w = root_of_unity(p, order)
+    coeffs = [0] * shortest + [rng.randrange(p) for _ in range(longest - shortest + 1)]
+    values = [sum(c * pow(w, k * j, p) for j, c in enumerate(coeffs)) % p
+              for k in range(order)]
+    assert residues_from_values(values, p, w, shortest, longest) == coeffs
+    if order > longest - shortest + 1:  # room for a term outside the lengths: caught
+        bad = [(v + pow(w, k * (longest + 1), p)) % p for k, v in enumerate(values)]
+        with pytest.raises(CheckPrimeMismatch, match="outside the game lengths"):
+            residues_from_values(bad, p, w, shortest, longest)
 
 
 @pytest.mark.parametrize("n", [1, 2, 3, 6, 11, 17])
@@ -88,6 +112,36 @@ def test_variant_spectra_equal_the_rule_set_brute_force(name: str, n: int,
     ref = rbf.Game(rbf.DESCRIPTIONS[name], n).spectrum()
     res = count_points(n, name, points_per_shard=per_shard, threads=2)
     assert res.length_counts == dict(sorted(ref.items()))
+
+
+def _networkx_length_counts(n: int) -> dict[int, int]:
+    """Games of each length by a DP over networkx's topological order of the move graph."""
+    g = move_graph(n)
+    start = start_state(n)
+    by_len: dict[tuple[int, ...], Counter[int]] = {v: Counter() for v in g.nodes}
+    by_len[start][0] = 1
+    for v in nx.topological_sort(g):
+        for w in g.successors(v):
+            for length, c in by_len[v].items():
+                by_len[w][length + 1] += c
+    (end,) = [v for v in g.nodes if g.out_degree(v) == 0]
+    return dict(sorted(by_len[end].items()))
+
+
+@pytest.mark.parametrize("n", [18, 25, 33, 40])
+@pytest.mark.parametrize("per_shard", [1, 7, None])
+def test_spectrum_equals_networkx_path_counts_for_every_shard_shape(
+        n: int, per_shard: int | None) -> None:
+    res = count_points(n, points_per_shard=per_shard, threads=2)
+    assert res.length_counts == _networkx_length_counts(n)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("n", [120, 150])
+def test_large_n_equal_the_windowed_count(n: int) -> None:
+    ref = zeckenum.count(n)
+    res = count_points(n, points_per_shard=64, threads=2)
+    assert res.length_counts == ref.length_counts and res.games == ref.games
 
 
 @pytest.mark.parametrize("n", [40, 75])
@@ -115,7 +169,7 @@ def test_command_line_counts_by_points_and_refuses_what_it_cannot_do() -> None:
     assert {int(k): int(v) for k, v in got["length_counts"].items()} == ref["length_counts"]
     assert got["stats"]["method"] == "points"
     for bad in (["--points-per-shard", "0"], ["--points-per-shard", "x"],
-                ["--points-per-shard", "2", "--checkpoint", "somewhere"]):
+                ["--points-per-shard", "-1"]):
         res = runner.invoke(main, ["count", "9", *bad])
         assert res.exit_code == 2, (bad, res.output)
         lines = res.output.strip().splitlines()
