@@ -243,3 +243,22 @@ def test_memory_is_refused_before_the_shards_allocate() -> None:
         random_play_points(40, points_per_shard=16, threads=2, max_memory=need - 1)
     again = random_play_points(40, points_per_shard=16, threads=2, max_memory=need)
     assert again.length_probability == ok.length_probability
+
+
+# Source: the operating system's peak resident size of a fresh process (ru_maxrss): the
+# forecast must bound what the run adds above the process after loading the kernels.
+def test_memory_forecast_bounds_the_measured_growth() -> None:
+    import subprocess
+
+    code = (
+        "import json, resource\n"
+        "from zeckenum.randomplay.points import random_play_points\n"
+        "random_play_points(8, points_per_shard=2)\n"
+        "base = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024\n"
+        "res = random_play_points(100, threads=2, points_per_shard=48)\n"
+        "peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024\n"
+        "print(json.dumps([peak - base, res.stats['forecast_peak_bytes']]))\n")
+    out = subprocess.run([sys.executable, "-c", code], check=True, capture_output=True,
+                         text=True)
+    grew, forecast = json.loads(out.stdout.strip().splitlines()[-1])
+    assert 0 < grew <= forecast, (grew, forecast)
