@@ -86,11 +86,29 @@ def random_play(
     winners_only: bool = False, prime_offset: int = 0, threads: int | None = None,
     max_memory: int | None = None, progress: bool = False, workers: int | None = None,
     scheduler: str | None = None, checkpoint: str | Path | None = None,
+    points_per_shard: int | None = None,
 ) -> RandomResult:
     """Exact random play at n: every length's probability and each player's chance to win
     (`zeckenum.randomplay.exact.random_play`).  With `progress`, `workers`, `scheduler`
     or `checkpoint` the prime blocks run through the sharded driver
-    (`zeckenum.cluster.run.run_random`; in-process threads without workers/scheduler)."""
+    (`zeckenum.cluster.run.run_random`; in-process threads without workers/scheduler).
+
+    With `points_per_shard` the law is computed by evaluation points
+    (`zeckenum.randomplay.points.random_play_points`: shards of (prime, block of points),
+    the same result with other primes, more work and less memory per shard; in-process
+    only for now, `progress` is ignored)."""
+    if points_per_shard is not None:
+        if _sharded(workers, scheduler, checkpoint):
+            from zeckenum.errors import InputError
+
+            raise InputError("--points-per-shard runs in this process only: it cannot be "
+                             "combined with --workers, --scheduler or --checkpoint yet")
+        from zeckenum.randomplay.points import random_play_points
+
+        return random_play_points(n, rules, players, model, winners_only=winners_only,
+                                  points_per_shard=points_per_shard,
+                                  prime_offset=prime_offset, threads=threads,
+                                  max_memory=max_memory)
     if progress or _sharded(workers, scheduler, checkpoint):
         from zeckenum.cluster.run import run_random
 

@@ -119,7 +119,8 @@ def _print_sim(res) -> None:
 
 
 SHARD_OPTIONS = {"workers": "--workers", "scheduler": "--scheduler",
-                 "checkpoint_dir": "--checkpoint", "progress": "--progress"}
+                 "checkpoint_dir": "--checkpoint", "progress": "--progress",
+                 "points_per_shard": "--points-per-shard"}
 """Exact mode only: with any of them (or the default --progress on a terminal) the prime
 blocks run through the sharded driver (`zeckenum.api.random_play` picks it), which shows a
 progress bar; an explicit --progress is refused in the other modes."""
@@ -156,10 +157,15 @@ def _refuse_sharding(sharded: dict, mode: str) -> None:
     checkpoint="Exact mode: keep each finished block in DIR; rerunning resumes from it.",
 )
 @progress_option("Sharded exact mode: show a progress bar of the prime blocks on stderr")
+@click.option("--points-per-shard", "points_per_shard", type=bounded(1, 1 << 20),
+              default=None, metavar="K",
+              help="Exact mode: compute by evaluation points instead of length windows; "
+                   "every (prime, block of at most K points) is one shard (more work, less "
+                   "memory per shard; in-process only for now).")
 @max_memory_option
 def random_command(n, players, model, rules, winners_only, use_float, games, seed, nrange,  # noqa: ANN001
                    as_json, show_exact, workers, scheduler, checkpoint_dir, progress,  # noqa: ANN001
-                   max_memory) -> None:  # noqa: ANN001
+                   points_per_shard, max_memory) -> None:  # noqa: ANN001
     """Random play at N: exact probability of every length and of each player winning.
 
     \b
@@ -172,9 +178,10 @@ def random_command(n, players, model, rules, winners_only, use_float, games, see
       zeckenum random 200 --simulate 100000 --seed 7
       zeckenum random --range 10 60
       zeckenum random 300 --workers 2 --checkpoint ckpt-random300
+      zeckenum random 200 --points-per-shard 64
     """
     sharded = {"workers": workers, "scheduler": scheduler, "checkpoint_dir": checkpoint_dir,
-               "progress": progress is True}
+               "progress": progress is True, "points_per_shard": points_per_shard}
     if show_exact and (nrange is not None or use_float or games is not None):
         raise InputError("--exact: exact mode only, not with --range, --float or --simulate")
     if nrange is not None:
@@ -204,8 +211,11 @@ def random_command(n, players, model, rules, winners_only, use_float, games, see
         res = api.random_float(n, rules, players, model, max_memory=max_memory)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_float(res)
     else:
+        if points_per_shard is not None and progress is True:
+            raise InputError("--progress: not with --points-per-shard (in-process shards)")
         res = api.random_play(n, rules, players, model, winners_only=winners_only,
                               max_memory=max_memory, progress=resolve_progress(progress),
-                              workers=workers, scheduler=scheduler, checkpoint=checkpoint_dir)
+                              workers=workers, scheduler=scheduler, checkpoint=checkpoint_dir,
+                              points_per_shard=points_per_shard)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only,
                                                                             show_exact)
