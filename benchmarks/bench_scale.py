@@ -86,7 +86,7 @@ def main() -> int:
     from distributed import Client
     from zeckenum.cluster.backend import close_cluster, start_local_cluster
     from zeckenum.cluster.plan import points_plan, worker_bytes
-    from zeckenum.counting.points import counts_from_values, root_of_unity
+    from zeckenum.core.ntt import counts_from_values, root_of_unity
 
     cluster = start_local_cluster(args.workers)
     try:

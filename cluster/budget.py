@@ -47,6 +47,7 @@ from zeckenum.cluster.predict import (
 )
 from zeckenum.core.memory import human, resolve_limit
 from zeckenum.core.modular import primes_for_bits
+from zeckenum.core.ntt import ntt_primes_for_bits
 from zeckenum.core.statespace import StateSpace, build_space, rank_table_bytes
 from zeckenum.core.sweep import incoming_bytes_estimate
 from zeckenum.core.text import plural
@@ -56,7 +57,7 @@ from zeckenum.counting.count import (
     listing_bytes,
     windows_pass_bytes,
 )
-from zeckenum.counting.points import ntt_primes_for_bits, points_peak_words, transform_order
+from zeckenum.counting.points import points_peak_words, transform_order
 from zeckenum.counting.route import CountSizes, RoutePlan, choose_count_route, count_sizes
 from zeckenum.errors import InputError, MemoryRefused
 from zeckenum.rules.catalogue import get_rules

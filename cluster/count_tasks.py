@@ -33,15 +33,11 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from zeckenum.cluster.workercache import WorkerCache, worker_address
 from zeckenum.core.memory import available_bytes
+from zeckenum.core.ntt import root_of_unity
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.sweep import Windows
 from zeckenum.counting.count import count_windows
-from zeckenum.counting.points import (
-    points_peak_words,
-    root_of_unity,
-    spectrum_points,
-    transform_order,
-)
+from zeckenum.counting.points import points_peak_words, spectrum_points, transform_order
 from zeckenum.counting.route import sweep_updates
 from zeckenum.counting.spectrum import peak_words, spectrum_residues
 from zeckenum.rules.catalogue import get_rules

@@ -54,8 +54,9 @@ from zeckenum.cluster.random_tasks import (
     random_win_residues_task,
 )
 from zeckenum.core.modular import check_mul_primes, mul_primes_exceeding
+from zeckenum.core.ntt import root_of_unity
 from zeckenum.counting.count import assemble_count
-from zeckenum.counting.points import residues_from_values, root_of_unity, transform_order
+from zeckenum.counting.points import residues_from_values, transform_order
 from zeckenum.counting.result import CountResult
 from zeckenum.counting.route import best_points
 from zeckenum.randomplay.exact import (

@@ -28,8 +28,9 @@ from zeckenum.cluster.count_tasks import Facts, PointsFacts
 from zeckenum.cluster.random_tasks import RandomFacts
 from zeckenum.core.blocks import block_count, split_evenly
 from zeckenum.core.modular import primes_for_bits
+from zeckenum.core.ntt import ntt_primes_for_bits, point_blocks
 from zeckenum.counting.count import COUNT_PRIMES_PER_BLOCK
-from zeckenum.counting.points import ntt_primes_for_bits, point_blocks, transform_order
+from zeckenum.counting.points import transform_order
 from zeckenum.errors import InputError
 
 

@@ -41,16 +41,12 @@ from zeckenum.cluster.solve_chain import plan_ranges
 from zeckenum.core.checks import check_n, check_players, check_random_args
 from zeckenum.core.memory import human, resolve_limit
 from zeckenum.core.modular import mul_primes, primes_for_bits
+from zeckenum.core.ntt import ntt_primes, root_of_unity
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.sweep import moves_into
 from zeckenum.core.text import plural
 from zeckenum.counting.count import count, count_space, count_windows, refuse_count
-from zeckenum.counting.points import (
-    ntt_primes,
-    root_of_unity,
-    spectrum_points,
-    transform_order,
-)
+from zeckenum.counting.points import spectrum_points, transform_order
 from zeckenum.counting.route import (
     CountSizes,
     RoutePlan,

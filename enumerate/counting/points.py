@@ -32,18 +32,19 @@ Kernel `pull_points`, wrapper `spectrum_points(space, windows, prime, points)`.
 
 from __future__ import annotations
 
-from collections.abc import Iterator, Sequence
-from itertools import islice
+from collections.abc import Sequence
 
 import numpy as np
 from zeckenum.core.blocks import run_blocks
 from zeckenum.core.jit import kernel
 from zeckenum.core.modular import (
-    MUL_PRIME_CEILING,
-    MUL_PRIME_FLOOR,
     mulmod,
-    primes_covering,
-    primes_stepping_down,
+)
+from zeckenum.core.ntt import (
+    counts_from_values,
+    ntt_primes_for_bits,
+    point_blocks,
+    root_of_unity,
 )
 from zeckenum.core.statespace import StateSpace
 from zeckenum.core.sweep import Windows, drop_stale, moves_into
@@ -60,37 +61,6 @@ def transform_order(span: int) -> int:
     """N = the least power of two above `span` = longest - shortest (the number of
     evaluation points)."""
     return 1 << max(0, int(span)).bit_length()
-
-
-def _ntt_candidates(order: int, offset: int) -> Iterator[int]:
-    """The primes below 2**50 and above 2**13 that are 1 mod `order` (so that their
-    multiplicative group has elements of order `order`), largest first, skipping `offset`."""
-    start = (MUL_PRIME_CEILING - 2) // order * order + 1
-    return islice(primes_stepping_down(start, order, MUL_PRIME_FLOOR), offset, None)
-
-
-def ntt_primes(order: int, count: int, offset: int = 0) -> list[int]:
-    """The primes number offset .. offset+count-1 of `_ntt_candidates`."""
-    out = list(islice(_ntt_candidates(order, offset), count))
-    if len(out) < count:
-        raise ValueError(f"fewer than {offset + count} primes = 1 mod {order} below 2**50")
-    return out
-
-
-def ntt_primes_for_bits(bits: int, order: int, offset: int = 0) -> tuple[list[int], int]:
-    """(primes = 1 mod order whose product exceeds 2**bits, one more check prime)."""
-    return primes_covering(_ntt_candidates(order, offset), 2**bits - 1)
-
-
-def root_of_unity(p: int, order: int) -> int:
-    """An element of multiplicative order exactly `order` (a power of two) mod p."""
-    if order == 1:
-        return 1
-    for g in range(2, 1000):
-        w = pow(g, (p - 1) // order, p)
-        if pow(w, order // 2, p) != 1:
-            return w
-    raise ValueError(f"no root of unity of order {order} found mod {p}")
 
 
 @kernel
@@ -185,36 +155,6 @@ def spectrum_points(
     return out, updates
 
 
-def counts_from_values(values: Sequence[int], p: int, w: int) -> list[int]:
-    """count_L mod p for L = 0 .. N-1 from values[k] = G(w**k) mod p (N = len(values), w of
-    order N): the inverse number-theoretic transform (iterative, O(N log N), Python ints)."""
-    n = len(values)
-    a = [int(v) % p for v in values]
-    j = 0
-    for i in range(1, n):  # bit-reversal permutation
-        bit = n >> 1
-        while j & bit:
-            j ^= bit
-            bit >>= 1
-        j |= bit
-        if i < j:
-            a[i], a[j] = a[j], a[i]
-    winv = pow(w, p - 2, p)
-    length = 2
-    while length <= n:
-        step = pow(winv, n // length, p)
-        for s in range(0, n, length):
-            f = 1
-            half = length // 2
-            for t in range(s, s + half):
-                u, v = a[t], a[t + half] * f % p
-                a[t], a[t + half] = (u + v) % p, (u - v) % p
-                f = f * step % p
-        length <<= 1
-    ninv = pow(n, p - 2, p)
-    return [x * ninv % p for x in a]
-
-
 def residues_from_values(
     values: Sequence[int], p: int, w: int, shortest: int, longest: int,
 ) -> list[int]:
@@ -237,11 +177,6 @@ def residues_from_values(
             f"the length polynomial mod {p} has a term outside the game lengths "
             f"{shortest}..{longest}: the evaluations are not trusted")
     return [0] * shortest + coeffs[: span + 1]
-
-
-def point_blocks(order: int, per_shard: int) -> list[tuple[int, int]]:
-    """[lo, hi) index ranges of the N points cut into blocks of at most `per_shard`."""
-    return [(lo, min(order, lo + per_shard)) for lo in range(0, order, per_shard)]
 
 
 def points_residues(

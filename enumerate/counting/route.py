@@ -56,6 +56,7 @@ import numpy as np
 from zeckenum.core.blocks import block_plan
 from zeckenum.core.memory import human
 from zeckenum.core.modular import primes_for_bits
+from zeckenum.core.ntt import ntt_primes_for_bits
 from zeckenum.core.statespace import StateSpace, build_space, rank_table_bytes, states_upper_bound
 from zeckenum.core.sweep import Windows, incoming_bytes_estimate, moves_into
 from zeckenum.counting.count import (
@@ -65,7 +66,7 @@ from zeckenum.counting.count import (
     windows_bytes,
     windows_pass_bytes,
 )
-from zeckenum.counting.points import ntt_primes_for_bits, points_peak_words, transform_order
+from zeckenum.counting.points import points_peak_words, transform_order
 from zeckenum.counting.spectrum import peak_words
 from zeckenum.errors import MemoryRefused
 from zeckenum.rules.model import GameSpec

@@ -24,15 +24,8 @@ import rules_bruteforce as rbf
 import sympy as sp
 import zeckenum
 from bruteforce import census, move_graph, start_state
-from zeckenum.counting.points import (
-    count_points,
-    counts_from_values,
-    ntt_primes,
-    ntt_primes_for_bits,
-    residues_from_values,
-    root_of_unity,
-    transform_order,
-)
+from zeckenum.core.ntt import counts_from_values, ntt_primes, ntt_primes_for_bits, root_of_unity
+from zeckenum.counting.points import count_points, residues_from_values, transform_order
 from zeckenum.errors import CheckPrimeMismatch
 
 
