@@ -545,13 +545,20 @@ def _shard_rows(p: dict) -> list[tuple[str, str]]:
         ("shards", f"{p['shards']} (up to {plural(p['primes_per_shard'], 'prime')} each)"),
         ("word updates (exact)", updates),
         ("memory per worker", memory),
-        ("first sweep (measured)", f"{p['seconds_first_sweep']:.2f} s"),
-        ("rate (probe " + p["probe"] + ")", f"{p['updates_per_second']:,} updates/s"),
-        (f"predicted time, {p['workers']} worker(s)", f"{p['predicted_seconds']:.1f} s"),
+        *_time_rows(p),
     ]
     if p["workers"] > 1:
         rows.append(("predicted time, 1 worker", f"{p['predicted_seconds_one_worker']:.1f} s"))
     return rows
+
+
+def _time_rows(p: dict) -> list[tuple[str, str]]:
+    """The first sweep, the probe's rate and the predicted time of a sharded forecast."""
+    return [
+        ("first sweep (measured)", f"{p['seconds_first_sweep']:.2f} s"),
+        ("rate (probe " + p["probe"] + ")", f"{p['updates_per_second']:,} updates/s"),
+        (f"predicted time, {p['workers']} worker(s)", f"{p['predicted_seconds']:.1f} s"),
+    ]
 
 
 def _count_rows(p: dict) -> list[tuple[str, str]]:
@@ -622,9 +629,7 @@ def _route_rows(p: dict) -> list[tuple[str, str]]:
         ("memory per worker (exact)", f"{p['memory_per_worker']} (first sweep's data "
                                       f"{human(p['memory_shared_bytes'])} + shards)"),
         ("word updates (exact)", f"{p['word_updates']:,}"),
-        ("first sweep (measured)", f"{p['seconds_first_sweep']:.2f} s"),
-        ("rate (probe " + p["probe"] + ")", f"{p['updates_per_second']:,} updates/s"),
-        (f"predicted time, {p['workers']} worker(s)", f"{p['predicted_seconds']:.1f} s"),
+        *_time_rows(p),
     ]
     if p["workers"] > 1:
         rows.append(("predicted time, 1 worker", f"{p['predicted_seconds_one_worker']:.1f} s"))

@@ -95,6 +95,7 @@ from zeckenum.randomplay.skeleton import (
     weight_bound,
 )
 from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.model import RuleSet
 
 # ----------------------------------------------------------------------------- second sweep
 
@@ -557,6 +558,27 @@ def refuse_random(
                  f"random play at n={n}", threads=threads)
 
 
+def checked_first_sweep(
+    n: int, rules: str | RuleSet, players: int, model: str, prime_offset: int,
+    threads: int | None, max_memory: int | None,
+) -> tuple[RuleSet, StateSpace, Skeleton, int | None, float]:
+    """The start of every exact random play (windows or points): the arguments checked,
+    the space refused up front under `max_memory` (`random_space`), then random play's
+    first sweep.  Returns (rule set, space, skeleton, checked threads, perf_counter at the
+    start)."""
+    import time
+
+    check_random_args(n, players, model)
+    check_prime_offset(prime_offset)
+    threads = check_threads(threads)
+    rs = get_rules(rules)
+    limit = resolve_limit(max_memory)
+    t0 = time.perf_counter()
+    space = random_space(rs.instantiate(n), model, limit, f"random play at n={n}",
+                         threads=threads)
+    return rs, space, random_skeleton(space, model, threads=threads), threads, t0
+
+
 def random_play(
     n: int, rules: str = "standard", players: int = 2, model: str = "moves", *,
     winners_only: bool = False, prime_offset: int = 0, threads: int | None = None,
@@ -575,15 +597,8 @@ def random_play(
     when one prime does not fit (`random_block_plan`)."""
     import time
 
-    check_random_args(n, players, model)
-    check_prime_offset(prime_offset)
-    threads = check_threads(threads)
-    rs = get_rules(rules)
-    limit = resolve_limit(max_memory)
-    t0 = time.perf_counter()
-    what = f"random play at n={n}"
-    space = random_space(rs.instantiate(n), model, limit, what, threads=threads)
-    skel = random_skeleton(space, model, threads=threads)
+    rs, space, skel, threads, t0 = checked_first_sweep(n, rules, players, model, prime_offset,
+                                                       threads, max_memory)
     t1 = time.perf_counter()
     first_bytes = skeleton_bytes_bound(space, model, True, threads)
     block_bytes: list[int] = []

@@ -48,9 +48,7 @@ from collections.abc import Sequence
 import numpy as np
 from zeckenum.core.blocks import run_blocks
 from zeckenum.core.checks import (
-    check_prime_offset,
     check_random_args,
-    check_threads,
     thread_count,
 )
 from zeckenum.core.jit import kernel
@@ -65,16 +63,13 @@ from zeckenum.core.ntt import (
 )
 from zeckenum.core.sweep import drop_stale, gather_passes
 from zeckenum.errors import CheckPrimeMismatch, InputError
-from zeckenum.randomplay.exact import RandomResult, assemble_random
+from zeckenum.randomplay.exact import RandomResult, assemble_random, checked_first_sweep
 from zeckenum.randomplay.skeleton import (
     Skeleton,
-    random_skeleton,
-    random_space,
     skeleton_bytes_bound,
     skeleton_nbytes,
     weight_bound,
 )
-from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
 
 MAX_POINTS_PER_SHARD = 1 << 20
@@ -263,16 +258,11 @@ def random_play_points(
     probabilities are summed from the law (by length mod players) before the CRT.
     """
     check_random_args(n, players, model)
-    check_prime_offset(prime_offset)
-    threads = check_threads(threads)
     per_req = None if points_per_shard is None else check_points_per_shard(points_per_shard)
-    rs = get_rules(rules)
+    rs, space, skel, threads, t0 = checked_first_sweep(n, rules, players, model, prime_offset,
+                                                       threads, max_memory)
     limit = resolve_limit(max_memory)
     nthreads = thread_count(threads)
-    t0 = time.perf_counter()
-    what = f"random play at n={n}"
-    space = random_space(rs.instantiate(n), model, limit, what, threads=threads)
-    skel = random_skeleton(space, model, threads=threads)
     t1 = time.perf_counter()
     order = law_order(skel.shortest, skel.longest)
     per = order if per_req is None else min(per_req, order)
