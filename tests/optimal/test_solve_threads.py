@@ -273,3 +273,25 @@ def test_layer_classes_default_is_one_thread() -> None:
     space = build_space(get_rules("standard").instantiate(30))
     _, stats = classify.layer_classes(space)
     assert stats["parallel_layers"] == 0
+
+
+# --- the forecast ------------------------------------------------------------------------
+
+
+def test_plan_forecast_with_threads(every_layer_threaded: None) -> None:
+    """Source: the layer sizes (rank table) and the plan's documented bound: a threaded
+    layer walks at least its states / threads and at most all of them; one thread walks
+    every state; the chain forecast (shards) ignores threads."""
+    from zeckenum.cluster.predict import predict_solve, solve_critical_states
+
+    space = build_space(get_rules("standard").instantiate(80))
+    total = space.total_states()
+    assert solve_critical_states(space, 1) == total
+    two = solve_critical_states(space, 2)
+    assert sum(-(-space.layer_size(lv) // 2) for lv in space.levels) <= two <= total
+    p = predict_solve(80, threads=2, probe_n=40)
+    assert p["threads"] == 2 and p["states"] == total
+    q = predict_solve(80, threads=2, shards=2, probe_n=40)
+    assert q["threads"] == 1
+    with pytest.raises(InputError):
+        predict_solve(80, threads=0, probe_n=40)
