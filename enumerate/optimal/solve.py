@@ -162,12 +162,13 @@ def solve_peak_bits(space: StateSpace, players: int = 2) -> int:
     return peak
 
 
-def wave_plan_bytes(space: StateSpace, threads: int) -> int:
+def wave_plan_bytes(space: StateSpace, threads: int, players: int = 2) -> int:
     """Bytes of the largest parallel plan (`optimal.waves.plan_bytes`) among the layers that
     run on several threads (0 with one thread); their bits are those of `solve_peak_bits`."""
     sizes = [space.layer_size(lv) for lv in space.levels]
-    cross = int(space.spec.mv_bins.shape[0])
-    return max((plan_bytes(s, cross) for s in sizes if parallel_layer(s, threads)),
+    moves = int(space.spec.mv_bins.shape[0])
+    planes = 1 if players == 2 else players
+    return max((plan_bytes(s, moves, planes) for s in sizes if parallel_layer(s, threads)),
                default=0)
 
 
@@ -184,7 +185,7 @@ def solve_bytes(space: StateSpace, players: int, reach: bool, keep_classes: bool
     planes = 1 if players == 2 else players
     total_bits = all_layers_bytes(space)
     need = (int(space.tab.nbytes) + solve_peak_bits(space, players)
-            + wave_plan_bytes(space, threads))
+            + wave_plan_bytes(space, threads, players))
     if reach:
         largest = space.largest_layer()
         need += total_bits + largest * 8 * space.spec.nbins + 2 * solve_peak_bits(space, 2)

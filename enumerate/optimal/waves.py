@@ -42,7 +42,7 @@ its own two *edge* bytes (`edges[block, 0..1]`, per plane), and are read from th
 its own walk and by later blocks; after every block has finished, one thread ORs the edge
 bytes into the layer's bits.  So no byte is written by two threads, and no byte is read
 by one thread while another writes it.  Memory: the layer's one bit per state per plane,
-plus 56 bytes per block (at most `max_blocks(size)`: a fraction of a bit per state).
+plus the plan of the layer being classified (bounded by `plan_bytes`).
 
 Choice of h (`block_plan`).  Larger h: fewer, larger blocks (less overhead, less
 parallelism); smaller h: more, smaller blocks.  For each h from bins down (while the blocks
@@ -93,20 +93,19 @@ ERR_WALK = 1
 
 def max_blocks(size: int) -> int:
     """Most blocks a plan of a layer of `size` states may have."""
-    return max(4096, size >> 10)
+    return max(4096, size >> 12)
 
 
-BLOCK_BYTES = 56
-"""Bytes per block of a plan and its schedule (rank, size, critical path, edge bytes,
-pending count, and up to two dependants' CSR entries on average are bounded by the edge
-lists below)."""
-
-
-def plan_bytes(size: int, cross_moves: int) -> int:
-    """Upper bound of a plan's arrays for a layer of `size` states (`block_plan`): per block
-    BLOCK_BYTES, per possible edge (blocks x cross moves) 24 bytes."""
+def plan_bytes(size: int, moves: int, planes: int = 1) -> int:
+    """Upper bound of a plan and its schedule for a layer of `size` states (`block_plan`,
+    `layer_blocks`) in a game of `moves` moves: per block its rank, size, critical path,
+    pending count, dependants' pointer and a place in the ready list (96 bytes) and its
+    edge bytes (2 per plane); per possible edge (blocks x moves) its source, target and
+    their sorted copies (32 bytes).  At most max_blocks(size) + 1 blocks: an upper bound
+    of about 13 MiB for the largest layer of n = 500 (66 million states, 23 moves), held
+    for one layer at a time; the plans actually chosen are far smaller."""
     cap = max_blocks(size) + 1
-    return cap * (BLOCK_BYTES + 24 * max(1, cross_moves))
+    return cap * (96 + 2 * planes + 32 * max(1, moves))
 
 
 # ----------------------------------------------------------------------------- plan
