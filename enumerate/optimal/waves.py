@@ -51,9 +51,10 @@ BLOCK_COST x blocks / threads, where the critical path is the heaviest chain of 
 each block weighing its states; the cheapest h wins.  Layers below PARALLEL_MIN_STATES
 states (and every layer with one thread) run the serial kernels.
 
-Kernels: `cut_blocks` (blocks, edges and critical path for one h), `classify_blocks_2p` /
-`classify_blocks_multi` (one batch of blocks), `merge_edges`.  Wrappers: `block_plan` (the
-plan of one layer), `layer_blocks` (run one layer on threads).
+Kernels: `cross_moves` (the moves that leave a block), `cut_blocks` (blocks, edges and
+critical path for one h), `classify_blocks_2p` / `classify_blocks_multi` (one batch of
+blocks), `release_blocks` (the blocks a finished batch frees), `merge_edges`.  Wrappers:
+`block_plan` (the plan of one layer), `layer_blocks` (run one layer on threads).
 """
 
 from __future__ import annotations
