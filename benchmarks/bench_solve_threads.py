@@ -10,6 +10,14 @@ next to each figure.
 
     python benchmarks/bench_solve_threads.py --n 300 400 --threads 1 2
     python benchmarks/bench_solve_threads.py --n 500 --threads 2 --repeat 1
+
+Measured on the shared 2-core machine (2026-12-03; other jobs running, 1-minute load
+beside each figure): n = 300: 1 thread 14.2 s (load 2.8), 2 threads 22.3 s (load 2.7),
+ratio 0.63; again 14.2 s / 16.3 s at load 5, ratio 0.87; in one idle moment (load 0)
+13.1 s / 9.7 s in-process, ratio 1.35.  n = 400: 103.1 s (load 3.4) / 63.7 s (load 1.5),
+ratio 1.62; again 106.8 s / 112.0 s at load 5, ratio 0.95.  n = 500 (3,175,402,700
+states), 2 threads: 558 s, peak RSS 282 MiB (load 1.1 at the start, up to 6.7 during).
+Peak RSS: 172-189 MiB at n = 300 and 400, whatever the threads.
 """
 
 from __future__ import annotations
