@@ -35,7 +35,7 @@ VOLATILE = {
     "stats", "seconds", "seconds_total", "seconds_first_sweep", "seconds_reach",
     "states_per_second", "updates_per_second", "probe", "predicted_seconds",
     "predicted_seconds_one_worker", "version", "created", "command", "host", "python",
-    "machine", "generated", "elapsed", "seed_used", "path", "out",
+    "machine", "generated", "elapsed", "seed_used", "path", "out", "threads",
 }
 """Keys whose values depend on the machine or the moment, not on the game."""
 

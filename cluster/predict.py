@@ -18,7 +18,8 @@ solve   (`predict_solve`)  Exact: the states of the space from the rank table (a
         in the standard game; for other rule sets an upper bound, made exact by the
         reachability sweep with `reach=True`), the level ranges of the chain
         (`solve_chain.plan_ranges`) and the peak bit memory (`solve_peak_bits`).  Rate: states
-        walked per second of a probe solve (`probe_solve_rate`).
+        walked per second of a probe solve (`probe_solve_rate`, one thread); the in-process
+        solve on K threads walks each large layer's critical path (`solve_critical_states`).
 
 The sharded kinds (count, random) forecast the wall time on K workers as the first sweep
 (every worker runs it, in parallel) plus the busiest worker's shards divided by the rate.
@@ -29,6 +30,7 @@ on the workers.
 from __future__ import annotations
 
 import math
+import os
 import textwrap
 import time
 from dataclasses import replace
@@ -38,7 +40,13 @@ from zeckenum.cluster.kinds import random_kind
 from zeckenum.cluster.plan import ShardPlan, make_plan, worker_bytes
 from zeckenum.cluster.random_tasks import RandomFacts
 from zeckenum.cluster.solve_chain import plan_ranges
-from zeckenum.core.checks import check_n, check_players, check_random_args
+from zeckenum.core.checks import (
+    check_n,
+    check_players,
+    check_random_args,
+    check_threads,
+    thread_count,
+)
 from zeckenum.core.memory import human, resolve_limit
 from zeckenum.core.modular import mul_primes, primes_for_bits
 from zeckenum.core.ntt import ntt_primes, root_of_unity
@@ -66,6 +74,7 @@ from zeckenum.optimal.solve import (
     solve_space,
     window_bytes,
 )
+from zeckenum.optimal.waves import block_plan, parallel_layer
 from zeckenum.randomplay.exact import refuse_random
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import RuleSet
@@ -448,9 +457,9 @@ def probe_solve_rate(probe_n: int = PROBE_SOLVE_N, rules: str | RuleSet = "stand
     (its reachability sweep included, for the rule sets that need one)."""
     check_probe(probe_n)
     ruleset = get_rules(rules)
-    solve(5, ruleset, players)  # compile / load kernels outside the measurement
+    solve(5, ruleset, players, threads=1)  # compile / load kernels outside the measurement
     t0 = time.perf_counter()
-    res = solve(probe_n, ruleset, players)
+    res = solve(probe_n, ruleset, players, threads=1)
     wall = time.perf_counter() - t0
     walked = build_space(ruleset.instantiate(probe_n)).total_states()
     return {
@@ -460,10 +469,27 @@ def probe_solve_rate(probe_n: int = PROBE_SOLVE_N, rules: str | RuleSet = "stand
     }
 
 
+def solve_critical_states(space: StateSpace, threads: int) -> int:
+    """States the in-process solve on `threads` threads walks one after the other: a layer
+    run serially counts all its states, a layer run on threads (`waves.parallel_layer`) the
+    larger of its plan's critical path and its states / min(threads, cores)
+    (`waves.block_plan`, the plan the solve itself uses)."""
+    cores = max(1, min(threads, os.cpu_count() or 1))
+    total = 0
+    for level in space.levels:
+        size = space.layer_size(level)
+        if parallel_layer(size, threads):
+            plan = block_plan(space, level, threads)
+            total += max(plan.critical_states, math.ceil(size / cores))
+        else:
+            total += size
+    return total
+
+
 def predict_solve(
     n: int, rules: str | RuleSet = "standard", workers: int = 1, *,
     players: int = 2, shards: int | None = None, reach: bool = False,
-    probe_n: int | None = None, max_memory: int | None = None,
+    probe_n: int | None = None, max_memory: int | None = None, threads: int | None = None,
 ) -> dict:
     """Forecast of `run_solve(n, rules, players, shards=shards, workers=workers)`.
 
@@ -475,11 +501,14 @@ def predict_solve(
     memory (`solve_peak_bits`, equal to the run's `peak_bits_bytes`).  Memory per worker
     adds the rank table and, for rule sets that need it, the reachability bits (kept for
     the whole sweep).  Time = states of the space / the probe's states per second
-    (`probe_solve_rate` at `probe_n`, default PROBE_SOLVE_N), whatever the workers.
+    (`probe_solve_rate` at `probe_n`, default PROBE_SOLVE_N), whatever the workers; for
+    the in-process solve (workers 1, no shards) on `threads` threads (default every core)
+    the states are those of `solve_critical_states` instead.
     """
     n = check_n(n)
     check_players(players)
     _check_workers(workers)
+    threads = thread_count(check_threads(threads))
     check_probe(probe_n or PROBE_SOLVE_N)
     ruleset = get_rules(rules)
     # the rank table of n (and with `reach` the reachability bits) are refused first
@@ -498,13 +527,18 @@ def predict_solve(
     peak = solve_peak_bits(space, players)
     reach_bytes = all_layers_bytes(space) if reach_pass else 0
     memory = peak + reach_bytes + space.tab.nbytes
-    seconds = total / rate["states_per_second"]
+    in_process = workers == 1 and shards is None
+    if not in_process:
+        threads = 1  # a chain runs each level range on one thread
+    walked = solve_critical_states(space, threads) if threads > 1 else total
+    seconds = walked / rate["states_per_second"]
     return {
         "kind": "solve",
         "rules": ruleset.name,
         "n": n,
         "players": players,
         "workers": workers,
+        "threads": threads,
         "states_in_space": total,
         "states": states,
         "states_exact": exact,
@@ -603,7 +637,9 @@ def _solve_rows(p: dict) -> list[tuple[str, str]]:
     rows += [
         ("memory per worker", p["memory_per_worker"]),
         ("rate (probe " + p["probe"] + ")", f"{p['states_per_second']:,} states/s"),
-        (f"predicted time, {p['workers']} worker(s)", f"{p['predicted_seconds']:.1f} s"),
+        (f"predicted time, {p['workers']} worker(s)"
+         + (f", {p['threads']} threads" if p.get("threads", 1) > 1 else ""),
+         f"{p['predicted_seconds']:.1f} s"),
     ]
     return rows
 

@@ -194,17 +194,25 @@ def solve(
     n: int, rules: str | RuleSet = "standard", players: int = 2, *,
     max_memory: int | None = None, progress: bool = False, workers: int | None = None,
     scheduler: str | None = None, checkpoint: str | Path | None = None,
-    shards: int | None = None,
+    shards: int | None = None, threads: int | None = None,
 ) -> SolveResult:
-    """Optimal play at n (`zeckenum.optimal.solve.solve`), or the same as a chain of
-    level-range shards (`zeckenum.cluster.solve_chain.run_solve`) when `workers`,
-    `scheduler`, `checkpoint` or `shards` is given.  A chain on this machine (no
-    `scheduler`) or with `max_memory` is refused up front as the in-process solve would
-    be, before any worker starts."""
+    """Optimal play at n (`zeckenum.optimal.solve.solve`, each large layer on `threads`
+    threads, default every core), or the same as a chain of level-range shards
+    (`zeckenum.cluster.solve_chain.run_solve`) when `workers`, `scheduler`, `checkpoint` or
+    `shards` is given; the chain's ranges run on one thread each, so `threads` is refused
+    with it.  A chain on this machine (no `scheduler`) or with `max_memory` is refused up
+    front as the in-process solve would be, before any worker starts."""
+    from zeckenum.core.checks import check_threads
+    from zeckenum.errors import InputError
     from zeckenum.rules.catalogue import get_rules
 
+    threads = check_threads(threads)
     rs = get_rules(rules)
     if _sharded(workers, scheduler, checkpoint) or shards:
+        if threads is not None:
+            raise InputError("--threads runs the in-process solve; a chain of level ranges "
+                             "(--workers, --scheduler, --checkpoint, --shards) runs each "
+                             "range on one thread")
         from zeckenum.cluster.solve_chain import run_solve
         from zeckenum.core.memory import resolve_limit
         from zeckenum.optimal.solve import needs_reach, solve_space
@@ -216,7 +224,8 @@ def solve(
                          checkpoint_dir=checkpoint, shards=shards, progress=progress)
     from zeckenum.optimal import solve as engine
 
-    return engine.solve(n, rs, players, max_memory=max_memory, progress=progress)
+    return engine.solve(n, rs, players, max_memory=max_memory, progress=progress,
+                        threads=threads)
 
 
 def games(n: int, rules: str | RuleSet = "standard", near: int = 3, *,

@@ -16,6 +16,7 @@ from zeckenum import api
 from zeckenum.cli.errors import OneLineCommand, fail
 from zeckenum.cli.options import (
     SHARDS,
+    THREADS,
     backend_options,
     json_option,
     max_memory_option,
@@ -89,17 +90,21 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
 )
 @click.option("--shards", type=SHARDS, default=None,
               help="Cut the levels into this many ranges (default: about 2e7 states each).")
+@click.option("--threads", type=THREADS, default=None,
+              help="Threads that classify each large layer together (default: all cores; "
+                   "the result is the same whatever the threads).")
 @progress_option("Show a progress bar of the states (or level ranges) on stderr")
 @max_memory_option
 def solve_command(n: int, rules_name: str, players: int, strategy_path: str | None,
                   as_json: bool, workers: int | None, scheduler: str | None,
-                  checkpoint_dir: str | None, shards: int | None, progress: bool | None,
-                  max_memory: int | None) -> None:
+                  checkpoint_dir: str | None, shards: int | None, threads: int | None,
+                  progress: bool | None, max_memory: int | None) -> None:
     """Who wins the game for N under optimal play (the last player to move wins).
 
     \b
     Examples:
       zeckenum solve 100
+      zeckenum solve 400 --threads 2
       zeckenum solve 60 --players 3 --json
       zeckenum solve 80 --strategy n80.zstrat.gz
       zeckenum solve 500 --checkpoint ckpt-solve500 --progress
@@ -115,7 +120,7 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
             raise InputError("--strategy runs in-process; it does not take --workers, "
                              "--scheduler, --checkpoint, --shards or --progress")
         check_output_file(strategy_path, "strategy file")
-        strat, res = winning_strategy(n, rules, max_memory=max_memory)
+        strat, res = winning_strategy(n, rules, max_memory=max_memory, threads=threads)
         try:
             nbytes = write_strategy(strategy_path, strat, rules.bin_values(n), rules)
         except OutputError as exc:  # the strategy went to a rescue file; still report
@@ -124,7 +129,8 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
     else:
         res = api.solve(n, rules, players, max_memory=max_memory,
                         progress=resolve_progress(progress), workers=workers,
-                        scheduler=scheduler, checkpoint=checkpoint_dir, shards=shards)
+                        scheduler=scheduler, checkpoint=checkpoint_dir, shards=shards,
+                        threads=threads)
     if as_json:
         out = res.to_dict()
         if info is not None:

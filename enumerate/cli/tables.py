@@ -18,6 +18,7 @@ from zeckenum.cli.options import (
     POSITIVE,
     SEED,
     SHARDS,
+    THREADS,
     backend_options,
     bounded,
     json_option,
@@ -214,10 +215,12 @@ def plan_random_command(n, model, players, winners_only, workers, rules, probe_n
                    "than the standard game; else the count is an upper bound).")
 @rules_option()
 @probe_option("n of the calibration solve on this machine (20..400, default 160).", None)
+@click.option("--threads", type=THREADS, default=None,
+              help="Threads of the in-process solve (default: all cores).")
 @json_option("Print one JSON object.")
 @max_memory_option
 def plan_solve_command(n, players, workers, shards, reach, rules, probe_n,  # noqa: ANN001
-                       as_json, max_memory) -> None:  # noqa: ANN001
+                       threads, as_json, max_memory) -> None:  # noqa: ANN001
     """Forecast optimal play: states, level ranges, bit memory, time.
 
     Reads the exact sizes off the rank table and times a small calibration solve.  The
@@ -231,7 +234,7 @@ def plan_solve_command(n, players, workers, shards, reach, rules, probe_n,  # no
 
     _check_probe(probe_n)
     p = predict_solve(n, rules, workers, players=players, shards=shards, reach=reach,
-                      probe_n=probe_n, max_memory=max_memory)
+                      probe_n=probe_n, max_memory=max_memory, threads=threads)
     _echo_prediction(p, as_json)
 
 

@@ -32,6 +32,8 @@ reachable from the start: the sweep every rule set but the standard game needs f
 from __future__ import annotations
 
 from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
+from contextlib import nullcontext
 
 import numpy as np
 from zeckenum.core.jit import kernel
@@ -51,6 +53,7 @@ from zeckenum.optimal.walk import (
     _walk_start,
     is_unit_game,
 )
+from zeckenum.optimal.waves import layer_blocks, parallel_layer
 
 
 @kernel
@@ -336,6 +339,7 @@ def layer_classes(
     levels: range | None = None,
     held: dict[int, np.ndarray] | None = None,
     on_layer: Callable[[int], None] | None = None,
+    threads: int = 1,
 ) -> tuple[dict[int, np.ndarray], dict]:
     """Run the upward sweep; returns (packed bits of the retained layers, statistics).
 
@@ -350,6 +354,12 @@ def layer_classes(
     levels just below them.  Pieces chained this way return exactly the bits of one whole
     sweep; their statistics add up to its statistics (the peak is a maximum).
     `on_layer(states)` is called after each layer with its number of states (progress).
+
+    `threads` >= 2: every layer of at least `waves.PARALLEL_MIN_STATES` states is cut into
+    blocks that `threads` threads classify as their dependencies finish
+    (`optimal.waves.layer_blocks`, whose docstring proves the decomposition); the bits,
+    P-positions, moves examined and `peak_bits_bytes` are those of the serial kernels.
+    `stats["parallel_layers"]` counts the layers run that way.
     """
     spec = space.spec
     top = spec.start_level
@@ -357,44 +367,64 @@ def layer_classes(
     planes = 1 if players == 2 else players
     held = {} if held is None else dict(held)
     stats = {"states": 0, "p_positions": 0, "moves_examined": 0, "peak_bits_bytes": 0,
-             "layers": 0}
+             "layers": 0, "parallel_layers": 0}
     no_reach = np.zeros(1, dtype=np.uint8)
-    for level in range(0, top + 1) if levels is None else levels:
-        size = space.layer_size(level)
-        if size == 0:
-            continue
-        buf, base, nb0 = _flight(space, level, span, held, planes)
-        lay_reach = no_reach if reach is None else reach[level]
-        if players == 2:
-            flat = buf[0]
-            pc, ex, bad = classify_layer_2p(
-                spec.n, level, size, space.tab, spec.values, spec.weights, spec.mv_bins,
-                spec.mv_delta, spec.mv_drop, span, flat, base, lay_reach, reach is not None,
-            )
-            stats["p_positions"] += int(pc)
-            cur = flat[:nb0].copy()
-        else:
-            ex, bad = classify_layer_multi(
-                spec.n, level, size, space.tab, spec.values, spec.weights, spec.mv_bins,
-                spec.mv_delta, spec.mv_drop, span, players, buf, base, lay_reach, reach is not None,
-            )
-            cur = buf[:, :nb0].copy()
-        if bad >= 0:
-            refuse_order(space.spec, level, int(bad))
-        held_bytes = sum(a.nbytes for a in held.values()) + buf.nbytes + cur.nbytes
-        stats["peak_bits_bytes"] = max(stats["peak_bits_bytes"], held_bytes)
-        del buf
-        held[level] = cur
-        if reach is None:
-            stats["states"] += size
-        else:
-            stats["states"] += int(np.bitwise_count(reach[level]).sum())
-        stats["moves_examined"] += int(ex)
-        stats["layers"] += 1
-        if on_layer is not None:
-            on_layer(size)
-        if not keep:
-            for old in [lv for lv in held if lv < level - span]:
-                del held[old]
+    with ThreadPoolExecutor(threads) if threads >= 2 else nullcontext() as pool:
+        for level in range(0, top + 1) if levels is None else levels:
+            _sweep_level(space, level, players, span, planes, held, reach, no_reach, keep,
+                         threads, pool, stats, on_layer)
     return held, stats
 
+
+def _sweep_level(
+    space: StateSpace, level: int, players: int, span: int, planes: int,
+    held: dict[int, np.ndarray], reach: dict[int, np.ndarray] | None, no_reach: np.ndarray,
+    keep: bool, threads: int, pool: ThreadPoolExecutor | None, stats: dict,
+    on_layer: Callable[[int], None] | None,
+) -> None:
+    """One level of `layer_classes`: classify it into `held`, update `stats`."""
+    spec = space.spec
+    size = space.layer_size(level)
+    if size == 0:
+        return
+    buf, base, nb0 = _flight(space, level, span, held, planes)
+    lay_reach = no_reach if reach is None else reach[level]
+    if pool is not None and parallel_layer(size, threads):
+        pc, ex, bad = layer_blocks(space, level, players, buf, base, lay_reach,
+                                   reach is not None, threads, pool)
+        stats["p_positions"] += int(pc)
+        stats["moves_examined"] += int(ex)
+        stats["parallel_layers"] += 1
+        cur = buf[0, :nb0].copy() if players == 2 else buf[:, :nb0].copy()
+    elif players == 2:
+        flat = buf[0]
+        pc, ex, bad = classify_layer_2p(
+            spec.n, level, size, space.tab, spec.values, spec.weights, spec.mv_bins,
+            spec.mv_delta, spec.mv_drop, span, flat, base, lay_reach, reach is not None,
+        )
+        stats["p_positions"] += int(pc)
+        stats["moves_examined"] += int(ex)
+        cur = flat[:nb0].copy()
+    else:
+        ex, bad = classify_layer_multi(
+            spec.n, level, size, space.tab, spec.values, spec.weights, spec.mv_bins,
+            spec.mv_delta, spec.mv_drop, span, players, buf, base, lay_reach, reach is not None,
+        )
+        stats["moves_examined"] += int(ex)
+        cur = buf[:, :nb0].copy()
+    if bad >= 0:
+        refuse_order(space.spec, level, int(bad))
+    held_bytes = sum(a.nbytes for a in held.values()) + buf.nbytes + cur.nbytes
+    stats["peak_bits_bytes"] = max(stats["peak_bits_bytes"], held_bytes)
+    del buf
+    held[level] = cur
+    if reach is None:
+        stats["states"] += size
+    else:
+        stats["states"] += int(np.bitwise_count(reach[level]).sum())
+    stats["layers"] += 1
+    if on_layer is not None:
+        on_layer(size)
+    if not keep:
+        for old in [lv for lv in held if lv < level - span]:
+            del held[old]

@@ -27,10 +27,11 @@ import time
 from dataclasses import dataclass, field
 
 import numpy as np
-from zeckenum.core.checks import check_n, check_players
+from zeckenum.core.checks import check_n, check_players, check_threads, thread_count
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.statespace import StateSpace, build_space, refuse_space
 from zeckenum.optimal.classify import layer_classes, reachable_bits
+from zeckenum.optimal.waves import parallel_layer, plan_bytes
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import STANDARD, GameSpec, RuleSet
 
@@ -161,17 +162,30 @@ def solve_peak_bits(space: StateSpace, players: int = 2) -> int:
     return peak
 
 
-def solve_bytes(space: StateSpace, players: int, reach: bool, keep_classes: bool) -> int:
+def wave_plan_bytes(space: StateSpace, threads: int, players: int = 2) -> int:
+    """Bytes of the largest parallel plan (`optimal.waves.plan_bytes`) among the layers that
+    run on several threads (0 with one thread); their bits are those of `solve_peak_bits`."""
+    sizes = [space.layer_size(lv) for lv in space.levels]
+    moves = int(space.spec.mv_bins.shape[0])
+    planes = 1 if players == 2 else players
+    return max((plan_bytes(s, moves, planes) for s in sizes if parallel_layer(s, threads)),
+               default=0)
+
+
+def solve_bytes(space: StateSpace, players: int, reach: bool, keep_classes: bool,
+                threads: int = 1) -> int:
     """Forecast peak bytes of `solve`, an upper bound up to the kernels' O(bins) scratch.
 
-    Counts the rank table, the outcome bits (`solve_peak_bits`), and with `reach` the
+    Counts the rank table, the outcome bits (`solve_peak_bits`), the plan of the largest
+    layer run on several threads (`wave_plan_bytes`), and with `reach` the
     reachability sweep: one bit per state kept for the whole solve, the largest layer's
     states (int64 per bin) and its flight buffer; with `keep_classes` every layer's bits
     (per plane) and their unpacked bool copies.
     """
     planes = 1 if players == 2 else players
     total_bits = all_layers_bytes(space)
-    need = int(space.tab.nbytes) + solve_peak_bits(space, players)
+    need = (int(space.tab.nbytes) + solve_peak_bits(space, players)
+            + wave_plan_bytes(space, threads, players))
     if reach:
         largest = space.largest_layer()
         need += total_bits + largest * 8 * space.spec.nbins + 2 * solve_peak_bits(space, 2)
@@ -181,12 +195,12 @@ def solve_bytes(space: StateSpace, players: int, reach: bool, keep_classes: bool
 
 
 def solve_space(spec: GameSpec, limit: int, players: int, reach: bool, keep_classes: bool,
-                what: str) -> StateSpace:
+                what: str, threads: int = 1) -> StateSpace:
     """The state space of a solve after its refusals: the rank table's exact size before
     it is allocated (`statespace.refuse_space`), then `solve_bytes` from the layer sizes."""
     refuse_space(spec, limit, what, per_state=1 / 8 if (reach or keep_classes) else 0.0)
     space = build_space(spec, limit)
-    refuse_if_over(solve_bytes(space, players, reach, keep_classes), limit, what)
+    refuse_if_over(solve_bytes(space, players, reach, keep_classes, threads), limit, what)
     return space
 
 
@@ -199,6 +213,7 @@ def solve(
     reach: bool | None = None,
     max_memory: int | None = None,
     progress: bool = False,
+    threads: int | None = None,
 ) -> SolveResult:
     """Solve the game for n: outcome classes (two players) or coalition wins (P players).
 
@@ -209,14 +224,17 @@ def solve(
     the standard game, whose states of value n are all reachable (module docstring).
     `max_memory` (default: what the machine has available): the run is refused up front
     when `solve_bytes` exceeds it (`solve_space`).  `progress`: a bar of the states
-    classified on stderr.
+    classified on stderr.  `threads` (default: every core) classify each large layer in
+    parallel waves (`classify.layer_classes`, `optimal.waves`): the result is the same bit
+    for bit, whatever the threads; the reachability sweep runs on one thread.
     """
     check_n(n)
     check_players(players)
+    threads = thread_count(check_threads(threads))
     rs = get_rules(rules)
     reach = needs_reach(rs) if reach is None else reach
     space = solve_space(rs.instantiate(n), resolve_limit(max_memory), players, reach,
-                        keep_classes, f"solving n={n}")
+                        keep_classes, f"solving n={n}", threads)
     t0 = time.perf_counter()
     reach_bits = reachable_bits(space)[0] if reach else None
     bar = None
@@ -227,12 +245,14 @@ def solve(
                    desc=f"solve n={n}")
     try:
         held, stats = layer_classes(space, players, keep=keep_classes, reach=reach_bits,
-                                    on_layer=bar.update if bar is not None else None)
+                                    on_layer=bar.update if bar is not None else None,
+                                    threads=threads)
     finally:
         if bar is not None:
             bar.close()
     stats["reach_pass"] = bool(reach)
-    stats["forecast_peak_bytes"] = solve_bytes(space, players, reach, keep_classes)
+    stats["forecast_peak_bytes"] = solve_bytes(space, players, reach, keep_classes, threads)
+    stats["threads"] = threads
     return solve_result(n, space, players, held, stats, time.perf_counter() - t0,
                         keep_classes=keep_classes)
 
@@ -302,6 +322,7 @@ def solve_result(
         classes=classes,
         stats={"layers": stats["layers"], "reach_pass": bool(stats.get("reach_pass")),
                **({"forecast_peak_bytes": stats["forecast_peak_bytes"]}
-                  if "forecast_peak_bytes" in stats else {})},
+                  if "forecast_peak_bytes" in stats else {}),
+               **{k: stats[k] for k in ("threads", "parallel_layers") if k in stats}},
     )
 

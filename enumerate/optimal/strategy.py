@@ -163,7 +163,7 @@ def move_graph(space: StateSpace, classes: dict[int, np.ndarray]) -> dict[str, n
 
 def winning_strategy(
     n: int, rules: str | RuleSet = "standard", *, prefer_shared: bool = True,
-    max_memory: int | None = None,
+    max_memory: int | None = None, threads: int | None = None,
 ) -> tuple[Strategy, SolveResult]:
     """Solve a small game and extract a compact winning strategy for its winner.
 
@@ -172,7 +172,8 @@ def winning_strategy(
     the strategy), and keeps the one listing fewer positions.
 
     The move graph of the whole game is held (about 20 bytes per move), so n is limited to
-    games of at most STRATEGY_MAX_STATES states.
+    games of at most STRATEGY_MAX_STATES states.  `threads` as in `solve.solve` (the
+    classes, hence the strategy, are the same whatever the threads).
     """
     rs = get_rules(rules)
     spec = rs.instantiate(check_n(n))
@@ -182,7 +183,7 @@ def winning_strategy(
             f"strategy export holds the whole move graph: n={n} has {space.total_states()} "
             f"states, the limit is {STRATEGY_MAX_STATES}"
         )
-    result = solve(n, rs, 2, keep_classes=True, max_memory=max_memory)
+    result = solve(n, rs, 2, keep_classes=True, max_memory=max_memory, threads=threads)
     g = move_graph(space, result.classes)
     order, ptr, dest, move, is_n, counts = (
         g["order"], g["ptr"], g["dest"], g["move"], g["is_n"], g["counts"]
