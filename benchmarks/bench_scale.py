@@ -83,7 +83,7 @@ def main() -> int:
     args = ap.parse_args()
     node_memory = parse_size(args.node_memory)
 
-    from distributed import Client
+    from distributed import Client, as_completed
     from zeckenum.cluster.backend import close_cluster, start_local_cluster
     from zeckenum.cluster.plan import points_plan, worker_bytes
     from zeckenum.core.ntt import counts_from_values, root_of_unity
@@ -98,6 +98,7 @@ def main() -> int:
                 for w in workers]
         sweeps = client.gather(futs)
         first_wall = time.perf_counter() - t0
+        print(f"first sweep on the workers: {first_wall:.1f} s", flush=True)
         facts = sweeps[0]["facts"]
         plan = points_plan(facts, 0, args.points_per_shard, args.workers)
         nshards = len(plan.blocks)
@@ -106,7 +107,11 @@ def main() -> int:
         t1 = time.perf_counter()
         futs = [client.submit(_timed_shard, args.rules, args.n, plan.shard_input(i),
                               pure=False) for i in picks]
-        shards = client.gather(futs)
+        shards = []
+        for fut in as_completed(futs):  # printed as they finish: a long sample says something
+            shards.append(fut.result())
+            print(f"shard: {shards[-1]['seconds']:.1f} s, {shards[-1]['updates']:.3g} "
+                  f"updates, worker peak {human(shards[-1]['peak_rss'])}", flush=True)
         sample_wall = time.perf_counter() - t1
         client.close()
     finally:
