@@ -498,16 +498,16 @@ def test_tiny_probabilities_do_not_underflow() -> None:
     assert decimal(Fraction(999_999_999_999_6, 10**13)) == "1"  # rounding carries
 
 
-def test_plural_forms() -> None:
+def test_plural_forms(tmp_path) -> None:  # noqa: ANN001
     """Common practice: '1 game', '1 move', '1 position' in human output."""
     from zeckenum.cli.optimal import check_strategy_command, solve_command
 
     sim = CliRunner().invoke(random_command, ["5", "--simulate", "1"])
     assert sim.exit_code == 0 and "1 game," in sim.output and "1 games" not in sim.output
-    with CliRunner().isolated_filesystem():
-        solved = CliRunner().invoke(solve_command, ["2", "--strategy", "s.zst"])
-        assert solved.exit_code == 0, solved.output
-        assert "1 position," in solved.output, solved.output
-        checked = CliRunner().invoke(check_strategy_command, ["s.zst"])
-        assert checked.exit_code == 0, checked.output
-        assert "1 move" in checked.output and "1 moves" not in checked.output
+    strategy = str(tmp_path / "s.zst")
+    solved = CliRunner().invoke(solve_command, ["2", "--strategy", strategy])
+    assert solved.exit_code == 0, solved.output
+    assert "1 position," in solved.output, solved.output
+    checked = CliRunner().invoke(check_strategy_command, [strategy])
+    assert checked.exit_code == 0, checked.output
+    assert "1 move" in checked.output and "1 moves" not in checked.output
