@@ -56,8 +56,10 @@ def count(
     checkpoint: str | Path | None = None, points_per_shard: int | None = None,
 ) -> CountResult:
     """Exact census of all games at n (`zeckenum.counting.count.count`), or the same
-    result computed prime block by prime block on a cluster and/or checkpointed
-    (`zeckenum.cluster.run.run_count`) when `workers`, `scheduler` or `checkpoint` is given.
+    result computed shard by shard on a cluster and/or checkpointed
+    (`zeckenum.cluster.run.run_count`) when `workers`, `scheduler` or `checkpoint` is given:
+    blocks of primes, or blocks of evaluation points when those do not fit a worker's
+    memory (`max_memory`, else the workers' own limit).
 
     With `points_per_shard` the census is computed by evaluation points
     (`zeckenum.counting.points.count_points`: shards of (prime, block of points), the same
