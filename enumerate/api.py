@@ -22,13 +22,23 @@ finished shards a rerun resumes from); with none of them the run stays in this p
 in-process, which are the ones that show progress by shard).  The engines never import
 `zeckenum.cluster`; only this module (and what it calls: tables, the cluster drivers) does.
 
+Positions: `count`, `random_play`, `random_float`, `simulate`, `solve`, `games`,
+`move_stats` and `build_table` take `position` (a count vector, bin 1 first: a sequence of
+ints or its text "3,1,0,2", README "Positions").  The game then starts at that position
+instead of the rule set's start (`RuleSet.at_position`; a rule file may also start at
+one); its value is the game's n, so `n` may be None, and an n given must equal it (one
+line otherwise).  Every engine and the cluster get the position inside the rule set they
+rebuild from, so no engine has a special case; results carry it as `position` (their
+`to_dict()` gains the key "position" only then).
+
 Every import of an engine is inside the function that needs it, so `import zeckenum` loads
 neither numba, Dask nor matplotlib; the first call pays for what it uses.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from collections.abc import Sequence
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -44,13 +54,62 @@ if TYPE_CHECKING:  # pragma: no cover - types only
     from zeckenum.rules.model import RuleSet
     from zeckenum.tables.format import Table
 
+Position = str | Sequence[int] | None
+"""A start position: None (the rule set's own start), "3,1,0,2" or a sequence of counts."""
+
+
+def game_at(n: int | None, rules: str | RuleSet, position: Position = None,
+            ) -> tuple[int, str | RuleSet]:
+    """(n, rules) of the game to run: with a `position` (or a rule set that starts at one),
+    the rule set started there and n = the position's value; `n` None is allowed then, and
+    an n that differs from the value is refused (InputError, one line).  Without a position
+    `n` is required and both are passed through unchanged."""
+    from zeckenum.core.checks import check_n
+    from zeckenum.errors import InputError
+    from zeckenum.rules.catalogue import get_rules
+    from zeckenum.rules.notation import format_position, parse_position
+
+    if position is None and n is not None and isinstance(rules, str):
+        return n, rules
+    rs = get_rules(rules)
+    if position is not None:
+        counts = parse_position(position) if isinstance(position, str) else tuple(position)
+        rs = rs.at_position(counts)
+    if rs.position is None:
+        if n is None:
+            raise InputError("give N, or a start position (--position COUNTS, e.g. 3,1,0,2)")
+        return n, rs
+    value = rs.position_value(rs.position)
+    if n is not None and n != value:
+        raise InputError(f"position {format_position(rs.position)} has value {value}, not "
+                         f"N={n} (give N = {value} or leave N out)")
+    return check_n(value), rs
+
+
+def start_label(rules: str | RuleSet) -> str:
+    """The display form of the start position `3,1,0,2 (3*1 + 1*2 + 2*5 = 15)` of a rule
+    set from `game_at`, or "" when it starts at its own start."""
+    return "" if isinstance(rules, str) else rules.start_label()
+
+
+def tagged(result, rules: str | RuleSet):  # noqa: ANN001, ANN201 - any result dataclass
+    """`result` with its `position` field set when `rules` starts at a position."""
+    pos = getattr(rules, "position", None)
+    if pos is None:
+        return result
+    from zeckenum.rules.notation import format_position
+
+    return replace(result, position=format_position(pos))
+
+
 def _sharded(workers: int | None, scheduler: str | None, checkpoint: str | Path | None) -> bool:
     """Whether a run leaves the plain in-process engine for a cluster driver."""
     return bool(workers or scheduler or checkpoint)
 
 
 def count(
-    n: int, rules: str | RuleSet = "standard", *, threads: int | None = None,
+    n: int | None = None, rules: str | RuleSet = "standard", *, position: Position = None,
+    threads: int | None = None,
     prime_offset: int = 0, max_memory: int | None = None, progress: bool = False,
     workers: int | None = None, scheduler: str | None = None,
     checkpoint: str | Path | None = None, points_per_shard: int | None = None,
@@ -64,7 +123,20 @@ def count(
     With `points_per_shard` the census is computed by evaluation points
     (`zeckenum.counting.points.count_points`: shards of (prime, block of points), the same
     result with more work and less memory per shard), in-process or, with `workers`,
-    `scheduler` or `checkpoint`, through the same sharded driver (the same result)."""
+    `scheduler` or `checkpoint`, through the same sharded driver (the same result).
+    With `position` the games start there (module docstring)."""
+    n, rules = game_at(n, rules, position)
+    return tagged(_count(n, rules, threads=threads, prime_offset=prime_offset,
+                         max_memory=max_memory, progress=progress, workers=workers,
+                         scheduler=scheduler, checkpoint=checkpoint,
+                         points_per_shard=points_per_shard), rules)
+
+
+def _count(
+    n: int, rules: str | RuleSet, *, threads: int | None, prime_offset: int,
+    max_memory: int | None, progress: bool, workers: int | None, scheduler: str | None,
+    checkpoint: str | Path | None, points_per_shard: int | None,
+) -> CountResult:
     if _sharded(workers, scheduler, checkpoint):
         from zeckenum.cluster.run import run_count
 
@@ -84,8 +156,9 @@ def count(
 
 
 def random_play(
-    n: int, rules: str | RuleSet = "standard", players: int = 2, model: str = "moves", *,
-    winners_only: bool = False, prime_offset: int = 0, threads: int | None = None,
+    n: int | None = None, rules: str | RuleSet = "standard", players: int = 2,
+    model: str = "moves", *, position: Position = None, winners_only: bool = False,
+    prime_offset: int = 0, threads: int | None = None,
     max_memory: int | None = None, progress: bool = False, workers: int | None = None,
     scheduler: str | None = None, checkpoint: str | Path | None = None,
     points_per_shard: int | None = None,
@@ -98,7 +171,21 @@ def random_play(
     With `points_per_shard` the law is computed by evaluation points
     (`zeckenum.randomplay.points.random_play_points`: shards of (prime, block of points),
     the same result with other primes, more work and less memory per shard; in-process
-    only for now, `progress` is ignored)."""
+    only for now, `progress` is ignored).  With `position` the games start there."""
+    n, rules = game_at(n, rules, position)
+    return tagged(_random_play(n, rules, players, model, winners_only=winners_only,
+                               prime_offset=prime_offset, threads=threads,
+                               max_memory=max_memory, progress=progress, workers=workers,
+                               scheduler=scheduler, checkpoint=checkpoint,
+                               points_per_shard=points_per_shard), rules)
+
+
+def _random_play(
+    n: int, rules: str | RuleSet, players: int, model: str, *, winners_only: bool,
+    prime_offset: int, threads: int | None, max_memory: int | None, progress: bool,
+    workers: int | None, scheduler: str | None, checkpoint: str | Path | None,
+    points_per_shard: int | None,
+) -> RandomResult:
     if points_per_shard is not None:
         if _sharded(workers, scheduler, checkpoint):
             from zeckenum.errors import InputError
@@ -126,23 +213,31 @@ def random_play(
 
 
 def random_float(
-    n: int, rules: str | RuleSet = "standard", players: int = 2, model: str = "moves", *,
-    threads: int | None = None, max_memory: int | None = None,
+    n: int | None = None, rules: str | RuleSet = "standard", players: int = 2,
+    model: str = "moves", *, position: Position = None, threads: int | None = None,
+    max_memory: int | None = None,
 ) -> FloatResult:
-    """Random play in float64 with a rigorous bound on the rounding error."""
+    """Random play in float64 with a rigorous bound on the rounding error (from `position`
+    when given)."""
     from zeckenum.randomplay.floating import float_play
 
-    return float_play(n, rules, players, model, threads=threads, max_memory=max_memory)
+    n, rules = game_at(n, rules, position)
+    return tagged(float_play(n, rules, players, model, threads=threads,
+                             max_memory=max_memory), rules)
 
 
 def simulate(
-    n: int, games: int, seed: int = 0, rules: str | RuleSet = "standard", players: int = 2,
-    model: str = "moves", *, max_memory: int | None = None,
+    n: int | None, games: int, seed: int = 0, rules: str | RuleSet = "standard",
+    players: int = 2, model: str = "moves", *, position: Position = None,
+    max_memory: int | None = None,
 ) -> SimulationResult:
-    """Monte Carlo: `games` random games at n, deterministic in `seed`."""
+    """Monte Carlo: `games` random games at n (from `position` when given), deterministic
+    in `seed`."""
     from zeckenum.randomplay import simulate as engine
 
-    return engine.simulate(n, games, seed, rules, players, model, max_memory=max_memory)
+    n, rules = game_at(n, rules, position)
+    return tagged(engine.simulate(n, games, seed, rules, players, model,
+                                  max_memory=max_memory), rules)
 
 
 @dataclass(frozen=True)
@@ -193,8 +288,9 @@ def gaussian(
 
 
 def solve(
-    n: int, rules: str | RuleSet = "standard", players: int = 2, *,
-    max_memory: int | None = None, progress: bool = False, workers: int | None = None,
+    n: int | None = None, rules: str | RuleSet = "standard", players: int = 2, *,
+    position: Position = None, max_memory: int | None = None, progress: bool = False,
+    workers: int | None = None,
     scheduler: str | None = None, checkpoint: str | Path | None = None,
     shards: int | None = None, threads: int | None = None,
 ) -> SolveResult:
@@ -203,7 +299,19 @@ def solve(
     (`zeckenum.cluster.solve_chain.run_solve`) when `workers`, `scheduler`, `checkpoint` or
     `shards` is given; the chain's ranges run on one thread each, so `threads` is refused
     with it.  A chain on this machine (no `scheduler`) or with `max_memory` is refused up
-    front as the in-process solve would be, before any worker starts."""
+    front as the in-process solve would be, before any worker starts.  With `position` the
+    game starts there."""
+    n, rules = game_at(n, rules, position)
+    return tagged(_solve(n, rules, players, max_memory=max_memory, progress=progress,
+                         workers=workers, scheduler=scheduler, checkpoint=checkpoint,
+                         shards=shards, threads=threads), rules)
+
+
+def _solve(
+    n: int, rules: str | RuleSet, players: int, *, max_memory: int | None, progress: bool,
+    workers: int | None, scheduler: str | None, checkpoint: str | Path | None,
+    shards: int | None, threads: int | None,
+) -> SolveResult:
     from zeckenum.core.checks import check_threads
     from zeckenum.errors import InputError
     from zeckenum.rules.catalogue import get_rules
@@ -230,23 +338,29 @@ def solve(
                         threads=threads)
 
 
-def games(n: int, rules: str | RuleSet = "standard", near: int = 3, *,
-          max_memory: int | None = None) -> GamesReport:
-    """An explicit shortest and longest game at n, the number of games at the `near`
-    lengths next to each extreme, and (standard game) the greedy longest game."""
+def games(n: int | None = None, rules: str | RuleSet = "standard", near: int = 3, *,
+          position: Position = None, max_memory: int | None = None) -> GamesReport:
+    """An explicit shortest and longest game at n (from `position` when given), the number
+    of games at the `near` lengths next to each extreme, and (standard game from n tokens
+    in F1) the greedy longest game."""
     from zeckenum.analysis.extremal import games_report
 
-    return games_report(n, rules, near, max_memory=max_memory)
+    n, rules = game_at(n, rules, position)
+    return tagged(games_report(n, rules, near, max_memory=max_memory), rules)
 
 
-def move_stats(n: int, rules: str | RuleSet = "standard", *, move: str | None = None,
+def move_stats(n: int | None = None, rules: str | RuleSet = "standard", *,
+               position: Position = None, move: str | None = None,
                model: str = "moves", random: bool = True,
                max_memory: int | None = None) -> MoveStats:
     """Every move's total over all games and expected count under random play, the linear
-    invariants of the move counts checked on both, and `move`'s count distribution."""
+    invariants of the move counts checked on both, and `move`'s count distribution (from
+    `position` when given)."""
     from zeckenum.analysis.movestats import move_stats as report
 
-    return report(n, rules, move=move, model=model, random=random, max_memory=max_memory)
+    n, rules = game_at(n, rules, position)
+    return tagged(report(n, rules, move=move, model=model, random=random,
+                         max_memory=max_memory), rules)
 
 
 def collect(lo: int, hi: int, rules: str | RuleSet = "standard",
@@ -324,19 +438,32 @@ def _refuse_table(hi: int, kinds: tuple[str, ...] | list[str], rules: str | Rule
 
 
 def build_table(
-    lo: int, hi: int, what: str | tuple[str, ...], out: str | Path,
-    rules: str | RuleSet = "standard", *, workers: int | None = None,
-    scheduler: str | None = None, checkpoint: str | Path | None = None,
-    progress: bool = False, max_memory: int | None = None,
+    lo: int | None, hi: int | None, what: str | tuple[str, ...], out: str | Path,
+    rules: str | RuleSet = "standard", *, position: Position = None,
+    workers: int | None = None, scheduler: str | None = None,
+    checkpoint: str | Path | None = None, progress: bool = False,
+    max_memory: int | None = None,
 ) -> TableBuild:
     """Compute and publish exact tables for lo <= n <= hi into `out` (what: comma-separated
     count, solve, random).  On this machine (no `scheduler`) or with `max_memory`, the
-    largest n is refused up front when it cannot run."""
+    largest n is refused up front when it cannot run.  With `position` (or a rule set
+    starting at one) the table has the one row n = the position's value: `lo` and `hi`
+    may be None, and any other n is refused; the manifest records the position."""
     from zeckenum.errors import InputError
+    from zeckenum.rules.catalogue import get_rules
     from zeckenum.tables.build import build_table as build
     from zeckenum.tables.format import parse_what
 
     kinds = parse_what(what) if isinstance(what, str) else tuple(what)
+    if position is not None or get_rules(rules).position is not None:
+        value, rules = game_at(None, rules, position)
+        lo = value if lo is None else lo
+        hi = value if hi is None else hi
+        if (lo, hi) != (value, value):
+            raise InputError(f"a table from a position has the one row n = {value} (the "
+                             f"position's value), not --from {lo} --to {hi}")
+    if lo is None or hi is None:
+        raise InputError("give --from and --to, or a start position (--position)")
     if hi < lo:
         raise InputError(f"--to must be at least --from, got --from {lo} --to {hi}")
     if max_memory is not None or scheduler is None:

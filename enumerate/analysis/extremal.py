@@ -290,10 +290,13 @@ class GamesReport:
     longest: PlayedGame
     near: dict[str, list]
     greedy: PlayedGame | None
+    position: str = ""  # the start position (README "Positions") when not the rule set's
 
     def to_dict(self) -> dict:
         """JSON-ready form; the keys `zeckenum games --json` prints."""
-        out = {"rules": self.rules, "n": self.n, "shortest_game": self.shortest.to_dict(),
+        out = {"rules": self.rules, "n": self.n,
+            **({"position": self.position} if self.position else {}),
+               "shortest_game": self.shortest.to_dict(),
                "longest_game": self.longest.to_dict(),
                "near_shortest": {str(k): str(v) for k, v in self.near["shortest"]},
                "near_longest": {str(k): str(v) for k, v in self.near["longest"]}}
@@ -307,12 +310,13 @@ class GamesReport:
 def games_report(n: int, rules: str | RuleSet = "standard", near: int = 3, *,
                  max_memory: int | None = None) -> GamesReport:
     """The extremal games at n, the game counts near the extremes (`count`) and, for the
-    rule set named "standard", the greedy longest game."""
+    rule set named "standard" started from n tokens in F1, the greedy longest game."""
     from zeckenum.counting.count import count
 
     rs = get_rules(rules)
     short, long = extremal_games(n, rs, max_memory=max_memory)
     res = count(n, rs, max_memory=max_memory)
-    greedy = greedy_longest_game(n) if rs.name == "standard" else None
+    greedy = (greedy_longest_game(n) if rs.name == "standard" and rs.position is None
+              else None)
     return GamesReport(rules=rs.name, n=n, shortest=short, longest=long,
                        near=lengths_near_extremes(res.length_counts, near), greedy=greedy)

@@ -429,8 +429,10 @@ def linear_invariants(n: int, rules: str | RuleSet = "standard", *,
         y = [sum((ones[k] * E[k][m] for k in range(nb)), Fraction(0)) for m in range(nm)]
         if y == combine and not diffs_change_tokens(ends):
             value = Fraction(int(start.sum()) - int(ends[0].sum()))
+            what = ("n - Z(n)" if spec.rules.position is None
+                    else "tokens at the start - tokens at the end")
             named.append(Invariant(tuple(combine), value,
-                                   "number of combining moves = n - Z(n)"))
+                                   f"number of combining moves = {what}"))
     return Invariants(n=n, move_names=spec.move_names, basis=basis, named=tuple(named),
                       ends=tuple(tuple(int(v) for v in e) for e in ends))
 
@@ -512,12 +514,15 @@ class MoveStats:
     move: str | None = None
     distribution: dict[int, int] | None = None
     random_distribution: dict[int, Fraction] | None = None
+    position: str = ""  # the start position (README "Positions") when not the rule set's
 
     def to_dict(self) -> dict:
         """JSON-ready form; the keys `zeckenum move-stats --json` prints."""
         inv = self.invariants
         out: dict = {
-            "rules": self.rules, "n": self.n, "games": str(self.totals.games),
+            "rules": self.rules, "n": self.n,
+            **({"position": self.position} if self.position else {}),
+            "games": str(self.totals.games),
             "totals": {m: str(t) for m, t in self.totals.as_dict().items()},
             "invariants": [{"form": format_form(x.coeffs, inv.move_names),
                             "coefficients": [_frac(c) for c in x.coeffs],

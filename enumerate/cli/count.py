@@ -17,6 +17,7 @@ from zeckenum.cli.options import (
     json_option,
     max_memory_option,
     n_argument,
+    position_option,
     progress_option,
     resolve_progress,
     rules_option,
@@ -27,11 +28,13 @@ from zeckenum.errors import InputError, OutputError
 from zeckenum.safeio import check_output_file
 
 
-def format_count(res: CountResult) -> str:
-    """Readable census table for the terminal."""
+def format_count(res: CountResult, start: str = "") -> str:
+    """Readable census table for the terminal (`start`: the start position's display form,
+    when the games start at one)."""
     s = res.stats
     lines = [
         f"zeckenum count  rules={res.rules}  n={res.n}",
+        *([f"  from position {start}"] if start else []),
         "",
         f"  reachable states     {res.states:,}",
         f"  transitions (moves)  {res.transitions:,}",
@@ -69,7 +72,8 @@ def check_out_path(out: str) -> Path:
 
 
 @click.command("count", cls=OneLineCommand)
-@n_argument()
+@n_argument(required=False)
+@position_option()
 @json_option()
 @click.option(
     "--out", type=click.Path(dir_okay=False), default=None,
@@ -93,10 +97,11 @@ def check_out_path(out: str) -> Path:
     checkpoint="Keep each finished block in DIR; rerunning resumes from it.",
 )
 def count_command(
-    n, as_json, out, threads, prime_offset, points_per_shard, max_memory, progress, rules,  # noqa: ANN001
+    n, position, as_json, out, threads, prime_offset, points_per_shard, max_memory, progress, rules,  # noqa: ANN001
     workers, scheduler, checkpoint_dir,  # noqa: ANN001
 ) -> None:
-    """Count every game started from N (by default: the standard game, N tokens in F1).
+    """Count every game started from N (by default: the standard game, N tokens in F1),
+    or from --position COUNTS (N is then its value and may be left out).
 
     Prints reachable states, transitions, the exact number of games, the shortest and
     longest lengths and the number of games of each length.  --max-memory chooses the
@@ -111,9 +116,11 @@ def count_command(
       zeckenum count 40 --rules reversed
       zeckenum count 200 --max-memory 300M
       zeckenum count 180 --workers 2 --checkpoint ckpt180
+      zeckenum count --position 3,1,0,2
     """
     lost: OutputError | None = None
     out_path = check_out_path(out) if out else None
+    n, rules = api.game_at(n, rules, position)
     res = api.count(n, rules, threads=threads, prime_offset=prime_offset,
                     max_memory=max_memory, progress=resolve_progress(progress),
                     workers=workers, scheduler=scheduler, checkpoint=checkpoint_dir,
@@ -123,6 +130,7 @@ def count_command(
             deliver_result(out_path, res.file_text(out_path), "the spectrum")
         except OutputError as exc:  # rescued; still print the result, then exit 6
             lost = exc
-    click.echo(json.dumps(res.to_dict()) if as_json else format_count(res))
+    click.echo(json.dumps(res.to_dict()) if as_json
+               else format_count(res, api.start_label(rules)))
     if lost is not None:
         fail(lost)

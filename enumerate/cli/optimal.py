@@ -22,6 +22,7 @@ from zeckenum.cli.options import (
     max_memory_option,
     n_argument,
     players_option,
+    position_option,
     progress_option,
     resolve_progress,
     rules_option,
@@ -46,6 +47,7 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
     rows = [
         ("rules", res.rules),
         ("n", str(res.n)),
+        *([("position", res.position)] if res.position else []),
         ("players", str(res.players)),
         ("states", f"{res.states:,}"),
     ]
@@ -74,7 +76,8 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
 
 
 @click.command("solve", cls=OneLineCommand)
-@n_argument()
+@n_argument(required=False)
+@position_option()
 @rules_option("rules_name")
 @players_option(SOLVE_MAX_PLAYERS, short=False,
                 extra="; with 3 or more, each player against the coalition of all others")
@@ -95,7 +98,8 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
                    "the result is the same whatever the threads).")
 @progress_option("Show a progress bar of the states (or level ranges) on stderr")
 @max_memory_option
-def solve_command(n: int, rules_name: str, players: int, strategy_path: str | None,
+def solve_command(n: int | None, position: str | None, rules_name: str, players: int,
+                  strategy_path: str | None,
                   as_json: bool, workers: int | None, scheduler: str | None,
                   checkpoint_dir: str | None, shards: int | None, threads: int | None,
                   progress: bool | None, max_memory: int | None) -> None:
@@ -108,8 +112,9 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
       zeckenum solve 60 --players 3 --json
       zeckenum solve 80 --strategy n80.zstrat.gz
       zeckenum solve 500 --checkpoint ckpt-solve500 --progress
+      zeckenum solve --position 3,1,0,2
     """
-    rules = get_rules(rules_name)
+    n, rules = api.game_at(n, get_rules(rules_name), position)
     info = None
     lost: OutputError | None = None
     chained = workers or scheduler or checkpoint_dir or shards

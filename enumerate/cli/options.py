@@ -1,5 +1,6 @@
 """Every option and argument the commands share, declared once: types (one `POSITIVE`,
-bounded integers, memory sizes) and decorators (`n_argument`, `rules_option`,
+bounded integers, memory sizes) and decorators (`n_argument`, `position_option`,
+`rules_option`,
 `backend_options`, `players_option`, `model_option`, `json_option`, `max_memory_option`,
 `progress_option`, `probe_option`).
 
@@ -110,6 +111,19 @@ DURATION = Duration()
 def n_argument(required: bool = True) -> Decorator:
     """The argument N (a `POSITIVE`)."""
     return click.argument("n", type=POSITIVE, required=required)
+
+
+POSITION_HELP = (
+    "Start at this position instead of the rule set's start: counts per bin, bin 1 first, "
+    "e.g. 3,1,0,2 (README \"Positions\"). N may then be left out; if given it must equal "
+    "the position's value.")
+
+
+def position_option(help_text: str = POSITION_HELP) -> Decorator:
+    """--position COUNTS (destination `position`; parsed and checked by `api.game_at`, so
+    a bad position is one line and exit status 2 like every other bad input)."""
+    return click.option("--position", "position", default=None, metavar="COUNTS",
+                        help=help_text)
 
 
 RULES_HELP = "Rule set: a built-in name (see `zeckenum rules list`) or a .toml rule file."

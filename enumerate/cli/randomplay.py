@@ -24,6 +24,7 @@ from zeckenum.cli.options import (
     model_option,
     n_argument,
     players_option,
+    position_option,
     progress_option,
     resolve_progress,
     rules_option,
@@ -33,7 +34,8 @@ from zeckenum.core.text import DIGITS, decimal, frac_str, plural
 from zeckenum.errors import InputError
 from zeckenum.randomplay.simulate import MAX_GAMES
 
-CONVENTION = "a game with no move (n = 1) counts as a win for player P (the last player)"
+CONVENTION = ("a game with no move (n = 1, or a terminal start position) counts as a win "
+              "for player P (the last player)")
 
 
 def sqrt_decimal(x: Fraction, digits: int = DIGITS) -> str:
@@ -135,6 +137,7 @@ def _refuse_sharding(sharded: dict, mode: str) -> None:
 
 @click.command("random", cls=OneLineCommand)
 @n_argument(required=False)
+@position_option()
 @players_option(RANDOM_MAX_PLAYERS)
 @model_option()
 @rules_option()
@@ -163,7 +166,7 @@ def _refuse_sharding(sharded: dict, mode: str) -> None:
                    "every (prime, block of at most K points) is one shard (more work, less "
                    "memory per shard; in-process only for now).")
 @max_memory_option
-def random_command(n, players, model, rules, winners_only, use_float, games, seed, nrange,  # noqa: ANN001
+def random_command(n, position, players, model, rules, winners_only, use_float, games, seed, nrange,  # noqa: ANN001
                    as_json, show_exact, workers, scheduler, checkpoint_dir, progress,  # noqa: ANN001
                    points_per_shard, max_memory) -> None:  # noqa: ANN001
     """Random play at N: exact probability of every length and of each player winning.
@@ -179,12 +182,15 @@ def random_command(n, players, model, rules, winners_only, use_float, games, see
       zeckenum random --range 10 60
       zeckenum random 300 --workers 2 --checkpoint ckpt-random300
       zeckenum random 200 --points-per-shard 64
+      zeckenum random --position 3,1,0,2 --exact
     """
     sharded = {"workers": workers, "scheduler": scheduler, "checkpoint_dir": checkpoint_dir,
                "progress": progress is True, "points_per_shard": points_per_shard}
     if show_exact and (nrange is not None or use_float or games is not None):
         raise InputError("--exact: exact mode only, not with --range, --float or --simulate")
     if nrange is not None:
+        if position is not None or n is not None:
+            raise InputError("--range A B: not with N or --position (one game each)")
         _refuse_sharding(sharded, "--range")
         table = api.gaussian(nrange[0], nrange[1], rules, model, use_float=use_float,
                              max_memory=max_memory)
@@ -198,8 +204,12 @@ def random_command(n, players, model, rules, winners_only, use_float, games, see
                        f"{r['skewness']:10.5f} {r['excess_kurtosis']:10.5f} "
                        f"{r['kolmogorov']:11.3e} {r['total_variation']:11.3e}")
         return
-    if n is None:
-        raise InputError("give N (or --range A B)")
+    if n is None and position is None:
+        raise InputError("give N (or --position COUNTS, or --range A B)")
+    n, rules = api.game_at(n, rules, position)
+    start = api.start_label(rules)
+    if start and not as_json:
+        click.echo(f"from position {start}")
     if sum([use_float, games is not None, winners_only]) > 1:
         raise InputError("choose at most one of --float, --simulate, --winners-only")
     if games is not None:

@@ -26,6 +26,7 @@ from zeckenum.cli.options import (
     model_option,
     n_argument,
     players_option,
+    position_option,
     probe_option,
     progress_option,
     resolve_progress,
@@ -44,8 +45,11 @@ _plan_workers = "Workers the run would use."
 
 
 @click.command("table", cls=OneLineCommand)
-@click.option("--from", "lo", type=POSITIVE, required=True, help="First n.")
-@click.option("--to", "hi", type=POSITIVE, required=True, help="Last n (inclusive).")
+@click.option("--from", "lo", type=POSITIVE, default=None, help="First n.")
+@click.option("--to", "hi", type=POSITIVE, default=None, help="Last n (inclusive).")
+@position_option("Tabulate the game from this position (counts per bin, bin 1 first, e.g. "
+                 "3,1,0,2; README \"Positions\"): the one row n = its value (--from/--to "
+                 "may be left out), recorded in the manifest.")
 @click.option("--what", default="count", show_default=True,
               help="Comma-separated: count, solve, random.")
 @click.option("--out", type=click.Path(file_okay=False), required=True,
@@ -56,7 +60,7 @@ _plan_workers = "Workers the run would use."
                  checkpoint="Keep finished shards here; a rerun resumes from them.")
 @progress_option()
 @max_memory_option
-def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, progress,  # noqa: ANN001
+def table_command(lo, hi, position, what, out, rules, workers, scheduler, checkpoint_dir, progress,  # noqa: ANN001
                   max_memory) -> None:  # noqa: ANN001
     """Publish exact tables for every n from --from to --to into a directory.
 
@@ -69,10 +73,14 @@ def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, 
     rules or kinds is refused (exit 2).
     Example:
       zeckenum table --from 1 --to 80 --what count --out table80 --workers 2
+      zeckenum table --position 3,1,0,2 --what count,solve --out table-3102
     """
-    built = api.build_table(lo, hi, what, out, rules, workers=workers, scheduler=scheduler,
+    built = api.build_table(lo, hi, what, out, rules, position=position, workers=workers,
+                            scheduler=scheduler,
                             checkpoint=checkpoint_dir, progress=resolve_progress(progress),
                             max_memory=max_memory)
+    params = built.manifest["parameters"]
+    lo, hi = params["from"], params["to"]
     click.echo(f"zeckenum table: n={lo}..{hi} ({', '.join(built.kinds)}) -> {out}: "
                f"{plural(len(built.manifest['files']), 'file')} + manifest.json")
 

@@ -21,6 +21,7 @@ from zeckenum.cli.options import (
     max_memory_option,
     model_option,
     n_argument,
+    position_option,
     rules_option,
 )
 from zeckenum.core.text import plural
@@ -31,13 +32,15 @@ if TYPE_CHECKING:  # pragma: no cover - types only
 
 
 @click.command("games", cls=OneLineCommand)
-@n_argument()
+@n_argument(required=False)
+@position_option()
 @rules_option()
 @click.option("--near", default=3, show_default=True, type=click.IntRange(1, 100),
               help="How many lengths next to each extreme to list with their game counts.")
 @json_option("One JSON object instead of text.")
 @max_memory_option
-def games_command(n: int, rules: str, near: int, as_json: bool, max_memory: int | None) -> None:
+def games_command(n: int | None, position: str | None, rules: str, near: int, as_json: bool,
+                  max_memory: int | None) -> None:
     """An explicit shortest and longest game at N, as move lists with the state after each
     move; the number of games at the lengths near the extremes; and (standard game) the
     greedy rule "split whenever possible, otherwise combine the smallest pair".
@@ -46,15 +49,19 @@ def games_command(n: int, rules: str, near: int, as_json: bool, max_memory: int 
     Examples:
       zeckenum games 10
       zeckenum games 40 --near 5 --json
+      zeckenum games --position 3,1,0,2
     """
     from zeckenum.analysis.extremal import format_game
 
+    n, rules = api.game_at(n, rules, position)
     rep = api.games(n, rules, near, max_memory=max_memory)
     if as_json:
         click.echo(json.dumps(rep.to_dict(), indent=1))
         return
     short, long, ext, greedy = rep.shortest, rep.longest, rep.near, rep.greedy
-    click.echo(f"zeckenum games  rules={rep.rules}  n={n}\n")
+    start = api.start_label(rules)
+    click.echo(f"zeckenum games  rules={rep.rules}  n={n}"
+               + (f"  from position {start}" if start else "") + "\n")
     click.echo(format_game(short) + "\n")
     click.echo(format_game(long) + "\n")
     click.echo("games at the lengths near the extremes")
@@ -70,7 +77,8 @@ def games_command(n: int, rules: str, near: int, as_json: bool, max_memory: int 
 
 
 @click.command("move-stats", cls=OneLineCommand)
-@n_argument()
+@n_argument(required=False)
+@position_option()
 @rules_option()
 @click.option("--move", "chosen", default=None,
               help="Also print the distribution of this move's count (a move such as "
@@ -80,7 +88,8 @@ def games_command(n: int, rules: str, near: int, as_json: bool, max_memory: int 
 @click.option("--no-random", is_flag=True, help="Skip the random-play expected counts.")
 @json_option("One JSON object instead of text.")
 @max_memory_option
-def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_random: bool,
+def movestats_command(n: int | None, position: str | None, rules: str, chosen: str | None,
+                      model: str, no_random: bool,
                       as_json: bool, max_memory: int | None) -> None:
     """For every move at N: its total number of occurrences over all games and its exact
     expected count in a random game; the linear invariants of the move counts, derived from
@@ -90,9 +99,11 @@ def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_ran
     Examples:
       zeckenum move-stats 20
       zeckenum move-stats 30 --move split --model pairs
+      zeckenum move-stats --position 3,1,0,2
     """
     from zeckenum.analysis.movestats import format_invariants
 
+    n, rules = api.game_at(n, rules, position)
     rep = api.move_stats(n, rules, move=chosen, model=model, random=not no_random,
                          max_memory=max_memory)
     if as_json:
@@ -102,7 +113,9 @@ def movestats_command(n: int, rules: str, chosen: str | None, model: str, no_ran
         return
     totals, expected, inv, bad = rep.totals, rep.expected, rep.invariants, rep.failures
     dist, rdist = rep.distribution, rep.random_distribution
-    click.echo(f"zeckenum move-stats  rules={rep.rules}  n={n}  games={totals.games}\n")
+    start = api.start_label(rules)
+    click.echo(f"zeckenum move-stats  rules={rep.rules}  n={n}  games={totals.games}"
+               + (f"  from position {start}" if start else "") + "\n")
     w = max((len(m) for m in totals.move_names), default=4)
     click.echo(f"  {'move'.ljust(w)}  {'total over all games':>26}  {'per game':>10}"
                + ("" if expected is None else f"  {'expected (' + model + ')':>18}"))

@@ -24,6 +24,8 @@ class CountResult:
     games         number of distinct games (paths from the start to a terminal state)
     shortest      fewest moves in a game; longest: most moves
     length_counts number of games of each length (only lengths that occur, ascending)
+    position      the start position's count vector ("3,1,0,2") when the games start at
+                  one (`api.game_at`), else ""
     """
 
     rules: str
@@ -38,6 +40,7 @@ class CountResult:
     primes: tuple[int, ...] = ()
     check_prime: int = 0
     stats: dict = field(default_factory=dict, compare=False)
+    position: str = ""  # the start position (README "Positions") when not the rule set's
 
     @property
     def shortest_games(self) -> int:
@@ -53,6 +56,7 @@ class CountResult:
             "rules": self.rules,
             "rules_hash": self.rules_hash,
             "n": self.n,
+            **({"position": self.position} if self.position else {}),
             "states": self.states,
             "transitions": self.transitions,
             "games": str(self.games),

@@ -67,6 +67,7 @@ class SolveResult:
     peak_bits_bytes: int
     classes: dict[int, np.ndarray] | None = field(default=None, repr=False, compare=False)
     stats: dict = field(default_factory=dict, compare=False)
+    position: str = ""  # the start position (README "Positions") when not the rule set's
 
     @property
     def winning_moves(self) -> list[str]:
@@ -82,6 +83,7 @@ class SolveResult:
             "rules": self.rules,
             "rules_hash": self.rules_hash,
             "n": self.n,
+            **({"position": self.position} if self.position else {}),
             "players": self.players,
             "winner": self.winner,
             "p_positions": self.p_positions,

@@ -463,6 +463,7 @@ class RandomResult:
     states: int = 0
     transitions: int = 0
     stats: dict = field(default_factory=dict, compare=False)
+    position: str = ""  # the start position (README "Positions") when not the rule set's
 
     @property
     def mean_length(self) -> Fraction | None:
@@ -480,6 +481,7 @@ class RandomResult:
             "rules": self.rules,
             "rules_hash": self.rules_hash,
             "n": self.n,
+            **({"position": self.position} if self.position else {}),
             "players": self.players,
             "model": self.model,
             "mode": "exact",

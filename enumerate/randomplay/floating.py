@@ -168,10 +168,13 @@ class FloatResult:
     moments: dict = field(default_factory=dict)
     gaussian: dict = field(default_factory=dict)
     stats: dict = field(default_factory=dict, compare=False)
+    position: str = ""  # the start position (README "Positions") when not the rule set's
 
     def to_dict(self) -> dict:
         return {
-            "rules": self.rules, "n": self.n, "players": self.players, "model": self.model,
+            "rules": self.rules, "n": self.n,
+            **({"position": self.position} if self.position else {}),
+            "players": self.players, "model": self.model,
             "mode": "float",
             "no_move_convention": "a game of length 0 counts as a win for the last player",
             "length_probability": {str(k): v for k, v in self.length_probability.items()},

@@ -136,10 +136,13 @@ class SimulationResult:
     mean: tuple[float, float, float]
     variance: tuple[float, float, float]
     stats: dict = field(default_factory=dict, compare=False)
+    position: str = ""  # the start position (README "Positions") when not the rule set's
 
     def to_dict(self) -> dict:
         return {
-            "rules": self.rules, "n": self.n, "players": self.players, "model": self.model,
+            "rules": self.rules, "n": self.n,
+            **({"position": self.position} if self.position else {}),
+            "players": self.players, "model": self.model,
             "mode": "simulate", "games": self.games, "seed": self.seed,
             "no_move_convention": "a game of length 0 counts as a win for the last player",
             "length_counts": {str(k): v for k, v in self.length_counts.items()},

@@ -12,8 +12,14 @@ from 1 in everything a user sees (F1 = 1, F2 = 2, ...) and from 0 inside arrays.
 
 What n means: for the starts "ones" and "greedy" the game's value is n (n tokens in bin 1,
 or the greedy decomposition of n); for an explicit start vector v the start holds n * v[k]
-tokens in bin k, so the game's value is n * value(v).  `GameSpec.n` is always the game's
-value (what the state space is built over).
+tokens in bin k, so the game's value is n * value(v).  A *position* p (`RuleSet.position`,
+set by `at_position`, read from `start = { position = "3,1,0,2" }`) is an absolute start:
+the start holds exactly p[k] tokens in bin k, the game's value is value(p), and
+`instantiate(n)` refuses any n other than value(p) (one line naming both).  Its bins are the
+rule set's bins of value <= value(p): every non-empty bin of p is among them.  The level
+weights, the termination proof and the moves that fire are found from p exactly as from any
+other start (`layering`), so every engine built on `GameSpec` plays from p with no special
+case.  `GameSpec.n` is always the game's value (what the state space is built over).
 
 Level weights (the engine's layering, see `statespace`): "tokens" uses the token count
 (weights all 1) and refuses a rule set that breaks it; "auto" uses the token count when
@@ -23,19 +29,23 @@ at this n when the whole move set has none: `layering`); "potential" always uses
 potential.  Rule files are read by `rulefile`; the shipped rule sets and the lookup by name
 (`get_rules`, `BUILTIN`) are in `catalogue`.
 
-Dependencies point one way: `model` imports only `layering` (and `errors`); `validate`,
-`rulefile` and `catalogue` import `model`, never the reverse.
+Dependencies point one way: `model` imports only `layering` and `notation` (and
+`errors`); `validate`, `rulefile` and `catalogue` import `model`, never the reverse.
 """
 
 from __future__ import annotations
 
 import hashlib
 import json
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from zeckenum.errors import InputError
 from zeckenum.rules.layering import layering_weights
+from zeckenum.rules.notation import annotate_position, format_position, strip_counts
+
+MAX_POSITION_VALUE = 2**62
+"""Largest value of a position (the engines' limit on n, `core.checks.MAX_N`)."""
 
 
 @dataclass(frozen=True)
@@ -74,6 +84,8 @@ class RuleSet:
     Layering: `level_weights` is "tokens" (level = token count, which no move of the
     standard game increases: combines lower it by one, splits keep it), "auto" or
     "potential" (see the module docstring).
+    `position`, when set (a count vector, bin 1 first, trailing zeros stripped, value > 0),
+    replaces `start`: the game starts at exactly that position, whose value must be n.
     """
 
     name: str
@@ -83,6 +95,7 @@ class RuleSet:
     templates: tuple[MoveTemplate, ...]
     start: str | tuple[int, ...] = "ones"
     level_weights: str = "tokens"
+    position: tuple[int, ...] | None = None
     extra: dict = field(default_factory=dict, compare=False, hash=False)
 
     def bin_values(self, n: int) -> list[int]:
@@ -110,14 +123,59 @@ class RuleSet:
             "templates": [
                 [t.name, t.takes, t.gives, t.first, t.last] for t in self.templates
             ],
-            "start": self.start,
+            "start": self.start if self.position is None else {"position": self.position},
             "level_weights": self.level_weights,
         }
         text = json.dumps(body, sort_keys=True, separators=(",", ":"))
         return hashlib.sha256(text.encode()).hexdigest()[:16]
 
+    def at_position(self, counts: tuple[int, ...] | list[int]) -> RuleSet:
+        """This rule set started at the position `counts` (count vector, bin 1 first).
+
+        Refused with one line (InputError): a negative or non-integer count, the empty
+        position (value 0), a non-empty bin beyond the rule set's bins (a listed rule set
+        has only so many), a value above `MAX_POSITION_VALUE`.
+        """
+        raw = list(counts)
+        for k, c in enumerate(raw, 1):
+            if isinstance(c, bool) or not isinstance(c, (int, np.integer)) or c < 0:
+                raise InputError(f"position {','.join(str(x) for x in raw)}: bin {k} count "
+                                 f"{c!r} is not a non-negative integer")
+        pos = strip_counts(raw)
+        if not pos:
+            raise InputError("position 0 is empty: a game starts with at least one token")
+        self.position_value(pos)
+        return replace(self, position=pos)
+
+    def start_label(self) -> str:
+        """The start position in its display form `3,1,0,2 (3*1 + 1*2 + 2*5 = 15)` when the
+        game starts at a position (`notation.annotate_position`), else ""."""
+        if self.position is None:
+            return ""
+        return annotate_position(self.position, self.bins_by_count(len(self.position)))
+
+    def position_value(self, pos: tuple[int, ...]) -> int:
+        """The value of the count vector `pos` in this rule set's bins (InputError when
+        `pos` has more bins than the rule set or its value exceeds MAX_POSITION_VALUE)."""
+        vals = self.bins_by_count(len(pos))
+        if len(vals) < len(pos):
+            raise InputError(f"position {format_position(pos)}: bin {len(pos)} is not empty "
+                             f"but rule set {self.name!r} has {len(vals)} bins")
+        value = sum(c * v for c, v in zip(pos, vals, strict=True))
+        if value > MAX_POSITION_VALUE:
+            raise InputError(f"position {format_position(pos)} has value {value}, above the "
+                             "limit 2^62")
+        return value
+
     def game_value(self, n: int) -> int:
-        """The value of the game for n: n, or n * value(v) for an explicit start vector v."""
+        """The value of the game for n: n, n * value(v) for an explicit start vector v, or
+        value(p) for a position p (which must equal n)."""
+        if self.position is not None:
+            value = self.position_value(self.position)
+            if n != value:
+                raise InputError(f"position {format_position(self.position)} has value "
+                                 f"{value}, not n={n} (give N = {value} or leave N out)")
+            return value
         if isinstance(self.start, tuple):
             vals = self.bin_values(2**62)
             if len(self.start) > len(vals):
@@ -132,7 +190,12 @@ class RuleSet:
         """The start state's counts over `values` (the bins of the game for n)."""
         nbins = len(values)
         start = np.zeros(nbins, dtype=np.int64)
-        if self.start == "ones":
+        if self.position is not None:
+            if len(self.position) > nbins:  # pragma: no cover - game_value checked the value
+                raise InputError(f"position {format_position(self.position)} has more bins "
+                                 f"than the game for n={n}")
+            start[: len(self.position)] = self.position
+        elif self.start == "ones":
             start[0] = n // values[0]
             if values[0] * start[0] != n:
                 raise InputError(f"start 'ones' needs bin 1 to divide n={n}")

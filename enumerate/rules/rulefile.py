@@ -7,6 +7,8 @@ A rule file (the shipped ones are in `rulesets/`)::
     start = "ones"                     # "ones": n tokens in bin 1
                                        # "greedy": the greedy decomposition of n
                                        # { vector = [0, 1] }: n * vector[i] tokens in bin i+1
+                                       # { position = "3,1,0,2" }: exactly these counts,
+                                       #   bin 1 first (README "Positions"); n = its value
     layering = "auto"                  # optional: "auto" (default), "tokens", "potential"
 
     [bins]                             # bin values, smallest first, strictly increasing
@@ -29,7 +31,8 @@ A rule file (the shipped ones are in `rulesets/`)::
 
 Bins are numbered from 1.  A bin expression is "k", "k+N" or "k-N"; repeating an entry
 takes (gives) several tokens of that bin.  n is the size parameter of every computation:
-the game's value is n, or n * value(vector) for a vector start.
+the game's value is n, or n * value(vector) for a vector start; a position start fixes the
+game's value to the position's (every n but that one is refused, `model`).
 
 `read_rule_file` checks the syntax and the value of every move (`validate.check_values`)
 and raises InputError with one line naming the file and the offending key or move.
@@ -44,6 +47,8 @@ must be UTF-8, and every number in it is bounded before anything is computed fro
     recurrence coefficients                                0 .. MAX_COEFFICIENT
     bin indices (at, from, to) and offsets (k+N, k-N)      at most MAX_BIN_INDEX
     start vector entries                                   0 .. MAX_VECTOR_ENTRY
+    start position counts (`notation.parse_position`)     0 .. notation.MAX_COUNT, value
+                                                           at most 2^62
 
 Every error is one line of at most `MAX_MESSAGE` (280) characters (long numbers in a message are
 shortened to their leading digits and their length).
@@ -60,6 +65,7 @@ from typing import Any
 
 from zeckenum.errors import InputError
 from zeckenum.rules.model import MoveTemplate, RuleSet
+from zeckenum.rules.notation import format_position, parse_position
 from zeckenum.rules.validate import check_values
 from zeckenum.safeio import MiB, read_regular
 
@@ -171,6 +177,9 @@ def _parse_rules(text: str, where: str) -> RuleSet:
         seen.add(tpl.name)
         templates.append(tpl)
     start = _start(doc.get("start", "ones"), len(initial) if nlisted else None, pre)
+    position = None
+    if isinstance(start, dict):
+        position, start = start["position"], "ones"
     rules = RuleSet(
         name=name,
         description=about.strip(),
@@ -181,6 +190,11 @@ def _parse_rules(text: str, where: str) -> RuleSet:
         level_weights=layering,
     )
     check_values(rules, where=pre)
+    if position is not None:
+        try:
+            rules = rules.at_position(position)
+        except InputError as exc:
+            raise InputError(f"{pre}start {exc}") from None
     return rules
 
 
@@ -321,9 +335,20 @@ def _move(mv: Any, i: int, nlisted: int | None, pre: str) -> MoveTemplate:
     return tpl
 
 
-def _start(start: Any, nlisted: int | None, pre: str) -> str | tuple[int, ...]:
+def _start(start: Any, nlisted: int | None, pre: str) -> str | tuple[int, ...] | dict:
+    """"ones", "greedy", a vector (tuple) or {"position": counts} (checked by the caller
+    against the bins, `RuleSet.at_position`)."""
     if start in ("ones", "greedy"):
         return start
+    if isinstance(start, dict) and set(start) == {"position"}:
+        text = start["position"]
+        if not isinstance(text, str):
+            raise InputError(f"{pre}start position must be a string of counts per bin, bin 1 "
+                             "first, e.g. \"3,1,0,2\"")
+        try:
+            return {"position": parse_position(text[:4096], nlisted)}
+        except InputError as exc:
+            raise InputError(f"{pre}start {short_message(str(exc), 200)}") from None
     if isinstance(start, dict) and set(start) == {"vector"}:
         vec = start["vector"]
         if isinstance(vec, list) and len(vec) > MAX_LIST:
@@ -345,7 +370,8 @@ def _start(start: Any, nlisted: int | None, pre: str) -> str | tuple[int, ...]:
             return tuple(vec)
         raise InputError(f"{pre}start vector must be a list of counts >= 0, not all zero")
     raise InputError(
-        f"{pre}'start' must be \"ones\", \"greedy\" or {{ vector = [counts per bin] }}"
+        f"{pre}'start' must be \"ones\", \"greedy\", {{ vector = [counts per bin] }} or "
+        f"{{ position = \"counts per bin\" }}"
     )
 
 
@@ -369,7 +395,9 @@ def format_rules(rules: RuleSet) -> str:
     the exact game it was computed for and can be recomputed from the file alone.
     """
     lines = [f"name = {_toml_str(rules.name)}", f"about = {_toml_str(rules.description)}"]
-    if isinstance(rules.start, tuple):
+    if rules.position is not None:
+        lines.append(f"start = {{ position = {_toml_str(format_position(rules.position))} }}")
+    elif isinstance(rules.start, tuple):
         lines.append(f"start = {{ vector = [{', '.join(str(c) for c in rules.start)}] }}")
     else:
         lines.append(f"start = {_toml_str(rules.start)}")
