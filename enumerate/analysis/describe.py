@@ -19,6 +19,8 @@ from zeckenum.rules.rulefile import bin_expression
 
 def start_text(rules: RuleSet) -> str:
     """The start position in words, with the game's value."""
+    if rules.position is not None:
+        return f"position {rules.start_label()} (n is its value)"
     if rules.start == "ones":
         return "ones (n tokens in bin 1; value n)"
     if rules.start == "greedy":

@@ -29,6 +29,7 @@ from zeckenum.core.text import plural
 from zeckenum.errors import InputError
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import STANDARD, GameSpec, RuleSet
+from zeckenum.rules.notation import annotate_position
 
 
 @dataclass(frozen=True)
@@ -75,19 +76,15 @@ class PlayedGame:
         }
 
 
-def format_counts(counts: tuple[int, ...] | np.ndarray, values: tuple[int, ...]) -> str:
-    """Non-empty bins as "value x count" terms, largest bin first: "8x1 + 3x1 + 1x2"."""
-    terms = [f"{values[k]}x{int(c)}" for k, c in enumerate(counts) if c]
-    return " + ".join(reversed(terms)) if terms else "(empty)"
-
-
 def format_game(game: PlayedGame) -> str:
-    """A readable move list: one numbered line per move with the state after it."""
+    """A readable move list: one numbered line per move with the position after it, in the
+    display form of the one position notation (`notation.annotate_position`)."""
     lines = [f"{game.kind} game, n={game.n}, {plural(game.length, 'move')}",
-             f"  start  {format_counts(game.start, game.values)}"]
+             f"  start  {annotate_position(game.start, game.values)}"]
     width = len(str(game.length))
     for i, s in enumerate(game.steps, 1):
-        lines.append(f"  {i:>{width}}. {s.move:<16} -> {format_counts(s.after, game.values)}")
+        lines.append(f"  {i:>{width}}. {s.move:<16} -> "
+                     f"{annotate_position(s.after, game.values)}")
     return "\n".join(lines)
 
 

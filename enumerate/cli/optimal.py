@@ -126,6 +126,7 @@ def solve_command(n: int | None, position: str | None, rules_name: str, players:
                              "--scheduler, --checkpoint, --shards or --progress")
         check_output_file(strategy_path, "strategy file")
         strat, res = winning_strategy(n, rules, max_memory=max_memory, threads=threads)
+        res = api.tagged(res, rules)
         try:
             nbytes = write_strategy(strategy_path, strat, rules.bin_values(n), rules)
         except OutputError as exc:  # the strategy went to a rescue file; still report

@@ -23,8 +23,8 @@ from zeckenum.analysis.describe import (
 from zeckenum.cli.errors import OneLineGroup
 from zeckenum.core.text import plural
 from zeckenum.rules.catalogue import BUILTIN, get_rules
-from zeckenum.rules.layering import format_state
 from zeckenum.rules.model import RuleSet
+from zeckenum.rules.notation import annotate_position
 from zeckenum.rules.rulefile import read_rule_file
 
 SHOW_TERMINALS = 12
@@ -60,6 +60,13 @@ def rules_group() -> None:
     """
 
 
+def _default_n(rules: RuleSet, n: int | None, default: int) -> int:
+    """--n, or by default `default` (the value of the start position when there is one)."""
+    if n is not None:
+        return n
+    return default if rules.position is None else rules.position_value(rules.position)
+
+
 @rules_group.command("list")
 def list_command() -> None:
     """Built-in rule sets, one line each.
@@ -75,8 +82,9 @@ def list_command() -> None:
 
 @rules_group.command("check")
 @click.argument("file", type=click.Path(dir_okay=False))
-@click.option("--n", "n", type=click.IntRange(min=1), default=20, show_default=True,
-              help="n at which termination and layering are checked")
+@click.option("--n", "n", type=click.IntRange(min=1), default=None,
+              help="n at which termination and layering are checked (default 20; for a rule "
+                   "set that starts at a position, its value)")
 def check_command(file: str, n: int) -> None:
     """Check a rule file: syntax, the value of every move, and termination at n.
 
@@ -85,6 +93,7 @@ def check_command(file: str, n: int) -> None:
       zeckenum rules check my-variant.toml --n 30
     """
     rules = read_rule_file(file)
+    n = _default_n(rules, n, 20)
     click.echo(f"{file}: rule set {rules.name!r} ({rules.content_hash()})")
     click.echo("value: every move keeps the value for every index "
                f"({plural(len(rules.templates), 'template')})")
@@ -95,8 +104,9 @@ def check_command(file: str, n: int) -> None:
 
 @rules_group.command("show")
 @click.argument("name_or_file")
-@click.option("--n", "n", type=click.IntRange(min=1), default=10, show_default=True,
-              help="n for the layering and the end positions")
+@click.option("--n", "n", type=click.IntRange(min=1), default=None,
+              help="n for the layering and the end positions (default 10; for a rule set "
+                   "that starts at a position, its value)")
 def show_command(name_or_file: str, n: int) -> None:
     """Show a rule set: bins, start, moves, level weights and end positions at n.
 
@@ -106,6 +116,7 @@ def show_command(name_or_file: str, n: int) -> None:
       zeckenum rules show enumerate/rules/rulesets/tribonacci.toml --n 20
     """
     rules = resolve(name_or_file)
+    n = _default_n(rules, n, 10)
     click.echo(f"rule set {rules.name!r}  hash {rules.content_hash()}")
     if rules.description:
         click.echo(f"about: {rules.description}")
@@ -120,7 +131,6 @@ def show_command(name_or_file: str, n: int) -> None:
     values = rules.bins_by_count(max((len(s) for s in ends), default=0))
     click.echo(f"end positions at n={n}: {len(ends)}")
     for s in ends[:SHOW_TERMINALS]:
-        parts = [f"{c}*{v}" if c > 1 else str(v) for c, v in zip(s, values, strict=True) if c]
-        click.echo(f"  {format_state(s)}  = {' + '.join(reversed(parts))}")
+        click.echo(f"  {annotate_position(s, values)}")
     if len(ends) > SHOW_TERMINALS:
         click.echo(f"  ... {len(ends) - SHOW_TERMINALS} more")

@@ -31,8 +31,10 @@ lines (at most `strategy.STRATEGY_MAX_STATES`, the most positions a strategy can
 rule text are bounded.  Every following line is one position the winner can face when
 following the strategy, and the move to play there:
 
-    counts  token counts of bins 1, 2, 3, ... (values 1, 2, 3, 5, 8, ...), comma-separated,
-            trailing empty bins omitted ("0" for the empty position)
+    counts  the position in the one position notation (`rules.notation`, README
+            "Positions"): token counts of bins 1, 2, 3, ... (values 1, 2, 3, 5, 8, ...),
+            comma-separated, trailing empty bins omitted ("0" for the empty position);
+            read by `notation.parse_position` (digits only, as always written)
     move    template name and 1-based bin, e.g. "split@3" (the template applied at bin 3)
 
 The checker (`check_strategy`) trusts nothing in the file and nothing of the solver: it
@@ -56,6 +58,7 @@ from zeckenum.errors import CheckFailed, InputError
 from zeckenum.optimal.strategy import STRATEGY_MAX_STATES, Strategy
 from zeckenum.rules.catalogue import BUILTIN, get_rules
 from zeckenum.rules.model import RuleSet
+from zeckenum.rules.notation import format_position, parse_position, strip_counts
 from zeckenum.rules.rulefile import (
     MAX_RULE_FILE_BYTES,
     format_rules,
@@ -89,14 +92,6 @@ class StrategyRejected(CheckFailed):
     a loser's answer that ends the game, or a cycle); exit status 5, like every failed check."""
 
 
-def format_counts(counts: tuple[int, ...]) -> str:
-    """'3,0,2' for (3, 0, 2, 0, 0): comma-separated, trailing zero bins dropped."""
-    c = list(counts)
-    while c and c[-1] == 0:
-        c.pop()
-    return ",".join(str(x) for x in c) if c else "0"
-
-
 def encode_rules_text(rules: RuleSet) -> str:
     """The `rules_text` header value: base64 of the UTF-8 canonical rule text."""
     return base64.b64encode(format_rules(rules).encode()).decode("ascii")
@@ -117,7 +112,7 @@ def format_strategy(strategy: Strategy, values: list[int], rules: RuleSet | None
         header += f" rules_text={encode_rules_text(rules)}"
     lines.append(header)
     for counts, move in zip(strategy.positions, strategy.moves, strict=True):
-        lines.append(f"{format_counts(counts)} {move}")
+        lines.append(f"{format_position(counts)} {move}")
     return "\n".join(lines) + "\n"
 
 
@@ -157,13 +152,6 @@ class StrategyFile:
     rules_text: str | None = None  # the embedded canonical rule text, decoded
 
 
-def _strip(counts: tuple[int, ...]) -> tuple[int, ...]:
-    c = list(counts)
-    while c and c[-1] == 0:
-        c.pop()
-    return tuple(c)
-
-
 def parse_strategy(text: str, name: str = "<strategy>") -> StrategyFile:
     """Parse strategy text; InputError (one short line, with the line number) when malformed.
 
@@ -199,12 +187,9 @@ def _parse_strategy(text: str, name: str) -> StrategyFile:
         if len(table) >= MAX_POSITIONS:
             raise InputError(f"{name}:{lineno}: more than {MAX_POSITIONS} positions")
         try:
-            counts = tuple(int(x) for x in parts[0].split(","))
-        except ValueError:
-            raise InputError(f"{name}:{lineno}: bad counts {parts[0][:60]!r}") from None
-        if any(x < 0 for x in counts):
-            raise InputError(f"{name}:{lineno}: negative count in {parts[0][:60]!r}")
-        key = _strip(counts)
+            key = parse_position(parts[0][:4096])
+        except InputError as exc:
+            raise InputError(f"{name}:{lineno}: bad counts: {exc}") from None
         if key in table:
             raise InputError(
                 f"{name}:{lineno}: position {parts[0][:60]} already listed on line "
@@ -325,15 +310,26 @@ class ReferenceGame:
     """The game rebuilt from a rule set's definition, independently of the solver's arrays.
 
     Bins: the values of the rule set's recurrence (or its listed bins) up to the game's
-    value: n, or n * value(v) for a start vector v.  Start: n / value(bin 1) tokens in bin
-    1 ("ones"), the greedy decomposition ("greedy"), or n * v.  Moves: each template at each
+    value: n, or n * value(v) for a start vector v, or value(p) = n for a start position p.
+    Start: n / value(bin 1) tokens in bin 1 ("ones"), the greedy decomposition ("greedy"),
+    n * v, or exactly p.  Moves: each template at each
     index k whose touched bins all exist, named "<template>@<k>".  A move is legal when no
     count goes negative; a position is terminal when no move is legal.
     """
 
     def __init__(self, rules: RuleSet, n: int):
-        first = self._first_bins(rules, max(len(rules.initial), _vector_len(rules.start)))
-        if isinstance(rules.start, tuple):
+        pos = rules.position
+        first = self._first_bins(rules, max(len(rules.initial), _vector_len(rules.start),
+                                            len(pos or ())))
+        if pos is not None:
+            if len(first) < len(pos):
+                raise InputError(f"rule set {rules.name!r}: the start position has more bins "
+                                 "than the rule set")
+            value = sum(c * v for c, v in zip(pos, first, strict=False))
+            if value != n:
+                raise InputError(f"rule set {rules.name!r}: the start position has value "
+                                 f"{value}, not n={n}")
+        elif isinstance(rules.start, tuple):
             value = n * sum(c * v for c, v in zip(rules.start, first, strict=False))
         else:
             value = n
@@ -364,7 +360,9 @@ class ReferenceGame:
                     raise InputError(f"move {tpl.name}@{k} of {rules.name!r} changes the value")
                 self.moves[f"{tpl.name}@{k}"] = eff
         start = [0] * nb
-        if rules.start == "ones":
+        if pos is not None:
+            start[: len(pos)] = pos
+        elif rules.start == "ones":
             if value % self.values[0]:
                 raise InputError(f"rule set {rules.name!r}: bin 1 does not divide n={n}")
             start[0] = value // self.values[0]
@@ -463,12 +461,12 @@ def check_strategy(sf: StrategyFile, rules: str | RuleSet | None = None) -> Chec
             raise InputError(f"line {line}: position has {len(key)} bins, n={sf.n} has {nb}")
         if sum(c * v for c, v in zip(key, game.values, strict=False)) != game.value:
             raise InputError(
-                f"line {line}: position {format_counts(key)} does not have the game's value "
+                f"line {line}: position {format_position(key)} does not have the game's value "
                 f"{game.value}"
             )
 
     def show(state: tuple[int, ...]) -> str:
-        return "[" + format_counts(state) + "]"
+        return format_position(state)
 
     def loser_answers(u: tuple[int, ...]) -> list[tuple[int, ...]]:
         """Winner positions after each loser move from u (u is not terminal)."""
@@ -476,8 +474,8 @@ def check_strategy(sf: StrategyFile, rules: str | RuleSet | None = None) -> Chec
         for name, w in game.options(u):
             if not game.options(w):
                 raise StrategyRejected(
-                    f"the loser moves last: from {show(u)} the answer {name} reaches the end "
-                    f"{show(w)}"
+                    f"the loser moves last: from position {show(u)} the answer {name} reaches "
+                    f"the end {show(w)}"
                 )
             out.append(w)
         return out
@@ -486,7 +484,7 @@ def check_strategy(sf: StrategyFile, rules: str | RuleSet | None = None) -> Chec
 
     def children(w: tuple[int, ...]) -> list[tuple[int, ...]]:
         """Winner positions that can follow w (after the listed move and any answer)."""
-        entry = sf.table.get(_strip(w))
+        entry = sf.table.get(strip_counts(w))
         if entry is None:
             raise StrategyRejected(f"no move listed for position {show(w)}, which the winner "
                                    "can face")
@@ -541,7 +539,7 @@ def check_strategy(sf: StrategyFile, rules: str | RuleSet | None = None) -> Chec
     if roots and sf.winner == 2:
         longest += 1  # the loser's first move
     listed = set(sf.table)
-    used = {_strip(w) for w in depth}
+    used = {strip_counts(w) for w in depth}
     return CheckReport(
         n=sf.n,
         winner=sf.winner,

@@ -145,8 +145,9 @@ def summary_rows(data: RunData) -> list[list[object]]:
 
 def detail_sections(data: RunData, detail: RunDetail) -> str:
     """Extremal games, greedy comparison, move statistics and invariants at one n."""
-    from zeckenum.analysis.extremal import format_counts, lengths_near_extremes
+    from zeckenum.analysis.extremal import lengths_near_extremes
     from zeckenum.analysis.movestats import format_form
+    from zeckenum.rules.notation import annotate_position
 
     n, long, stats = detail.n, detail.longest, detail.stats
     parts = [f"<h2>Extremal games at n={n}</h2>"]
@@ -155,12 +156,12 @@ def detail_sections(data: RunData, detail: RunDetail) -> str:
     parts.append(html_table(["shortest lengths", "games"], near["shortest"]))
     parts.append(html_table(["longest lengths", "games"], near["longest"]))
     for g in (detail.shortest, long):
-        rows = [[0, "(start)", format_counts(g.start, g.values)]]
-        rows += [[i, s.move, format_counts(s.after, g.values)]
+        rows = [[0, "(start)", annotate_position(g.start, g.values)]]
+        rows += [[i, s.move, annotate_position(s.after, g.values)]
                  for i, s in enumerate(g.steps, 1)]
         parts.append(f"<h3>A {esc(g.kind)} game: {plural(g.length, 'move')}</h3>")
-        parts.append(html_table(["#", "move", "state after (bin value x tokens)"], rows,
-                                "game", left=3))
+        parts.append(html_table(["#", "move", "position after (tokens per bin, bin 1 first; "
+                                 "count*value terms)"], rows, "game", left=3))
     if detail.greedy is not None:
         greedy = detail.greedy
         same = [s.move for s in greedy.steps] == [s.move for s in long.steps]

@@ -31,7 +31,8 @@ Every way through 1-3 proves the game ends: along every move (level, rank) stric
 increases in the lexicographic order the engine sweeps, over a finite set of states.
 
 Invariant of the module: it works on plain move effects ({1-based bin: change}) and count
-vectors, and imports nothing of zeckenum but `errors`; `rules.model` calls it from
+vectors, and imports nothing of zeckenum but `errors` and `notation` (states in messages
+are written in the one position notation); `rules.model` calls it from
 `RuleSet.instantiate`, never the other way round.
 """
 
@@ -41,6 +42,7 @@ from collections.abc import Sequence
 
 import numpy as np
 from zeckenum.errors import InputError
+from zeckenum.rules.notation import format_position
 
 CYCLE_SEARCH_LIMIT = 2_000_000
 """Most reachable states the cycle search visits before giving up (with an error)."""
@@ -144,14 +146,6 @@ def _successors(state: tuple[int, ...], moves: list[list[tuple[int, int]]]):
             yield m, tuple(nxt)
 
 
-def format_state(state: Sequence[int]) -> str:
-    """A state as '(c1,c2,...)' with trailing zero bins dropped."""
-    s = list(state)
-    while len(s) > 1 and s[-1] == 0:
-        s.pop()
-    return "(" + ",".join(str(c) for c in s) + ")"
-
-
 TOKENS = "token count"
 STRICT = "strict potential (integer LP)"
 
@@ -197,7 +191,7 @@ def layering_weights(
         return w, keep, STRICT
     cycle, seen, fired = find_cycle([effects[m] for m in keep], start)
     if cycle is not None:
-        shown = " -> ".join(format_state(s) for s in cycle)
+        shown = " -> ".join(format_position(s) for s in cycle)
         raise InputError(
             f"rule set {name!r} does not terminate at value {value}: cycle {shown}"
         )
