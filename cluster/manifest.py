@@ -15,7 +15,8 @@ kind of checkpoint does with its manifest lives here, once:
   (`read_verified`);
 * rules text + hash: the canonical rule-file text of the rule set (`rules_text`) is
   recorded, and read back only if it parses to the requested content hash
-  (`check_rules_text`);
+  (`check_rules_text`); it records the start position of a game started at one, and a
+  resume from another start is refused naming both (`check_start`);
 * atomic writes: every file is written by `safeio.write_atomic`; a write that fails stops
   the run with one line, exit 6, the finished shards kept (`write_or_stop`);
 * `ManifestDir`: the base of both checkpoint classes (finished shards, saving a member file
@@ -39,6 +40,7 @@ import numpy as np
 from zeckenum.cluster.errors import CheckpointRefused
 from zeckenum.errors import InputError, OutputError
 from zeckenum.rules.model import RuleSet
+from zeckenum.rules.notation import format_position
 from zeckenum.rules.rulefile import format_rules, rules_from_text
 from zeckenum.safeio import member, read_regular, write_atomic
 
@@ -174,6 +176,30 @@ def check_parameters(root: Path, stored: object, wanted: dict) -> None:
             )
 
 
+def _start_words(ruleset: RuleSet) -> str:
+    return ("the rule set's own start" if ruleset.position is None
+            else f"position {format_position(ruleset.position)}")
+
+
+def check_start(root: Path, data: dict, ruleset: RuleSet) -> None:
+    """CheckpointRefused when the recorded rule text starts the game elsewhere than
+    `ruleset` (another position, or a position against the rule set's own start): the
+    start position is recorded in the manifest's rule text (`start = { position = ...}`),
+    and this names it before the content hashes are compared.  Anything unreadable is
+    left to `check_parameters` / `check_rules_text`."""
+    text = data.get("rules_text")
+    if not isinstance(text, str) or not text:
+        return
+    try:
+        stored = rules_from_text(text, where=f"checkpoint {root} rules_text")
+    except InputError:
+        return
+    if stored.position != ruleset.position:
+        raise CheckpointRefused(
+            f"checkpoint {root} was written for the game from {_start_words(stored)}, not "
+            f"from {_start_words(ruleset)}; use another directory (or remove it)")
+
+
 def rules_text(ruleset: RuleSet) -> str:
     """The canonical rule-file text a checkpoint records for `ruleset`."""
     return format_rules(ruleset)
@@ -305,6 +331,8 @@ def open_manifest(root: Path, fmt: str, what: str, wanted: dict,
     data = read_manifest(root, fmt, what)
     if data is None:
         return None
+    if ruleset is not None:
+        check_start(root, data, ruleset)
     check_parameters(root, data.get("parameters"), wanted)
     text = check_rules_text(root, data, ruleset) if ruleset is not None else None
     return data, text

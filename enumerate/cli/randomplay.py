@@ -57,6 +57,13 @@ def _value(x: Fraction | None, exact: bool) -> str:
     return f"{decimal(x)}    {frac_str(x)}" if exact else decimal(x)
 
 
+def _echo_start(start: str, as_json: bool) -> None:
+    """The start position's line above a text result (nothing in JSON: the key "position"
+    holds it there)."""
+    if start and not as_json:
+        click.echo(f"from position {start}")
+
+
 def _print_exact(res, winners_only: bool, exact: bool = False) -> None:
     click.echo(f"random play, rules {res.rules}, n = {res.n}, model {res.model}, "
                f"{plural(res.players, 'player')} (exact)")
@@ -208,17 +215,17 @@ def random_command(n, position, players, model, rules, winners_only, use_float, 
         raise InputError("give N (or --position COUNTS, or --range A B)")
     n, rules = api.game_at(n, rules, position)
     start = api.start_label(rules)
-    if start and not as_json:
-        click.echo(f"from position {start}")
     if sum([use_float, games is not None, winners_only]) > 1:
         raise InputError("choose at most one of --float, --simulate, --winners-only")
     if games is not None:
         _refuse_sharding(sharded, "--simulate")
         res = api.simulate(n, games, seed, rules, players, model, max_memory=max_memory)
+        _echo_start(start, as_json)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_sim(res)
     elif use_float:
         _refuse_sharding(sharded, "--float")
         res = api.random_float(n, rules, players, model, max_memory=max_memory)
+        _echo_start(start, as_json)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_float(res)
     else:
         if points_per_shard is not None and progress is True:
@@ -227,5 +234,6 @@ def random_command(n, position, players, model, rules, winners_only, use_float, 
                               max_memory=max_memory, progress=resolve_progress(progress),
                               workers=workers, scheduler=scheduler, checkpoint=checkpoint_dir,
                               points_per_shard=points_per_shard)
+        _echo_start(start, as_json)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only,
                                                                             show_exact)
