@@ -32,6 +32,7 @@ from zeckenum.core.text import frac_str
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import InputError, OutputError, ZeckenumError
 from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.notation import format_position
 from zeckenum.rules.rulefile import format_rules
 from zeckenum.safeio import check_output_dir, deliver, read_regular, write_atomic
 from zeckenum.tables.format import (
@@ -319,7 +320,9 @@ def build_table(
         "rules": ruleset.name,
         "rules_hash": ruleset.content_hash(),
         "rules_text": rules_text,
-        "parameters": {"from": lo, "to": hi, "what": list(what), "prime_offset": prime_offset},
+        "parameters": {"from": lo, "to": hi, "what": list(what), "prime_offset": prime_offset,
+                       **({"position": format_position(ruleset.position)}
+                          if ruleset.position is not None else {})},
         "primes_per_n": {str(n): cr[n]["primes"] for n in ns} if "count" in what else {},
         "files": {name: {"sha256": hashlib.sha256(text.encode()).hexdigest(),
                          "bytes": len(text.encode())} for name, text in sorted(files.items())},

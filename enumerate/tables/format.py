@@ -20,8 +20,9 @@ reads it through `load_table`.  Files:
                      n,length,probability (exact p/q)
     manifest.json    provenance: the rule file itself (`rules_text`, the canonical text of
                      `rulefile.format_rules`) and its content hash, tool version,
-                     parameters, UTC date, the primes used, and the SHA-256 and size of
-                     every file
+                     parameters (from, to, what, prime_offset, and for a game started at
+                     a position `position`, its count vector), UTC date, the primes used,
+                     and the SHA-256 and size of every file
 
 `load_table(dir)` reads a table as untrusted input and checks everything that needs no
 recomputation (`verify.verify_table` adds the recomputation).  Invariants checked:
@@ -31,6 +32,8 @@ recomputation (`verify.verify_table` adds the recomputation).  Invariants checke
   a regular file of at most `MAX_FILE_BYTES`, with its recorded size and SHA-256;
 * the kinds (count, solve, random) and the range of n come from the files (each kind's
   complete file set; the n of every row) and must equal `parameters.what`, `.from`, `.to`;
+  `parameters.position` is present exactly when the embedded rule file starts at a
+  position, equals it, and the table then holds the one row n = its value;
 * every file is exactly the canonical text of its parsed rows (header, order, number
   format; one row per n or (n, length), no duplicates, every n of the range present), and
   every `.seq` file is the column of its CSV;
@@ -62,6 +65,7 @@ from zeckenum.core.text import frac_str
 from zeckenum.counting.result import CountResult
 from zeckenum.errors import InputError
 from zeckenum.rules.model import STANDARD, RuleSet
+from zeckenum.rules.notation import format_position
 from zeckenum.rules.rulefile import rules_from_text
 from zeckenum.safeio import member, read_regular
 
@@ -548,6 +552,21 @@ def _kinds_of(files: dict[str, str]) -> tuple[str, ...]:
     return kinds
 
 
+def _check_position(params: dict, ruleset: RuleSet, ns: list[int]) -> None:
+    """A table of a game started at a position records it as `parameters.position` (the
+    count vector, README "Positions"), equal to the embedded rule file's start, and holds
+    the one row n = its value; a table of any other game has no such key."""
+    pos = ruleset.position
+    want = None if pos is None else format_position(pos)
+    have = params.get("position")
+    if have != want:
+        raise _fail(f"manifest.json records position {str(have)[:60]!r} but the embedded rule "
+                    f"file starts {'at ' + want if want else 'at its own start'}")
+    if pos is not None and ns != [ruleset.position_value(pos)]:
+        raise _fail(f"a table from position {want} holds the one row n = "
+                    f"{ruleset.position_value(pos)}, not n = {ns[0]}..{ns[-1]}")
+
+
 def check_texts(folder: Path, manifest: dict, ruleset: RuleSet, rules_text: str,
                 texts: dict[str, str]) -> Table:
     """Every check short of recomputation on the file texts of a table (see the module
@@ -581,6 +600,7 @@ def check_texts(folder: Path, manifest: dict, ruleset: RuleSet, rules_text: str,
     if type(lo) is not int or type(hi) is not int or (lo, hi) != (ns[0], ns[-1]):
         raise _fail(f"manifest.json declares n = {lo!r}..{hi!r} but the files hold "
                     f"n = {ns[0]}..{ns[-1]}")
+    _check_position(params, ruleset, ns)
     if "count" in kinds and "solve" in kinds:
         for n in ns:
             parities = {L % 2 for L in t.spectra[n]}
