@@ -112,7 +112,8 @@ def test_format_game_lists_every_move() -> None:
     short, long = extremal_games(10)
     text = format_game(long)
     assert text.count("\n") == long.length + 1
-    assert "8x1 + 2x1" in text.splitlines()[-1]  # 10 = 8 + 2 (Zeckendorf)
+    # 10 = 2 + 8 (Zeckendorf), in the one position notation: bins 2 and 5 hold one token
+    assert text.splitlines()[-1].endswith("-> 0,1,0,0,1 (1*2 + 1*8 = 10)")
 
 
 def test_games_cli_text_and_json() -> None:
