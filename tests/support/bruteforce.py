@@ -164,3 +164,40 @@ def zeckendorf_state(n: int) -> tuple[int, ...]:
     for f in zeckendorf(n):
         counts[fibs.index(f)] += 1
     return tuple(counts)
+
+
+def padded(position: tuple[int, ...] | list[int]) -> tuple[int, ...]:
+    """A position (counts per bin, bin 1 first) over every bin of value <= its value, the
+    state space of its game."""
+    nb = len(fibonacci_upto(state_value(tuple(position))))
+    assert len(position) <= nb or not any(position[nb:])
+    return tuple(position[:nb]) + (0,) * (nb - len(position))
+
+
+def reachable_from(start: tuple[int, ...]) -> set[tuple[int, ...]]:
+    """Every state reachable from the state `start` (itself and the terminals included)."""
+    seen = {start}
+    stack = [start]
+    while stack:
+        s = stack.pop()
+        for t in successors(s):
+            if t not in seen:
+                seen.add(t)
+                stack.append(t)
+    return seen
+
+
+def census_from(start: tuple[int, ...]) -> dict:
+    """`census` of the game started at the state `start` (over the bins of value <= its
+    value: `padded`)."""
+    states = reachable_from(start)
+    spec = lengths_to_end(start)
+    return {
+        "length_counts": dict(sorted(spec.items())),
+        "games": sum(spec.values()),
+        "shortest": min(spec),
+        "longest": max(spec),
+        "states": len(states),
+        "transitions": sum(len(successors(s)) for s in states),
+        "terminals": {s for s in states if not successors(s)},
+    }

@@ -69,8 +69,18 @@ def all_games(n: int, model: str) -> dict[int, Fraction]:
     return dict(sorted(law.items()))
 
 
-def length_law(n: int, model: str) -> dict[int, Fraction]:
-    """{length: probability} by memoised recursion over states (same law as all_games)."""
+def padded(position: tuple[int, ...] | list[int]) -> tuple[int, ...]:
+    """A position (counts per bin, bin 1 first) over every bin of value <= its value."""
+    value = sum(c * v for c, v in zip(position, fib_bins(10**18), strict=False))
+    nb = len(fib_bins(value))
+    assert len(position) <= nb
+    return tuple(position) + (0,) * (nb - len(position))
+
+
+def length_law(n: int, model: str, start: tuple[int, ...] | None = None,
+               ) -> dict[int, Fraction]:
+    """{length: probability} by memoised recursion over states (same law as all_games),
+    from n tokens in F1 or from the state `start` (over the bins of value <= n, `padded`)."""
 
     @cache
     def rest(s: tuple[int, ...]) -> tuple[tuple[int, Fraction], ...]:
@@ -84,7 +94,7 @@ def length_law(n: int, model: str) -> dict[int, Fraction]:
                 acc[k + 1] = acc.get(k + 1, Fraction(0)) + p * Fraction(w, tot)
         return tuple(sorted(acc.items()))
 
-    return dict(rest(start_state(n)))
+    return dict(rest(start_state(n) if start is None else start))
 
 
 def win_law(law: dict[int, Fraction], players: int) -> dict[int, Fraction]:

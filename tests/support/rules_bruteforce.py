@@ -5,7 +5,9 @@ A description is a plain dict, written here from each game's definition::
     {
         "bins": function limit -> all bin values <= limit, smallest first,
         "start": "ones" (n tokens in bin 1) | "greedy" (greedy decomposition of n)
-                 | [c1, c2, ...] (n * c_i tokens in bin i),
+                 | [c1, c2, ...] (n * c_i tokens in bin i)
+                 | {"position": [c1, c2, ...]} (exactly c_i tokens in bin i; n must be
+                   the position's value),
         "moves": [(function k -> (take, give), first, last), ...],
     }
 
@@ -90,7 +92,12 @@ class Game:
 
     def __init__(self, desc: dict, n: int) -> None:
         start = desc["start"]
-        if isinstance(start, list):
+        if isinstance(start, dict):
+            pos = list(start["position"])
+            vals = desc["bins"](10**12)
+            self.value = sum(c * v for c, v in zip(pos, vals, strict=False))
+            assert self.value == n, "a position's game has n = its value"
+        elif isinstance(start, list):
             vals = desc["bins"](10**12)
             self.value = n * sum(c * v for c, v in zip(start, vals, strict=False))
         else:
@@ -98,7 +105,10 @@ class Game:
         self.bins = desc["bins"](self.value)
         nb = len(self.bins)
         s = [0] * nb
-        if start == "ones":
+        if isinstance(start, dict):
+            for i, c in enumerate(pos):
+                s[i] = c
+        elif start == "ones":
             s[0] = n
         elif start == "greedy":
             rest = n
