@@ -67,7 +67,7 @@ def game_at(n: int | None, rules: str | RuleSet, position: Position = None,
     from zeckenum.core.checks import check_n
     from zeckenum.errors import InputError
     from zeckenum.rules.catalogue import get_rules
-    from zeckenum.rules.notation import format_position, parse_position
+    from zeckenum.rules.notation import format_position, parse_position, shown
 
     if position is None and n is not None and isinstance(rules, str):
         return n, rules
@@ -81,7 +81,7 @@ def game_at(n: int | None, rules: str | RuleSet, position: Position = None,
         return n, rs
     value = rs.position_value(rs.position)
     if n is not None and n != value:
-        raise InputError(f"position {format_position(rs.position)} has value {value}, not "
+        raise InputError(f"position {shown(format_position(rs.position))} has value {value}, not "
                          f"N={n} (give N = {value} or leave N out)")
     return check_n(value), rs
 

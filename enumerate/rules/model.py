@@ -42,7 +42,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from zeckenum.errors import InputError
 from zeckenum.rules.layering import layering_weights
-from zeckenum.rules.notation import annotate_position, format_position, strip_counts
+from zeckenum.rules.notation import annotate_position, format_position, shown, strip_counts
 
 MAX_POSITION_VALUE = 2**62
 """Largest value of a position (the engines' limit on n, `core.checks.MAX_N`)."""
@@ -139,8 +139,8 @@ class RuleSet:
         raw = list(counts)
         for k, c in enumerate(raw, 1):
             if isinstance(c, bool) or not isinstance(c, (int, np.integer)) or c < 0:
-                raise InputError(f"position {','.join(str(x) for x in raw)}: bin {k} count "
-                                 f"{c!r} is not a non-negative integer")
+                raise InputError(f"position {shown(','.join(str(x) for x in raw))}: bin {k} "
+                                 f"count {shown(repr(c), 24)} is not a non-negative integer")
         pos = strip_counts(raw)
         if not pos:
             raise InputError("position 0 is empty: a game starts with at least one token")
@@ -159,12 +159,12 @@ class RuleSet:
         `pos` has more bins than the rule set or its value exceeds MAX_POSITION_VALUE)."""
         vals = self.bins_by_count(len(pos))
         if len(vals) < len(pos):
-            raise InputError(f"position {format_position(pos)}: bin {len(pos)} is not empty "
-                             f"but rule set {self.name!r} has {len(vals)} bins")
+            raise InputError(f"position {shown(format_position(pos))}: bin {len(pos)} is not "
+                             f"empty but rule set {self.name!r} has {len(vals)} bins")
         value = sum(c * v for c, v in zip(pos, vals, strict=True))
         if value > MAX_POSITION_VALUE:
-            raise InputError(f"position {format_position(pos)} has value {value}, above the "
-                             "limit 2^62")
+            raise InputError(f"position {shown(format_position(pos))} has value "
+                             f"{shown(str(value), 24)}, above the limit 2^62")
         return value
 
     def game_value(self, n: int) -> int:
@@ -173,7 +173,7 @@ class RuleSet:
         if self.position is not None:
             value = self.position_value(self.position)
             if n != value:
-                raise InputError(f"position {format_position(self.position)} has value "
+                raise InputError(f"position {shown(format_position(self.position))} has value "
                                  f"{value}, not n={n} (give N = {value} or leave N out)")
             return value
         if isinstance(self.start, tuple):
@@ -192,7 +192,7 @@ class RuleSet:
         start = np.zeros(nbins, dtype=np.int64)
         if self.position is not None:
             if len(self.position) > nbins:  # pragma: no cover - game_value checked the value
-                raise InputError(f"position {format_position(self.position)} has more bins "
+                raise InputError(f"position {shown(format_position(self.position))} has more bins "
                                  f"than the game for n={n}")
             start[: len(self.position)] = self.position
         elif self.start == "ones":

@@ -38,6 +38,16 @@ def strip_counts(counts: Sequence[int]) -> tuple[int, ...]:
     return tuple(out)
 
 
+SHOWN = 60
+"""Most characters of a position an error message quotes (`shown`)."""
+
+
+def shown(text: str, limit: int = SHOWN) -> str:
+    """`text` (a position as given or formatted) cut to `limit` characters for an error
+    message, with its length after the cut: one line stays short whatever the input."""
+    return text if len(text) <= limit else f"{text[:limit]}... ({len(text)} characters)"
+
+
 def format_position(counts: Sequence[int]) -> str:
     """The count vector, bin 1 first, trailing empty bins dropped: `3,1,0,2` (`0` if empty)."""
     c = strip_counts(counts)
@@ -64,22 +74,24 @@ def parse_position(text: str, nbins: int | None = None) -> tuple[int, ...]:
     beyond the rule set's `nbins` bins.
     """
     s = text.strip()
+    what = shown(repr(text))
     if len(s) >= 2 and (s[0], s[-1]) in {("[", "]"), ("(", ")")}:
         s = s[1:-1].strip()
     if not s:
-        raise InputError(f"position {text!r}: expected counts per bin, bin 1 first, e.g. 3,1,0,2")
+        raise InputError(f"position {what}: expected counts per bin, bin 1 first, e.g. 3,1,0,2")
     counts = []
     for k, field in enumerate(s.split(","), 1):
         f = field.strip()
         if not f.isdigit() or not f.isascii():
-            raise InputError(f"position {text!r}: bin {k} count {f!r} is not a non-negative "
-                             "integer")
+            raise InputError(f"position {what}: bin {k} count {shown(repr(f), 24)} is not a "
+                             "non-negative integer")
         v = int(f)
         if v > MAX_COUNT:
-            raise InputError(f"position {text!r}: bin {k} count {v} exceeds {MAX_COUNT}")
+            raise InputError(f"position {what}: bin {k} count {shown(str(v), 24)} exceeds "
+                             f"{MAX_COUNT}")
         counts.append(v)
     c = strip_counts(counts)
     if nbins is not None and len(c) > nbins:
-        raise InputError(f"position {text!r}: bin {len(c)} is not empty but the rule set has "
+        raise InputError(f"position {what}: bin {len(c)} is not empty but the rule set has "
                          f"{nbins} bins")
     return c
