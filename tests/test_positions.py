@@ -101,6 +101,23 @@ def test_solve_from_a_position_equals_minimax(pos: list[int]) -> None:
     assert api.solve(position=pos, players=3).states == res.states
 
 
+@pytest.mark.parametrize("pos", [[6, 3, 1], [2, 2, 2, 1], [9, 0, 0, 2], [0, 4, 0, 0, 1]])
+def test_threaded_waves_from_a_position_equal_minimax(
+        pos: list[int], monkeypatch: pytest.MonkeyPatch) -> None:
+    # source: tests/support/minimax.py; every layer goes through the block schedule
+    from zeckenum.optimal import waves
+
+    monkeypatch.setattr(waves, "PARALLEL_MIN_STATES", 0)
+    start = bruteforce.padded(pos)
+    res = api.solve(position=pos, threads=2)
+    assert res.stats["parallel_layers"] > 0
+    assert res.winner == (1 if minimax.mover_wins(start) else 2)
+    assert res.start_moves == {name: not minimax.mover_wins(t)
+                               for name, t in minimax.moves_of(start)}
+    assert res.p_positions == sum(not minimax.mover_wins(t)
+                                  for t in bruteforce.reachable_from(start))
+
+
 @FEW
 @given(POSITIONS)
 def test_games_and_move_stats_from_a_position(pos: list[int]) -> None:
