@@ -12,11 +12,13 @@ Python API (the CLI is a thin layer over it; every job returns a result with `to
     zeckenum.move_stats(20).invariants
     zeckenum.build_table(1, 60, "count,random", "tables/std", workers=2)
     zeckenum.verify_table("tables/std")
+    zeckenum.count(position="3,1,0,2")    # the games from a position (README "Positions")
 
 The jobs (`zeckenum.api`): count, random_play, random_float, simulate, gaussian, solve,
 games, move_stats, collect, build_table, load_table, read_table, verify_table.  `workers=K`,
 `scheduler=ADDRESS` and `checkpoint=DIR` move a count, random play, solve or table onto a
-Dask cluster; the default runs in this process.
+Dask cluster; the default runs in this process.  `position=` starts count, random play,
+solve, games, move statistics or a table at any position (then n is its value).
 
 Names are loaded on first use (PEP 562 `__getattr__`): `import zeckenum` imports neither
 numba, Dask nor matplotlib.

@@ -230,7 +230,7 @@ BAD = [
     (["count", "--position", "0," * 91 + "1"], "above the limit 2^62"),
     (["count", "16", "--position", "3,1,0,2"], "has value 15, not N=16"),
     (["random", "16", "--position", "3,1,0,2"], "has value 15, not N=16"),
-    (["random", "--range", "2", "5", "--position", "1"], "--range A B: not with N or"),
+    (["random", "--range", "2", "5", "--position", "1"], "--range A B: not with --position"),
     (["solve", "3", "--position", "1,2"], "has value 5, not N=3"),
     (["games", "4", "--position", "1,2"], "has value 5, not N=4"),
     (["move-stats", "6", "--position", "1,2"], "has value 5, not N=6"),
@@ -351,3 +351,17 @@ def test_strategy_from_a_position_passes_the_independent_checker(tmp_path: Path)
     assert chk.exit_code == 0 and "OK" in chk.output, chk.output
     body = path.read_text()
     assert "n=15" in body
+
+
+@pytest.mark.slow
+def test_cluster_workers_rebuild_the_position(tmp_path: Path) -> None:
+    # source: tests/support/bruteforce.py, fraction_bruteforce.py and minimax.py from the
+    # position; the twins on the Dask workers rebuild the game from (rules, n) alone
+    pos = [3, 1, 0, 2]
+    start = bruteforce.padded(pos)
+    ref = bruteforce.census_from(start)
+    assert api.count(position=pos, workers=1).length_counts == ref["length_counts"]
+    law = fraction_bruteforce.length_law(value(pos), "moves", fraction_bruteforce.padded(pos))
+    assert api.random_play(position=pos, workers=1).length_probability == law
+    assert api.solve(position=pos, workers=1).winner == (
+        1 if minimax.mover_wins(start) else 2)

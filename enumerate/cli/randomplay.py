@@ -196,8 +196,8 @@ def random_command(n, position, players, model, rules, winners_only, use_float, 
     if show_exact and (nrange is not None or use_float or games is not None):
         raise InputError("--exact: exact mode only, not with --range, --float or --simulate")
     if nrange is not None:
-        if position is not None or n is not None:
-            raise InputError("--range A B: not with N or --position (one game each)")
+        if position is not None:
+            raise InputError("--range A B: not with --position (a position is one game)")
         _refuse_sharding(sharded, "--range")
         table = api.gaussian(nrange[0], nrange[1], rules, model, use_float=use_float,
                              max_memory=max_memory)
