@@ -8,24 +8,29 @@ fails puts the archive in a rescue file it names, exit 6).  It loads in one line
 
 and one row per reachable position, in the same order in every per-position array:
 ascending level, then ascending rank inside the level (co-lexicographic: the largest bin is
-the most significant digit).  Format `zpositions/1`:
+the most significant digit).  Format `zpositions/1`.
 
-| array | dtype | shape | meaning |
-| --- | --- | --- | --- |
-| `format` | str | () | "zpositions/1" |
-| `rules`, `rules_hash` | str | () | the rule set's name and content hash |
-| `rules_text` | str | () | the canonical rule file (`rulefile.format_rules`) |
-| `n` | int64 | () | the n the game was solved at |
-| `value` | int64 | () | the value of every position (n for games starting with n ones) |
-| `convention` | str | () | "normal" (the last player to move wins) or "misere" |
-| `bin_values` | int64 | (bins,) | the value of each bin, bin 1 first |
-| `weights` | int64 | (bins,) | the level weights: `level = counts @ weights` |
-| `start` | int64 | (bins,) | the start position's count vector |
-| `counts` | uint8 / uint16 / uint32 | (states, bins) | each position's count vector, bin 1 first (the narrowest dtype that holds value // bin_values[0]) |
-| `level` | uint16 / uint32 | (states,) | each position's level |
-| `cls` | uint8 | (states,) | 0: P-position (the player to move loses), 1: N-position |
-| `remoteness` | uint16 | (states,) | with the field "remoteness": moves to the end under optimal play (the winner hastens, the loser delays); its parity is the class |
-| `grundy` | uint8 / uint16 | (states,) | with the field "grundy" (normal play): the Sprague–Grundy value |
+Metadata (0-d arrays unless a shape is given):
+
+* `format` (str): "zpositions/1";
+* `rules`, `rules_hash` (str): the rule set's name and content hash; `rules_text` (str):
+  the canonical rule file (`rulefile.format_rules`);
+* `n` (int64): the n the game was solved at; `value` (int64): the value of every position
+  (n for games that start with n ones);
+* `convention` (str): "normal" (the last player to move wins) or "misere";
+* `bin_values`, `weights`, `start` (int64, shape (bins,)): each bin's value, the level
+  weights (`level = counts @ weights`) and the start's count vector, bin 1 first.
+
+One row per position (shape (states,) or (states, bins)):
+
+* `counts` (uint8, uint16 or uint32: the narrowest that holds value // bin_values[0]):
+  the count vector, bin 1 first;
+* `level` (uint16 or uint32): the position's level;
+* `cls` (uint8): 0 for a P-position (the player to move loses), 1 for an N-position;
+* `remoteness` (uint16; field "remoteness"): the moves left under optimal play (the
+  winner hastens, the loser delays); its parity is the class;
+* `grundy` (uint8, or uint16 for games of more than 255 moves; field "grundy", normal
+  play only): the Sprague–Grundy value.
 
 `cls` and `remoteness` follow the file's `convention`.  Invariants (checked by the
 tests against brute force): the rows are exactly the positions reachable from `start`,
@@ -94,11 +99,13 @@ def row_bytes(space: StateSpace, fields: tuple[str, ...]) -> int:
 
 def export_bytes(space: StateSpace, fields: tuple[str, ...]) -> int:
     """Upper bound of the export's memory on top of the sweep's: the arrays (every state
-    of the space counted as reachable), the archive built in memory (at most the arrays
-    plus zip and deflate overhead: counted as the arrays again plus 1 MiB) and one
-    listed layer (int64 per bin) at a time."""
+    of the space counted as reachable, each array allocated once at its final size), the
+    archive built in memory (deflate never grows data by more than a few bytes per 16 KiB
+    block, so: the arrays again plus a sixteenth, plus 1 MiB of zip, zlib and buffer
+    slack) and one listed layer (int64 per bin) with its masked copy at a time."""
     arrays = space.total_states() * row_bytes(space, fields)
-    return 2 * arrays + (1 << 20) + space.largest_layer() * 8 * space.spec.nbins
+    return (2 * arrays + arrays // 16 + (1 << 20)
+            + 2 * space.largest_layer() * 8 * space.spec.nbins)
 
 
 def export_arrays(
@@ -113,32 +120,50 @@ def export_arrays(
     rs = spec.rules
     cdt = count_dtype(spec.n, int(spec.values[0]))
     ldt = level_dtype(space.top)
-    lose = 1 if misere else 0
-    parts: dict[str, list[np.ndarray]] = {"counts": [], "level": [], "cls": [],
-                                          "remoteness": [], "grundy": []}
-    for level in sorted(rems):
-        size = space.layer_size(level)
-        if reach is None:
-            keep = np.ones(size, dtype=bool)
-        else:
-            keep = np.unpackbits(reach[level], bitorder="little", count=size).astype(bool)
-        if not keep.any():
-            continue
-        states = space.states(level)[keep]
-        parts["counts"].append(states.astype(cdt))
-        del states
-        parts["level"].append(np.full(int(keep.sum()), level, dtype=ldt))
-        rem = rems[level][keep]
-        parts["cls"].append(((rem & 1) != lose).astype(np.uint8))
-        if "remoteness" in fields:
-            parts["remoteness"].append(rem)
-        if "grundy" in fields and grus is not None:
-            parts["grundy"].append(grus[level][keep])
     gdt = grundy_dtype(int(spec.mv_bins.shape[0]))
-    empty = {"counts": np.zeros((0, spec.nbins), dtype=cdt), "level": np.zeros(0, ldt),
-             "cls": np.zeros(0, np.uint8), "remoteness": np.zeros(0, np.uint16),
-             "grundy": np.zeros(0, gdt)}
-    out: dict[str, np.ndarray] = {
+    lose = 1 if misere else 0
+    levels = sorted(rems)
+
+    def kept(level: int) -> np.ndarray | None:
+        """The reachable ranks of a level as a bool mask (None: all of them)."""
+        if reach is None:
+            return None
+        return np.unpackbits(reach[level], bitorder="little",
+                             count=space.layer_size(level)).astype(bool)
+
+    rows = sum(space.layer_size(lv) if reach is None else
+               int(np.bitwise_count(reach[lv]).sum()) for lv in levels)
+    # allocated once at their final size and filled layer by layer (no concatenation)
+    out_rows: dict[str, np.ndarray] = {
+        "counts": np.zeros((rows, spec.nbins), dtype=cdt),
+        "level": np.zeros(rows, dtype=ldt),
+        "cls": np.zeros(rows, dtype=np.uint8),
+    }
+    if "remoteness" in fields:
+        out_rows["remoteness"] = np.zeros(rows, dtype=np.uint16)
+    if "grundy" in fields:
+        out_rows["grundy"] = np.zeros(rows, dtype=gdt)
+    at = 0
+    for level in levels:
+        mask = kept(level)
+        rem = rems[level] if mask is None else rems[level][mask]
+        k = rem.size
+        if k == 0:
+            continue
+        states = space.states(level)
+        out_rows["counts"][at : at + k] = states if mask is None else states[mask]
+        del states
+        out_rows["level"][at : at + k] = level
+        out_rows["cls"][at : at + k] = (rem & 1) != lose
+        if "remoteness" in fields:
+            out_rows["remoteness"][at : at + k] = rem
+        if "grundy" in fields and grus is not None:
+            out_rows["grundy"][at : at + k] = (grus[level] if mask is None
+                                               else grus[level][mask])
+        at += k
+    if at != rows:
+        raise RuntimeError("the export's rows do not match the reachable states")
+    return {
         "format": np.array(FORMAT_TAG),
         "rules": np.array(rs.name),
         "rules_hash": np.array(rs.content_hash()),
@@ -149,16 +174,8 @@ def export_arrays(
         "bin_values": np.asarray(spec.values, dtype=np.int64),
         "weights": np.asarray(spec.weights, dtype=np.int64),
         "start": np.asarray(spec.start, dtype=np.int64),
+        **out_rows,
     }
-    for key in ("counts", "level", "cls", "remoteness", "grundy"):
-        if key == "remoteness" and "remoteness" not in fields:
-            continue
-        if key == "grundy" and "grundy" not in fields:
-            continue
-        chunks = parts[key]
-        out[key] = np.concatenate(chunks) if chunks else empty[key]
-        parts[key] = []
-    return out
 
 
 def write_export(path: str, arrays: dict[str, np.ndarray]) -> int:
