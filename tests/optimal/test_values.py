@@ -151,8 +151,10 @@ def test_grundy_zero_exactly_at_p_positions(tmp_path: Path, name: str) -> None:
     assert ((z["grundy"] == 0) == (z["cls"] == 0)).all()
     assert int((z["grundy"] == 0).sum()) == solve(n, name, threads=1).p_positions
     assert res.p_positions == solve(n, name, threads=1).p_positions
-    # the bound the dtype relies on: a value never exceeds the number of moves
+    # the bound the dtype relies on: a value is the mex of at most as many values as the
+    # position has moves, so it never exceeds the number of moves (brute force's count)
     assert int(z["grundy"].max()) == res.stats["grundy_max"]
+    assert res.stats["grundy_max"] <= len(_game(name, n).moves)
 
 
 def test_standard_start_has_grundy_zero() -> None:
@@ -312,3 +314,33 @@ def test_api_refusals() -> None:
         api.solve(30, grundy=True, max_memory=2048)
     with pytest.raises(InputError):
         solve_sum([5], "standard")
+
+
+def test_failed_export_write_keeps_everything(tmp_path: Path,
+                                              monkeypatch: pytest.MonkeyPatch) -> None:
+    """Common practice: a write that fails after the solve loses nothing: the summary is
+    printed, the archive goes to a rescue file the one error line names (exit 6), and the
+    rescued archive holds every reachable position (brute force count)."""
+    import tempfile
+
+    from zeckenum import safeio
+
+    real = safeio.write_atomic
+    target = tmp_path / "out.npz"
+
+    def failing(path: object, data: bytes) -> None:
+        if Path(path) == target:
+            raise OSError(28, "No space left on device")
+        real(path, data)
+
+    monkeypatch.setattr(safeio, "write_atomic", failing)
+    monkeypatch.setattr(tempfile, "tempdir", str(tmp_path))
+    r = CliRunner().invoke(solve_command, ["14", "--export", str(target)])
+    assert r.exit_code == 6, r.output
+    assert "winner" in r.output and "player 2" in r.output
+    rescued = [p for p in tmp_path.iterdir() if p.name.startswith("zeckenum-rescued-")]
+    assert len(rescued) == 1 and str(rescued[0]) in r.output
+    assert not target.exists()
+    g = _game("standard", 14)
+    z = np.load(rescued[0])
+    assert z["cls"].size == len(cgt.reachable(g.successors, g.start))
