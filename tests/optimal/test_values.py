@@ -165,6 +165,30 @@ def test_standard_start_has_grundy_zero() -> None:
     assert [solve(n, grundy=True).grundy for n in range(3, 41)] == [0] * 38
 
 
+def _zeckendorf_terms(n: int) -> int:
+    """Z(n): terms of the greedy (Zeckendorf) decomposition of n into 1, 2, 3, 5, 8, ..."""
+    fib = [1, 2]
+    while fib[-1] + fib[-2] <= n:
+        fib.append(fib[-1] + fib[-2])
+    terms = 0
+    for f in reversed(fib):
+        if f <= n:
+            n -= f
+            terms += 1
+    return terms
+
+
+def test_standard_start_remoteness_published_facts() -> None:
+    """Source: "The Zeckendorf Game" (2018), arXiv:1809.04881: player 2 wins for n > 2, so
+    the start is a P-position and (by the definition of remoteness) its remoteness is
+    even; every game lasts at least n - Z(n) moves (the shortest game), so the
+    remoteness, the length of one game, is at least that."""
+    for n in range(3, 81):
+        rem = solve(n, remoteness=True, threads=1).remoteness
+        assert rem % 2 == 0, n
+        assert rem >= n - _zeckendorf_terms(n), n
+
+
 @pytest.mark.parametrize("name", SHIPPED)
 def test_sum_matches_product_game(name: str) -> None:
     """Source: brute force mex over the product game (tests/support/cgt_bruteforce.py):
