@@ -1,5 +1,8 @@
 """Command-line front ends of optimal play: `solve` and `check-strategy` (click commands).
 
+`solve` also reports the per-state values of `zeckenum.optimal.solve` (--remoteness,
+--misere, --grundy, --export) and sums of games (--sum N1,N2, instead of N).
+
 Both print a readable table on the terminal, or one JSON object with --json.  Errors a user
 can cause come out as one line on stderr with the error's exit code (2 for bad input, 5 for
 a strategy that does not win, 6 for a strategy file that could not be written), never as a
@@ -159,7 +162,8 @@ def solve_command(n: int | None, rules_name: str, players: int, strategy_path: s
                   as_json: bool, workers: int | None, scheduler: str | None,
                   checkpoint_dir: str | None, shards: int | None, threads: int | None,
                   progress: bool | None, max_memory: int | None) -> None:
-    """Who wins the game for N under optimal play (the last player to move wins).
+    """Who wins the game for N under optimal play (the last player to move wins; with
+    --misere, loses).
 
     \b
     Examples:
