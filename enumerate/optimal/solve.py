@@ -298,8 +298,8 @@ def solve_space(spec: GameSpec, limit: int, players: int, reach: bool, keep_clas
     it is allocated (`statespace.refuse_space`), then `solve_bytes` (or, with `valued`,
     the keyword arguments of `valued_bytes`) from the layer sizes."""
     per_state = 1 / 8 if (reach or keep_classes) else 0.0
-    if valued is not None:
-        per_state += 2.0
+    if valued is not None and (keep_classes or valued.get("export_fields")):
+        per_state += 2.0  # every state's remoteness is kept (a lower bound of the peak)
     refuse_space(spec, limit, what, per_state=per_state)
     space = build_space(spec, limit)
     if valued is None:
