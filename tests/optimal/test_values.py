@@ -368,3 +368,24 @@ def test_failed_export_write_keeps_everything(tmp_path: Path,
     g = _game("standard", 14)
     z = np.load(rescued[0])
     assert z["cls"].size == len(cgt.reachable(g.successors, g.start))
+
+
+@pytest.mark.slow
+def test_large_values_agree_with_the_bits_and_threads() -> None:
+    """Source: the one-bit solve (checked against brute force in test_solve.py) for every
+    state's class at n = 200 (5.2 million states), and the one-thread values for the
+    threaded ones, with the natural size threshold (layers of 32,768 states and more run on
+    threads)."""
+    one = solve(200, remoteness=True, grundy=True, keep_classes=True, threads=1)
+    two = solve(200, remoteness=True, grundy=True, keep_classes=True, threads=2)
+    bits = solve(200, keep_classes=True, threads=1)
+    assert two.stats["parallel_layers"] > 0
+    for key in one.values:
+        for lv, arr in one.values[key].items():
+            assert np.array_equal(arr, two.values[key][lv]), (key, lv)
+    for lv, cls in bits.classes.items():
+        assert np.array_equal(one.classes[lv], cls), lv
+    assert one.p_positions_by_level == bits.p_positions_by_level
+    # Winning Ways (1982): Grundy value 0 exactly at P-positions
+    for lv, g in one.values["grundy"].items():
+        assert np.array_equal(g == 0, ~bits.classes[lv]), lv
