@@ -377,11 +377,12 @@ def solve(
         check_output_file(export, "position export")
     rs = get_rules(rules)
     reach = needs_reach(rs) if reach is None else reach
+    spec = rs.instantiate(n)
     if misere or remoteness or grundy or fields:
         want_grundy = grundy or bool(fields and "grundy" in fields)
-        return _solve_values(n, rs, reach, keep_classes, max_memory, progress, threads,
+        return _solve_values(n, spec, reach, keep_classes, max_memory, progress, threads,
                              misere, want_grundy, export, fields)
-    space = solve_space(rs.instantiate(n), resolve_limit(max_memory), players, reach,
+    space = solve_space(spec, resolve_limit(max_memory), players, reach,
                         keep_classes, f"solving n={n}", threads)
     t0 = time.perf_counter()
     reach_bits = reachable_bits(space)[0] if reach else None
@@ -406,13 +407,14 @@ def solve(
 
 
 def _solve_values(
-    n: int, rs: RuleSet, reach: bool, keep: bool, max_memory: int | None, progress: bool,
+    n: int, spec: GameSpec, reach: bool, keep: bool, max_memory: int | None, progress: bool,
     threads: int, misere: bool, grundy: bool, export: str | None,
     fields: tuple[str, ...] | None,
 ) -> SolveResult:
-    """`solve` with per-state values (two players): forecast, sweep, result, export."""
+    """`solve` with per-state values (two players) of the game `spec` (from its
+    `spec.start`): forecast, sweep, result, export."""
     valued = {"grundy": grundy, "export_fields": fields}
-    space = solve_space(rs.instantiate(n), resolve_limit(max_memory), 2, reach, keep,
+    space = solve_space(spec, resolve_limit(max_memory), 2, reach, keep,
                         f"solving n={n}", threads, valued=valued)
     t0 = time.perf_counter()
     reach_bits = reachable_bits(space)[0] if reach else None
