@@ -182,6 +182,9 @@ def solve_command(n: int | None, rules_name: str, players: int, strategy_path: s
     lost: OutputError | None = None
     chained = workers or scheduler or checkpoint_dir or shards
     if sum_text is not None:
+        if remoteness or export_fields is not None:
+            raise InputError("--sum reports the sum's Sprague-Grundy value and winning "
+                             "moves; it does not take --remoteness or --export-fields")
         _solve_sum(n, sum_text, rules, players, strategy_path, misere, export_path, chained,
                    as_json, threads, progress, max_memory)
         return

@@ -312,6 +312,8 @@ def test_cli_json_keys(tmp_path: Path) -> None:
     (["--sum", "3,x"], 2),
     (["5", "--sum", "3,4"], 2),
     (["--sum", "3,4", "--misere"], 2),
+    (["--sum", "3,4", "--remoteness"], 2),
+    (["--sum", "3,4", "--export", "s.npz"], 2),
     ([], 2),
     (["10", "--grundy", "--checkpoint", "ckpt"], 2),
     (["10", "--misere", "--strategy", "s.zstrat"], 2),
