@@ -5,7 +5,9 @@
     random_float(n)   -> FloatResult      the same in float64 with rigorous error bounds
     simulate(n, k)    -> SimulationResult Monte Carlo estimates from k random games
     gaussian(lo, hi)  -> GaussianTable    normal-law diagnostics of random play per n
-    solve(n)          -> SolveResult      optimal play: who wins, P-positions
+    solve(n)          -> SolveResult      optimal play: who wins, P-positions, remoteness,
+                                          misère play, Grundy values, position export
+    solve_sum(ns)     -> SumResult        a sum of games from the Grundy values
     games(n)          -> GamesReport      an explicit shortest and longest game
     move_stats(n)     -> MoveStats        move totals, expected counts, linear invariants
     collect(lo, hi)   -> RunData          census and random play over a range (for figures)
@@ -47,7 +49,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
     from zeckenum.analysis.movestats import MoveStats
     from zeckenum.analysis.rundata import RunData
     from zeckenum.counting.result import CountResult
-    from zeckenum.optimal.solve import SolveResult
+    from zeckenum.optimal.solve import SolveResult, SumResult
     from zeckenum.randomplay.exact import RandomResult
     from zeckenum.randomplay.floating import FloatResult
     from zeckenum.randomplay.simulate import SimulationResult
@@ -292,25 +294,31 @@ def solve(
     position: Position = None, max_memory: int | None = None, progress: bool = False,
     workers: int | None = None,
     scheduler: str | None = None, checkpoint: str | Path | None = None,
-    shards: int | None = None, threads: int | None = None,
+    shards: int | None = None, threads: int | None = None, misere: bool = False,
+    remoteness: bool = False, grundy: bool = False, export: str | Path | None = None,
+    export_fields: str | tuple[str, ...] | None = None,
 ) -> SolveResult:
     """Optimal play at n (`zeckenum.optimal.solve.solve`, each large layer on `threads`
     threads, default every core), or the same as a chain of level-range shards
     (`zeckenum.cluster.solve_chain.run_solve`) when `workers`, `scheduler`, `checkpoint` or
     `shards` is given; the chain's ranges run on one thread each, so `threads` is refused
     with it.  A chain on this machine (no `scheduler`) or with `max_memory` is refused up
-    front as the in-process solve would be, before any worker starts.  With `position` the
-    game starts there."""
+    front as the in-process solve would be, before any worker starts.  `misere`,
+    `remoteness`, `grundy` and `export` (two players; see the engine's docstring) run
+    in-process only: the chain refuses them.  With `position` the game starts there."""
     n, rules = game_at(n, rules, position)
     return tagged(_solve(n, rules, players, max_memory=max_memory, progress=progress,
                          workers=workers, scheduler=scheduler, checkpoint=checkpoint,
-                         shards=shards, threads=threads), rules)
+                         shards=shards, threads=threads, misere=misere,
+                         remoteness=remoteness, grundy=grundy, export=export,
+                         export_fields=export_fields), rules)
 
 
 def _solve(
     n: int, rules: str | RuleSet, players: int, *, max_memory: int | None, progress: bool,
     workers: int | None, scheduler: str | None, checkpoint: str | Path | None,
-    shards: int | None, threads: int | None,
+    shards: int | None, threads: int | None, misere: bool, remoteness: bool, grundy: bool,
+    export: str | Path | None, export_fields: str | tuple[str, ...] | None,
 ) -> SolveResult:
     from zeckenum.core.checks import check_threads
     from zeckenum.errors import InputError
@@ -318,7 +326,14 @@ def _solve(
 
     threads = check_threads(threads)
     rs = get_rules(rules)
+    valued = [name for name, on in (("--misere", misere), ("--remoteness", remoteness),
+                                    ("--grundy", grundy), ("--export", export is not None))
+              if on]
     if _sharded(workers, scheduler, checkpoint) or shards:
+        if valued:
+            raise InputError(f"{valued[0]} runs the in-process solve only; a chain of level "
+                             "ranges (--workers, --scheduler, --checkpoint, --shards) keeps "
+                             "one bit per state")
         if threads is not None:
             raise InputError("--threads runs the in-process solve; a chain of level ranges "
                              "(--workers, --scheduler, --checkpoint, --shards) runs each "
@@ -335,7 +350,22 @@ def _solve(
     from zeckenum.optimal import solve as engine
 
     return engine.solve(n, rs, players, max_memory=max_memory, progress=progress,
-                        threads=threads)
+                        threads=threads, misere=misere, remoteness=remoteness, grundy=grundy,
+                        export=None if export is None else str(export),
+                        export_fields=export_fields)
+
+
+def solve_sum(ns: list[int] | tuple[int, ...], rules: str | RuleSet = "standard", *,
+              max_memory: int | None = None, progress: bool = False,
+              threads: int | None = None) -> SumResult:
+    """The sum of the games at each n of `ns` under normal play, from the Sprague-Grundy
+    values of their starts (`zeckenum.optimal.solve.solve_sum`): who wins and every winning
+    first move."""
+    from zeckenum.core.checks import check_threads
+    from zeckenum.optimal.solve import solve_sum as engine
+
+    return engine(ns, rules, max_memory=max_memory, progress=progress,
+                  threads=check_threads(threads))
 
 
 def games(n: int | None = None, rules: str | RuleSet = "standard", near: int = 3, *,

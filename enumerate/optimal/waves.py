@@ -51,15 +51,24 @@ BLOCK_COST x blocks / threads, where the critical path is the heaviest chain of 
 each block weighing its states; the cheapest h wins.  Layers below PARALLEL_MIN_STATES
 states (and every layer with one thread) run the serial kernels.
 
+Values per state.  The same blocks and schedule run the sweep with one value per state
+(`classify.grade_layer_2p`: remoteness, Grundy values; kernel `grade_blocks_2p`, wrapper
+`layer_grades`).  The claim above holds unchanged (it is about the order of reads and
+writes, not their width), and since every state owns its own array element there are no
+shared bytes: blocks write the layer's arrays directly and nothing is merged.
+
 Kernels: `cross_moves` (the moves that leave a block), `cut_blocks` (blocks, edges and
-critical path for one h), `classify_blocks_2p` / `classify_blocks_multi` (one batch of
-blocks), `release_blocks` (the blocks a finished batch frees), `merge_edges`.  Wrappers:
-`block_plan` (the plan of one layer), `layer_blocks` (run one layer on threads).
+critical path for one h), `classify_blocks_2p` / `classify_blocks_multi` /
+`grade_blocks_2p` (one batch of blocks), `release_blocks` (the blocks a finished batch
+frees), `merge_edges`.  Wrappers: `block_plan` (the plan of one layer), `layer_blocks`
+(run one layer's bits on threads), `layer_grades` (its values); both schedule through
+`_run_schedule`.
 """
 
 from __future__ import annotations
 
 import threading
+from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
@@ -533,6 +542,103 @@ def classify_blocks_multi(
 
 
 @kernel
+def grade_blocks_2p(
+    n: int, level: int, tab: np.ndarray, values: np.ndarray, weights: np.ndarray,
+    mv_bins: np.ndarray, mv_delta: np.ndarray, mv_drop: np.ndarray, max_drop: int,
+    rem: np.ndarray, gru: np.ndarray, base: np.ndarray, want_grundy: bool, misere: bool,
+    reach: np.ndarray, use_reach: bool, batch: np.ndarray, start: np.ndarray,
+    size: np.ndarray,
+) -> tuple[int, int, int, int, int]:
+    """A batch of ready blocks with one value per state: (P-positions, moves examined,
+    bad, error, largest Grundy value or -1).
+
+    The values of `classify.grade_layer_2p` (remoteness, whose parity is the class, and
+    with `want_grundy` the Grundy values), each block walked from its highest rank down.
+    Every state owns its own element of `rem` and `gru`, so blocks write the layer's
+    arrays directly (no edge bytes): a block writes only its own states' elements and reads
+    another block's only after that block finished (module docstring).  bad: -1, -2 (a
+    remoteness above `classify.REMOTENESS_MAX`, stored saturated) or the least rank of a
+    state with a drop-0 move that does not raise its rank; error: 0 or ERR_WALK.
+    """
+    nbins = values.size
+    lo, hi = move_spans(mv_bins, mv_delta)
+    dd = move_dense(mv_bins, mv_delta, lo, hi)
+    c = np.zeros(nbins, dtype=np.int64)
+    lowv = np.zeros(nbins + 1, dtype=np.int64)
+    lowt = np.zeros(nbins + 1, dtype=np.int64)
+    suf = np.zeros((max_drop + 1, nbins + 1), dtype=np.int64)
+    nmoves = mv_bins.shape[0]
+    cand = np.zeros(nmoves, dtype=np.int64)
+    stamp = np.full(nmoves + 2, -1, dtype=np.int64)
+    unit = is_unit_game(values, weights)
+    lose = 1 if misere else 0
+    top_value = 0xFFFF
+    b0 = base[0]
+    p_count = 0
+    examined = 0
+    bad = -1
+    gmax = -1
+    for q in range(batch.size):
+        blk = batch[q]
+        first = start[blk]
+        top = first + size[blk] - 1
+        _unrank(top, n, level, c, lowv, lowt, tab, values, weights)
+        suf[:, nbins] = 0
+        _terms(nbins - 1, lowv, lowt, tab, suf)
+        for i in range(top, first - 1, -1):
+            if i < top:
+                j = _step_down(c, lowv, lowt, tab, values, weights, unit)
+                if j < 0:
+                    return p_count, examined, bad, ERR_WALK, gmax
+                _terms(j, lowv, lowt, tab, suf)
+            if suf[0, 0] != i:
+                return p_count, examined, bad, ERR_WALK, gmax
+            if use_reach and (reach[i >> 3] >> (i & 7)) & 1 == 0:
+                continue
+            best = top_value + 1
+            worst = -1
+            nl = _legal_moves(c, mv_bins, mv_delta, cand)
+            for z in range(nl):
+                m = cand[z]
+                d = mv_drop[m]
+                r = neighbour_rank(c, m, 1, lo, hi, dd, tab, values, weights, lowv, lowt,
+                                   i - suf[0, lo[m]], suf[d, hi[m] + 1])
+                examined += 1
+                if d == 0 and r <= i:
+                    bad = i if bad < 0 else min(bad, i)
+                    break
+                x = np.int64(rem[base[d] + r])
+                if x & 1 == lose and x < best:
+                    best = x
+                if x > worst:
+                    worst = x
+                if want_grundy:
+                    g = np.int64(gru[base[d] + r])
+                    if g <= nmoves:
+                        stamp[g] = i
+            if best <= top_value:
+                v = best + 1
+            elif nl == 0:
+                v = 0
+            else:
+                v = worst + 1
+            if v > top_value:
+                v = top_value
+                bad = -2 if bad == -1 else bad
+            rem[b0 + i] = v
+            if v & 1 == lose:
+                p_count += 1
+            if want_grundy:
+                g = 0
+                while stamp[g] == i:
+                    g += 1
+                gru[b0 + i] = g
+                if g > gmax:
+                    gmax = g
+    return p_count, examined, bad, 0, gmax
+
+
+@kernel
 def release_blocks(batch: np.ndarray, dptr: np.ndarray, dependants: np.ndarray,
                    pending: np.ndarray, size: np.ndarray) -> tuple[np.ndarray, int]:
     """Mark a batch finished: every block waiting for one of them waits for one block less;
@@ -572,30 +678,24 @@ def merge_edges(planes: np.ndarray, b0: int, edges: np.ndarray, start: np.ndarra
                     planes[p, b0 + x] |= edges[blk, nplanes * slot + p]
 
 
-def layer_blocks(
-    space: StateSpace, level: int, players: int, buf: np.ndarray, base: np.ndarray,
-    reach: np.ndarray, use_reach: bool, threads: int, pool: ThreadPoolExecutor,
-) -> tuple[int, int, int]:
-    """Classify one layer into `buf` (planes x bytes, as `classify._flight` lays it out)
-    with `threads` threads of `pool`; returns (P-positions (two players; else 0), moves
-    examined, bad) as the serial kernels count them.  RuntimeError on an internal error."""
-    spec = space.spec
-    layer = space.layer_size(level)
-    plan = block_plan(space, level, threads)
+def _run_schedule(plan: BlockPlan, threads: int, pool: ThreadPoolExecutor, level: int,
+                  run_batch: Callable[[np.ndarray], tuple[int, int, int, int, int]]
+                  ) -> dict:
+    """Run every block of `plan` on `threads` threads of `pool` (module docstring,
+    "Schedule"); `run_batch(batch)` classifies a batch of ready blocks and returns
+    (P-positions, moves examined, bad, error, largest Grundy value or -1).  Returns the
+    sums: {"pc", "ex", "bad" (least bad rank, -2 for a saturated value, else -1),
+    "gmax"}.  RuntimeError on an internal error."""
     nblk = plan.blocks
-    planes = buf.shape[0]
-    edges = np.zeros((nblk, 2 * planes), dtype=np.uint8)
     order = np.argsort(plan.dst, kind="stable")
     dependants = plan.src[order]
     dptr = np.searchsorted(plan.dst[order], np.arange(nblk + 1))
     pending = np.bincount(plan.src, minlength=nblk).astype(np.int64)
     ready = [int(b) for b in np.flatnonzero(pending == 0)]
     state = {"done": 0, "pc": 0, "ex": 0, "bad": -1, "err": 0, "ready_states": 0,
-             "running": 0}
+             "running": 0, "gmax": -1}
     state["ready_states"] = int(plan.size[ready].sum()) if ready else 0
     cond = threading.Condition()
-    args = (spec.n, level, layer, space.tab, spec.values, spec.weights, spec.mv_bins,
-            spec.mv_delta, spec.mv_drop, space.max_drop)
 
     def take() -> np.ndarray | None:
         """A batch of ready blocks (under the lock), or None when the layer is done."""
@@ -633,20 +733,15 @@ def layer_blocks(
                 batch = take()
             if batch is None:
                 return
-            if players == 2:
-                pc, ex, bad, err = classify_blocks_2p(
-                    *args, buf[0], base, edges, reach, use_reach, batch, plan.start,
-                    plan.size)
-            else:
-                pc = 0
-                ex, bad, err = classify_blocks_multi(
-                    *args, players, buf, base, edges, reach, use_reach, batch, plan.start,
-                    plan.size)
+            pc, ex, bad, err, gmax = run_batch(batch)
             with cond:
                 state["pc"] += int(pc)
                 state["ex"] += int(ex)
                 if bad >= 0 and (state["bad"] < 0 or bad < state["bad"]):
                     state["bad"] = int(bad)
+                elif bad == -2 and state["bad"] == -1:
+                    state["bad"] = -2
+                state["gmax"] = max(state["gmax"], int(gmax))
                 state["err"] |= int(err)
                 state["done"] += batch.size
                 state["running"] -= 1
@@ -661,5 +756,57 @@ def layer_blocks(
         f.result()
     if state["err"] or state["done"] != nblk:
         raise RuntimeError(f"the parallel walk of level {level} lost step with the ranks")
+    return state
+
+
+def layer_blocks(
+    space: StateSpace, level: int, players: int, buf: np.ndarray, base: np.ndarray,
+    reach: np.ndarray, use_reach: bool, threads: int, pool: ThreadPoolExecutor,
+) -> tuple[int, int, int]:
+    """Classify one layer into `buf` (planes x bytes, as `classify._flight` lays it out)
+    with `threads` threads of `pool`; returns (P-positions (two players; else 0), moves
+    examined, bad) as the serial kernels count them.  RuntimeError on an internal error."""
+    spec = space.spec
+    layer = space.layer_size(level)
+    plan = block_plan(space, level, threads)
+    planes = buf.shape[0]
+    edges = np.zeros((plan.blocks, 2 * planes), dtype=np.uint8)
+    args = (spec.n, level, layer, space.tab, spec.values, spec.weights, spec.mv_bins,
+            spec.mv_delta, spec.mv_drop, space.max_drop)
+
+    def run_batch(batch: np.ndarray) -> tuple[int, int, int, int, int]:
+        if players == 2:
+            pc, ex, bad, err = classify_blocks_2p(
+                *args, buf[0], base, edges, reach, use_reach, batch, plan.start, plan.size)
+            return pc, ex, bad, err, -1
+        ex, bad, err = classify_blocks_multi(
+            *args, players, buf, base, edges, reach, use_reach, batch, plan.start,
+            plan.size)
+        return 0, ex, bad, err, -1
+
+    state = _run_schedule(plan, threads, pool, level, run_batch)
     merge_edges(buf, int(base[0]), edges, plan.start, plan.size, layer)
     return state["pc"], state["ex"], state["bad"]
+
+
+def layer_grades(
+    space: StateSpace, level: int, rem: np.ndarray, gru: np.ndarray, base: np.ndarray,
+    grundy: bool, misere: bool, reach: np.ndarray, use_reach: bool, threads: int,
+    pool: ThreadPoolExecutor,
+) -> tuple[int, int, int, int]:
+    """The values of `classify.grade_layer_2p` for one layer (`rem`, `gru` laid out as
+    `classify._value_flight` lays them out) on `threads` threads of `pool`, scheduled as
+    `layer_blocks` schedules the bits; returns (P-positions, moves examined, bad, largest
+    Grundy value or -1) as the serial kernel gives them.  RuntimeError on an internal
+    error."""
+    spec = space.spec
+    plan = block_plan(space, level, threads)
+    args = (spec.n, level, space.tab, spec.values, spec.weights, spec.mv_bins,
+            spec.mv_delta, spec.mv_drop, space.max_drop, rem, gru, base, grundy, misere,
+            reach, use_reach)
+
+    def run_batch(batch: np.ndarray) -> tuple[int, int, int, int, int]:
+        return grade_blocks_2p(*args, batch, plan.start, plan.size)
+
+    state = _run_schedule(plan, threads, pool, level, run_batch)
+    return state["pc"], state["ex"], state["bad"], state["gmax"]

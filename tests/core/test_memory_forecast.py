@@ -144,7 +144,7 @@ def test_max_memory_refuses_each_api_call() -> None:
 # ------------------------------------------------------------ forecasts against peaks
 
 MEASURE = textwrap.dedent("""
-    import json, sys
+    import json, sys, tempfile
     import psutil
     import zeckenum
     from zeckenum.randomplay.floating import float_play
@@ -159,6 +159,9 @@ MEASURE = textwrap.dedent("""
         "float": lambda n: float_play(n, threads=2),
         "solve": lambda n: solve(n),
         "points": lambda n: zeckenum.count(n, threads=2, points_per_shard=64),
+        "values": lambda n: solve(n, remoteness=True, grundy=True, threads=2),
+        "export": lambda n: solve(n, grundy=True, threads=2,
+                                  export=tempfile.mkdtemp() + "/e.npz"),
     }[kind]
     call(8)  # load the kernels outside the measurement
     open("/proc/self/clear_refs", "w").write("5")  # restart the high-water mark here
@@ -179,7 +182,7 @@ def measured_peak(kind: str, n: int) -> tuple[int, int]:
 
 
 @pytest.mark.parametrize("kind,n", [("count", 130), ("law", 100), ("float", 130),
-                                    ("points", 130)])
+                                    ("points", 130), ("export", 150)])
 def test_forecast_is_not_below_the_measured_peak(kind: str, n: int) -> None:
     forecast, measured = measured_peak(kind, n)
     assert measured > 16 * MiB, "the run is too small to measure"
@@ -191,7 +194,7 @@ def test_forecast_is_not_below_the_measured_peak(kind: str, n: int) -> None:
 
 @pytest.mark.slow
 @pytest.mark.parametrize("kind,n", [("count", 160), ("wins", 160), ("pairs", 80),
-                                    ("float", 180), ("solve", 300)])
+                                    ("float", 180), ("solve", 300), ("values", 280)])
 def test_forecast_is_not_below_the_measured_peak_larger(kind: str, n: int) -> None:
     forecast, measured = measured_peak(kind, n)
     assert forecast >= 0.95 * measured - 4 * MiB, (forecast, measured)
