@@ -296,6 +296,7 @@ def test_rule_file_position_round_trip_and_commands(tmp_path: Path) -> None:
     ref = bruteforce.census_from(bruteforce.padded([3, 1, 0, 2]))
     assert api.count(rules=str(path)).games == ref["games"]
     assert api.count(15, rules=str(path)).games == ref["games"]
+    assert api.count(15, rules=str(path)).position == "3,1,0,2"
     show = run(["rules", "show", str(path)])
     assert "start: position 3,1,0,2 (3*1 + 1*2 + 2*5 = 15)" in show.output
     # a --position replaces the rule file's start
