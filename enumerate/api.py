@@ -71,8 +71,9 @@ def game_at(n: int | None, rules: str | RuleSet, position: Position = None,
     from zeckenum.rules.catalogue import get_rules
     from zeckenum.rules.notation import format_position, parse_position, shown
 
-    if position is None and n is not None and isinstance(rules, str):
-        return n, rules
+    if position is None and n is not None and isinstance(rules, str) \
+            and not rules.endswith(".toml"):
+        return n, rules  # a built-in rule set: none starts at a position
     rs = get_rules(rules)
     if position is not None:
         counts = parse_position(position) if isinstance(position, str) else tuple(position)
@@ -306,24 +307,11 @@ def solve(
     front as the in-process solve would be, before any worker starts.  `misere`,
     `remoteness`, `grundy` and `export` (two players; see the engine's docstring) run
     in-process only: the chain refuses them.  With `position` the game starts there."""
-    n, rules = game_at(n, rules, position)
-    return tagged(_solve(n, rules, players, max_memory=max_memory, progress=progress,
-                         workers=workers, scheduler=scheduler, checkpoint=checkpoint,
-                         shards=shards, threads=threads, misere=misere,
-                         remoteness=remoteness, grundy=grundy, export=export,
-                         export_fields=export_fields), rules)
-
-
-def _solve(
-    n: int, rules: str | RuleSet, players: int, *, max_memory: int | None, progress: bool,
-    workers: int | None, scheduler: str | None, checkpoint: str | Path | None,
-    shards: int | None, threads: int | None, misere: bool, remoteness: bool, grundy: bool,
-    export: str | Path | None, export_fields: str | tuple[str, ...] | None,
-) -> SolveResult:
     from zeckenum.core.checks import check_threads
     from zeckenum.errors import InputError
     from zeckenum.rules.catalogue import get_rules
 
+    n, rules = game_at(n, rules, position)
     threads = check_threads(threads)
     rs = get_rules(rules)
     valued = [name for name, on in (("--misere", misere), ("--remoteness", remoteness),
@@ -345,14 +333,15 @@ def _solve(
         if max_memory is not None or scheduler is None:
             solve_space(rs.instantiate(n), resolve_limit(max_memory), players,
                         needs_reach(rs), False, f"solving n={n}")
-        return run_solve(n, rs, players, workers=workers, scheduler=scheduler,
-                         checkpoint_dir=checkpoint, shards=shards, progress=progress)
+        return tagged(run_solve(n, rs, players, workers=workers, scheduler=scheduler,
+                                checkpoint_dir=checkpoint, shards=shards,
+                                progress=progress), rs)
     from zeckenum.optimal import solve as engine
 
-    return engine.solve(n, rs, players, max_memory=max_memory, progress=progress,
-                        threads=threads, misere=misere, remoteness=remoteness, grundy=grundy,
-                        export=None if export is None else str(export),
-                        export_fields=export_fields)
+    return tagged(engine.solve(n, rs, players, max_memory=max_memory, progress=progress,
+                               threads=threads, misere=misere, remoteness=remoteness,
+                               grundy=grundy, export=None if export is None else str(export),
+                               export_fields=export_fields), rs)
 
 
 def solve_sum(ns: list[int] | tuple[int, ...], rules: str | RuleSet = "standard", *,

@@ -296,6 +296,7 @@ def test_rule_file_position_round_trip_and_commands(tmp_path: Path) -> None:
     ref = bruteforce.census_from(bruteforce.padded([3, 1, 0, 2]))
     assert api.count(rules=str(path)).games == ref["games"]
     assert api.count(15, rules=str(path)).games == ref["games"]
+    assert api.count(15, rules=str(path)).position == "3,1,0,2"
     show = run(["rules", "show", str(path)])
     assert "start: position 3,1,0,2 (3*1 + 1*2 + 2*5 = 15)" in show.output
     # a --position replaces the rule file's start
@@ -365,3 +366,17 @@ def test_cluster_workers_rebuild_the_position(tmp_path: Path) -> None:
     assert api.random_play(position=pos, workers=1).length_probability == law
     assert api.solve(position=pos, workers=1).winner == (
         1 if minimax.mover_wins(start) else 2)
+
+
+def test_rules_show_at_a_position_lists_the_brute_force_ends() -> None:
+    # source: tests/support/rules_bruteforce.py (the reversed game from its definition)
+    desc = rules_bruteforce.DESCRIPTIONS["reversed"]
+    ref = rules_bruteforce.Game({**desc, "start": {"position": [0, 0, 0, 3]}}, 15)
+    res = run(["rules", "show", "reversed", "--position", "0,0,0,3"])
+    assert res.exit_code == 0, res.output
+    assert "start: position 0,0,0,3 (3*5 = 15)" in res.output
+    shown = res.output.split("end positions at n=15:", 1)[1].splitlines()[1:]
+    got = {tuple(int(c) for c in line.split()[0].split(",")) for line in shown if line.strip()}
+    assert got == {tuple(int(c) for c in text(t).split(",")) for t in ref.terminals()}
+    one_line(["rules", "show", "reversed", "--position", "0,0,0,3", "--n", "14"],
+             "has value 15, not N=14")

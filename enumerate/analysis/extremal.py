@@ -29,7 +29,7 @@ from zeckenum.core.text import plural
 from zeckenum.errors import InputError
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import STANDARD, GameSpec, RuleSet
-from zeckenum.rules.notation import annotate_position
+from zeckenum.rules.notation import annotate_position, format_position, shown
 
 
 @dataclass(frozen=True)
@@ -113,7 +113,8 @@ def legal(counts: np.ndarray, spec: GameSpec, m: int) -> bool:
 def apply_move(counts: np.ndarray, spec: GameSpec, m: int) -> np.ndarray:
     """The counts after move m (a new array); InputError if the move is illegal."""
     if not legal(counts, spec, m):
-        raise InputError(f"move {spec.move_names[m]} is illegal at {list(counts)}")
+        raise InputError(f"move {spec.move_names[m]} is illegal at position "
+                         f"{shown(format_position(counts.tolist()))}")
     out = counts.copy()
     for j in range(spec.mv_bins.shape[1]):
         out[spec.mv_bins[m, j]] += spec.mv_delta[m, j]

@@ -21,6 +21,7 @@ from zeckenum.analysis.describe import (
     terminal_positions,
 )
 from zeckenum.cli.errors import OneLineGroup
+from zeckenum.cli.options import position_option
 from zeckenum.core.text import plural
 from zeckenum.rules.catalogue import BUILTIN, get_rules
 from zeckenum.rules.model import RuleSet
@@ -107,15 +108,23 @@ def check_command(file: str, n: int) -> None:
 @click.option("--n", "n", type=click.IntRange(min=1), default=None,
               help="n for the layering and the end positions (default 10; for a rule set "
                    "that starts at a position, its value)")
-def show_command(name_or_file: str, n: int) -> None:
+@position_option("Show the game started at this position (counts per bin, bin 1 first, "
+                 "e.g. 3,1,0,2; README \"Positions\"): its level, layering and end "
+                 "positions; --n, if given, must be its value.")
+def show_command(name_or_file: str, n: int | None, position: str | None) -> None:
     """Show a rule set: bins, start, moves, level weights and end positions at n.
 
     \b
     Examples:
       zeckenum rules show standard
       zeckenum rules show enumerate/rules/rulesets/tribonacci.toml --n 20
+      zeckenum rules show standard --position 3,1,0,2
     """
     rules = resolve(name_or_file)
+    if position is not None:
+        from zeckenum import api
+
+        n, rules = api.game_at(n, rules, position)
     n = _default_n(rules, n, 10)
     click.echo(f"rule set {rules.name!r}  hash {rules.content_hash()}")
     if rules.description:

@@ -174,7 +174,7 @@ class RuleSet:
             value = self.position_value(self.position)
             if n != value:
                 raise InputError(f"position {shown(format_position(self.position))} has value "
-                                 f"{value}, not n={n} (give N = {value} or leave N out)")
+                                 f"{value}, not N={n} (give N = {value} or leave N out)")
             return value
         if isinstance(self.start, tuple):
             vals = self.bin_values(2**62)
