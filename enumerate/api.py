@@ -6,6 +6,7 @@
     simulate(n, k)    -> SimulationResult Monte Carlo estimates from k random games
     gaussian(lo, hi)  -> GaussianTable    normal-law diagnostics of random play per n
     solve(n)          -> SolveResult      optimal play: who wins, P-positions
+    policy_verdicts(policy, lo, hi) -> PolicyReport  does a strategy conjecture win at each n
     games(n)          -> GamesReport      an explicit shortest and longest game
     move_stats(n)     -> MoveStats        move totals, expected counts, linear invariants
     collect(lo, hi)   -> RunData          census and random play over a range (for figures)
@@ -37,6 +38,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
     from zeckenum.analysis.movestats import MoveStats
     from zeckenum.analysis.rundata import RunData
     from zeckenum.counting.result import CountResult
+    from zeckenum.optimal.policy import PolicyReport
     from zeckenum.optimal.solve import SolveResult
     from zeckenum.randomplay.exact import RandomResult
     from zeckenum.randomplay.floating import FloatResult
@@ -228,6 +230,20 @@ def solve(
 
     return engine.solve(n, rs, players, max_memory=max_memory, progress=progress,
                         threads=threads)
+
+
+def policy_verdicts(
+    policy: str | Path, lo: int, hi: int, rules: str | RuleSet = "standard", player: int = 2,
+    *, max_memory: int | None = None, threads: int | None = 1,
+) -> PolicyReport:
+    """Whether the policy player (1 or 2) following `policy` wins against every reply at
+    each n in lo..hi, the shortest refuting line where not, and the fraction of the
+    policy's choices that are winning moves (`zeckenum.optimal.policy`).  `policy`: a
+    policy file (`zpolicy/1` TOML, `zeckenum.optimal.policyfile`) or a Python hook
+    `file.py` / `file.py:function` (`choose(position, moves)`, run outside the kernels)."""
+    from zeckenum.optimal.policy import policy_verdicts as run
+
+    return run(policy, lo, hi, rules, player, max_memory=max_memory, threads=threads)
 
 
 def games(n: int, rules: str | RuleSet = "standard", near: int = 3, *,
