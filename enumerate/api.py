@@ -9,7 +9,7 @@
     policy_verdicts(policy, lo, hi) -> PolicyReport  does a strategy conjecture win at each n
     games(n)          -> GamesReport      an explicit shortest and longest game
     move_stats(n)     -> MoveStats        move totals, expected counts, linear invariants
-    collect(lo, hi)   -> RunData          census and random play over a range (for figures)
+    collect(lo, hi)   -> RunData          census, random and optimal play over a range
     build_table(...)  -> TableBuild       publish exact tables into a directory
     load_table(dir)   -> LoadedTable      read a table back, every check short of recomputing
     read_table(dir)   -> RunData          a table as the data behind figures and reports
@@ -266,12 +266,15 @@ def move_stats(n: int, rules: str | RuleSet = "standard", *, move: str | None = 
 
 
 def collect(lo: int, hi: int, rules: str | RuleSet = "standard",
-            random_upto: int | None = None, threads: int | None = None) -> RunData:
-    """Census at every n in lo..hi and random play at every n <= random_upto (default hi):
-    the data behind `zeckenum.present` figures and reports."""
+            random_upto: int | None = None, threads: int | None = None,
+            solve_upto: int | None = None, grundy: bool = False) -> RunData:
+    """Census at every n in lo..hi, random play at every n <= random_upto and optimal play
+    (winner, P-positions; the start's Grundy value with `grundy`) at every n <= solve_upto
+    (both default hi): the data behind `zeckenum.present` figures and reports."""
     from zeckenum.analysis.rundata import collect as run
 
-    return run(lo, hi, rules, random_upto=random_upto, threads=threads)
+    return run(lo, hi, rules, random_upto=random_upto, threads=threads,
+               solve_upto=solve_upto, grundy=grundy)
 
 
 def read_table(folder: str | Path, random_upto: int | None = None) -> RunData:
