@@ -5,7 +5,8 @@ uniform over the legal moves) up to `random_upto` and `solve` (two players, opti
 up to `solve_upto`; `add_random` and `add_optimal` fill in what a table lacks;
 `run_detail` computes what a report shows at one n (extremal games, move statistics).
 `zeckenum.present` turns a `RunData` into figures and an HTML page without computing
-anything but floats from these exact values; a table directory becomes a `RunData` through `zeckenum.present.plots.read_table`.
+anything but floats from these exact values; a table directory becomes a `RunData`
+through `zeckenum.present.plots.read_table`.
 """
 
 from __future__ import annotations
