@@ -21,6 +21,7 @@ from zeckenum.cli.options import (
     max_memory_option,
     rules_option,
 )
+from zeckenum.core.text import plural
 from zeckenum.errors import InputError
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.notation import annotate_position
@@ -48,7 +49,7 @@ def policy_table(rep, values: list[int]) -> str:  # noqa: ANN001 - a PolicyRepor
         lines.append(f"the policy wins at every n of {rep.rows[0].n}..{rep.rows[-1].n}")
     else:
         lines.append(f"first failure: n={first.n}; shortest refuting line "
-                     f"({len(first.refutation)} moves):")
+                     f"({plural(len(first.refutation), 'move')}):")
         lines.append(f"  start            {annotate_position(first.start, values)}")
         for i, s in enumerate(first.refutation, 1):
             who = "policy" if s.player == rep.player else "opponent"

@@ -301,3 +301,15 @@ def test_bad_ranges_one_line() -> None:
 def test_brute_force_reference_sanity() -> None:
     """arXiv:1809.04881 against the reference itself: player 2 wins for 3 <= n <= 14."""
     assert all(not minimax.mover_wins(minimax.start_state(n)) for n in range(3, 15))
+
+
+def test_memory_refusal_and_huge_n(tmp_path) -> None:
+    """Common practice: a run over the memory limit is refused up front (exit 3) and an n
+    beyond 2^62 is bad input (exit 2), each with one line."""
+    f = tmp_path / "p.toml"
+    f.write_text(SPLIT_HIGH)
+    r = CliRunner().invoke(policy_command, [str(f), "--from", "150", "--to", "150",
+                                            "--max-memory", "2M"])
+    assert r.exit_code == 3 and len(r.output.strip().splitlines()) == 1
+    r = CliRunner().invoke(policy_command, [str(f), "--from", "3", "--to", str(10**20)])
+    assert r.exit_code == 2 and len(r.output.strip().splitlines()) == 1
