@@ -136,3 +136,20 @@ def test_report_cli_solve_upto(tmp_path: Path) -> None:
     rows = table_rows((tmp_path / "report.html").read_text(), "optimal")
     assert [(int(r[0]), int(r[3])) for r in rows] == [(n, brute(n)["p_positions"])
                                                     for n in range(1, 7)]
+
+
+def test_report_from_a_table_with_solve_rows(tmp_path: Path) -> None:
+    """Brute force: a table's solve.csv (winner, P-positions) reaches the report with no
+    solve run by the report (--solve-upto 0)."""
+    from zeckenum.cli.tables import table_command
+
+    out = tmp_path / "t"
+    res = CliRunner().invoke(table_command, ["--from", "1", "--to", "8", "--out", str(out),
+                                             "--what", "count,solve"])
+    assert res.exit_code == 0, res.output
+    res = CliRunner().invoke(report_command, [str(out), "--random-upto", "2",
+                                              "--solve-upto", "0"])
+    assert res.exit_code == 0, res.output
+    rows = table_rows((out / "report.html").read_text(), "optimal")
+    assert [(int(r[0]), r[1], int(r[3])) for r in rows] == [
+        (n, f"player {brute(n)['winner']}", brute(n)["p_positions"]) for n in range(1, 9)]
