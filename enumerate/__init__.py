@@ -14,9 +14,9 @@ Python API (the CLI is a thin layer over it; every job returns a result with `to
     zeckenum.verify_table("tables/std")
 
 The jobs (`zeckenum.api`): count, random_play, random_float, simulate, gaussian, solve,
-games, move_stats, collect, build_table, load_table, read_table, verify_table.  `workers=K`,
-`scheduler=ADDRESS` and `checkpoint=DIR` move a count, random play, solve or table onto a
-Dask cluster; the default runs in this process.
+policy_verdicts, games, move_stats, collect, build_table, load_table, read_table,
+verify_table.  `workers=K`, `scheduler=ADDRESS` and `checkpoint=DIR` move a count, random
+play, solve or table onto a Dask cluster; the default runs in this process.
 
 Names are loaded on first use (PEP 562 `__getattr__`): `import zeckenum` imports neither
 numba, Dask nor matplotlib.
@@ -50,6 +50,7 @@ _LAZY = {
     "simulate": "zeckenum.api",
     "gaussian": "zeckenum.api",
     "solve": "zeckenum.api",
+    "policy_verdicts": "zeckenum.api",
     "games": "zeckenum.api",
     "move_stats": "zeckenum.api",
     "collect": "zeckenum.api",
@@ -64,6 +65,7 @@ _LAZY = {
     "SimulationResult": "zeckenum.randomplay.simulate",
     "GaussianTable": "zeckenum.api",
     "SolveResult": "zeckenum.optimal.solve",
+    "PolicyReport": "zeckenum.optimal.policy",
     "GamesReport": "zeckenum.analysis.extremal",
     "MoveStats": "zeckenum.analysis.movestats",
     "RunData": "zeckenum.analysis.rundata",
@@ -101,6 +103,7 @@ __all__ = [
     "InputError",
     "MemoryRefused",
     "MoveStats",
+    "PolicyReport",
     "RandomResult",
     "RuleSet",
     "RunData",
@@ -118,6 +121,7 @@ __all__ = [
     "get_rules",
     "load_table",
     "move_stats",
+    "policy_verdicts",
     "random_float",
     "random_play",
     "read_table",
