@@ -39,11 +39,14 @@ def policy_table(rep, values: list[int]) -> str:  # noqa: ANN001 - a PolicyRepor
              f"{'n':>5}  {'verdict':<8} {'refuted in':>10}  {'counted':>8} {'N-pos':>8} "
              f"{'winning':>8} {'share':>7} {'of N':>7}"]
     for r in rep.rows:
-        verdict = "wins" if r.wins else "FAILS"
+        verdict = "wins" if r.wins else ("FAILS" if r.winnable else "lost*")
         ref = "" if r.wins else str(len(r.refutation))
         of_n = r.winning_choices / r.n_positions if r.n_positions else None
         lines.append(f"{r.n:>5}  {verdict:<8} {ref:>10}  {r.positions:>8} {r.n_positions:>8} "
                      f"{r.winning_choices:>8} {_pct(r.fraction):>7} {_pct(of_n):>7}")
+    if any(not r.winnable for r in rep.rows):
+        lines.append(f"lost*: player {rep.player} loses this n under optimal play, so every "
+                     "policy fails there")
     first = rep.first_failure
     if first is None:
         lines.append(f"the policy wins at every n of {rep.rows[0].n}..{rep.rows[-1].n}")

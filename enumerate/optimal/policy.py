@@ -275,6 +275,8 @@ class PolicyRow:
     winning_choices   at how many the policy's move leads to a P-position
     fallbacks         states of the game (all, reachable or not) where no preference of a
                       policy file applied (0 for a hook)
+    winnable          the policy player wins the game under optimal play (when False, every
+                      policy fails at this n)
     """
 
     n: int
@@ -286,6 +288,7 @@ class PolicyRow:
     winning_choices: int
     fallbacks: int
     start: tuple[int, ...] = ()
+    winnable: bool = True
 
     @property
     def fraction(self) -> float | None:
@@ -300,6 +303,7 @@ class PolicyRow:
             "winning_choices": self.winning_choices,
             "winning_fraction": None if self.fraction is None else round(self.fraction, 6),
             "fallback_states": self.fallbacks,
+            "player_wins_optimally": self.winnable,
         }
 
 
@@ -495,7 +499,8 @@ def policy_row(
             raise RuntimeError("refuting line disagrees with its length")
     return PolicyRow(n=n, wins=verdict < 0, states=res.states, refutation=line,
                      positions=positions, n_positions=n_pos, winning_choices=good,
-                     fallbacks=fallbacks, start=tuple(int(x) for x in spec.start))
+                     fallbacks=fallbacks, start=tuple(int(x) for x in spec.start),
+                     winnable=res.winner == player)
 
 
 def refuting_line(space: StateSpace, offset: dict[int, int], start: int, me_first: bool,

@@ -313,3 +313,13 @@ def test_memory_refusal_and_huge_n(tmp_path) -> None:
     assert r.exit_code == 3 and len(r.output.strip().splitlines()) == 1
     r = CliRunner().invoke(policy_command, [str(f), "--from", "3", "--to", str(10**20)])
     assert r.exit_code == 2 and len(r.output.strip().splitlines()) == 1
+
+
+def test_unwinnable_n_is_marked() -> None:
+    """Brute force: player 2 loses n = 2 under optimal play (player 1 combines to 0,1), so
+    any policy of player 2 fails there and the row says the game is lost."""
+    assert minimax.mover_wins(minimax.start_state(2))
+    row = policy_verdicts(parse_policy(SPLIT_HIGH), 2, 2, "standard", 2).rows[0]
+    assert not row.wins and not row.winnable
+    r = CliRunner().invoke(policy_command, ["/dev/null", "--from", "2", "--to", "2"])
+    assert r.exit_code == 2  # /dev/null is not a regular file: refused in one line
