@@ -323,3 +323,32 @@ def test_unwinnable_n_is_marked() -> None:
     assert not row.wins and not row.winnable
     r = CliRunner().invoke(policy_command, ["/dev/null", "--from", "2", "--to", "2"])
     assert r.exit_code == 2  # /dev/null is not a regular file: refused in one line
+
+
+def test_file_kernel_matches_hook_choices(tmp_path) -> None:
+    """Brute force (the choice rule of COMBINE_HIGH_GUARDED written in plain Python as a
+    hook): the compiled file policy and the hook give the same verdicts, refutation
+    lengths and counts for every n <= 25, beyond the memoised reference's reach."""
+    path = tmp_path / "guarded.py"
+    path.write_text(
+        "def choose(s, o):\n"
+        "    def k(nm):\n"
+        "        return int(nm.split('@')[1])\n"
+        "    rules = [('combine', True, lambda k: s[k - 1] >= 2 and s[0] % 2 == 0),\n"
+        "             ('split', False, lambda k: k >= 3),\n"
+        "             ('combine', False, lambda k: sum(s) > 3)]\n"
+        "    for kind, high, test in rules:\n"
+        "        c = [(k(nm), i) for i, (nm, _) in enumerate(o)\n"
+        "             if nm.startswith(kind) and test(k(nm))]\n"
+        "        if c:\n"
+        "            best = max(x for x, _ in c) if high else min(x for x, _ in c)\n"
+        "            return min(i for x, i in c if x == best)\n"
+        "    return 0\n")
+    a = policy_verdicts(parse_policy(COMBINE_HIGH_GUARDED), 3, 25, "standard", 2)
+    b = policy_verdicts(str(path), 3, 25, "standard", 2)
+    key = [(r.n, r.wins, len(r.refutation), r.positions, r.n_positions, r.winning_choices)
+           for r in a.rows]
+    assert key == [(r.n, r.wins, len(r.refutation), r.positions, r.n_positions,
+                    r.winning_choices) for r in b.rows]
+    assert [(s.move, s.after) for s in a.first_failure.refutation] == \
+        [(s.move, s.after) for s in b.first_failure.refutation]

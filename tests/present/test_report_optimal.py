@@ -153,3 +153,32 @@ def test_report_from_a_table_with_solve_rows(tmp_path: Path) -> None:
     rows = table_rows((out / "report.html").read_text(), "optimal")
     assert [(int(r[0]), r[1], int(r[3])) for r in rows] == [
         (n, f"player {brute(n)['winner']}", brute(n)["p_positions"]) for n in range(1, 9)]
+
+
+def test_grundy_is_asked_of_the_solver(tmp_path: Path, monkeypatch) -> None:  # noqa: ANN001
+    """Brute force (mex): with --grundy the report asks the solver for the values (its
+    `grundy` argument) and shows the `grundy` key of its result; the report computes none.
+    The solver is wrapped here so that its result carries the brute-force value."""
+    import zeckenum.optimal.solve as engine
+
+    real = engine.solve
+    asked = []
+
+    class WithGrundy:
+        def __init__(self, res, n: int) -> None:
+            self.res, self.n = res, n
+
+        def to_dict(self) -> dict:
+            return {**self.res.to_dict(), "grundy": {"start": brute(self.n)["grundy"]}}
+
+    def solve(n, rules="standard", players=2, *, grundy=False, **kw):  # noqa: ANN001, ANN202
+        asked.append(grundy)
+        return WithGrundy(real(n, rules, players, **kw), n)
+
+    monkeypatch.setattr(engine, "solve", solve)
+    res = CliRunner().invoke(report_command, [str(tmp_path), "--range", "3", "7",
+                                              "--random-upto", "3", "--grundy"])
+    assert res.exit_code == 0, res.output
+    assert asked and all(asked)
+    rows = table_rows((tmp_path / "report.html").read_text(), "optimal")
+    assert [int(r[5]) for r in rows] == [brute(n)["grundy"] for n in range(3, 8)]
