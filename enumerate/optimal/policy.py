@@ -37,7 +37,8 @@ N-positions (where a winning move exists), and at how many the policy's move win
 
 Memory: the rank table, one class byte and bit per state (`solve`), lose_me and lose_op
 (int32) and the policy's move (int16) per state, plus the largest layer's move listing
-(`policy_bytes`); refused up front when over the limit.
+(`policy_bytes`), plus the solve that keeps the classes (`solve.solve_bytes`); refused up
+front when over the limit.
 """
 
 from __future__ import annotations
@@ -57,7 +58,7 @@ from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.statespace import StateSpace, build_space, rank_table_bytes, refuse_space
 from zeckenum.errors import InputError
 from zeckenum.optimal.policyfile import CompiledPolicy, Policy, compile_policy, read_policy
-from zeckenum.optimal.solve import solve
+from zeckenum.optimal.solve import needs_reach, solve, solve_bytes
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.model import GameSpec, RuleSet
 from zeckenum.rules.notation import format_position
@@ -277,6 +278,8 @@ class PolicyRow:
                       policy file applied (0 for a hook)
     winnable          the policy player wins the game under optimal play (when False, every
                       policy fails at this n)
+    forecast_peak_bytes   the memory forecast the run was checked against (`policy_bytes`
+                      plus `solve.solve_bytes` of the classification it keeps)
     """
 
     n: int
@@ -289,6 +292,7 @@ class PolicyRow:
     fallbacks: int
     start: tuple[int, ...] = ()
     winnable: bool = True
+    forecast_peak_bytes: int = 0
 
     @property
     def fraction(self) -> float | None:
@@ -304,6 +308,7 @@ class PolicyRow:
             "winning_fraction": None if self.fraction is None else round(self.fraction, 6),
             "fallback_states": self.fallbacks,
             "player_wins_optimally": self.winnable,
+            "forecast_peak_bytes": self.forecast_peak_bytes,
         }
 
 
@@ -418,12 +423,14 @@ def hook_choices(lm: LayerMoves, spec: GameSpec, hook: Hook) -> np.ndarray:
 def policy_bytes(space: StateSpace) -> int:
     """Forecast peak bytes of `policy_row` beyond `solve`'s own forecast: per state the
     class byte and bit (`solve(keep_classes=True)`), int32 lose_me and lose_op, int16
-    policy move, uint8 reach flags (12 bytes and a bit); the rank table; and the largest
-    layer's listing (count vectors, row pointers, choices; 21 bytes per listed move)."""
-    per_state = space.spec.nbins * 8 + 8 + 8
+    policy move, uint8 reach flags (12 bytes and a bit); the rank table; and two listings
+    of the largest layer (count vectors, row pointers, D, choices: 8 bytes per bin and 24
+    per state; 21 bytes per listed move): the previous layer's listing is still held while
+    the next one is built."""
+    per_state = space.spec.nbins * 8 + 24
     return (int(rank_table_bytes(space.spec.nbins, space.spec.n, space.top))
             + space.total_states() * 13
-            + space.listing_peak(per_state, 21, sign=+1))
+            + 2 * space.listing_peak(per_state, 21, sign=+1))
 
 
 def _global_offsets(space: StateSpace) -> tuple[dict[int, int], int]:
@@ -455,7 +462,9 @@ def policy_row(
     what = f"testing a policy at n={n}"
     refuse_space(spec, limit, what, per_state=14.0)
     space = build_space(spec, limit)
-    refuse_if_over(policy_bytes(space), limit, what)
+    forecast = policy_bytes(space) + solve_bytes(space, 2, needs_reach(rules), True,
+                                                 threads or 1)
+    refuse_if_over(forecast, limit, what)
     res = solve(n, rules, 2, keep_classes=True, max_memory=max_memory, threads=threads)
     offset, total = _global_offsets(space)
     is_n = np.zeros(total, dtype=np.bool_)
@@ -500,7 +509,7 @@ def policy_row(
     return PolicyRow(n=n, wins=verdict < 0, states=res.states, refutation=line,
                      positions=positions, n_positions=n_pos, winning_choices=good,
                      fallbacks=fallbacks, start=tuple(int(x) for x in spec.start),
-                     winnable=res.winner == player)
+                     winnable=res.winner == player, forecast_peak_bytes=forecast)
 
 
 def refuting_line(space: StateSpace, offset: dict[int, int], start: int, me_first: bool,

@@ -352,3 +352,37 @@ def test_file_kernel_matches_hook_choices(tmp_path) -> None:
                     r.winning_choices) for r in b.rows]
     assert [(s.move, s.after) for s in a.first_failure.refutation] == \
         [(s.move, s.after) for s in b.first_failure.refutation]
+
+
+MEASURE = """
+import json, sys
+import psutil
+from zeckenum.optimal.policy import policy_row
+from zeckenum.optimal.policyfile import parse_policy
+from zeckenum.rules.model import STANDARD
+pol = parse_policy(sys.argv[2])
+policy_row(8, STANDARD, 2, policy=pol)  # load the kernels outside the measurement
+open("/proc/self/clear_refs", "w").write("5")  # restart the high-water mark here
+base = psutil.Process().memory_info().rss
+row = policy_row(int(sys.argv[1]), STANDARD, 2, policy=pol)
+peak = [int(x.split()[1]) * 1024 for x in open("/proc/self/status") if x.startswith("VmHWM")][0]
+print(json.dumps({"forecast": row.forecast_peak_bytes, "measured": peak - base}))
+"""
+
+
+def test_forecast_is_not_below_the_measured_peak() -> None:
+    """Common practice (as tests/core/test_memory_forecast.py): the forecast of one n is at
+    least the measured growth of the peak resident set (5% + 4 MiB of allocator noise) and
+    at most 4 times it plus 64 MiB."""
+    import os
+    import subprocess
+    import sys
+
+    out = subprocess.run([sys.executable, "-c", MEASURE, "150", SPLIT_HIGH],
+                         capture_output=True, text=True, timeout=600, env=dict(os.environ),
+                         check=True)
+    d = json.loads(out.stdout.strip().splitlines()[-1])
+    forecast, measured = int(d["forecast"]), int(d["measured"])
+    assert measured > 16 * 2**20, "the run is too small to measure"
+    assert forecast >= 0.95 * measured - 4 * 2**20, (forecast, measured)
+    assert forecast <= 4 * measured + 64 * 2**20, (forecast, measured)
