@@ -15,10 +15,11 @@ Python API (the CLI is a thin layer over it; every job returns a result with `to
     zeckenum.count(position="3,1,0,2")    # the games from a position (README "Positions")
 
 The jobs (`zeckenum.api`): count, random_play, random_float, simulate, gaussian, solve,
-games, move_stats, collect, build_table, load_table, read_table, verify_table.  `workers=K`,
-`scheduler=ADDRESS` and `checkpoint=DIR` move a count, random play, solve or table onto a
-Dask cluster; the default runs in this process.  `position=` starts count, random play,
-solve, games, move statistics or a table at any position (then n is its value).
+games, move_stats, policy_verdicts, collect, build_table, load_table, read_table,
+verify_table.  `workers=K`, `scheduler=ADDRESS` and `checkpoint=DIR` move a count, random
+play, solve or table onto a Dask cluster; the default runs in this process.  `position=`
+starts count, random play, solve, games, move statistics or a table at any position (then
+n is its value).
 
 Names are loaded on first use (PEP 562 `__getattr__`): `import zeckenum` imports neither
 numba, Dask nor matplotlib.
@@ -53,6 +54,7 @@ _LAZY = {
     "gaussian": "zeckenum.api",
     "solve": "zeckenum.api",
     "solve_sum": "zeckenum.api",
+    "policy_verdicts": "zeckenum.api",
     "games": "zeckenum.api",
     "move_stats": "zeckenum.api",
     "collect": "zeckenum.api",
@@ -68,6 +70,7 @@ _LAZY = {
     "GaussianTable": "zeckenum.api",
     "SolveResult": "zeckenum.optimal.solve",
     "SumResult": "zeckenum.optimal.solve",
+    "PolicyReport": "zeckenum.optimal.policy",
     "GamesReport": "zeckenum.analysis.extremal",
     "MoveStats": "zeckenum.analysis.movestats",
     "RunData": "zeckenum.analysis.rundata",
@@ -105,6 +108,7 @@ __all__ = [
     "InputError",
     "MemoryRefused",
     "MoveStats",
+    "PolicyReport",
     "RandomResult",
     "RuleSet",
     "RunData",
@@ -123,6 +127,7 @@ __all__ = [
     "get_rules",
     "load_table",
     "move_stats",
+    "policy_verdicts",
     "random_float",
     "random_play",
     "read_table",

@@ -8,9 +8,10 @@
     solve(n)          -> SolveResult      optimal play: who wins, P-positions, remoteness,
                                           misère play, Grundy values, position export
     solve_sum(ns)     -> SumResult        a sum of games from the Grundy values
+    policy_verdicts(policy, lo, hi) -> PolicyReport  does a strategy conjecture win at each n
     games(n)          -> GamesReport      an explicit shortest and longest game
     move_stats(n)     -> MoveStats        move totals, expected counts, linear invariants
-    collect(lo, hi)   -> RunData          census and random play over a range (for figures)
+    collect(lo, hi)   -> RunData          census, random and optimal play over a range
     build_table(...)  -> TableBuild       publish exact tables into a directory
     load_table(dir)   -> LoadedTable      read a table back, every check short of recomputing
     read_table(dir)   -> RunData          a table as the data behind figures and reports
@@ -49,6 +50,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
     from zeckenum.analysis.movestats import MoveStats
     from zeckenum.analysis.rundata import RunData
     from zeckenum.counting.result import CountResult
+    from zeckenum.optimal.policy import PolicyReport
     from zeckenum.optimal.solve import SolveResult, SumResult
     from zeckenum.randomplay.exact import RandomResult
     from zeckenum.randomplay.floating import FloatResult
@@ -357,6 +359,20 @@ def solve_sum(ns: list[int] | tuple[int, ...], rules: str | RuleSet = "standard"
                   threads=check_threads(threads))
 
 
+def policy_verdicts(
+    policy: str | Path, lo: int, hi: int, rules: str | RuleSet = "standard", player: int = 2,
+    *, max_memory: int | None = None, threads: int | None = 1,
+) -> PolicyReport:
+    """Whether the policy player (1 or 2) following `policy` wins against every reply at
+    each n in lo..hi, the shortest refuting line where not, and the fraction of the
+    policy's choices that are winning moves (`zeckenum.optimal.policy`).  `policy`: a
+    policy file (`zpolicy/1` TOML, `zeckenum.optimal.policyfile`) or a Python hook
+    `file.py` / `file.py:function` (`choose(position, moves)`, run outside the kernels)."""
+    from zeckenum.optimal.policy import policy_verdicts as run
+
+    return run(policy, lo, hi, rules, player, max_memory=max_memory, threads=threads)
+
+
 def games(n: int | None = None, rules: str | RuleSet = "standard", near: int = 3, *,
           position: Position = None, max_memory: int | None = None) -> GamesReport:
     """An explicit shortest and longest game at n (from `position` when given), the number
@@ -383,12 +399,15 @@ def move_stats(n: int | None = None, rules: str | RuleSet = "standard", *,
 
 
 def collect(lo: int, hi: int, rules: str | RuleSet = "standard",
-            random_upto: int | None = None, threads: int | None = None) -> RunData:
-    """Census at every n in lo..hi and random play at every n <= random_upto (default hi):
-    the data behind `zeckenum.present` figures and reports."""
+            random_upto: int | None = None, threads: int | None = None,
+            solve_upto: int | None = None, grundy: bool = False) -> RunData:
+    """Census at every n in lo..hi, random play at every n <= random_upto and optimal play
+    (winner, P-positions; the start's Grundy value with `grundy`) at every n <= solve_upto
+    (both default hi): the data behind `zeckenum.present` figures and reports."""
     from zeckenum.analysis.rundata import collect as run
 
-    return run(lo, hi, rules, random_upto=random_upto, threads=threads)
+    return run(lo, hi, rules, random_upto=random_upto, threads=threads,
+               solve_upto=solve_upto, grundy=grundy)
 
 
 def read_table(folder: str | Path, random_upto: int | None = None) -> RunData:

@@ -1,11 +1,12 @@
 """Exact results over a range of n (`RunData`), and the runs that compute them.
 
-`collect(lo, hi)` runs `count` at every n of a range and `random_play` (two players,
-uniform over the legal moves) up to `random_upto`; `add_random` fills in the random-play
-laws a table lacks; `run_detail` computes what a report shows at one n (extremal games,
-move statistics).  `zeckenum.present` turns a `RunData` into figures and an HTML page
-without computing anything but floats from these exact values; a table directory becomes
-a `RunData` through `zeckenum.present.plots.read_table`.
+`collect(lo, hi)` runs `count` at every n of a range, `random_play` (two players,
+uniform over the legal moves) up to `random_upto` and `solve` (two players, optimal play)
+up to `solve_upto`; `add_random` and `add_optimal` fill in what a table lacks;
+`run_detail` computes what a report shows at one n (extremal games, move statistics).
+`zeckenum.present` turns a `RunData` into figures and an HTML page without computing
+anything but floats from these exact values; a table directory becomes a `RunData`
+through `zeckenum.present.plots.read_table`.
 """
 
 from __future__ import annotations
@@ -41,6 +42,9 @@ class RunData:
     ruleset     the rule set the numbers are for (None only for hand-made data, whose
                 `rules` is then a built-in name or a rule file)
     rules_text  its canonical rule-file text (`rulefile.format_rules`)
+    optimal[n]  optimal play, two players, normal play (`optimal_row`): winner (1, 2),
+                p_positions, and when the source has them states,
+                p_positions_by_level {level: count} and grundy (the start's nimber)
     """
 
     rules: str
@@ -51,6 +55,7 @@ class RunData:
     provenance: dict = field(default_factory=dict)
     ruleset: RuleSet | None = None
     rules_text: str = ""
+    optimal: dict[int, dict] = field(default_factory=dict)
 
     @property
     def ns(self) -> list[int]:
@@ -85,15 +90,63 @@ class RunData:
             "player1_wins": {str(n): frac_str(Fraction(w)) for n, w in sorted(self.wins.items())},
             "summary": {str(n): {k: str(v) for k, v in row.items()}
                         for n, row in sorted(self.summary.items())},
+            "optimal": {str(n): {k: ({str(a): b for a, b in v.items()} if isinstance(v, dict)
+                                     else v) for k, v in row.items()}
+                        for n, row in sorted(self.optimal.items())},
             "provenance": dict(self.provenance),
             "rules_text": self.rules_text,
         }
 
 
+OPTIMAL_KEYS = ("winner", "states", "p_positions", "p_positions_by_level", "grundy")
+"""The fields of `RunData.optimal` rows, taken from a solve result's `to_dict()`."""
+
+
+def optimal_row(result: dict) -> dict:
+    """The `RunData.optimal` row of one solve result (`SolveResult.to_dict()`, two
+    players): winner, states, p_positions, and, when the result carries them,
+    p_positions_by_level ({level: count}, keys made ints) and grundy (the start's
+    Sprague-Grundy value, the result's "grundy" key).  Nothing is computed here."""
+    row: dict = {k: result[k] for k in ("winner", "states", "p_positions") if k in result}
+    levels = result.get("p_positions_by_level")
+    if isinstance(levels, dict):
+        row["p_positions_by_level"] = {int(k): int(v) for k, v in levels.items()}
+    g = result.get("grundy")
+    if isinstance(g, int) and not isinstance(g, bool):
+        row["grundy"] = g
+    return row
+
+
+def solve_rows(ns: list[int], rules: RuleSet, grundy: bool = False,
+               threads: int | None = None) -> dict[int, dict]:
+    """`optimal_row` of `optimal.solve.solve` at every n of `ns` (two players), with the
+    start's Sprague-Grundy value when `grundy` (computed by the solver, in its layer walk)."""
+    from zeckenum.optimal.solve import solve
+
+    return {n: optimal_row(solve(n, rules, 2, threads=threads, grundy=grundy).to_dict())
+            for n in ns}
+
+
+def add_optimal(data: RunData, upto: int, grundy: bool = False,
+                threads: int | None = None) -> RunData:
+    """`data` with optimal play (`solve_rows`) at every n <= upto of its range lacking it
+    (every n <= upto when `grundy` is asked and a row lacks the value)."""
+    todo = [n for n in data.ns if n <= upto and (n not in data.optimal
+                                                  or (grundy and "grundy" not in data.optimal[n]))]
+    optimal = {**data.optimal, **solve_rows(todo, data.rule_set(), grundy, threads)}
+    prov = {**data.provenance, "solve_computed_upto": upto}
+    return RunData(rules=data.rules, spectra=data.spectra, random=data.random, wins=data.wins,
+                   summary=data.summary, provenance=prov, ruleset=data.ruleset,
+                   rules_text=data.rules_text, optimal=optimal)
+
+
 def collect(lo: int, hi: int, rules: str | RuleSet = "standard",
-            random_upto: int | None = None, threads: int | None = None) -> RunData:
+            random_upto: int | None = None, threads: int | None = None,
+            solve_upto: int | None = None, grundy: bool = False) -> RunData:
     """Fresh exact computation for lo <= n <= hi: `count` at every n, `random_play` (two
-    players, uniform over the legal moves) at every n <= random_upto (default: hi)."""
+    players, uniform over the legal moves) at every n <= random_upto (default: hi), and
+    optimal play (`solve_rows`, with the start's Grundy value when `grundy`) at every
+    n <= solve_upto (default: hi)."""
     from zeckenum import __version__
     from zeckenum.counting.count import count
     from zeckenum.randomplay.exact import random_play
@@ -112,11 +165,13 @@ def collect(lo: int, hi: int, rules: str | RuleSet = "standard",
             rr = random_play(n, rs, threads=threads)
             random[n] = dict(rr.length_probability or {})
             wins[n] = rr.win_probability[1]
+    s_top = hi if solve_upto is None else min(hi, solve_upto)
+    optimal = solve_rows(list(range(lo, s_top + 1)), rs, grundy, threads)
     prov = {"source": "fresh computation", "rules": rs.name, "rules_hash": rs.content_hash(),
             "version": __version__, "range": [lo, hi], "random_upto": top,
-            "random_model": "moves"}
+            "random_model": "moves", "solve_upto": s_top}
     return RunData(rules=rs.name, spectra=spectra, random=random, wins=wins, summary=summary,
-                   provenance=prov, ruleset=rs, rules_text=format_rules(rs))
+                   provenance=prov, ruleset=rs, rules_text=format_rules(rs), optimal=optimal)
 
 
 def add_random(data: RunData, upto: int, threads: int | None = None) -> RunData:
@@ -133,7 +188,7 @@ def add_random(data: RunData, upto: int, threads: int | None = None) -> RunData:
     prov = {**data.provenance, "random_computed_upto": upto, "random_model": "moves"}
     return RunData(rules=data.rules, spectra=data.spectra, random=random, wins=wins,
                    summary=data.summary, provenance=prov, ruleset=data.ruleset,
-                   rules_text=data.rules_text)
+                   rules_text=data.rules_text, optimal=data.optimal)
 
 
 DETAIL_MAX_N = 60

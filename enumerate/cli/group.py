@@ -17,6 +17,7 @@ LAZY = {
     "random": "zeckenum.cli.randomplay:random_command",
     "solve": "zeckenum.cli.optimal:solve_command",
     "check-strategy": "zeckenum.cli.optimal:check_strategy_command",
+    "test-policy": "zeckenum.cli.policy:test_policy_command",
     "games": "zeckenum.cli.view:games_command",
     "move-stats": "zeckenum.cli.view:movestats_command",
     "plot": "zeckenum.cli.view:plot_command",

@@ -127,8 +127,9 @@ def _sum_parts(text: str) -> list[int]:
 @players_option(SOLVE_MAX_PLAYERS, short=False,
                 extra="; with 3 or more, each player against the coalition of all others")
 @click.option("--strategy", "strategy_path", type=click.Path(dir_okay=False), default=None,
-              help="Write a winning strategy for the winner to this file (two players; "
-                   "gzip-compressed when the name ends in .gz).")
+              help="Write a winning strategy for the winner to this file (with 3 or more "
+                   "players: a certificate that the winner forces the last move against the "
+                   "coalition of the others; gzip-compressed when the name ends in .gz).")
 @json_option("Print one JSON object.")
 @backend_options(
     workers="Run the level-range shards on a local Dask cluster of K worker processes "
@@ -199,8 +200,6 @@ def solve_command(n: int | None, position: str | None, rules_name: str, players:
     if export_fields is not None and export_path is None:
         raise InputError("--export-fields needs --export FILE")
     if strategy_path is not None:
-        if players != 2:
-            raise InputError("--strategy is defined for two players only")
         if misere or remoteness or grundy or export_path is not None:
             raise InputError("--strategy writes a normal-play strategy; it does not take "
                              "--misere, --remoteness, --grundy or --export")
@@ -208,7 +207,8 @@ def solve_command(n: int | None, position: str | None, rules_name: str, players:
             raise InputError("--strategy runs in-process; it does not take --workers, "
                              "--scheduler, --checkpoint, --shards or --progress")
         check_output_file(strategy_path, "strategy file")
-        strat, res = winning_strategy(n, rules, max_memory=max_memory, threads=threads)
+        strat, res = winning_strategy(n, rules, max_memory=max_memory, threads=threads,
+                                      players=players)
         res = api.tagged(res, rules)
         try:
             nbytes = write_strategy(strategy_path, strat, rules.bin_values(n), rules)
@@ -278,7 +278,9 @@ def check_strategy_command(file: str, rules_name: str | None, as_json: bool) -> 
         return
     click.echo(_table([
         ("file", file),
-        ("result", f"OK: player {rep.winner} wins at n={rep.n} by following the strategy"),
+        ("result", f"OK: player {rep.winner} wins at n={rep.n} by following the strategy"
+                   + (f" against the coalition of the other {rep.players - 1} players"
+                      if rep.players > 2 else "")),
         ("winner positions", f"{rep.winner_positions:,}"),
         ("loser positions", f"{rep.loser_positions:,}"),
         ("longest game", plural(rep.longest_game, "move")),

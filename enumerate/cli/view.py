@@ -139,10 +139,10 @@ def movestats_command(n: int | None, position: str | None, rules: str, chosen: s
 
 
 def _load_data(table: str | None, lo_hi: tuple[int, int] | None, rules: str,
-               random_upto: int) -> RunData:
+               random_upto: int, solve_upto: int = 0, grundy: bool = False) -> RunData:
     """The data of a figure or report: a table read back (random play added up to
-    `random_upto`) or a fresh computation over A..B."""
-    from zeckenum.analysis.rundata import add_random
+    `random_upto`, optimal play up to `solve_upto`) or a fresh computation over A..B."""
+    from zeckenum.analysis.rundata import add_optimal, add_random
     from zeckenum.present.plots import read_table
     from zeckenum.tables.format import is_table
 
@@ -151,9 +151,11 @@ def _load_data(table: str | None, lo_hi: tuple[int, int] | None, rules: str,
     if table:
         if not is_table(table):
             raise InputError(f"{table}: no manifest.json and summary.csv (not a zeckenum table)")
-        return add_random(read_table(table), random_upto)
+        data = add_random(read_table(table), random_upto)
+        return add_optimal(data, solve_upto, grundy) if solve_upto else data
     if lo_hi:
-        return api.collect(lo_hi[0], lo_hi[1], rules, random_upto=random_upto)
+        return api.collect(lo_hi[0], lo_hi[1], rules, random_upto=random_upto,
+                           solve_upto=solve_upto, grundy=grundy)
     raise InputError("give --table DIR (a directory from `zeckenum table`) or --range A B")
 
 
@@ -210,8 +212,13 @@ def plot_command(kind: str, table: str | None, lo_hi: tuple[int, int] | None, n:
 @click.option("--detail", "detail_n", type=int, default=None,
               help="The n of the extremal games and move statistics (default: the largest "
                    "n <= 60).")
+@click.option("--solve-upto", type=click.IntRange(0, 10**6), default=150, show_default=True,
+              help="Solve optimal play (winner, P-positions) for n up to this (0: only what "
+                   "a table holds).")
+@click.option("--grundy", is_flag=True,
+              help="Also show the Sprague-Grundy value of each start (asks the solver).")
 def report_command(folder: str, lo_hi: tuple[int, int] | None, rules: str, random_upto: int,
-                   detail_n: int | None) -> None:
+                   detail_n: int | None, solve_upto: int, grundy: bool) -> None:
     """Write FOLDER/report.html, one self-contained page (figures, tables, provenance, how
     to reproduce), from the table in FOLDER or from a fresh computation; prints its path.
 
@@ -237,6 +244,6 @@ def report_command(folder: str, lo_hi: tuple[int, int] | None, rules: str, rando
     if table is None:
         check_output_dir(folder, "report folder")
     check_output_file(Path(folder) / REPORT_NAME, "report")
-    data = _load_data(table, None if table else lo_hi, rules, random_upto)
+    data = _load_data(table, None if table else lo_hi, rules, random_upto, solve_upto, grundy)
     detail = run_detail(data, detail_n)
     click.echo(str(write_report(data, Path(folder), detail)))

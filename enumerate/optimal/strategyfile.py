@@ -13,7 +13,9 @@ by spaces (a value runs from the first '=' to the next space).  Fields:
 
     rules       the rule set's name
     rules_hash  its content hash (`RuleSet.content_hash`)
-    n, players, winner, positions   the game's n, 2, the winning player, the number of lines
+    n, players, winner, positions   the game's n, the number of players P (2, or 3 to
+                MAX_PLAYERS for a coalition certificate), the winning player (1..P), the
+                number of lines
     rules_text  the rule file itself: standard base64 (RFC 4648, with '=' padding, no line
                 breaks) of the UTF-8 canonical rule text `rulefile.format_rules(rules)`.
                 Written since the field was introduced; files without it are still read,
@@ -36,6 +38,14 @@ following the strategy, and the move to play there:
             comma-separated, trailing empty bins omitted ("0" for the empty position);
             read by `notation.parse_position` (digits only, as always written)
     move    template name and 1-based bin, e.g. "split@3" (the template applied at bin 3)
+
+Three or more players (players=P >= 3): the file is a *certificate* that the winner x
+forces the last move against the coalition of all the others (`strategy.coalition_strategy`).
+Its lines are the positions where x is to move that x can face, with x's move; the
+coalition plays every other turn (players x+1, ..., x+P-1 in turn), any legal move.  The
+checker replays every such game from the start (player 1 to move): it fails when a listed
+move is illegal or unknown, a position x can face is not listed, the game ends after a
+move that was not x's (or with nobody having moved), or play can cycle.
 
 The checker (`check_strategy`) trusts nothing in the file and nothing of the solver: it
 rebuilds the bins and the moves from the rule set's definition (its bin recurrence and move
@@ -75,6 +85,8 @@ MAX_TEXT_BYTES = 1024 * MiB
 200 bytes each.  A gzip stream inflating past it is refused."""
 MAX_POSITIONS = STRATEGY_MAX_STATES
 """Most position lines: a strategy never lists more positions than its game has states."""
+MAX_PLAYERS = 64
+"""Most players in a header (the solver's own limit, `core.checks.SOLVE_MAX_PLAYERS`)."""
 MAX_N = 10**6
 """Largest n in a header (strategies exist only for games of at most STRATEGY_MAX_STATES)."""
 
@@ -106,7 +118,8 @@ def format_strategy(strategy: Strategy, values: list[int], rules: RuleSet | None
     lines = [HEADER_COMMENT.format(tag=FORMAT_TAG, values=shown).rstrip("\n")]
     header = (
         f"{FORMAT_TAG} rules={strategy.rules} rules_hash={strategy.rules_hash} "
-        f"n={strategy.n} players=2 winner={strategy.winner} positions={strategy.size}"
+        f"n={strategy.n} players={strategy.players} winner={strategy.winner} "
+        f"positions={strategy.size}"
     )
     if rules is not None:
         header += f" rules_text={encode_rules_text(rules)}"
@@ -150,6 +163,7 @@ class StrategyFile:
     declared_positions: int
     table: dict[tuple[int, ...], tuple[str, int]]  # counts (no trailing zeros) -> (move, line)
     rules_text: str | None = None  # the embedded canonical rule text, decoded
+    players: int = 2
 
 
 def parse_strategy(text: str, name: str = "<strategy>") -> StrategyFile:
@@ -208,10 +222,10 @@ def _parse_strategy(text: str, name: str) -> StrategyFile:
         raise InputError(f"{name}: header n, winner, players, positions must be whole numbers")
     n, winner, players, declared = (int(fields[k]) for k in ("n", "winner", "players",
                                                               "positions"))
-    if players != 2:
-        raise InputError(f"{name}: only two-player strategies are defined (players={players})")
-    if winner not in (1, 2):
-        raise InputError(f"{name}: winner must be 1 or 2, got {winner}")
+    if not 2 <= players <= MAX_PLAYERS:
+        raise InputError(f"{name}: players must be from 2 to {MAX_PLAYERS}, got {players}")
+    if not 1 <= winner <= players:
+        raise InputError(f"{name}: winner must be from 1 to {players}, got {winner}")
     if not 1 <= n <= MAX_N:
         raise InputError(f"{name}: n must be from 1 to {MAX_N}, got {n}")
     rules_text = None
@@ -227,6 +241,7 @@ def _parse_strategy(text: str, name: str) -> StrategyFile:
         declared_positions=declared,
         table=table,
         rules_text=rules_text,
+        players=players,
     )
 
 
@@ -437,6 +452,7 @@ class CheckReport:
     loser_positions: int
     longest_game: int
     unused_lines: int
+    players: int = 2
 
 
 def check_strategy(sf: StrategyFile, rules: str | RuleSet | None = None) -> CheckReport:
@@ -464,6 +480,9 @@ def check_strategy(sf: StrategyFile, rules: str | RuleSet | None = None) -> Chec
                 f"line {line}: position {format_position(key)} does not have the game's value "
                 f"{game.value}"
             )
+
+    if sf.players != 2:
+        return _check_coalition(sf, game)
 
     def show(state: tuple[int, ...]) -> str:
         return format_position(state)
@@ -547,4 +566,68 @@ def check_strategy(sf: StrategyFile, rules: str | RuleSet | None = None) -> Chec
         loser_positions=len(loser_seen),
         longest_game=longest,
         unused_lines=len(listed - used),
+    )
+
+
+def _check_coalition(sf: StrategyFile, game: ReferenceGame) -> CheckReport:
+    """Replay a P >= 3 certificate (module docstring): nodes (position, r), r = (player to
+    move - winner) mod P; at r = 0 the listed move, else every legal move; a position
+    without moves ends the game, won exactly when r = 1 (the winner moved last)."""
+    players, winner = sf.players, sf.winner
+
+    def show(state: tuple[int, ...]) -> str:
+        return format_position(state)
+
+    if not game.options(game.start):
+        raise StrategyRejected(f"no move is possible at the start {show(game.start)}: "
+                               "nobody moves, so nobody wins")
+    loser_seen: set[tuple[int, ...]] = set()
+
+    def children(node: tuple[tuple[int, ...], int]) -> list[tuple[tuple[int, ...], int]]:
+        state, r = node
+        opts = game.options(state)
+        if not opts:
+            if r == 1:
+                return []
+            last = (winner - 1 + r - 1) % players + 1
+            raise StrategyRejected(f"player {last} of the coalition moves last, reaching the "
+                                   f"end {show(state)}")
+        if r == 0:
+            entry = sf.table.get(strip_counts(state))
+            if entry is None:
+                raise StrategyRejected(f"no move listed for position {show(state)}, which the "
+                                       "winner can face")
+            move, line = entry
+            nxt = game.apply(state, move)
+            if nxt is None:
+                why = "unknown move" if move not in game.moves else "illegal move"
+                raise StrategyRejected(f"line {line}: {why} {move} at position {show(state)}")
+            return [(nxt, 1 % players)]
+        loser_seen.add(state)
+        return [(t, (r + 1) % players) for _, t in opts]
+
+    root = (game.start, (1 - winner) % players)
+    grey, black = 1, 2
+    color = {root: grey}
+    depth: dict[tuple[tuple[int, ...], int], int] = {}
+    stack = [(root, children(root), 0)]
+    while stack:
+        node, kids, i = stack[-1]
+        if i < len(kids):
+            stack[-1] = (node, kids, i + 1)
+            c = kids[i]
+            st = color.get(c)
+            if st == grey:
+                raise StrategyRejected(f"play can cycle through position {show(c[0])}")
+            if st is None:
+                color[c] = grey
+                stack.append((c, children(c), 0))
+            continue
+        stack.pop()
+        color[node] = black
+        depth[node] = max((1 + depth[c] for c in kids), default=0)
+    used = {strip_counts(s) for s, r in depth if r == 0}
+    return CheckReport(
+        n=sf.n, winner=winner, winner_positions=len(used), loser_positions=len(loser_seen),
+        longest_game=depth[root], unused_lines=len(set(sf.table) - used), players=players,
     )

@@ -59,8 +59,8 @@ def read_table(folder: str | Path) -> RunData:
     (`zeckenum.tables.format.load_table`: checksums, file list, canonical rows, row
     invariants); the rule set is the one embedded in the manifest.  The table must hold
     counts (summary.csv, spectra.csv); random play comes from random.csv and
-    random_lengths.csv when present, and `analysis.rundata.add_random` fills in what a
-    table lacks."""
+    random_lengths.csv when present, optimal play from solve.csv (winner, P-positions), and
+    `analysis.rundata.add_random` / `add_optimal` fill in what a table lacks."""
     folder = Path(folder)
     if not is_table(folder):
         raise InputError(f"{folder}: no manifest.json and summary.csv (not a zeckenum table)")
@@ -71,11 +71,14 @@ def read_table(folder: str | Path) -> RunData:
     random = {n: dict(t.laws[n]) for n in t.ns if n in t.laws}
     wins = {n: t.random[n]["player1_wins"] for n in t.ns if n in t.random}
     summary = {n: {k: t.summary[n][k] for k in SUMMARY_KEYS} for n in t.ns}
+    optimal = {n: {"winner": int(row["winner"]) if row["winner"] else None,
+                   "p_positions": int(row["p_positions"])}
+               for n, row in t.solve.items() if n in spectra}
     prov = {"source": f"table {folder}", "manifest": t.manifest,
             "rules": t.ruleset.name, "rules_hash": t.ruleset.content_hash()}
     return RunData(rules=t.ruleset.name, spectra=spectra, random=random, wins=wins,
                    summary=summary, provenance=prov, ruleset=t.ruleset,
-                   rules_text=t.rules_text)
+                   rules_text=t.rules_text, optimal=optimal)
 
 
 # ----------------------------------------------------------------------------- figures

@@ -4,7 +4,9 @@
 every figure is embedded as a base64 PNG (no external file, no script, no network), every
 table is plain HTML.  Sections: the figures of `plots.FIGURES`; one row per n (states, moves,
 games, extremes, exact mean and variance of the length of all games and of random play,
-player 1's win probability); the fitted leading terms; at one detail n the explicit
+player 1's win probability); the fitted leading terms; optimal play (`RunData.optimal`:
+the winner, the P-positions per n and their share of the states, the start's Grundy value
+and the P-positions per level when the data carry them); at one detail n the explicit
 shortest and longest games, the greedy longest game, the number of games at the lengths
 near the extremes, the move totals and expected counts and the linear invariants with their
 verification; provenance, including the rule file itself (canonical text and content
@@ -143,6 +145,58 @@ def summary_rows(data: RunData) -> list[list[object]]:
     return rows
 
 
+ZECKENDORF_GAME = "\"The Zeckendorf Game\" (2018, arXiv:1809.04881)"
+
+
+def optimal_section(data: RunData, detail_n: int | None) -> str:
+    """Optimal play per n (two players, normal play): winner, P-positions (count and share
+    of the states), the start's Grundy value when the data carry it, and the P-positions
+    per level at one n (the detail n, else the largest n) when the data carry them.  For
+    the standard game, the published fact that player 2 wins every n > 2 is checked against
+    the rows shown.  Empty without optimal-play data."""
+    from zeckenum.rules.model import STANDARD
+
+    rows_in = {n: r for n, r in sorted(data.optimal.items()) if n in data.spectra}
+    if not rows_in:
+        return ""
+    grundy = any("grundy" in r for r in rows_in.values())
+    header = ["n", "winner", "states", "P-positions", "share of states"]
+    header += ["Grundy value of the start"] if grundy else []
+    rows = []
+    for n, r in rows_in.items():
+        states = r.get("states", data.summary.get(n, {}).get("states"))
+        p = r.get("p_positions")
+        share = dec(Fraction(int(p), int(states)), 4) if p is not None and states else ""
+        row = [n, "" if r.get("winner") is None else f"player {r['winner']}",
+               "" if states is None else states, "" if p is None else p, share]
+        if grundy:
+            row.append(r.get("grundy", ""))
+        rows.append(row)
+    parts = ["<h2>Optimal play</h2>",
+             "<p>Two players, normal play (the player who makes the last move wins). A "
+             "P-position is a state where the player to move loses against best play; counts "
+             "are over the states reachable from the start. The winner is the player who "
+             "wins the start under optimal play.</p>",
+             html_table(header, rows, "optimal")]
+    if data.rule_set().content_hash() == STANDARD.content_hash():
+        big = [n for n, r in rows_in.items() if n > 2 and r.get("winner") is not None]
+        bad = [n for n in big if rows_in[n]["winner"] != 2]
+        if big:
+            verdict = ("agree" if not bad
+                       else "DISAGREE at n = " + ", ".join(str(n) for n in bad))
+            parts.append(f"<p>Published: player 2 wins the standard game for every n &gt; 2 "
+                         f"({esc(ZECKENDORF_GAME)}); the rows above ({len(big)} n &gt; 2) "
+                         f"{verdict}.</p>")
+    levels = [n for n, r in rows_in.items() if r.get("p_positions_by_level")]
+    if levels:
+        n = detail_n if detail_n in levels else levels[-1]
+        by = rows_in[n]["p_positions_by_level"]
+        parts.append(f"<h3>P-positions per level at n={n}</h3>")
+        parts.append(html_table(["level", "P-positions"],
+                                [[lv, by[lv]] for lv in sorted(by)], "p-levels"))
+    return "\n".join(parts)
+
+
 def detail_sections(data: RunData, detail: RunDetail) -> str:
     """Extremal games, greedy comparison, move statistics and invariants at one n."""
     from zeckenum.analysis.extremal import lengths_near_extremes
@@ -213,6 +267,8 @@ def reproduce_section(data: RunData, detail_n: int | None, folder: Path) -> str:
         f"zeckenum count N --json{rules}          # states, moves, games, spectrum at N",
         f"zeckenum random N --json{rules}         # random-play law, moments, win chances",
     ]
+    if data.optimal:
+        lines.append(f"zeckenum solve N --json{rules}          # winner, P-positions")
     for kind in ("distribution", "shape", "wins", "moments", "gaussian"):
         lines.append(f"zeckenum plot {kind} --range {lo} {hi}{rules} --out {kind}")
     if detail_n is not None:
@@ -289,6 +345,7 @@ def render_report(data: RunData, folder: Path, detail: RunDetail | None = None) 
             fits.append([SOURCE_LABEL[src], what, dec(a, 4), dec(b, 4)])
     body.append("<h3>Fitted leading terms a n^b (upper half of the range)</h3>")
     body.append(html_table(["law", "quantity", "a", "b"], fits, "fits", left=2))
+    body.append(optimal_section(data, detail_n))
     if detail is not None:
         body.append(detail_sections(data, detail))
     body.append(provenance_section(data))

@@ -191,7 +191,7 @@ def test_cli_table_mentions_moves() -> None:
 @pytest.mark.parametrize(
     "args",
     [["0"], ["5", "--players", "1"], ["5", "--rules", "nosuch"],
-     ["5", "--players", "3", "--strategy", "x.zst"]],
+     ["5", "--players", "3", "--strategy", "x.zst", "--shards", "2"]],
 )
 def test_cli_bad_input_one_line(args: list[str]) -> None:
     res = CliRunner().invoke(solve_command, args)
