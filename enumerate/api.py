@@ -346,16 +346,19 @@ def solve(
                                export_fields=export_fields), rs)
 
 
-def solve_sum(ns: list[int] | tuple[int, ...], rules: str | RuleSet = "standard", *,
-              max_memory: int | None = None, progress: bool = False,
+def solve_sum(parts: Sequence[int | Sequence[int] | str], rules: str | RuleSet = "standard",
+              *, max_memory: int | None = None, progress: bool = False,
               threads: int | None = None) -> SumResult:
-    """The sum of the games at each n of `ns` under normal play, from the Sprague-Grundy
-    values of their starts (`zeckenum.optimal.solve.solve_sum`): who wins and every winning
-    first move."""
+    """The sum of games of one rule set under normal play, from the Sprague-Grundy values
+    of their starts (`zeckenum.optimal.solve.solve_sum`): who wins and every winning first
+    move.  Each part is an n or a start position (a count vector or its text "3,1,0,2")."""
     from zeckenum.core.checks import check_threads
     from zeckenum.optimal.solve import solve_sum as engine
+    from zeckenum.rules.notation import parse_position
 
-    return engine(ns, rules, max_memory=max_memory, progress=progress,
+    games = [p if isinstance(p, int) else parse_position(p) if isinstance(p, str)
+             else tuple(p) for p in parts]
+    return engine(games, rules, max_memory=max_memory, progress=progress,
                   threads=check_threads(threads))
 
 

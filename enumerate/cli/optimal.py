@@ -37,6 +37,7 @@ from zeckenum.optimal.solve import SolveResult, SumResult
 from zeckenum.optimal.strategy import winning_strategy
 from zeckenum.optimal.strategyfile import check_strategy, read_strategy, write_strategy
 from zeckenum.rules.catalogue import get_rules
+from zeckenum.rules.notation import parse_position, shown
 from zeckenum.safeio import check_output_file
 
 
@@ -112,12 +113,24 @@ def sum_table(res: SumResult) -> str:
     return _table(rows)
 
 
-def _sum_parts(text: str) -> list[int]:
-    """"n1,n2[,...]" as a list of positive integers (InputError otherwise)."""
-    parts = [p.strip() for p in text.split(",")]
-    if len(parts) < 2 or not all(p.isascii() and p.isdigit() for p in parts):
-        raise InputError(f"--sum {text!r}: expected two or more positive integers, e.g. 5,8")
-    return [int(p) for p in parts]
+def _sum_parts(text: str) -> list[int | tuple[int, ...]]:
+    """The parts of `--sum`: "n1,n2[,...]" (games at these n), or parts joined by "+",
+    each an n or a position ("3,1,0,2 + 0,4 + 7"); InputError otherwise."""
+    if "+" in text:
+        parts: list[int | tuple[int, ...]] = []
+        for piece in (p.strip() for p in text.split("+")):
+            if piece.isascii() and piece.isdigit():
+                parts.append(int(piece))
+            else:
+                parts.append(parse_position(piece))
+        if len(parts) < 2:
+            raise InputError(f"--sum {shown(text)!r}: expected two or more games")
+        return parts
+    pieces = [p.strip() for p in text.split(",")]
+    if len(pieces) < 2 or not all(p.isascii() and p.isdigit() for p in pieces):
+        raise InputError(f"--sum {shown(text)!r}: expected two or more positive integers "
+                         "(5,8) or games joined by + (3,1,0,2 + 0,4 + 7)")
+    return [int(p) for p in pieces]
 
 
 @click.command("solve", cls=OneLineCommand)
@@ -155,9 +168,10 @@ def _sum_parts(text: str) -> list[int]:
 @click.option("--export-fields", default=None, metavar="LIST",
               help="Values in the export, from class,remoteness,grundy (default: "
                    "class,remoteness, and grundy with --grundy).")
-@click.option("--sum", "sum_text", default=None, metavar="N1,N2[,...]",
+@click.option("--sum", "sum_text", default=None, metavar="N1,N2[,...] | G1 + G2 [+ ...]",
               help="Solve the sum of these games (normal play) from their Grundy values, "
-                   "instead of N.")
+                   "instead of N: games at N1, N2, ..., or games joined by + each an n "
+                   "or a start position (3,1,0,2 + 0,4).")
 @progress_option("Show a progress bar of the states (or level ranges) on stderr")
 @max_memory_option
 def solve_command(n: int | None, position: str | None, rules_name: str, players: int,

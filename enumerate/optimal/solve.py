@@ -612,21 +612,31 @@ class SumResult:
 
 
 def solve_sum(
-    ns: list[int] | tuple[int, ...], rules: str | RuleSet = "standard", *,
+    parts: list[int | tuple[int, ...]] | tuple[int | tuple[int, ...], ...],
+    rules: str | RuleSet = "standard", *,
     max_memory: int | None = None, progress: bool = False, threads: int | None = None,
 ) -> SumResult:
-    """The sum of the games at each n of `ns` (same rule set, normal play), from the
-    Sprague-Grundy values of their starts: the sum is a P-position exactly when the XOR of
-    the values is 0 (Sprague-Grundy theorem), and a winning move is a move of one part to
-    a position whose value is that part's value XOR the nimber.  Each part is solved with
-    `solve(..., grundy=True)` (forecast and refused one at a time)."""
-    if isinstance(ns, (str, bytes)) or not 2 <= len(ns) <= MAX_SUM_PARTS:
-        raise InputError(f"a sum takes 2 to {MAX_SUM_PARTS} games, got {ns!r}")
-    ns = [check_n(x) for x in ns]
-    rs = get_rules(rules)
+    """The sum of games of one rule set under normal play, from the Sprague-Grundy values
+    of their starts: each part is an n (the rule set's start for n) or a position (a count
+    vector, bin 1 first: the game started there, `RuleSet.at_position`).  The sum is a
+    P-position exactly when the XOR of the values is 0 (Sprague-Grundy theorem), and a
+    winning move is a move of one part to a position whose value is that part's value XOR
+    the nimber.  Each part is solved with `solve(..., grundy=True)` (forecast and refused
+    one at a time)."""
+    if isinstance(parts, (str, bytes)) or not 2 <= len(parts) <= MAX_SUM_PARTS:
+        raise InputError(f"a sum takes 2 to {MAX_SUM_PARTS} games, got {parts!r}")
+    base = get_rules(rules)
+    games: list[tuple[int, RuleSet]] = []
+    for part in parts:
+        if isinstance(part, int):
+            games.append((check_n(part), base))
+        else:
+            rs = base.at_position(tuple(part))
+            games.append((rs.position_value(rs.position), rs))
+    rs = base
     t0 = time.perf_counter()
-    results = [solve(x, rs, grundy=True, max_memory=max_memory, progress=progress,
-                     threads=threads) for x in ns]
+    results = [solve(x, g, grundy=True, max_memory=max_memory, progress=progress,
+                     threads=threads) for x, g in games]
     nimber = 0
     for r in results:
         nimber ^= int(r.grundy)

@@ -391,3 +391,39 @@ def test_large_values_agree_with_the_bits_and_threads() -> None:
     # Winning Ways (1982): Grundy value 0 exactly at P-positions
     for lv, g in one.values["grundy"].items():
         assert np.array_equal(g == 0, ~bits.classes[lv]), lv
+
+
+def test_sum_of_positions_matches_product_game() -> None:
+    """Source: brute force mex over the product game (tests/support/cgt_bruteforce.py) with
+    each part started at a position (tests/support/rules_bruteforce.py): the sum's value,
+    winner and winning first moves, through the API and the command line's `+` form."""
+    desc = rb.DESCRIPTIONS["standard"]
+    cases = [((3, 1, 0, 2), (0, 4)), ((1, 1, 1), (2, 0, 1)), ((0, 2, 1), 5), ((4, 1), (0, 3))]
+    for a, b in cases:
+        games = [rb.Game({**desc, "start": {"position": list(p)}}, sum(
+            c * v for c, v in zip(p, (1, 2, 3, 5, 8), strict=False))) if isinstance(p, tuple)
+            else _game("standard", p) for p in (a, b)]
+        bf = cgt.Analysis(cgt.sum_successors([g.successors for g in games]))
+        start = (games[0].start, games[1].start)
+        res = api.solve_sum([a, b], "standard", threads=1)
+        assert res.nimber == bf.grundy(start), (a, b)
+        assert res.winner == (1 if bf.mover_wins(start) else 2)
+        expect = sorted(
+            [(1, _text(t)) for t in games[0].successors(games[0].start)
+             if not bf.mover_wins((t, games[1].start))]
+            + [(2, _text(t)) for t in games[1].successors(games[1].start)
+               if not bf.mover_wins((games[0].start, t))])
+        assert sorted((m["part"], m["position"]) for m in res.winning_moves) == expect
+        text = " + ".join(",".join(map(str, p)) if isinstance(p, tuple) else str(p)
+                          for p in (a, b))
+        r = CliRunner().invoke(solve_command, ["--sum", text, "--json"])
+        assert r.exit_code == 0, r.output
+        assert json.loads(r.output)["grundy"] == res.nimber
+
+
+@pytest.mark.parametrize("text", ["3,1 +", "3,-1 + 2", "+", "3,1 + 0", "2 + 5,x"])
+def test_sum_of_positions_bad_input(text: str) -> None:
+    """Common practice: a malformed part of `--sum` is one line, exit 2."""
+    r = CliRunner().invoke(solve_command, ["--sum", text])
+    assert r.exit_code == 2, r.output
+    assert len(r.output.strip().splitlines()) == 1
