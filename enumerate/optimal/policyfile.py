@@ -65,8 +65,8 @@ from pathlib import Path
 import numpy as np
 from zeckenum.errors import InputError
 from zeckenum.rules.model import GameSpec
-from zeckenum.rules.rulefile import short_message
-from zeckenum.safeio import MiB, read_regular
+from zeckenum.rules.rulefile import read_text_file, short_message
+from zeckenum.safeio import MiB
 
 try:  # pragma: no cover - Python < 3.11
     import tomllib
@@ -239,14 +239,7 @@ def read_policy(path: str | Path) -> Policy:
     """Read and parse a policy file (`safeio.read_regular`: a regular file of at most
     MAX_POLICY_BYTES); InputError (one line) when it cannot be read or is malformed."""
     label = short_message(str(path), 120)
-    try:
-        data = read_regular(path, MAX_POLICY_BYTES, "policy file")
-    except InputError as exc:
-        raise InputError(short_message(str(exc))) from None
-    try:
-        text = data.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        raise InputError(f"{label}: not UTF-8 text (bad byte at offset {exc.start})") from None
+    text = read_text_file(path, MAX_POLICY_BYTES, "policy file")
     return parse_policy(text, label)
 
 

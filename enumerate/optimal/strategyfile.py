@@ -61,8 +61,10 @@ import base64
 import binascii
 import gzip
 import zlib
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 from zeckenum.errors import CheckFailed, InputError
 from zeckenum.optimal.strategy import STRATEGY_MAX_STATES, Strategy
@@ -71,11 +73,13 @@ from zeckenum.rules.model import RuleSet
 from zeckenum.rules.notation import format_position, parse_position, strip_counts
 from zeckenum.rules.rulefile import (
     MAX_RULE_FILE_BYTES,
+    decode_text,
     format_rules,
+    read_bytes,
     rules_from_text,
     short_message,
 )
-from zeckenum.safeio import MiB, read_regular
+from zeckenum.safeio import MiB
 
 FORMAT_TAG = "zstrat/1"
 MAX_FILE_BYTES = 1024 * MiB
@@ -302,19 +306,12 @@ def read_strategy(path: str | Path) -> StrategyFile:
     `safeio.read_regular` refuses FIFOs, devices and files over MAX_FILE_BYTES without
     blocking; a gzip stream is inflated by `gunzip_capped` up to MAX_TEXT_BYTES."""
     name = short_message(str(path), 120)
-    try:
-        data = read_regular(path, MAX_FILE_BYTES, "strategy file")
-    except InputError as exc:
-        raise InputError(short_message(str(exc))) from None
+    data = read_bytes(path, MAX_FILE_BYTES, "strategy file")
     if data[:2] == b"\x1f\x8b":
         data = gunzip_capped(data, MAX_TEXT_BYTES, name)
     elif len(data) > MAX_TEXT_BYTES:
         raise InputError(f"{name}: more than {MAX_TEXT_BYTES} bytes of text")
-    try:
-        text = data.decode()
-    except UnicodeDecodeError as exc:
-        raise InputError(f"{name}: not UTF-8 text (bad byte at offset {exc.start})") from None
-    return parse_strategy(text, name)
+    return parse_strategy(decode_text(data, name), name)
 
 
 def _vector_len(start: object) -> int:
@@ -526,34 +523,7 @@ def check_strategy(sf: StrategyFile, rules: str | RuleSet | None = None) -> Chec
         if game.options(game.start):
             loser_seen.add(game.start)
 
-    # Iterative depth-first search; GREY positions are on the current path (a revisit
-    # means play can cycle), BLACK ones are proved.  depth[w] = most moves from winner
-    # position w to the end, known once w is BLACK (all its children are BLACK first).
-    grey, black = 1, 2
-    color: dict[tuple[int, ...], int] = {}
-    depth: dict[tuple[int, ...], int] = {}
-    for root in roots:
-        if color.get(root) == black:
-            continue
-        color[root] = grey
-        stack: list[tuple[tuple[int, ...], list[tuple[int, ...]], int]] = [
-            (root, children(root), 0)
-        ]
-        while stack:
-            w, kids, i = stack[-1]
-            if i < len(kids):
-                stack[-1] = (w, kids, i + 1)
-                c = kids[i]
-                st = color.get(c)
-                if st == grey:
-                    raise StrategyRejected(f"play can cycle through position {show(c)}")
-                if st is None:
-                    color[c] = grey
-                    stack.append((c, children(c), 0))
-                continue
-            stack.pop()
-            color[w] = black
-            depth[w] = max((2 + depth[c] for c in kids), default=1)
+    depth = _depths(roots, children, show, step=2, leaf=1)
     longest = max((depth[r] for r in roots), default=0)
     if roots and sf.winner == 2:
         longest += 1  # the loser's first move
@@ -607,27 +577,42 @@ def _check_coalition(sf: StrategyFile, game: ReferenceGame) -> CheckReport:
         return [(t, (r + 1) % players) for _, t in opts]
 
     root = (game.start, (1 - winner) % players)
-    grey, black = 1, 2
-    color = {root: grey}
-    depth: dict[tuple[tuple[int, ...], int], int] = {}
-    stack = [(root, children(root), 0)]
-    while stack:
-        node, kids, i = stack[-1]
-        if i < len(kids):
-            stack[-1] = (node, kids, i + 1)
-            c = kids[i]
-            st = color.get(c)
-            if st == grey:
-                raise StrategyRejected(f"play can cycle through position {show(c[0])}")
-            if st is None:
-                color[c] = grey
-                stack.append((c, children(c), 0))
-            continue
-        stack.pop()
-        color[node] = black
-        depth[node] = max((1 + depth[c] for c in kids), default=0)
+    depth = _depths([root], children, lambda node: show(node[0]), step=1, leaf=0)
     used = {strip_counts(s) for s, r in depth if r == 0}
     return CheckReport(
         n=sf.n, winner=winner, winner_positions=len(used), loser_positions=len(loser_seen),
         longest_game=depth[root], unused_lines=len(set(sf.table) - used), players=players,
     )
+
+
+def _depths(roots: list, children: Callable[[Any], list], show: Callable[[Any], str],
+            step: int, leaf: int) -> dict:
+    """Depth-first search of the play graph below `roots`, refusing a cycle
+    (StrategyRejected naming the position): node -> `leaf` for a node without children,
+    else `step` + the largest of its children's.  Iterative; GREY nodes are on the current
+    path (a revisit means play can cycle), BLACK ones are done, so a node's depth is known
+    once it is BLACK (all its children are BLACK first)."""
+    grey, black = 1, 2
+    color: dict = {}
+    depth: dict = {}
+    for root in roots:
+        if color.get(root) == black:
+            continue
+        color[root] = grey
+        stack = [(root, children(root), 0)]
+        while stack:
+            node, kids, i = stack[-1]
+            if i < len(kids):
+                stack[-1] = (node, kids, i + 1)
+                c = kids[i]
+                st = color.get(c)
+                if st == grey:
+                    raise StrategyRejected(f"play can cycle through position {show(c)}")
+                if st is None:
+                    color[c] = grey
+                    stack.append((c, children(c), 0))
+                continue
+            stack.pop()
+            color[node] = black
+            depth[node] = max((step + depth[c] for c in kids), default=leaf)
+    return depth

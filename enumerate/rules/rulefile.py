@@ -111,22 +111,35 @@ def _where_of(path: str | Path) -> str:
     return short_message(str(path), 120)
 
 
-def read_rule_file(path: str | Path) -> RuleSet:
-    """The validated rule set of a rule file (InputError with one line on any problem).
-
-    Read with `safeio.read_regular`: a regular file (symlinks followed) of at most
-    MAX_RULE_FILE_BYTES, never a FIFO or a device, so reading cannot block or run forever.
-    """
-    where = _where_of(path)
+def read_bytes(path: str | Path, max_bytes: int, what: str) -> bytes:
+    """`safeio.read_regular` with its refusal cut to one short line (InputError): a regular
+    file (symlinks followed) of at most `max_bytes`, never a FIFO or a device, so reading
+    cannot block or run forever."""
     try:
-        data = read_regular(path, MAX_RULE_FILE_BYTES, "rule file")
+        return read_regular(path, max_bytes, what)
     except InputError as exc:
         raise InputError(short_message(str(exc))) from None
+
+
+def decode_text(data: bytes, where: str) -> str:
+    """`data` as UTF-8 text; InputError naming `where` and the first bad byte otherwise."""
     try:
-        text = data.decode("utf-8")
+        return data.decode("utf-8")
     except UnicodeDecodeError as exc:
         raise InputError(f"{where}: not UTF-8 text (bad byte at offset {exc.start})") from None
-    return parse_rules(text, where=where)
+
+
+def read_text_file(path: str | Path, max_bytes: int, what: str) -> str:
+    """The UTF-8 text of a small input file (rule, policy file): `read_bytes` then
+    `decode_text`, each failure one line."""
+    return decode_text(read_bytes(path, max_bytes, what), _where_of(path))
+
+
+def read_rule_file(path: str | Path) -> RuleSet:
+    """The validated rule set of a rule file (InputError with one line on any problem),
+    read by `read_text_file` (at most MAX_RULE_FILE_BYTES)."""
+    return parse_rules(read_text_file(path, MAX_RULE_FILE_BYTES, "rule file"),
+                       where=_where_of(path))
 
 
 def parse_rules(text: str, where: str = "<rules>") -> RuleSet:
