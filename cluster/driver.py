@@ -260,12 +260,17 @@ class ShardDriver:
         stopping with `ClusterStalled` when the cluster stalls (`backend.Watchdog`)."""
         watch = self.watch
         assert watch is not None
-        looked = time.monotonic()
+        looked = noted = time.monotonic()
         while self.done.pending:
             fut = self.done.next(watch.period)
             if self.hints and time.monotonic() - looked >= watch.period:
                 self.resubmit_orphans()
                 looked = time.monotonic()
+            if self.bar is not None and time.monotonic() - noted >= watch.period:
+                note = self.pool.state_note()  # batch jobs running / pending
+                if note:
+                    self.bar.set_postfix_str(note)
+                noted = time.monotonic()
             if fut is None:  # nothing finished for a while: is anybody still working?
                 watch.idle()
                 continue
