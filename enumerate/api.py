@@ -16,8 +16,9 @@
 
 This module is also the ONE place that chooses where a run goes.  `count`, `random_play`,
 `solve` and `build_table` take `workers` (a local Dask cluster of K processes started and
-closed for the run), `scheduler` (an existing cluster) and `checkpoint` (a folder of
-finished shards a rerun resumes from); with none of them the run stays in this process
+closed for the run), `scheduler` (an existing cluster), `cluster` (workers as batch jobs of
+SLURM, PBS, SGE or LSF through dask-jobqueue, `zeckenum.cluster.batch`) and `checkpoint` (a
+folder of finished shards a rerun resumes from); with none of them the run stays in this process
 (`random_play` with `progress=True` and `solve` with `shards` use the sharded drivers
 in-process, which are the ones that show progress by shard).  The engines never import
 `zeckenum.cluster`; only this module (and what it calls: tables, the cluster drivers) does.
@@ -28,6 +29,7 @@ neither numba, Dask nor matplotlib; the first call pays for what it uses.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -36,6 +38,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
     from zeckenum.analysis.extremal import GamesReport
     from zeckenum.analysis.movestats import MoveStats
     from zeckenum.analysis.rundata import RunData
+    from zeckenum.cluster.batch import BatchSpec
     from zeckenum.counting.result import CountResult
     from zeckenum.optimal.solve import SolveResult
     from zeckenum.randomplay.exact import RandomResult
@@ -44,9 +47,40 @@ if TYPE_CHECKING:  # pragma: no cover - types only
     from zeckenum.rules.model import RuleSet
     from zeckenum.tables.format import Table
 
-def _sharded(workers: int | None, scheduler: str | None, checkpoint: str | Path | None) -> bool:
+def _sharded(workers: int | None, scheduler: str | None, checkpoint: str | Path | None,
+             cluster: str | BatchSpec | None = None) -> bool:
     """Whether a run leaves the plain in-process engine for a cluster driver."""
-    return bool(workers or scheduler or checkpoint)
+    return bool(workers or scheduler or checkpoint or cluster)
+
+
+def _where(workers: int | None, scheduler: str | None, cluster: str | BatchSpec | None,
+           forecast: Callable[[], int] | None = None) -> str | BatchSpec | None:
+    """What the cluster drivers get as `scheduler`: the address of a running scheduler, a
+    `zeckenum.cluster.batch.BatchSpec` (workers as batch jobs: `cluster` given as a kind
+    such as "slurm" or as a spec; `forecast()`, the run's forecast bytes per worker, sets
+    the memory per job when neither the spec nor the Dask config gives it), or None.
+    InputError when more than one of workers / scheduler / cluster is given."""
+    if cluster is None:
+        return scheduler
+    from zeckenum.cluster.batch import batch_spec, with_forecast
+    from zeckenum.errors import InputError
+
+    if workers is not None or scheduler is not None:
+        raise InputError("give one of --workers, --scheduler and --cluster")
+    spec = batch_spec(cluster)
+    return spec if forecast is None else with_forecast(spec, forecast)
+
+
+def _forecast(kind: str, n: int, rules: str | RuleSet, players: int = 2,
+              model: str = "moves") -> Callable[[], int]:
+    """The forecast bytes per worker of a sharded run of n (`cluster.batch.run_forecast`),
+    computed only when called."""
+    def forecast() -> int:
+        from zeckenum.cluster.batch import run_forecast
+
+        return run_forecast(kind, n, rules, players, model)
+
+    return forecast
 
 
 def count(
@@ -54,6 +88,7 @@ def count(
     prime_offset: int = 0, max_memory: int | None = None, progress: bool = False,
     workers: int | None = None, scheduler: str | None = None,
     checkpoint: str | Path | None = None, points_per_shard: int | None = None,
+    cluster: str | BatchSpec | None = None,
 ) -> CountResult:
     """Exact census of all games at n (`zeckenum.counting.count.count`), or the same
     result computed shard by shard on a cluster and/or checkpointed
@@ -64,10 +99,16 @@ def count(
     With `points_per_shard` the census is computed by evaluation points
     (`zeckenum.counting.points.count_points`: shards of (prime, block of points), the same
     result with more work and less memory per shard), in-process or, with `workers`,
-    `scheduler` or `checkpoint`, through the same sharded driver (the same result)."""
-    if _sharded(workers, scheduler, checkpoint):
+    `scheduler` or `checkpoint`, through the same sharded driver (the same result).
+
+    `cluster`: the workers are batch jobs ("slurm", "pbs", "sge", "lsf", or a
+    `zeckenum.cluster.batch.BatchSpec` with jobs, cores, memory, walltime, queue,
+    account), started and cancelled for the run; what the spec leaves out comes from the
+    Dask config (`jobqueue.<kind>.*`), the memory else from this run's forecast."""
+    if _sharded(workers, scheduler, checkpoint, cluster):
         from zeckenum.cluster.run import run_count
 
+        scheduler = _where(workers, scheduler, cluster, _forecast("count", n, rules))
         return run_count(n, rules, workers=workers, scheduler=scheduler,
                          checkpoint_dir=checkpoint, progress=progress,
                          prime_offset=prime_offset, threads=threads, max_memory=max_memory,
@@ -88,7 +129,7 @@ def random_play(
     winners_only: bool = False, prime_offset: int = 0, threads: int | None = None,
     max_memory: int | None = None, progress: bool = False, workers: int | None = None,
     scheduler: str | None = None, checkpoint: str | Path | None = None,
-    points_per_shard: int | None = None,
+    points_per_shard: int | None = None, cluster: str | BatchSpec | None = None,
 ) -> RandomResult:
     """Exact random play at n: every length's probability and each player's chance to win
     (`zeckenum.randomplay.exact.random_play`).  With `progress`, `workers`, `scheduler`
@@ -98,22 +139,25 @@ def random_play(
     With `points_per_shard` the law is computed by evaluation points
     (`zeckenum.randomplay.points.random_play_points`: shards of (prime, block of points),
     the same result with other primes, more work and less memory per shard; in-process
-    only for now, `progress` is ignored)."""
+    only for now, `progress` is ignored).  `cluster`: batch jobs, as in `count`."""
     if points_per_shard is not None:
-        if _sharded(workers, scheduler, checkpoint):
+        if _sharded(workers, scheduler, checkpoint, cluster):
             from zeckenum.errors import InputError
 
             raise InputError("--points-per-shard runs in this process only: it cannot be "
-                             "combined with --workers, --scheduler or --checkpoint yet")
+                             "combined with --workers, --scheduler, --cluster or "
+                             "--checkpoint yet")
         from zeckenum.randomplay.points import random_play_points
 
         return random_play_points(n, rules, players, model, winners_only=winners_only,
                                   points_per_shard=points_per_shard,
                                   prime_offset=prime_offset, threads=threads,
                                   max_memory=max_memory)
-    if progress or _sharded(workers, scheduler, checkpoint):
+    if progress or _sharded(workers, scheduler, checkpoint, cluster):
         from zeckenum.cluster.run import run_random
 
+        scheduler = _where(workers, scheduler, cluster,
+                           _forecast("random", n, rules, players, model))
         return run_random(n, rules, players, model, winners_only=winners_only,
                           workers=workers, scheduler=scheduler, checkpoint_dir=checkpoint,
                           progress=progress, prime_offset=prime_offset, threads=threads,
@@ -197,24 +241,27 @@ def solve(
     max_memory: int | None = None, progress: bool = False, workers: int | None = None,
     scheduler: str | None = None, checkpoint: str | Path | None = None,
     shards: int | None = None, threads: int | None = None,
+    cluster: str | BatchSpec | None = None,
 ) -> SolveResult:
     """Optimal play at n (`zeckenum.optimal.solve.solve`, each large layer on `threads`
     threads, default every core), or the same as a chain of level-range shards
     (`zeckenum.cluster.solve_chain.run_solve`) when `workers`, `scheduler`, `checkpoint` or
     `shards` is given; the chain's ranges run on one thread each, so `threads` is refused
     with it.  A chain on this machine (no `scheduler`) or with `max_memory` is refused up
-    front as the in-process solve would be, before any worker starts."""
+    front as the in-process solve would be, before any worker starts.  `cluster`: batch
+    jobs, as in `count`."""
     from zeckenum.core.checks import check_threads
     from zeckenum.errors import InputError
     from zeckenum.rules.catalogue import get_rules
 
     threads = check_threads(threads)
     rs = get_rules(rules)
-    if _sharded(workers, scheduler, checkpoint) or shards:
+    if _sharded(workers, scheduler, checkpoint, cluster) or shards:
         if threads is not None:
             raise InputError("--threads runs the in-process solve; a chain of level ranges "
-                             "(--workers, --scheduler, --checkpoint, --shards) runs each "
-                             "range on one thread")
+                             "(--workers, --scheduler, --cluster, --checkpoint, --shards) "
+                             "runs each range on one thread")
+        scheduler = _where(workers, scheduler, cluster, _forecast("solve", n, rs, players))
         from zeckenum.cluster.solve_chain import run_solve
         from zeckenum.core.memory import resolve_limit
         from zeckenum.optimal.solve import needs_reach, solve_space
@@ -328,10 +375,12 @@ def build_table(
     rules: str | RuleSet = "standard", *, workers: int | None = None,
     scheduler: str | None = None, checkpoint: str | Path | None = None,
     progress: bool = False, max_memory: int | None = None,
+    cluster: str | BatchSpec | None = None,
 ) -> TableBuild:
     """Compute and publish exact tables for lo <= n <= hi into `out` (what: comma-separated
     count, solve, random).  On this machine (no `scheduler`) or with `max_memory`, the
-    largest n is refused up front when it cannot run."""
+    largest n is refused up front when it cannot run.  `cluster`: batch jobs, as in
+    `count` (memory from the forecast of the largest n of every kind)."""
     from zeckenum.errors import InputError
     from zeckenum.tables.build import build_table as build
     from zeckenum.tables.format import parse_what
@@ -339,6 +388,8 @@ def build_table(
     kinds = parse_what(what) if isinstance(what, str) else tuple(what)
     if hi < lo:
         raise InputError(f"--to must be at least --from, got --from {lo} --to {hi}")
+    scheduler = _where(workers, scheduler, cluster,
+                       lambda: max(_forecast(k, hi, rules)() for k in kinds))
     if max_memory is not None or scheduler is None:
         _refuse_table(hi, kinds, rules, max_memory)
     manifest = build(lo, hi, kinds, out, rules, workers=workers, scheduler=scheduler,
@@ -356,10 +407,20 @@ def load_table(folder: str | Path) -> Table:
 
 def verify_table(folder: str | Path, sample: int = 3, seed: int | None = None, *,
                  full: bool = False, workers: int | None = None,
-                 scheduler: str | None = None) -> TableCheck:
+                 scheduler: str | None = None,
+                 cluster: str | BatchSpec | None = None) -> TableCheck:
     """Check a published table and recompute `sample` n drawn with `seed` (plus the largest
-    n; every n with `full`); raises TableCheckFailed (exit 5) on any mismatch."""
+    n; every n with `full`); raises TableCheckFailed (exit 5) on any mismatch.  `cluster`:
+    batch jobs, as in `count` (memory from the forecast of the table's largest n)."""
     from zeckenum.tables.verify import verify_table as verify
+
+    if cluster is not None:
+        from zeckenum.tables.format import load_table as load
+
+        table = load(folder)
+        scheduler = _where(workers, scheduler, cluster,
+                           lambda: max(_forecast(k, max(table.ns), table.ruleset)()
+                                       for k in table.kinds))
 
     rep = verify(folder, sample, seed, full=full, workers=workers, scheduler=scheduler)
     return TableCheck(folder=Path(folder), report=rep)

@@ -10,6 +10,7 @@ still fails afterwards puts the strategy in a rescue file it names (exit 6).
 from __future__ import annotations
 
 import json
+from typing import TYPE_CHECKING
 
 import click
 from zeckenum import api
@@ -34,6 +35,9 @@ from zeckenum.optimal.strategy import winning_strategy
 from zeckenum.optimal.strategyfile import check_strategy, read_strategy, write_strategy
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.safeio import check_output_file
+
+if TYPE_CHECKING:  # pragma: no cover - types only
+    from zeckenum.cluster.batch import BatchSpec
 
 
 def _table(rows: list[tuple[str, str]]) -> str:
@@ -97,7 +101,8 @@ def solve_table(res: SolveResult, strategy_info: dict | None = None) -> str:
 @max_memory_option
 def solve_command(n: int, rules_name: str, players: int, strategy_path: str | None,
                   as_json: bool, workers: int | None, scheduler: str | None,
-                  checkpoint_dir: str | None, shards: int | None, threads: int | None,
+                  cluster: BatchSpec | None, checkpoint_dir: str | None,
+                  shards: int | None, threads: int | None,
                   progress: bool | None, max_memory: int | None) -> None:
     """Who wins the game for N under optimal play (the last player to move wins).
 
@@ -112,13 +117,13 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
     rules = get_rules(rules_name)
     info = None
     lost: OutputError | None = None
-    chained = workers or scheduler or checkpoint_dir or shards
+    chained = workers or scheduler or cluster or checkpoint_dir or shards
     if strategy_path is not None:
         if players != 2:
             raise InputError("--strategy is defined for two players only")
         if chained or progress:
             raise InputError("--strategy runs in-process; it does not take --workers, "
-                             "--scheduler, --checkpoint, --shards or --progress")
+                             "--scheduler, --cluster, --checkpoint, --shards or --progress")
         check_output_file(strategy_path, "strategy file")
         strat, res = winning_strategy(n, rules, max_memory=max_memory, threads=threads)
         try:
@@ -130,7 +135,7 @@ def solve_command(n: int, rules_name: str, players: int, strategy_path: str | No
         res = api.solve(n, rules, players, max_memory=max_memory,
                         progress=resolve_progress(progress), workers=workers,
                         scheduler=scheduler, checkpoint=checkpoint_dir, shards=shards,
-                        threads=threads)
+                        threads=threads, cluster=cluster)
     if as_json:
         out = res.to_dict()
         if info is not None:

@@ -56,7 +56,8 @@ _plan_workers = "Workers the run would use."
                  checkpoint="Keep finished shards here; a rerun resumes from them.")
 @progress_option()
 @max_memory_option
-def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, progress,  # noqa: ANN001
+def table_command(lo, hi, what, out, rules, workers, scheduler, cluster, checkpoint_dir,  # noqa: ANN001
+                  progress,  # noqa: ANN001
                   max_memory) -> None:  # noqa: ANN001
     """Publish exact tables for every n from --from to --to into a directory.
 
@@ -72,7 +73,7 @@ def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, 
     """
     built = api.build_table(lo, hi, what, out, rules, workers=workers, scheduler=scheduler,
                             checkpoint=checkpoint_dir, progress=resolve_progress(progress),
-                            max_memory=max_memory)
+                            max_memory=max_memory, cluster=cluster)
     click.echo(f"zeckenum table: n={lo}..{hi} ({', '.join(built.kinds)}) -> {out}: "
                f"{plural(len(built.manifest['files']), 'file')} + manifest.json")
 
@@ -85,7 +86,7 @@ def table_command(lo, hi, what, out, rules, workers, scheduler, checkpoint_dir, 
               help="Seed of the sample, to repeat a run (default: a fresh one, printed).")
 @click.option("--full", is_flag=True, help="Recompute every n of the table.")
 @backend_options(workers=_backend_help["workers"], scheduler=_backend_help["scheduler"])
-def verify_command(folder, sample, seed, full, workers, scheduler) -> None:  # noqa: ANN001
+def verify_command(folder, sample, seed, full, workers, scheduler, cluster) -> None:  # noqa: ANN001
     """Check a published table: checksums, file list, row invariants, and recomputed rows.
 
     \b
@@ -97,7 +98,7 @@ def verify_command(folder, sample, seed, full, workers, scheduler) -> None:  # n
     Exit 0: the table passed; 5: a check failed; 2: not a readable table (one line).
     """
     rep = api.verify_table(folder, sample, seed, full=full, workers=workers,
-                           scheduler=scheduler).report
+                           scheduler=scheduler, cluster=cluster).report
     ns = ", ".join(str(n) for n in rep["recomputed"]) or "none"
     lo, hi = rep["n_range"]
     how = "--full" if rep["full"] else f"--seed {rep['seed']}"
