@@ -212,8 +212,13 @@ class Pool:
         return max(1, len(self.workers))
 
     def state_note(self) -> str:
-        """A short note on the cluster's jobs for progress and stall messages ("" if none)."""
+        """A short note on the cluster's jobs for progress and stall messages ("" if none).
+        Batch pools also replace lost jobs when asked (`BatchPool`)."""
         return ""
+
+    def run_stats(self) -> dict:
+        """What a result's stats add about the backend (batch jobs: the request, jobs lost)."""
+        return {}
 
     @property
     def workers(self) -> list[str]:
@@ -447,6 +452,11 @@ class BatchPool(DaskPool):
     def live_workers(self) -> int:
         self.state_note()  # replaces lost jobs while the driver waits
         return super().live_workers()
+
+    def run_stats(self) -> dict:
+        self.state_note()
+        req = {k: v for k, v in self.request.items() if k != "from"}
+        return {"job_request": req, "jobs_lost": self.watch.lost}
 
 
 def open_batch(spec, warm: tuple[str, ...]) -> Iterator[BatchPool]:  # noqa: ANN001

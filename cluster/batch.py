@@ -48,6 +48,9 @@ LSFCluster)."""
 _CLASSES = {"slurm": "SLURMCluster", "pbs": "PBSCluster", "sge": "SGECluster",
             "lsf": "LSFCluster"}
 
+JOB_NAME = "zeckenum-worker"
+"""The batch jobs' name (unless `jobqueue.<kind>.name` sets another than dask-jobqueue's
+default): `scancel --name zeckenum-worker` cancels a killed client's jobs."""
 MAX_JOBS = 4096
 MAX_JOB_CORES = 1024
 JOB_OVERHEAD = 256 * 2**20
@@ -260,15 +263,13 @@ def cluster_kwargs(req: dict, env: dict[str, str | None] | None = None) -> dict:
         "processes": req["processes"],
         "memory": f"{req['memory_bytes'] // 2**20}MiB",
         "walltime": req["walltime"],
-        "name": "zeckenum-worker",
     }
+    name = _config(req["kind"], "name")
+    kw["job_name"] = JOB_NAME if name in (None, "", "dask-worker") else name
     if req.get("queue"):
         kw["queue"] = req["queue"]
-    if req.get("account"):
-        if req["kind"] == "sge":
-            kw["project"] = req["account"]
-        else:
-            kw["account"] = req["account"]
+    if req.get("account"):  # SGE and LSF call it a project
+        kw["project" if req["kind"] in ("sge", "lsf") else "account"] = req["account"]
     if req["kind"] == "sge":
         # SGE takes memory as a resource request; dask-jobqueue leaves it to resource_spec
         configured = _config("sge", "resource-spec")

@@ -266,9 +266,10 @@ class ShardDriver:
             if self.hints and time.monotonic() - looked >= watch.period:
                 self.resubmit_orphans()
                 looked = time.monotonic()
-            if self.bar is not None and time.monotonic() - noted >= watch.period:
-                note = self.pool.state_note()  # batch jobs running / pending
-                if note:
+            if time.monotonic() - noted >= watch.period:
+                # batch jobs: running / pending shown, lost ones replaced (`state_note`)
+                note = self.pool.state_note()
+                if note and self.bar is not None:
                     self.bar.set_postfix_str(note)
                 noted = time.monotonic()
             if fut is None:  # nothing finished for a while: is anybody still working?
@@ -462,6 +463,7 @@ class ShardDriver:
             "shards_reused": job.reused,
             "shards_rejected": job.rejected,
             **self.kind_of(job).extra_stats(job.facts),
+            **self.pool.run_stats(),
         }
         residues = np.concatenate(job.residues, axis=0)
         self.results[job.n] = self.kind_of(job).assemble(job.facts, job.plan, residues, stats)
