@@ -281,7 +281,9 @@ def cluster_kwargs(req: dict, env: dict[str, str | None] | None = None) -> dict:
                         else f"export {key}={shlex.quote(str(value))}")
     kw["job_script_prologue"] = prologue
     options = dict(_config(req["kind"], "scheduler-options") or {})
-    options.setdefault("dashboard_address", None)
+    if "dashboard_address" not in options:  # no dashboard unless configured (and the
+        options["dashboard"] = False          # scheduler's HTTP server on a free port)
+        options["dashboard_address"] = ":0"
     kw["scheduler_options"] = options
     return kw
 
@@ -294,25 +296,62 @@ def make_cluster(req: dict, env: dict[str, str | None] | None = None):  # noqa: 
     except ImportError:
         raise InputError("--cluster needs dask-jobqueue (pip install dask-jobqueue)") from None
     cls = getattr(dask_jobqueue, _CLASSES[req["kind"]])
+    refused: list[tuple[str, str]] = []
     try:
-        return cls(**cluster_kwargs(req, env))
+        cluster = cls(job_cls=_recording_job(cls.job_cls, refused), **cluster_kwargs(req, env))
     except (ValueError, TypeError) as exc:
         raise InputError(f"cannot set up the {req['kind']} cluster: {exc}") from None
+    cluster.zeckenum_refused = refused
+    return cluster
+
+
+def submit_error(text: str) -> str:
+    """The batch system's own line from a failed submission (dask-jobqueue's RuntimeError
+    quotes the command's stdout and stderr): the first line of its stderr, else the last
+    line of the message; at most 200 characters."""
+    _, sep, err = text.partition("stderr:")
+    lines = [x.strip() for x in (err if sep else text).splitlines() if x.strip()]
+    if not lines:
+        lines = [x.strip() for x in text.splitlines() if x.strip()] or ["(no message)"]
+    return (lines[0] if sep else lines[-1])[:200]
+
+
+def _recording_job(base: type, refused: list[tuple[str, str]]) -> type:
+    """A subclass of dask-jobqueue's job class whose `start` records a submission the
+    batch system refused ((job name, its error line) in `refused`) instead of raising it
+    into the cluster's event loop (where it only printed a traceback and the run waited
+    for a job that did not exist).  Such a job has no id (nothing to cancel) and no worker;
+    `wait_for_first_worker` and `JobWatch` report it."""
+    from distributed.deploy.spec import ProcessInterface
+
+    async def start(self) -> None:  # noqa: ANN001
+        try:
+            await base.start(self)
+        except Exception as exc:  # noqa: BLE001 - the submit command failed
+            self.job_id = None
+            refused.append((str(self.name), submit_error(str(exc))))
+            await ProcessInterface.start(self)  # "running" as far as the cluster goes
+
+    return type(base.__name__, (base,), {"start": start, "__module__": __name__})
 
 
 @dataclass
 class JobStates:
     """Jobs of a batch cluster now: submitted and not lost, running (a worker of theirs
-    has joined), pending (the rest), lost (ended after running; replaced)."""
+    has joined), pending (the rest), lost (ended after running; replaced), and the error
+    line of the last submission the batch system refused ("" if none)."""
 
     submitted: int = 0
     running: int = 0
     pending: int = 0
     lost: int = 0
+    refused: str = ""
 
     def note(self) -> str:
         text = f"jobs: {self.running} running, {self.pending} pending"
-        return text + (f", {self.lost} lost and replaced" if self.lost else "")
+        text += f", {self.lost} lost and replaced" if self.lost else ""
+        return text + (f"; the batch system refused a job: {self.refused}"
+                       if self.refused else "")
 
 
 class JobWatch:
@@ -338,9 +377,11 @@ class JobWatch:
 
     def look(self) -> JobStates:
         cluster = self.cluster
-        jobs = [str(j) for j in list(cluster.worker_spec)]
+        refused = list(getattr(cluster, "zeckenum_refused", []))
+        failed = {name for name, _ in refused}
+        jobs = [str(j) for j in list(cluster.worker_spec) if str(j) not in failed]
         names = self._names()
-        states = JobStates(lost=self.lost)
+        states = JobStates(lost=self.lost, refused=refused[-1][1] if refused else "")
         gone: list[str] = []
         for job in jobs:
             alive = any(n == job or n.startswith(job + "-") for n in names)
@@ -383,6 +424,9 @@ def wait_for_first_worker(client, watch: JobWatch, timeout: float, kind: str,  #
             watch.look()
             return
         states = watch.look()
+        if states.refused and not states.pending:
+            raise ClusterStalled(f"the batch system refused the {kind} job: {states.refused}; "
+                                 "nothing was computed")
         waited = time.monotonic() - t0
         if waited >= timeout:
             raise ClusterStalled(

@@ -349,3 +349,17 @@ def test_pending_timeout_in_process_api(slurm) -> None:  # noqa: ANN001
             pytest.raises(ClusterStalled, match="no slurm job started"):
         zeckenum.count(25, cluster=BatchSpec("slurm", memory=GIB // 2, pending_timeout=5))
     assert not _our_jobs("PD,R,CG")
+
+
+def test_refused_submission_is_one_line(slurm, tmp_path) -> None:  # noqa: ANN001
+    # sbatch refuses a partition that does not exist: its own error line, exit 7, at once
+    r = subprocess.run(
+        [sys.executable, "-m", "zeckenum", "count", "20", "--cluster", "slurm", "--queue",
+         "nosuchpartition", "--job-memory", "512M", "--pending-timeout", "60",
+         "--no-progress"],
+        capture_output=True, text=True, cwd=tmp_path, env=_env(), timeout=120)
+    assert r.returncode == 7
+    assert r.stderr.strip().splitlines() == [
+        r.stderr.strip().splitlines()[-1]]  # one line, no traceback or log
+    assert "refused the slurm job: sbatch: error:" in r.stderr
+    assert "nosuchpartition" in r.stderr
