@@ -358,15 +358,17 @@ class JobWatch:
     """Tracks the jobs of a dask-jobqueue cluster and replaces the lost ones.
 
     Invariant: a job name is in `seen` once a worker of it has joined; a seen job with no
-    worker left is lost (its batch job ended: walltime, cancelled, node down), and `look`
-    removes it from the cluster's plan, so that adaptive scaling (minimum = the least
-    jobs) submits a new job.  Workers of job J are named J or J-<i> (dask-jobqueue).
+    worker left is lost (its batch job ended: walltime, cancelled, node down), counted
+    once (`dropped`), and `look` removes it from the cluster's plan, so that adaptive
+    scaling (minimum = the least jobs) submits a new job under a new name.  Workers of
+    job J are named J or J-<i> (dask-jobqueue).
     """
 
     def __init__(self, cluster, client) -> None:  # noqa: ANN001
         self.cluster = cluster
         self.client = client
         self.seen: set[str] = set()
+        self.dropped: set[str] = set()
         self.lost = 0
         self.first_worker: float | None = None
         self.t0 = time.monotonic()
@@ -390,11 +392,14 @@ class JobWatch:
                 states.running += 1
                 if self.first_worker is None:
                     self.first_worker = time.monotonic()
+            elif job in self.dropped:
+                continue  # lost, being removed from the plan
             elif job in self.seen:
                 gone.append(job)
             else:
                 states.pending += 1
         if gone:
+            self.dropped.update(gone)
             self.lost += len(gone)
             states.lost = self.lost
             cluster.loop.add_callback(_drop_jobs, cluster, gone)
@@ -412,6 +417,12 @@ def _drop_jobs(cluster, names: list[str]) -> None:  # noqa: ANN001
         job = cluster.workers.pop(name, None)
         if job is not None:
             cluster._futures.add(asyncio.ensure_future(job.close()))
+        # the replacement must get a new name: SpecCluster takes the first unused number,
+        # and a job reusing a lost job's name was cancelled by Dask's delayed clean-up of
+        # the lost one (`SpecCluster._update_worker_status`)
+        m = re.search(r"-(\d+)$", name)
+        if m and isinstance(getattr(cluster, "_i", None), int):
+            cluster._i = max(cluster._i, int(m.group(1)) + 1)
 
 
 def wait_for_first_worker(client, watch: JobWatch, timeout: float, kind: str,  # noqa: ANN001

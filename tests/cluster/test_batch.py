@@ -363,3 +363,33 @@ def test_refused_submission_is_one_line(slurm, tmp_path) -> None:  # noqa: ANN00
         r.stderr.strip().splitlines()[-1]]  # one line, no traceback or log
     assert "refused the slurm job: sbatch: error:" in r.stderr
     assert "nosuchpartition" in r.stderr
+
+
+def test_watchdog_stops_when_lost_jobs_cannot_be_replaced(slurm, tmp_path) -> None:  # noqa: ANN001
+    # the only job is cancelled mid-run while the partition is down, so its replacement
+    # stays pending: the watchdog stops the run after the stall timeout (exit 7) naming
+    # the jobs, and the checkpoint keeps what was finished
+    part = subprocess.run(["sinfo", "-h", "-o", "%R"], capture_output=True, text=True,
+                          check=True).stdout.split()[0]
+    done: list[int] = []
+
+    def cancel_all(n: int, i: int) -> None:
+        done.append(i)
+        if len(done) == 3:
+            subprocess.run(["scontrol", "update", f"PartitionName={part}", "State=DOWN"],
+                           check=True)
+            subprocess.run(["scancel", "--name", "zeckenum-worker"], check=True)
+
+    try:
+        with pytest.raises(ClusterStalled, match=r"jobs: 0 running, 1 pending, 1 lost"):
+            run_count(120, scheduler=BatchSpec("slurm", jobs=1, memory=GIB, walltime=600,
+                                               pending_timeout=120),
+                      points_per_shard=8, checkpoint_dir=tmp_path / "ckpt", stall_timeout=10,
+                      on_shard=cancel_all)
+    finally:
+        subprocess.run(["scontrol", "update", f"PartitionName={part}", "State=UP"],
+                       check=True)
+    assert len(done) >= 3
+    manifest = (tmp_path / "ckpt" / "manifest.json").read_text()
+    assert manifest.count("sha256") >= 3  # the finished shards are in the checkpoint
+    assert not _our_jobs("PD,R,CG")
