@@ -308,6 +308,13 @@ class Watchdog:
         self.timeout = float(timeout)
         self.kept = kept
         self.last = time.monotonic()
+        self.bar = None  # a tqdm bar whose postfix shows the batch jobs (`Pool.state_note`)
+
+    def _note(self) -> None:
+        if self.bar is not None:
+            note = self.pool.state_note()
+            if note:
+                self.bar.set_postfix_str(note)
 
     @property
     def period(self) -> float:
@@ -316,8 +323,10 @@ class Watchdog:
 
     def progress(self) -> None:
         self.last = time.monotonic()
+        self._note()
 
     def idle(self) -> None:
+        self._note()
         now = time.monotonic()
         if self.pool.live_workers() > 0:
             self.last = now
