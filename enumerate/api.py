@@ -72,11 +72,15 @@ def _where(workers: int | None, scheduler: str | None, cluster: str | BatchSpec 
 
 
 def _forecast(kind: str, n: int, rules: str | RuleSet, players: int = 2,
-              model: str = "moves") -> Callable[[], int]:
-    """The forecast bytes per worker of a sharded run of n (`cluster.batch.run_forecast`),
-    computed only when called."""
+              model: str = "moves", max_memory: int | None = None) -> Callable[[], int]:
+    """The bytes per worker of a sharded run of n: `max_memory` when given (it is the
+    limit of each worker), else the forecast (`cluster.batch.run_forecast`), computed
+    only when called."""
     def forecast() -> int:
         from zeckenum.cluster.batch import run_forecast
+
+        if max_memory is not None:
+            return max_memory
 
         return run_forecast(kind, n, rules, players, model)
 
@@ -108,7 +112,8 @@ def count(
     if _sharded(workers, scheduler, checkpoint, cluster):
         from zeckenum.cluster.run import run_count
 
-        scheduler = _where(workers, scheduler, cluster, _forecast("count", n, rules))
+        scheduler = _where(workers, scheduler, cluster,
+                           _forecast("count", n, rules, max_memory=max_memory))
         return run_count(n, rules, workers=workers, scheduler=scheduler,
                          checkpoint_dir=checkpoint, progress=progress,
                          prime_offset=prime_offset, threads=threads, max_memory=max_memory,
@@ -157,7 +162,7 @@ def random_play(
         from zeckenum.cluster.run import run_random
 
         scheduler = _where(workers, scheduler, cluster,
-                           _forecast("random", n, rules, players, model))
+                           _forecast("random", n, rules, players, model, max_memory))
         return run_random(n, rules, players, model, winners_only=winners_only,
                           workers=workers, scheduler=scheduler, checkpoint_dir=checkpoint,
                           progress=progress, prime_offset=prime_offset, threads=threads,
@@ -261,7 +266,8 @@ def solve(
             raise InputError("--threads runs the in-process solve; a chain of level ranges "
                              "(--workers, --scheduler, --cluster, --checkpoint, --shards) "
                              "runs each range on one thread")
-        scheduler = _where(workers, scheduler, cluster, _forecast("solve", n, rs, players))
+        scheduler = _where(workers, scheduler, cluster,
+                           _forecast("solve", n, rs, players, max_memory=max_memory))
         from zeckenum.cluster.solve_chain import run_solve
         from zeckenum.core.memory import resolve_limit
         from zeckenum.optimal.solve import needs_reach, solve_space
@@ -389,7 +395,8 @@ def build_table(
     if hi < lo:
         raise InputError(f"--to must be at least --from, got --from {lo} --to {hi}")
     scheduler = _where(workers, scheduler, cluster,
-                       lambda: max(_forecast(k, hi, rules)() for k in kinds))
+                       lambda: max(_forecast(k, hi, rules, max_memory=max_memory)()
+                                   for k in kinds))
     if max_memory is not None or scheduler is None:
         _refuse_table(hi, kinds, rules, max_memory)
     manifest = build(lo, hi, kinds, out, rules, workers=workers, scheduler=scheduler,

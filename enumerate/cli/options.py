@@ -275,7 +275,8 @@ def cluster_options(func: Callable[..., Any]) -> Callable[..., Any]:
                      help="With --cluster: cores per job, one worker process each."),
         click.option("--job-memory", type=MemorySize(), default=None, metavar="SIZE",
                      help="With --cluster: memory per job (default: the Dask config, else "
-                          "the run's forecast per worker x cores plus 256M each)."),
+                          "--max-memory, or the run's forecast, per worker x cores plus "
+                          "256M each)."),
         click.option("--walltime", type=Walltime(), default=None,
                      help="With --cluster: walltime per job, HH:MM:SS or e.g. 2h."),
         click.option("--queue", default=None, metavar="NAME",

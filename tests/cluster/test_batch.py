@@ -127,6 +127,28 @@ def test_job_request_from_dask_config_and_forecast() -> None:
             job_request(BatchSpec("pbs"))
 
 
+def test_api_fills_memory_from_forecast_only_when_needed() -> None:
+    import dask
+    from zeckenum.api import _where
+
+    calls: list[int] = []
+
+    def forecast() -> int:
+        calls.append(1)
+        return 300 * 2**20
+
+    with dask.config.set({"jobqueue.slurm.memory": None}):
+        spec = _where(None, None, "slurm", forecast)
+        assert spec.forecast_per_worker == 300 * 2**20 and calls == [1]
+        assert job_request(spec)["memory_bytes"] == 556 * 2**20  # + 256 MiB, one core
+    with dask.config.set({"jobqueue.slurm.memory": "2GB"}):
+        spec = _where(None, None, "slurm", forecast)
+        assert spec.forecast_per_worker is None and calls == [1]  # not computed
+    with pytest.raises(InputError, match="one of --workers, --scheduler and --cluster"):
+        _where(2, None, "slurm")
+    assert _where(None, "tcp://127.0.0.1:8786", None) == "tcp://127.0.0.1:8786"
+
+
 def test_bad_batch_input() -> None:
     assert parse_jobs("3") == (3, 3) and parse_jobs("1:8") == (1, 8)
     for bad in ("0", "5:2", "x", "1:2:3", ""):
