@@ -39,6 +39,7 @@ import time
 from dataclasses import asdict, dataclass, replace
 
 from zeckenum.core.memory import human, parse_size
+from zeckenum.core.text import plural
 from zeckenum.errors import ClusterStalled, InputError
 
 BATCH_KINDS = ("slurm", "pbs", "sge", "lsf")
@@ -242,7 +243,7 @@ def format_request(req: dict) -> str:
     """One line of a job request, as `plan` prints it."""
     jobs = (str(req["jobs_min"]) if req["jobs_min"] == req["jobs_max"]
             else f"{req['jobs_min']}..{req['jobs_max']} (adaptive)")
-    parts = [f"{req['kind']} jobs {jobs}", f"{req['cores']} cores",
+    parts = [f"{req['kind']} jobs {jobs}", plural(req["cores"], "core") + " each",
              f"{req['memory']} ({req['memory_per_worker']} per worker, "
              f"{req['from']['memory']})"]
     if req.get("walltime"):
