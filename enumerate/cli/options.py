@@ -200,8 +200,9 @@ def checkpoint_option(help_text: str) -> Decorator:
 
 
 BATCH_KINDS = ("slurm", "pbs", "sge", "lsf")
-"""`--cluster` kinds (`zeckenum.cluster.batch.BATCH_KINDS`; repeated here so that the
-command line loads no Dask)."""
+"""`--cluster` kinds: `zeckenum.cluster.batch.BATCH_KINDS`, repeated here because importing
+`zeckenum.cluster` loads the engines (numba) and `--help` must not (a test holds the two
+equal)."""
 
 
 class Walltime(click.ParamType):
@@ -225,7 +226,8 @@ class Walltime(click.ParamType):
 
 
 class JobCount(click.ParamType):
-    """--jobs K (a fixed number of jobs) or MIN:MAX (adaptive), as (least, most)."""
+    """--jobs K (a fixed number of jobs) or MIN:MAX (adaptive), as (least, most); the
+    rule of `zeckenum.cluster.batch.parse_jobs` (MAX_WORKERS = its MAX_JOBS)."""
 
     name = "K|MIN:MAX"
 

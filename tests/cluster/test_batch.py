@@ -160,6 +160,10 @@ def test_bad_batch_input() -> None:
         BatchSpec("slurm", queue="a b; rm")
     with pytest.raises(InputError):
         BatchSpec("slurm", jobs=3, max_jobs=2)
+    from zeckenum.cli import options
+    from zeckenum.cluster import batch
+
+    assert options.BATCH_KINDS == batch.BATCH_KINDS and options.MAX_WORKERS == batch.MAX_JOBS
     assert format_walltime(90, "slurm") == "00:01:30"
     assert format_walltime(90, "lsf") == "00:02"  # rounded up to whole minutes
 
