@@ -18,7 +18,9 @@ and the first-sweep tasks `count_facts_task`, `random_facts_task`), `workercache
 per-worker cache of rebuilt inputs), `kinds` (what each kind of run supplies to the
 driver), `plan` (shard plans), `manifest` (the manifest format shared by shard and chain
 checkpoints), `checkpoint` (atomic shard files + manifest, resume), `backend` (threads /
-LocalCluster / remote scheduler, numba cache slots), `hostcache` (one first sweep per host),
+LocalCluster / remote scheduler / batch jobs, numba cache slots), `batch` (workers as
+SLURM, PBS, SGE or LSF jobs through dask-jobqueue: the job request, lost jobs replaced),
+`hostcache` (one first sweep per host),
 `driver` (`ShardDriver`, the one driver of sharded runs), `run` (`run_count`,
 `run_counts`, `run_random`), `solve_tasks` (the solve twin `layer_classes_task`),
 `solve_chain` (`run_solve`), `predict` (the `plan` command's forecast).  Published tables

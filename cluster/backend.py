@@ -43,10 +43,14 @@ import time
 from collections.abc import Callable, Iterator
 from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from zeckenum.core.checks import thread_count
 from zeckenum.core.jit import cache_base
 from zeckenum.errors import ClusterStalled, InputError
+
+if TYPE_CHECKING:  # pragma: no cover - types only
+    from zeckenum.cluster.batch import BatchSpec
 
 log = logging.getLogger("zeckenum.cluster")
 
@@ -136,6 +140,22 @@ def setup(self, worker):
         else:
             slot = os.path.join(base, "pid-%d" % os.getpid())
     os.makedirs(slot, exist_ok=True)
+    seed = getattr(self, "seed", None)
+    if seed and os.path.isdir(seed):  # the client's compiled kernels, where visible
+        import shutil
+
+        try:
+            for root, _, files in os.walk(seed):
+                dst = os.path.join(slot, os.path.relpath(root, seed))
+                os.makedirs(dst, exist_ok=True)
+                for f in files:
+                    if f.endswith((".nbi", ".nbc")) and not os.path.exists(
+                            os.path.join(dst, f)):
+                        tmp = os.path.join(dst, ".%s.%d.tmp" % (f, os.getpid()))
+                        shutil.copyfile(os.path.join(root, f), tmp)
+                        os.replace(tmp, os.path.join(dst, f))
+        except OSError:
+            pass  # seeding is an optimisation only: the worker compiles
     os.environ["NUMBA_CACHE_DIR"] = slot
     if "numba" in sys.modules:
         from numba.core import config
@@ -144,8 +164,11 @@ def setup(self, worker):
 """
 
 
-def _make_plugin():  # noqa: ANN202
+def _make_plugin(seed: str | None = None):  # noqa: ANN202
     """The `NumbaCacheSlot` worker plugin: a slot folder of its own for each worker process.
+
+    `seed`: a folder laid out like a worker's NUMBA_CACHE_DIR (`seed_slot`) whose compiled
+    kernels the plugin copies into the slot, when the worker can see it (batch jobs).
 
     Its code must reach the worker without importing zeckenum (importing any part of the
     package compiles or loads the kernels, fixing their cache folder).  So the plugin is
@@ -162,7 +185,9 @@ def _make_plugin():  # noqa: ANN202
         "__module__": module, "name": "zeckenum-numba-cache-slot", "setup": ns["setup"],
         "__doc__": "Give each worker process its own numba cache folder.",
     })
-    return cls()
+    plugin = cls()
+    plugin.seed = seed
+    return plugin
 
 
 class Pool:
@@ -185,6 +210,15 @@ class Pool:
     def live_workers(self) -> int:
         """Workers able to run tasks now (a pool in this process always has its threads)."""
         return max(1, len(self.workers))
+
+    def state_note(self) -> str:
+        """A short note on the cluster's jobs for progress and stall messages ("" if none).
+        Batch pools also replace lost jobs when asked (`BatchPool`)."""
+        return ""
+
+    def run_stats(self) -> dict:
+        """What a result's stats add about the backend (batch jobs: the request, jobs lost)."""
+        return {}
 
     @property
     def workers(self) -> list[str]:
@@ -274,6 +308,13 @@ class Watchdog:
         self.timeout = float(timeout)
         self.kept = kept
         self.last = time.monotonic()
+        self.bar = None  # a tqdm bar whose postfix shows the batch jobs (`Pool.state_note`)
+
+    def _note(self) -> None:
+        if self.bar is not None:
+            note = self.pool.state_note()
+            if note:
+                self.bar.set_postfix_str(note)
 
     @property
     def period(self) -> float:
@@ -282,17 +323,21 @@ class Watchdog:
 
     def progress(self) -> None:
         self.last = time.monotonic()
+        self._note()
 
     def idle(self) -> None:
+        self._note()
         now = time.monotonic()
         if self.pool.live_workers() > 0:
             self.last = now
             return
         waited = now - self.last
         if waited >= self.timeout:
+            note = self.pool.state_note()
             raise ClusterStalled(
                 f"the cluster stalled: no worker and no finished task for {waited:.0f} s "
-                f"(stall timeout {self.timeout:g} s); {self.kept}")
+                f"(stall timeout {self.timeout:g} s{'; ' + note if note else ''}); "
+                f"{self.kept}")
 
     def result(self, fut: Future):  # noqa: ANN201
         """`fut.result()`, waiting in periods (ClusterStalled if the cluster stalls).
@@ -390,6 +435,70 @@ class DaskPool(Pool):
     @property
     def workers(self) -> list[str]:
         return sorted(self.client.scheduler_info(n_workers=-1)["workers"])
+
+
+class BatchPool(DaskPool):
+    """Shards on the workers of batch jobs (`batch`): a DaskPool whose `state_note` tells
+    the jobs running and pending, and which drops lost jobs from the cluster's plan so
+    that adaptive scaling replaces them (`batch.JobWatch`, looked at on every call)."""
+
+    kind = "batch"
+
+    def __init__(self, client, cluster, request: dict) -> None:  # noqa: ANN001
+        super().__init__(client)
+        from zeckenum.cluster.batch import JobWatch
+
+        self.cluster = cluster
+        self.request = request
+        self.watch = JobWatch(cluster, client)
+
+    def state_note(self) -> str:
+        try:
+            return self.watch.look().note()
+        except Exception:  # noqa: BLE001 - a note only: the cluster may be closing
+            return ""
+
+    def live_workers(self) -> int:
+        self.state_note()  # replaces lost jobs while the driver waits
+        return super().live_workers()
+
+    def run_stats(self) -> dict:
+        self.state_note()
+        req = {k: v for k, v in self.request.items() if k != "from"}
+        return {"job_request": req, "jobs_lost": self.watch.lost}
+
+
+def open_batch(spec, warm: tuple[str, ...]) -> Iterator[BatchPool]:  # noqa: ANN001
+    """A BatchPool on a new dask-jobqueue cluster of `spec` (`batch.BatchSpec`): jobs
+    submitted adaptively between its least and most, the client's kernels copied to
+    `<cache base>/seed` for the workers, and the jobs' environment set (ZECKENUM_NUMBA_CACHE
+    of this process); waits for the first worker (`batch.wait_for_first_worker`, the
+    pending timeout); cancels every job and closes the cluster on exit, even on error."""
+    from zeckenum.cluster.batch import job_request, make_cluster, wait_for_first_worker
+
+    request = job_request(spec)
+    seed = cache_base() / "seed"
+    seed_slot(seed)
+    # one cache slot per worker under this base (NUMBA_CACHE_DIR, if this process has one,
+    # must not reach the jobs: they would all share it)
+    env = {"ZECKENUM_NUMBA_CACHE": str(cache_base()), "NUMBA_CACHE_DIR": None}
+    cluster = make_cluster(request, env)
+    client = None
+    try:
+        from distributed import Client
+
+        cluster.adapt(minimum_jobs=request["jobs_min"], maximum_jobs=request["jobs_max"])
+        client = Client(cluster, set_as_default=False, timeout=15)
+        client.register_plugin(_make_plugin(str(seed)))
+        pool = BatchPool(client, cluster, request)
+        timeout = spec.pending_timeout or stall_seconds(None)
+        wait_for_first_worker(client, pool.watch, timeout, spec.kind)
+        client.run(warm_worker, tuple(warm))
+        yield pool
+    finally:
+        if client is not None:
+            client.close()
+        cluster.close()
 
 
 WORKER_CONFIG = {"distributed": {"worker": {"profile": {"enabled": False}}}}
@@ -589,13 +698,24 @@ def connect(address_or_cluster, workers: int | None = None, plugin: bool = True,
 
 @contextlib.contextmanager
 def open_pool(
-    workers: int | None = None, scheduler: str | None = None, threads: int | None = None,
-    warm: tuple[str, ...] = ("count",),
+    workers: int | None = None, scheduler: str | BatchSpec | None = None,
+    threads: int | None = None, warm: tuple[str, ...] = ("count",),
 ) -> Iterator[Pool]:
     """A `Pool` for the requested backend, closed (cluster included) on exit.
 
+    scheduler: the address of a running Dask scheduler, or a `batch.BatchSpec`: workers
+    as batch jobs started (and cancelled) for the run (`open_batch`).
+
     warm: the kinds of run ("count", "random") whose kernels are compiled here first (and
     copied into the new workers' cache slots) and loaded on every worker."""
+    from zeckenum.cluster.batch import BatchSpec
+
+    if isinstance(scheduler, BatchSpec):
+        if workers is not None:
+            raise InputError("give either --workers or --cluster, not both")
+        warm_up(tuple(warm))
+        yield from open_batch(scheduler, warm)
+        return
     if workers is not None and scheduler is not None:
         raise InputError("give either --workers or --scheduler, not both")
     if workers is not None and workers < 1:

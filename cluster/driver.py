@@ -260,12 +260,18 @@ class ShardDriver:
         stopping with `ClusterStalled` when the cluster stalls (`backend.Watchdog`)."""
         watch = self.watch
         assert watch is not None
-        looked = time.monotonic()
+        looked = noted = time.monotonic()
         while self.done.pending:
             fut = self.done.next(watch.period)
             if self.hints and time.monotonic() - looked >= watch.period:
                 self.resubmit_orphans()
                 looked = time.monotonic()
+            if time.monotonic() - noted >= watch.period:
+                # batch jobs: running / pending shown, lost ones replaced (`state_note`)
+                note = self.pool.state_note()
+                if note and self.bar is not None:
+                    self.bar.set_postfix_str(note)
+                noted = time.monotonic()
             if fut is None:  # nothing finished for a while: is anybody still working?
                 watch.idle()
                 continue
@@ -457,6 +463,7 @@ class ShardDriver:
             "shards_reused": job.reused,
             "shards_rejected": job.rejected,
             **self.kind_of(job).extra_stats(job.facts),
+            **self.pool.run_stats(),
         }
         residues = np.concatenate(job.residues, axis=0)
         self.results[job.n] = self.kind_of(job).assemble(job.facts, job.plan, residues, stats)

@@ -19,6 +19,7 @@ from collections.abc import Callable, Iterable
 from pathlib import Path
 
 from zeckenum.cluster.backend import Pool, ThreadPool, open_pool, stall_seconds
+from zeckenum.cluster.batch import BatchSpec
 from zeckenum.cluster.driver import ShardDriver
 from zeckenum.cluster.kinds import ShardKind, count_kind, points_kind, random_kind
 from zeckenum.cluster.plan import check_points_per_shard
@@ -116,7 +117,7 @@ def run_counts(
     rules: str | RuleSet = "standard",
     *,
     workers: int | None = None,
-    scheduler: str | None = None,
+    scheduler: str | BatchSpec | None = None,
     checkpoint_dir: str | Path | None = None,
     progress: bool = False,
     prime_offset: int = 0,
@@ -131,7 +132,8 @@ def run_counts(
     """Exact counts for every n in `ns` on the chosen backend ({n: CountResult}).
 
     Backends: in-process threads (default), `workers=K` (a LocalCluster started and closed
-    here), `scheduler=ADDRESS` (an existing cluster).  In-process, one n runs at a time
+    here), `scheduler=ADDRESS` (an existing cluster), `scheduler=BatchSpec(...)` (workers
+    as batch jobs submitted and cancelled here, `batch`).  In-process, one n runs at a time
     (its blocks in threads); on a cluster, all (n, block) tasks are in flight at once.
     stall_timeout: seconds with no worker and no finished task before `ClusterStalled`
     (exit 7; None: $ZECKENUM_STALL_TIMEOUT, else 600).
@@ -161,7 +163,7 @@ def run_count(
     rules: str | RuleSet = "standard",
     *,
     workers: int | None = None,
-    scheduler: str | None = None,
+    scheduler: str | BatchSpec | None = None,
     checkpoint_dir: str | Path | None = None,
     progress: bool = False,
     prime_offset: int = 0,
@@ -204,7 +206,7 @@ def run_random(
     *,
     winners_only: bool = False,
     workers: int | None = None,
-    scheduler: str | None = None,
+    scheduler: str | BatchSpec | None = None,
     checkpoint_dir: str | Path | None = None,
     progress: bool = False,
     prime_offset: int = 0,

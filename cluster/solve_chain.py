@@ -44,6 +44,7 @@ from pathlib import Path
 import numpy as np
 from zeckenum import __version__
 from zeckenum.cluster.backend import Watchdog, kept_note, open_pool, stall_seconds
+from zeckenum.cluster.batch import BatchSpec
 from zeckenum.cluster.errors import CheckpointRefused
 from zeckenum.cluster.manifest import (
     ManifestDir,
@@ -292,7 +293,7 @@ def run_solve(
     players: int = 2,
     *,
     workers: int | None = None,
-    scheduler: str | None = None,
+    scheduler: str | BatchSpec | None = None,
     checkpoint_dir: str | Path | None = None,
     shards: int | None = None,
     progress: bool = False,
@@ -342,6 +343,8 @@ def run_solve(
             pool = stack.enter_context(open_pool(workers, scheduler, threads or 1,
                                                  warm=("solve",))) if todo else None
             watch = Watchdog(pool, stall, kept_note(checkpoint_dir)) if todo else None
+            if watch is not None:
+                watch.bar = bar  # batch jobs running / pending beside the ranges
             for i in todo:
                 lo, hi = ranges[i]
                 prev = {} if i == 0 else outputs[i - 1][0]
@@ -364,7 +367,8 @@ def run_solve(
     total["reach_pass"] = needs_reach(ruleset)
     res = solve_result(n, space, players, outputs[-1][0], total, time.perf_counter() - t0)
     res.stats.update({
-        "backend": "dask" if (workers or scheduler) else "in-process",
+        "backend": ("batch" if isinstance(scheduler, BatchSpec)
+                    else "dask" if (workers or scheduler) else "in-process"),
         "shards_total": len(ranges), "shards_computed": computed, "shards_reused": reused,
         "shards_rejected": rejected,
     })

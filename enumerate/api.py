@@ -19,8 +19,9 @@
 
 This module is also the ONE place that chooses where a run goes.  `count`, `random_play`,
 `solve` and `build_table` take `workers` (a local Dask cluster of K processes started and
-closed for the run), `scheduler` (an existing cluster) and `checkpoint` (a folder of
-finished shards a rerun resumes from); with none of them the run stays in this process
+closed for the run), `scheduler` (an existing cluster), `cluster` (workers as batch jobs of
+SLURM, PBS, SGE or LSF through dask-jobqueue, `zeckenum.cluster.batch`) and `checkpoint` (a
+folder of finished shards a rerun resumes from); with none of them the run stays in this process
 (`random_play` with `progress=True` and `solve` with `shards` use the sharded drivers
 in-process, which are the ones that show progress by shard).  The engines never import
 `zeckenum.cluster`; only this module (and what it calls: tables, the cluster drivers) does.
@@ -40,7 +41,7 @@ neither numba, Dask nor matplotlib; the first call pays for what it uses.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -49,6 +50,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
     from zeckenum.analysis.extremal import GamesReport
     from zeckenum.analysis.movestats import MoveStats
     from zeckenum.analysis.rundata import RunData
+    from zeckenum.cluster.batch import BatchSpec
     from zeckenum.counting.result import CountResult
     from zeckenum.optimal.policy import PolicyReport
     from zeckenum.optimal.solve import SolveResult, SumResult
@@ -107,9 +109,44 @@ def tagged(result, rules: str | RuleSet):  # noqa: ANN001, ANN201 - any result d
     return replace(result, position=format_position(pos))
 
 
-def _sharded(workers: int | None, scheduler: str | None, checkpoint: str | Path | None) -> bool:
+def _sharded(workers: int | None, scheduler: str | None, checkpoint: str | Path | None,
+             cluster: str | BatchSpec | None = None) -> bool:
     """Whether a run leaves the plain in-process engine for a cluster driver."""
-    return bool(workers or scheduler or checkpoint)
+    return bool(workers or scheduler or checkpoint or cluster)
+
+
+def _where(workers: int | None, scheduler: str | None, cluster: str | BatchSpec | None,
+           forecast: Callable[[], int] | None = None) -> str | BatchSpec | None:
+    """What the cluster drivers get as `scheduler`: the address of a running scheduler, a
+    `zeckenum.cluster.batch.BatchSpec` (workers as batch jobs: `cluster` given as a kind
+    such as "slurm" or as a spec; `forecast()`, the run's forecast bytes per worker, sets
+    the memory per job when neither the spec nor the Dask config gives it), or None.
+    InputError when more than one of workers / scheduler / cluster is given."""
+    if cluster is None:
+        return scheduler
+    from zeckenum.cluster.batch import batch_spec, with_forecast
+    from zeckenum.errors import InputError
+
+    if workers is not None or scheduler is not None:
+        raise InputError("give one of --workers, --scheduler and --cluster")
+    spec = batch_spec(cluster)
+    return spec if forecast is None else with_forecast(spec, forecast)
+
+
+def _forecast(kind: str, n: int, rules: str | RuleSet, players: int = 2,
+              model: str = "moves", max_memory: int | None = None) -> Callable[[], int]:
+    """The bytes per worker of a sharded run of n: `max_memory` when given (it is the
+    limit of each worker), else the forecast (`cluster.batch.run_forecast`), computed
+    only when called."""
+    def forecast() -> int:
+        from zeckenum.cluster.batch import run_forecast
+
+        if max_memory is not None:
+            return max_memory
+
+        return run_forecast(kind, n, rules, players, model)
+
+    return forecast
 
 
 def count(
@@ -118,6 +155,7 @@ def count(
     prime_offset: int = 0, max_memory: int | None = None, progress: bool = False,
     workers: int | None = None, scheduler: str | None = None,
     checkpoint: str | Path | None = None, points_per_shard: int | None = None,
+    cluster: str | BatchSpec | None = None,
 ) -> CountResult:
     """Exact census of all games at n (`zeckenum.counting.count.count`), or the same
     result computed shard by shard on a cluster and/or checkpointed
@@ -129,22 +167,30 @@ def count(
     (`zeckenum.counting.points.count_points`: shards of (prime, block of points), the same
     result with more work and less memory per shard), in-process or, with `workers`,
     `scheduler` or `checkpoint`, through the same sharded driver (the same result).
-    With `position` the games start there (module docstring)."""
+    With `position` the games start there (module docstring).
+
+    `cluster`: the workers are batch jobs ("slurm", "pbs", "sge", "lsf", or a
+    `zeckenum.cluster.batch.BatchSpec` with jobs, cores, memory, walltime, queue,
+    account), started and cancelled for the run; what the spec leaves out comes from the
+    Dask config (`jobqueue.<kind>.*`), the memory else from this run's forecast."""
     n, rules = game_at(n, rules, position)
     return tagged(_count(n, rules, threads=threads, prime_offset=prime_offset,
                          max_memory=max_memory, progress=progress, workers=workers,
                          scheduler=scheduler, checkpoint=checkpoint,
-                         points_per_shard=points_per_shard), rules)
+                         points_per_shard=points_per_shard, cluster=cluster), rules)
 
 
 def _count(
     n: int, rules: str | RuleSet, *, threads: int | None, prime_offset: int,
     max_memory: int | None, progress: bool, workers: int | None, scheduler: str | None,
     checkpoint: str | Path | None, points_per_shard: int | None,
+    cluster: str | BatchSpec | None,
 ) -> CountResult:
-    if _sharded(workers, scheduler, checkpoint):
+    if _sharded(workers, scheduler, checkpoint, cluster):
         from zeckenum.cluster.run import run_count
 
+        scheduler = _where(workers, scheduler, cluster,
+                           _forecast("count", n, rules, max_memory=max_memory))
         return run_count(n, rules, workers=workers, scheduler=scheduler,
                          checkpoint_dir=checkpoint, progress=progress,
                          prime_offset=prime_offset, threads=threads, max_memory=max_memory,
@@ -166,7 +212,7 @@ def random_play(
     prime_offset: int = 0, threads: int | None = None,
     max_memory: int | None = None, progress: bool = False, workers: int | None = None,
     scheduler: str | None = None, checkpoint: str | Path | None = None,
-    points_per_shard: int | None = None,
+    points_per_shard: int | None = None, cluster: str | BatchSpec | None = None,
 ) -> RandomResult:
     """Exact random play at n: every length's probability and each player's chance to win
     (`zeckenum.randomplay.exact.random_play`).  With `progress`, `workers`, `scheduler`
@@ -176,36 +222,41 @@ def random_play(
     With `points_per_shard` the law is computed by evaluation points
     (`zeckenum.randomplay.points.random_play_points`: shards of (prime, block of points),
     the same result with other primes, more work and less memory per shard; in-process
-    only for now, `progress` is ignored).  With `position` the games start there."""
+    only for now, `progress` is ignored).  With `position` the games start there.
+    `cluster`: batch jobs, as in `count`."""
     n, rules = game_at(n, rules, position)
     return tagged(_random_play(n, rules, players, model, winners_only=winners_only,
                                prime_offset=prime_offset, threads=threads,
                                max_memory=max_memory, progress=progress, workers=workers,
                                scheduler=scheduler, checkpoint=checkpoint,
-                               points_per_shard=points_per_shard), rules)
+                               points_per_shard=points_per_shard, cluster=cluster),
+                  rules)
 
 
 def _random_play(
     n: int, rules: str | RuleSet, players: int, model: str, *, winners_only: bool,
     prime_offset: int, threads: int | None, max_memory: int | None, progress: bool,
     workers: int | None, scheduler: str | None, checkpoint: str | Path | None,
-    points_per_shard: int | None,
+    points_per_shard: int | None, cluster: str | BatchSpec | None,
 ) -> RandomResult:
     if points_per_shard is not None:
-        if _sharded(workers, scheduler, checkpoint):
+        if _sharded(workers, scheduler, checkpoint, cluster):
             from zeckenum.errors import InputError
 
             raise InputError("--points-per-shard runs in this process only: it cannot be "
-                             "combined with --workers, --scheduler or --checkpoint yet")
+                             "combined with --workers, --scheduler, --cluster or "
+                             "--checkpoint yet")
         from zeckenum.randomplay.points import random_play_points
 
         return random_play_points(n, rules, players, model, winners_only=winners_only,
                                   points_per_shard=points_per_shard,
                                   prime_offset=prime_offset, threads=threads,
                                   max_memory=max_memory)
-    if progress or _sharded(workers, scheduler, checkpoint):
+    if progress or _sharded(workers, scheduler, checkpoint, cluster):
         from zeckenum.cluster.run import run_random
 
+        scheduler = _where(workers, scheduler, cluster,
+                           _forecast("random", n, rules, players, model, max_memory))
         return run_random(n, rules, players, model, winners_only=winners_only,
                           workers=workers, scheduler=scheduler, checkpoint_dir=checkpoint,
                           progress=progress, prime_offset=prime_offset, threads=threads,
@@ -300,6 +351,7 @@ def solve(
     shards: int | None = None, threads: int | None = None, misere: bool = False,
     remoteness: bool = False, grundy: bool = False, export: str | Path | None = None,
     export_fields: str | tuple[str, ...] | None = None,
+    cluster: str | BatchSpec | None = None,
 ) -> SolveResult:
     """Optimal play at n (`zeckenum.optimal.solve.solve`, each large layer on `threads`
     threads, default every core), or the same as a chain of level-range shards
@@ -308,7 +360,8 @@ def solve(
     with it.  A chain on this machine (no `scheduler`) or with `max_memory` is refused up
     front as the in-process solve would be, before any worker starts.  `misere`,
     `remoteness`, `grundy` and `export` (two players; see the engine's docstring) run
-    in-process only: the chain refuses them.  With `position` the game starts there."""
+    in-process only: the chain refuses them.  With `position` the game starts there.
+    `cluster`: batch jobs, as in `count`."""
     from zeckenum.core.checks import check_threads
     from zeckenum.errors import InputError
     from zeckenum.rules.catalogue import get_rules
@@ -319,15 +372,17 @@ def solve(
     valued = [name for name, on in (("--misere", misere), ("--remoteness", remoteness),
                                     ("--grundy", grundy), ("--export", export is not None))
               if on]
-    if _sharded(workers, scheduler, checkpoint) or shards:
+    if _sharded(workers, scheduler, checkpoint, cluster) or shards:
         if valued:
             raise InputError(f"{valued[0]} runs the in-process solve only; a chain of level "
-                             "ranges (--workers, --scheduler, --checkpoint, --shards) keeps "
-                             "one bit per state")
+                             "ranges (--workers, --scheduler, --cluster, --checkpoint, --shards) "
+                             "keeps one bit per state")
         if threads is not None:
             raise InputError("--threads runs the in-process solve; a chain of level ranges "
-                             "(--workers, --scheduler, --checkpoint, --shards) runs each "
-                             "range on one thread")
+                             "(--workers, --scheduler, --cluster, --checkpoint, --shards) "
+                             "runs each range on one thread")
+        scheduler = _where(workers, scheduler, cluster,
+                           _forecast("solve", n, rs, players, max_memory=max_memory))
         from zeckenum.cluster.solve_chain import run_solve
         from zeckenum.core.memory import resolve_limit
         from zeckenum.optimal.solve import needs_reach, solve_space
@@ -483,13 +538,15 @@ def build_table(
     rules: str | RuleSet = "standard", *, position: Position = None,
     workers: int | None = None, scheduler: str | None = None,
     checkpoint: str | Path | None = None, progress: bool = False,
-    max_memory: int | None = None,
+    max_memory: int | None = None, cluster: str | BatchSpec | None = None,
 ) -> TableBuild:
     """Compute and publish exact tables for lo <= n <= hi into `out` (what: comma-separated
     count, solve, random).  On this machine (no `scheduler`) or with `max_memory`, the
     largest n is refused up front when it cannot run.  With `position` (or a rule set
     starting at one) the table has the one row n = the position's value: `lo` and `hi`
-    may be None, and any other n is refused; the manifest records the position."""
+    may be None, and any other n is refused; the manifest records the position.
+    `cluster`: batch jobs, as in `count` (memory from the forecast of the largest n of
+    every kind)."""
     from zeckenum.errors import InputError
     from zeckenum.rules.catalogue import get_rules
     from zeckenum.tables.build import build_table as build
@@ -507,6 +564,9 @@ def build_table(
         raise InputError("give --from and --to, or a start position (--position)")
     if hi < lo:
         raise InputError(f"--to must be at least --from, got --from {lo} --to {hi}")
+    scheduler = _where(workers, scheduler, cluster,
+                       lambda: max(_forecast(k, hi, rules, max_memory=max_memory)()
+                                   for k in kinds))
     if max_memory is not None or scheduler is None:
         _refuse_table(hi, kinds, rules, max_memory)
     manifest = build(lo, hi, kinds, out, rules, workers=workers, scheduler=scheduler,
@@ -524,10 +584,20 @@ def load_table(folder: str | Path) -> Table:
 
 def verify_table(folder: str | Path, sample: int = 3, seed: int | None = None, *,
                  full: bool = False, workers: int | None = None,
-                 scheduler: str | None = None) -> TableCheck:
+                 scheduler: str | None = None,
+                 cluster: str | BatchSpec | None = None) -> TableCheck:
     """Check a published table and recompute `sample` n drawn with `seed` (plus the largest
-    n; every n with `full`); raises TableCheckFailed (exit 5) on any mismatch."""
+    n; every n with `full`); raises TableCheckFailed (exit 5) on any mismatch.  `cluster`:
+    batch jobs, as in `count` (memory from the forecast of the table's largest n)."""
     from zeckenum.tables.verify import verify_table as verify
+
+    if cluster is not None:
+        from zeckenum.tables.format import load_table as load
+
+        table = load(folder)
+        scheduler = _where(workers, scheduler, cluster,
+                           lambda: max(_forecast(k, max(table.ns), table.ruleset)()
+                                       for k in table.kinds))
 
     rep = verify(folder, sample, seed, full=full, workers=workers, scheduler=scheduler)
     return TableCheck(folder=Path(folder), report=rep)

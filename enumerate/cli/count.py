@@ -98,7 +98,7 @@ def check_out_path(out: str) -> Path:
 )
 def count_command(
     n, position, as_json, out, threads, prime_offset, points_per_shard, max_memory, progress, rules,  # noqa: ANN001
-    workers, scheduler, checkpoint_dir,  # noqa: ANN001
+    workers, scheduler, checkpoint_dir, cluster,  # noqa: ANN001
 ) -> None:
     """Count every game started from N (by default: the standard game, N tokens in F1),
     or from --position COUNTS (N is then its value and may be left out).
@@ -117,6 +117,7 @@ def count_command(
       zeckenum count 200 --max-memory 300M
       zeckenum count 180 --workers 2 --checkpoint ckpt180
       zeckenum count --position 3,1,0,2
+      zeckenum count 300 --cluster slurm --jobs 1:20 --job-cores 8 --checkpoint ckpt300
     """
     lost: OutputError | None = None
     out_path = check_out_path(out) if out else None
@@ -124,7 +125,7 @@ def count_command(
     res = api.count(n, rules, threads=threads, prime_offset=prime_offset,
                     max_memory=max_memory, progress=resolve_progress(progress),
                     workers=workers, scheduler=scheduler, checkpoint=checkpoint_dir,
-                    points_per_shard=points_per_shard)
+                    points_per_shard=points_per_shard, cluster=cluster)
     if out_path is not None:
         try:
             deliver_result(out_path, res.file_text(out_path), "the spectrum")

@@ -13,6 +13,7 @@ still fails afterwards puts the strategy in a rescue file it names (exit 6).
 from __future__ import annotations
 
 import json
+from typing import TYPE_CHECKING
 
 import click
 from zeckenum import api
@@ -39,6 +40,9 @@ from zeckenum.optimal.strategyfile import check_strategy, read_strategy, write_s
 from zeckenum.rules.catalogue import get_rules
 from zeckenum.rules.notation import parse_position, shown
 from zeckenum.safeio import check_output_file
+
+if TYPE_CHECKING:  # pragma: no cover - types only
+    from zeckenum.cluster.batch import BatchSpec
 
 
 def _table(rows: list[tuple[str, str]]) -> str:
@@ -179,7 +183,8 @@ def solve_command(n: int | None, position: str | None, rules_name: str, players:
                   misere: bool, remoteness: bool, grundy: bool, export_path: str | None,
                   export_fields: str | None, sum_text: str | None,
                   as_json: bool, workers: int | None, scheduler: str | None,
-                  checkpoint_dir: str | None, shards: int | None, threads: int | None,
+                  cluster: BatchSpec | None, checkpoint_dir: str | None,
+                  shards: int | None, threads: int | None,
                   progress: bool | None, max_memory: int | None) -> None:
     """Who wins the game for N under optimal play (the last player to move wins; with
     --misere, loses).
@@ -199,7 +204,7 @@ def solve_command(n: int | None, position: str | None, rules_name: str, players:
     """
     info = None
     lost: OutputError | None = None
-    chained = workers or scheduler or checkpoint_dir or shards
+    chained = workers or scheduler or cluster or checkpoint_dir or shards
     if sum_text is not None:
         if remoteness or export_fields is not None or position is not None:
             raise InputError("--sum reports the sum's Sprague-Grundy value and winning "
@@ -219,7 +224,7 @@ def solve_command(n: int | None, position: str | None, rules_name: str, players:
                              "--misere, --remoteness, --grundy or --export")
         if chained or progress:
             raise InputError("--strategy runs in-process; it does not take --workers, "
-                             "--scheduler, --checkpoint, --shards or --progress")
+                             "--scheduler, --cluster, --checkpoint, --shards or --progress")
         check_output_file(strategy_path, "strategy file")
         strat, res = winning_strategy(n, rules, max_memory=max_memory, threads=threads,
                                       players=players)
@@ -234,8 +239,9 @@ def solve_command(n: int | None, position: str | None, rules_name: str, players:
             res = api.solve(n, rules, players, max_memory=max_memory,
                             progress=resolve_progress(progress), workers=workers,
                             scheduler=scheduler, checkpoint=checkpoint_dir, shards=shards,
-                            threads=threads, misere=misere, remoteness=remoteness,
-                            grundy=grundy, export=export_path, export_fields=export_fields)
+                            threads=threads, cluster=cluster, misere=misere,
+                            remoteness=remoteness, grundy=grundy, export=export_path,
+                            export_fields=export_fields)
         except OutputError as exc:  # the export went to a rescue file; still report
             if getattr(exc, "result", None) is None:
                 raise
@@ -263,7 +269,8 @@ def _solve_sum(n: int | None, sum_text: str, rules: object, players: int,
                          "(no --players, no --misere)")
     if strategy_path is not None or export_path is not None or chained:
         raise InputError("--sum runs in-process and writes no file: no --strategy, "
-                         "--export, --workers, --scheduler, --checkpoint or --shards")
+                         "--export, --workers, --scheduler, --cluster, --checkpoint or "
+                         "--shards")
     res = api.solve_sum(_sum_parts(sum_text), rules, max_memory=max_memory,
                         progress=resolve_progress(progress), threads=threads)
     click.echo(json.dumps(res.to_dict(), indent=2) if as_json else sum_table(res))

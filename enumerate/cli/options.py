@@ -1,8 +1,7 @@
 """Every option and argument the commands share, declared once: types (one `POSITIVE`,
 bounded integers, memory sizes) and decorators (`n_argument`, `position_option`,
-`rules_option`,
-`backend_options`, `players_option`, `model_option`, `json_option`, `max_memory_option`,
-`progress_option`, `probe_option`).
+`rules_option`, `backend_options`, `cluster_options`, `players_option`, `model_option`,
+`json_option`, `max_memory_option`, `progress_option`, `probe_option`).
 
 Every numeric option is bounded where it is declared, so a value beyond what a run can use
 (n beyond 2^62, a 20-digit --simulate, --threads 10^20) is one line `zeckenum: error: ...`
@@ -213,10 +212,132 @@ def checkpoint_option(help_text: str) -> Decorator:
                         default=None, help=help_text)
 
 
+BATCH_KINDS = ("slurm", "pbs", "sge", "lsf")
+"""`--cluster` kinds: `zeckenum.cluster.batch.BATCH_KINDS`, repeated here because importing
+`zeckenum.cluster` loads the engines (numba) and `--help` must not (a test holds the two
+equal)."""
+
+
+class Walltime(click.ParamType):
+    """A job's walltime: HH:MM:SS, HH:MM, or a duration such as 90m, 2h, 1d."""
+
+    name = "TIME"
+
+    def convert(self, value, param, ctx):  # noqa: ANN001, ANN201
+        import re
+
+        m = re.fullmatch(r"\s*(\d{1,5}):([0-5]\d)(?::([0-5]\d))?\s*", str(value))
+        if m:
+            seconds = int(m.group(1)) * 3600 + int(m.group(2)) * 60 + int(m.group(3) or 0)
+            if seconds > 0:
+                return float(seconds)
+            self.fail("a walltime must be longer than 0", param, ctx)
+        try:
+            return parse_duration(value)
+        except ZeckenumError as exc:
+            self.fail(str(exc), param, ctx)
+
+
+class JobCount(click.ParamType):
+    """--jobs K (a fixed number of jobs) or MIN:MAX (adaptive), as (least, most); the
+    rule of `zeckenum.cluster.batch.parse_jobs` (MAX_WORKERS = its MAX_JOBS)."""
+
+    name = "K|MIN:MAX"
+
+    def convert(self, value, param, ctx):  # noqa: ANN001, ANN201
+        if isinstance(value, tuple):
+            return value
+        import re
+
+        m = re.fullmatch(r"\s*(\d{1,5})\s*(?::\s*(\d{1,5})\s*)?", str(value))
+        if not m:
+            self.fail(f"{value!r}: give a number of jobs K, or MIN:MAX for adaptive "
+                      "scaling (e.g. 2 or 1:10)", param, ctx)
+        lo = int(m.group(1))
+        hi = int(m.group(2)) if m.group(2) is not None else lo
+        if not 1 <= lo <= hi <= MAX_WORKERS:
+            self.fail(f"{value!r}: need 1 <= MIN <= MAX <= {MAX_WORKERS}", param, ctx)
+        return lo, hi
+
+
+_BATCH_OPTIONS = ("cluster_kind", "jobs", "job_cores", "job_memory", "walltime", "queue",
+                  "account", "pending_timeout")
+
+
+def cluster_options(func: Callable[..., Any]) -> Callable[..., Any]:
+    """--cluster slurm|pbs|sge|lsf and the job request (--jobs, --job-cores, --job-memory,
+    --walltime, --queue, --account, --pending-timeout), folded into one keyword `cluster`
+    of the command: a `zeckenum.cluster.batch.BatchSpec`, or None without --cluster.
+    What is not given comes from the Dask config (dask-jobqueue's `jobqueue.<kind>.*`)."""
+    import functools
+
+    @functools.wraps(func)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        values = {k: kwargs.pop(k) for k in _BATCH_OPTIONS}
+        kwargs["cluster"] = batch_from_options(**values)
+        return func(*args, **kwargs)
+
+    decorators = [
+        click.option("--cluster", "cluster_kind", type=click.Choice(BATCH_KINDS),
+                     default=None,
+                     help="Run the workers as batch jobs of this scheduler (dask-jobqueue); "
+                          "job settings not given below come from the Dask config "
+                          "(jobqueue.<kind>.cores, memory, walltime, queue, account)."),
+        click.option("--jobs", type=JobCount(), default=None,
+                     help="With --cluster: K jobs, or MIN:MAX to scale between MIN and MAX "
+                          "jobs with the work waiting (default 1)."),
+        click.option("--job-cores", type=bounded(1, 1024), default=None,
+                     help="With --cluster: cores per job, one worker process each."),
+        click.option("--job-memory", type=MemorySize(), default=None, metavar="SIZE",
+                     help="With --cluster: memory per job (default: the Dask config, else "
+                          "--max-memory, or the run's forecast, per worker x cores plus "
+                          "256M each)."),
+        click.option("--walltime", type=Walltime(), default=None,
+                     help="With --cluster: walltime per job, HH:MM:SS or e.g. 2h."),
+        click.option("--queue", default=None, metavar="NAME",
+                     help="With --cluster: queue (SLURM partition) of the jobs."),
+        click.option("--account", default=None, metavar="NAME",
+                     help="With --cluster: account (SGE project) the jobs are charged to."),
+        click.option("--pending-timeout", type=DURATION, default=None,
+                     help="With --cluster: stop (exit 7) when no job has started after this "
+                          "long, e.g. 30m (default: the stall timeout, 600s)."),
+    ]
+    for deco in reversed(decorators):
+        wrapper = deco(wrapper)
+    return wrapper
+
+
+def batch_from_options(cluster_kind: str | None, jobs: tuple[int, int] | None,
+                       job_cores: int | None, job_memory: int | None,
+                       walltime: float | None, queue: str | None, account: str | None,
+                       pending_timeout: float | None):  # noqa: ANN201 - a BatchSpec or None
+    """The BatchSpec of --cluster and its job options (None without --cluster; a job
+    option without --cluster is a usage error)."""
+    given = [name for name, v in (("--jobs", jobs), ("--job-cores", job_cores),
+                                  ("--job-memory", job_memory), ("--walltime", walltime),
+                                  ("--queue", queue), ("--account", account),
+                                  ("--pending-timeout", pending_timeout)) if v is not None]
+    if cluster_kind is None:
+        if given:
+            raise click.UsageError(f"{', '.join(given)} only apply with --cluster "
+                                   "slurm|pbs|sge|lsf")
+        return None
+    from zeckenum.cluster.batch import BatchSpec
+
+    lo, hi = jobs if jobs is not None else (None, None)
+    try:
+        return BatchSpec(cluster_kind, jobs=lo, max_jobs=hi, cores=job_cores,
+                         memory=job_memory, walltime=walltime, queue=queue,
+                         account=account, pending_timeout=pending_timeout)
+    except ZeckenumError as exc:
+        raise click.UsageError(str(exc)) from None
+
+
 def backend_options(workers: str, scheduler: str, checkpoint: str | None = None) -> Decorator:
-    """--workers K, --scheduler ADDRESS and (with a help text) --checkpoint DIR: where a run
-    goes (`zeckenum.api` picks the backend from them)."""
-    decorators = [workers_option(workers), scheduler_option(scheduler)]
+    """--workers K, --scheduler ADDRESS, --cluster KIND with its job options
+    (`cluster_options`, destination `cluster`) and (with a help text) --checkpoint DIR:
+    where a run goes (`zeckenum.api` picks the backend from them)."""
+    decorators = [workers_option(workers), scheduler_option(scheduler), cluster_options]
     if checkpoint is not None:
         decorators.append(checkpoint_option(checkpoint))
 

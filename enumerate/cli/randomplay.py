@@ -127,7 +127,7 @@ def _print_sim(res) -> None:
                f"{res.variance[2]:.6f}]")
 
 
-SHARD_OPTIONS = {"workers": "--workers", "scheduler": "--scheduler",
+SHARD_OPTIONS = {"workers": "--workers", "scheduler": "--scheduler", "cluster": "--cluster",
                  "checkpoint_dir": "--checkpoint", "progress": "--progress",
                  "points_per_shard": "--points-per-shard"}
 """Exact mode only: with any of them (or the default --progress on a terminal) the prime
@@ -174,7 +174,8 @@ def _refuse_sharding(sharded: dict, mode: str) -> None:
                    "memory per shard; in-process only for now).")
 @max_memory_option
 def random_command(n, position, players, model, rules, winners_only, use_float, games, seed, nrange,  # noqa: ANN001
-                   as_json, show_exact, workers, scheduler, checkpoint_dir, progress,  # noqa: ANN001
+                   as_json, show_exact, workers, scheduler, cluster, checkpoint_dir,  # noqa: ANN001
+                   progress,  # noqa: ANN001
                    points_per_shard, max_memory) -> None:  # noqa: ANN001
     """Random play at N: exact probability of every length and of each player winning.
 
@@ -191,7 +192,8 @@ def random_command(n, position, players, model, rules, winners_only, use_float, 
       zeckenum random 200 --points-per-shard 64
       zeckenum random --position 3,1,0,2 --exact
     """
-    sharded = {"workers": workers, "scheduler": scheduler, "checkpoint_dir": checkpoint_dir,
+    sharded = {"workers": workers, "scheduler": scheduler, "cluster": cluster,
+               "checkpoint_dir": checkpoint_dir,
                "progress": progress is True, "points_per_shard": points_per_shard}
     if show_exact and (nrange is not None or use_float or games is not None):
         raise InputError("--exact: exact mode only, not with --range, --float or --simulate")
@@ -233,7 +235,7 @@ def random_command(n, position, players, model, rules, winners_only, use_float, 
         res = api.random_play(n, rules, players, model, winners_only=winners_only,
                               max_memory=max_memory, progress=resolve_progress(progress),
                               workers=workers, scheduler=scheduler, checkpoint=checkpoint_dir,
-                              points_per_shard=points_per_shard)
+                              points_per_shard=points_per_shard, cluster=cluster)
         _echo_start(start, as_json)
         click.echo(json.dumps(res.to_dict())) if as_json else _print_exact(res, winners_only,
                                                                             show_exact)

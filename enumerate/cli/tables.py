@@ -21,6 +21,7 @@ from zeckenum.cli.options import (
     THREADS,
     backend_options,
     bounded,
+    cluster_options,
     json_option,
     max_memory_option,
     model_option,
@@ -60,7 +61,8 @@ _plan_workers = "Workers the run would use."
                  checkpoint="Keep finished shards here; a rerun resumes from them.")
 @progress_option()
 @max_memory_option
-def table_command(lo, hi, position, what, out, rules, workers, scheduler, checkpoint_dir, progress,  # noqa: ANN001
+def table_command(lo, hi, position, what, out, rules, workers, scheduler, cluster,  # noqa: ANN001
+                  checkpoint_dir, progress,  # noqa: ANN001
                   max_memory) -> None:  # noqa: ANN001
     """Publish exact tables for every n from --from to --to into a directory.
 
@@ -78,7 +80,7 @@ def table_command(lo, hi, position, what, out, rules, workers, scheduler, checkp
     built = api.build_table(lo, hi, what, out, rules, position=position, workers=workers,
                             scheduler=scheduler,
                             checkpoint=checkpoint_dir, progress=resolve_progress(progress),
-                            max_memory=max_memory)
+                            max_memory=max_memory, cluster=cluster)
     params = built.manifest["parameters"]
     lo, hi = params["from"], params["to"]
     click.echo(f"zeckenum table: n={lo}..{hi} ({', '.join(built.kinds)}) -> {out}: "
@@ -93,7 +95,7 @@ def table_command(lo, hi, position, what, out, rules, workers, scheduler, checkp
               help="Seed of the sample, to repeat a run (default: a fresh one, printed).")
 @click.option("--full", is_flag=True, help="Recompute every n of the table.")
 @backend_options(workers=_backend_help["workers"], scheduler=_backend_help["scheduler"])
-def verify_command(folder, sample, seed, full, workers, scheduler) -> None:  # noqa: ANN001
+def verify_command(folder, sample, seed, full, workers, scheduler, cluster) -> None:  # noqa: ANN001
     """Check a published table: checksums, file list, row invariants, and recomputed rows.
 
     \b
@@ -105,7 +107,7 @@ def verify_command(folder, sample, seed, full, workers, scheduler) -> None:  # n
     Exit 0: the table passed; 5: a check failed; 2: not a readable table (one line).
     """
     rep = api.verify_table(folder, sample, seed, full=full, workers=workers,
-                           scheduler=scheduler).report
+                           scheduler=scheduler, cluster=cluster).report
     ns = ", ".join(str(n) for n in rep["recomputed"]) or "none"
     lo, hi = rep["n_range"]
     how = "--full" if rep["full"] else f"--seed {rep['seed']}"
@@ -129,10 +131,36 @@ def plan_command() -> None:
     """
 
 
-def _echo_prediction(p: dict, as_json: bool) -> None:
+def _echo_prediction(p: dict, as_json: bool, cluster=None) -> None:  # noqa: ANN001
+    """Print a forecast; with a `cluster` (a BatchSpec), the job request the run would
+    make, its memory per job from the forecast's memory per worker unless given or
+    configured (key "job_request" in JSON)."""
     from zeckenum.cluster.predict import format_prediction
 
-    click.echo(json.dumps(p) if as_json else format_prediction(p))
+    if cluster is not None:
+        from zeckenum.cluster.batch import job_request
+
+        p["job_request"] = job_request(cluster, p["memory_per_worker_bytes"])
+    if as_json:
+        click.echo(json.dumps(p))
+        return
+    text = format_prediction(p)
+    if cluster is not None:
+        from zeckenum.cluster.batch import format_request
+
+        text += "\n\n  job request  " + format_request(p["job_request"])
+    click.echo(text)
+
+
+def _cluster_workers(workers: int, cluster) -> int:  # noqa: ANN001
+    """Workers a forecast assumes: --workers, or with --cluster the most jobs x cores per
+    job (the job request resolved from the options and the Dask config)."""
+    if cluster is None:
+        return workers
+    from zeckenum.cluster.batch import job_request
+
+    req = job_request(cluster, 0)
+    return req["jobs_max"] * req["processes"]
 
 
 @plan_command.command("count", cls=OneLineCommand)
@@ -148,8 +176,9 @@ def _echo_prediction(p: dict, as_json: bool) -> None:
 @probe_option("n of the calibration count on this machine (20..400).", 90)
 @json_option("Print one JSON object.")
 @max_memory_option
+@cluster_options
 def plan_count_command(n, workers, cores, budget, rules, probe_n, as_json,  # noqa: ANN001
-                       max_memory) -> None:  # noqa: ANN001
+                       max_memory, cluster) -> None:  # noqa: ANN001
     """Forecast an exact count: sizes, shards, memory, time.
 
     Runs the first sweep of N (exact sizes and word updates) and a small calibration count.
@@ -163,8 +192,17 @@ def plan_count_command(n, workers, cores, budget, rules, probe_n, as_json,  # no
       zeckenum plan count 250 --workers 8
       zeckenum plan count 300 --max-memory 2G --json
       zeckenum plan count --budget 30m --workers 100 --cores-per-worker 32 --max-memory 64G
+      zeckenum plan count 250 --cluster slurm --jobs 1:10 --job-cores 4
+
+    With --cluster, the workers are the most jobs x cores per job, and the job request the
+    run would make is printed (memory per job: --job-memory, the Dask config, or this
+    forecast's memory per worker x cores plus 256M each).
     """
+    workers = _cluster_workers(workers, cluster)
     if budget is not None:
+        if cluster is not None:
+            raise InputError("plan count --budget does not take --cluster; give --workers "
+                             "and --max-memory")
         if n is not None:
             raise InputError("plan count takes either N or --budget, not both")
         from zeckenum.cluster.budget import format_budget, largest_n_within
@@ -179,7 +217,7 @@ def plan_count_command(n, workers, cores, budget, rules, probe_n, as_json,  # no
 
     p = predict_count(n, rules, workers, probe_n=probe_n, max_memory=max_memory,
                       cores_per_worker=cores)
-    _echo_prediction(p, as_json)
+    _echo_prediction(p, as_json, cluster)
 
 
 @plan_command.command("random", cls=OneLineCommand)
@@ -193,8 +231,9 @@ def plan_count_command(n, workers, cores, budget, rules, probe_n, as_json,  # no
 @probe_option("n of the calibration run on this machine (20..400, default 100).", None)
 @json_option("Print one JSON object.")
 @max_memory_option
+@cluster_options
 def plan_random_command(n, model, players, winners_only, workers, rules, probe_n,  # noqa: ANN001
-                        as_json, max_memory) -> None:  # noqa: ANN001
+                        as_json, max_memory, cluster) -> None:  # noqa: ANN001
     """Forecast exact random play: sizes, primes, shards, memory, time.
 
     Runs random play's first sweep of N (exact states, transitions, denominator, primes,
@@ -207,9 +246,10 @@ def plan_random_command(n, model, players, winners_only, workers, rules, probe_n
     from zeckenum.cluster.predict import predict_random
 
     _check_probe(probe_n)
-    p = predict_random(n, rules, workers, model=model, players=players,
-                       winners_only=winners_only, probe_n=probe_n, max_memory=max_memory)
-    _echo_prediction(p, as_json)
+    p = predict_random(n, rules, _cluster_workers(workers, cluster), model=model,
+                       players=players, winners_only=winners_only, probe_n=probe_n,
+                       max_memory=max_memory)
+    _echo_prediction(p, as_json, cluster)
 
 
 @plan_command.command("solve", cls=OneLineCommand)
@@ -227,8 +267,9 @@ def plan_random_command(n, model, players, winners_only, workers, rules, probe_n
               help="Threads of the in-process solve (default: all cores).")
 @json_option("Print one JSON object.")
 @max_memory_option
+@cluster_options
 def plan_solve_command(n, players, workers, shards, reach, rules, probe_n,  # noqa: ANN001
-                       threads, as_json, max_memory) -> None:  # noqa: ANN001
+                       threads, as_json, max_memory, cluster) -> None:  # noqa: ANN001
     """Forecast optimal play: states, level ranges, bit memory, time.
 
     Reads the exact sizes off the rank table and times a small calibration solve.  The
@@ -241,9 +282,10 @@ def plan_solve_command(n, players, workers, shards, reach, rules, probe_n,  # no
     from zeckenum.cluster.predict import predict_solve
 
     _check_probe(probe_n)
-    p = predict_solve(n, rules, workers, players=players, shards=shards, reach=reach,
-                      probe_n=probe_n, max_memory=max_memory, threads=threads)
-    _echo_prediction(p, as_json)
+    p = predict_solve(n, rules, _cluster_workers(workers, cluster), players=players,
+                      shards=shards, reach=reach, probe_n=probe_n, max_memory=max_memory,
+                      threads=threads)
+    _echo_prediction(p, as_json, cluster)
 
 
 def _check_probe(probe_n: int | None) -> None:
