@@ -23,6 +23,7 @@ from __future__ import annotations
 import argparse
 import hashlib
 import json
+import math
 import subprocess
 import sys
 import tempfile
@@ -106,6 +107,8 @@ def _keeps(before: object, now: object) -> bool:
     if isinstance(before, list) and isinstance(now, list):
         return len(before) == len(now) and all(
             _keeps(a, b) for a, b in zip(before, now, strict=True))
+    if isinstance(before, float) and isinstance(now, float) and math.isnan(before):
+        return math.isnan(now)  # NaN recorded (an undefined diagnostic) stays NaN
     return before == now
 
 
