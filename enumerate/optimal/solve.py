@@ -388,12 +388,7 @@ def solve(
                         keep_classes, f"solving n={n}", threads)
     t0 = time.perf_counter()
     reach_bits = reachable_bits(space)[0] if reach else None
-    bar = None
-    if progress:
-        from tqdm import tqdm
-
-        bar = tqdm(total=space.total_states(), unit="state", unit_scale=True,
-                   desc=f"solve n={n}")
+    bar = _state_bar(space, n) if progress else None
     try:
         held, stats = layer_classes(space, players, keep=keep_classes, reach=reach_bits,
                                     on_layer=bar.update if bar is not None else None,
@@ -408,6 +403,14 @@ def solve(
                         keep_classes=keep_classes)
 
 
+def _state_bar(space: StateSpace, n: int):  # noqa: ANN202 - a tqdm bar
+    """The progress bar of a solve: states of every layer, closed by the caller."""
+    from tqdm import tqdm
+
+    return tqdm(total=space.total_states(), unit="state", unit_scale=True,
+                desc=f"solve n={n}")
+
+
 def _solve_values(
     n: int, spec: GameSpec, reach: bool, keep: bool, max_memory: int | None, progress: bool,
     threads: int, misere: bool, grundy: bool, export: str | None,
@@ -420,12 +423,7 @@ def _solve_values(
                         f"solving n={n}", threads, valued=valued)
     t0 = time.perf_counter()
     reach_bits = reachable_bits(space)[0] if reach else None
-    bar = None
-    if progress:
-        from tqdm import tqdm
-
-        bar = tqdm(total=space.total_states(), unit="state", unit_scale=True,
-                   desc=f"solve n={n}")
+    bar = _state_bar(space, n) if progress else None
     try:
         rems, grus, stats = layer_values(
             space, misere=misere, grundy=grundy, keep=keep or fields is not None,

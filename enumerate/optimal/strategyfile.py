@@ -500,15 +500,7 @@ def check_strategy(sf: StrategyFile, rules: str | RuleSet | None = None) -> Chec
 
     def children(w: tuple[int, ...]) -> list[tuple[int, ...]]:
         """Winner positions that can follow w (after the listed move and any answer)."""
-        entry = sf.table.get(strip_counts(w))
-        if entry is None:
-            raise StrategyRejected(f"no move listed for position {show(w)}, which the winner "
-                                   "can face")
-        move, line = entry
-        u = game.apply(w, move)
-        if u is None:
-            why = "unknown move" if move not in game.moves else "illegal move"
-            raise StrategyRejected(f"line {line}: {why} {move} at position {show(w)}")
+        u = _listed_move(sf, game, w, show)
         if not game.options(u):
             return []
         loser_seen.add(u)
@@ -563,16 +555,7 @@ def _check_coalition(sf: StrategyFile, game: ReferenceGame) -> CheckReport:
             raise StrategyRejected(f"player {last} of the coalition moves last, reaching the "
                                    f"end {show(state)}")
         if r == 0:
-            entry = sf.table.get(strip_counts(state))
-            if entry is None:
-                raise StrategyRejected(f"no move listed for position {show(state)}, which the "
-                                       "winner can face")
-            move, line = entry
-            nxt = game.apply(state, move)
-            if nxt is None:
-                why = "unknown move" if move not in game.moves else "illegal move"
-                raise StrategyRejected(f"line {line}: {why} {move} at position {show(state)}")
-            return [(nxt, 1 % players)]
+            return [(_listed_move(sf, game, state, show), 1 % players)]
         loser_seen.add(state)
         return [(t, (r + 1) % players) for _, t in opts]
 
@@ -616,3 +599,20 @@ def _depths(roots: list, children: Callable[[Any], list], show: Callable[[Any], 
             color[node] = black
             depth[node] = max((step + depth[c] for c in kids), default=leaf)
     return depth
+
+
+def _listed_move(sf: StrategyFile, game: Any, state: tuple[int, ...],
+                 show: Callable[[tuple[int, ...]], str]) -> tuple[int, ...]:
+    """The position after the winner's listed move at `state`, played by the rule
+    definition (`game.apply`); StrategyRejected when no move is listed there or the listed
+    one is unknown or illegal."""
+    entry = sf.table.get(strip_counts(state))
+    if entry is None:
+        raise StrategyRejected(f"no move listed for position {show(state)}, which the winner "
+                               "can face")
+    move, line = entry
+    nxt = game.apply(state, move)
+    if nxt is None:
+        why = "unknown move" if move not in game.moves else "illegal move"
+        raise StrategyRejected(f"line {line}: {why} {move} at position {show(state)}")
+    return nxt

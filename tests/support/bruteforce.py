@@ -89,15 +89,7 @@ def lengths_to_end(state: tuple[int, ...]) -> Counter[int]:
 
 def reachable(n: int) -> set[tuple[int, ...]]:
     """Every state reachable from the start for n (start and terminal included)."""
-    seen = {start_state(n)}
-    stack = [start_state(n)]
-    while stack:
-        s = stack.pop()
-        for t in successors(s):
-            if t not in seen:
-                seen.add(t)
-                stack.append(t)
-    return seen
+    return reachable_from(start_state(n))
 
 
 def census(n: int) -> dict:

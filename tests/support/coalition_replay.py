@@ -14,19 +14,7 @@ from minimax import TemplateGame
 
 def named_moves(rules, n: int) -> tuple[tuple[int, ...], dict[str, dict[int, int]]]:  # noqa: ANN001
     game = TemplateGame(rules, n)
-    nb = len(game.values)
-    moves: dict[str, dict[int, int]] = {}
-    for tpl in rules.templates:
-        last = nb if tpl.last is None else min(tpl.last, nb)
-        for k in range(tpl.first, last + 1):
-            ch: dict[int, int] = {}
-            for off, c in tpl.takes:
-                ch[k + off - 1] = ch.get(k + off - 1, 0) - c
-            for off, c in tpl.gives:
-                ch[k + off - 1] = ch.get(k + off - 1, 0) + c
-            if all(0 <= b < nb for b in ch):
-                moves[f"{tpl.name}@{k}"] = ch
-    return game.start, moves
+    return game.start, game.named
 
 
 def _apply(s: tuple[int, ...], ch: dict[int, int]) -> tuple[int, ...] | None:

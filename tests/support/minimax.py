@@ -110,6 +110,7 @@ class TemplateGame:
         self.values = [v for v in first if v <= value]
         nb = len(self.values)
         self.moves = []
+        self.named: dict[str, dict[int, int]] = {}  # "<template>@<k>" -> bin changes
         for tpl in rules.templates:
             last = nb if tpl.last is None else min(tpl.last, nb)
             for k in range(tpl.first, last + 1):
@@ -120,6 +121,7 @@ class TemplateGame:
                     ch[k + off - 1] = ch.get(k + off - 1, 0) + c
                 if all(0 <= b < nb for b in ch):
                     self.moves.append(ch)
+                    self.named[f"{tpl.name}@{k}"] = ch
         start = [0] * nb
         if rules.start == "ones":
             start[0] = value // self.values[0]
