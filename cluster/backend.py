@@ -474,7 +474,12 @@ def open_batch(spec, warm: tuple[str, ...]) -> Iterator[BatchPool]:  # noqa: ANN
     `<cache base>/seed` for the workers, and the jobs' environment set (ZECKENUM_NUMBA_CACHE
     of this process); waits for the first worker (`batch.wait_for_first_worker`, the
     pending timeout); cancels every job and closes the cluster on exit, even on error."""
-    from zeckenum.cluster.batch import job_request, make_cluster, wait_for_first_worker
+    from zeckenum.cluster.batch import (
+        job_request,
+        joined_names_plugin,
+        make_cluster,
+        wait_for_first_worker,
+    )
 
     request = job_request(spec)
     seed = cache_base() / "seed"
@@ -489,6 +494,7 @@ def open_batch(spec, warm: tuple[str, ...]) -> Iterator[BatchPool]:  # noqa: ANN
 
         cluster.adapt(minimum_jobs=request["jobs_min"], maximum_jobs=request["jobs_max"])
         client = Client(cluster, set_as_default=False, timeout=15)
+        client.register_plugin(joined_names_plugin())
         client.register_plugin(_make_plugin(str(seed)))
         pool = BatchPool(client, cluster, request)
         timeout = spec.pending_timeout or stall_seconds(None)

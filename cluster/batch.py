@@ -358,9 +358,10 @@ class JobStates:
 class JobWatch:
     """Tracks the jobs of a dask-jobqueue cluster and replaces the lost ones.
 
-    Invariant: a job name is in `seen` once a worker of it has joined; a seen job with no
-    worker left is lost (its batch job ended: walltime, cancelled, node down), counted
-    once (`dropped`), and `look` removes it from the cluster's plan, so that adaptive
+    Invariant: a job name is in `seen` once a worker of it has joined (the scheduler's
+    `JoinedNames` record, so a worker that came and went between two looks counts too);
+    a seen job with no worker left is lost (its batch job ended: walltime, cancelled, node
+    down), counted once (`dropped`), and `look` removes it from the cluster's plan, so that adaptive
     scaling (minimum = the least jobs) submits a new job under a new name.  Workers of
     job J are named J or J-<i> (dask-jobqueue).
     """
@@ -374,20 +375,25 @@ class JobWatch:
         self.first_worker: float | None = None
         self.t0 = time.monotonic()
 
-    def _names(self) -> set[str]:
-        info = self.client.scheduler_info(n_workers=-1).get("workers", {})
-        return {str(w.get("name", "")) for w in info.values()}
+    def _names(self) -> tuple[set[str], set[str]]:
+        """Names of the workers connected now, and of every worker that ever joined (the
+        scheduler's `JoinedNames` record, when `open_batch` registered it)."""
+        return self.client.run_on_scheduler(_worker_names)
 
     def look(self) -> JobStates:
         cluster = self.cluster
         refused = list(getattr(cluster, "zeckenum_refused", []))
         failed = {name for name, _ in refused}
         jobs = [str(j) for j in list(cluster.worker_spec) if str(j) not in failed]
-        names = self._names()
+        names, joined = self._names()
+        # a job whose worker joined and left between two looks was still running once: the
+        # scheduler's record says so (a look that saw only the connected workers would
+        # take it for pending forever, and never count nor replace it)
+        self.seen.update(job for job in jobs if _has_worker(job, joined))
         states = JobStates(lost=self.lost, refused=refused[-1][1] if refused else "")
         gone: list[str] = []
         for job in jobs:
-            alive = any(n == job or n.startswith(job + "-") for n in names)
+            alive = _has_worker(job, names)
             if alive:
                 self.seen.add(job)
                 states.running += 1
@@ -408,14 +414,56 @@ class JobWatch:
         return states
 
 
+def _has_worker(job: str, names: set[str]) -> bool:
+    """Whether one of `names` is a worker of `job` (named J or J-<i> by dask-jobqueue)."""
+    return any(n == job or n.startswith(job + "-") for n in names)
+
+
+JOINED = "zeckenum-joined-names"
+"""Name of the scheduler plugin that records every worker name that joined."""
+
+
+def joined_names_plugin():  # noqa: ANN201
+    """A scheduler plugin (`JoinedNames`) that keeps the name of every worker that ever
+    joined, so that `JobWatch` counts a job whose worker came and went between two of its
+    looks.  Built here so that importing this module does not import distributed; the
+    class is local, so cloudpickle ships it by value to the scheduler."""
+    from distributed.diagnostics.plugin import SchedulerPlugin
+
+    class JoinedNames(SchedulerPlugin):
+        name = JOINED
+
+        def __init__(self) -> None:
+            self.names: set[str] = set()
+
+        async def start(self, scheduler) -> None:  # noqa: ANN001 - workers already there
+            self.names.update(str(ws.name) for ws in scheduler.workers.values())
+
+        def add_worker(self, scheduler, worker: str) -> None:  # noqa: ANN001
+            ws = scheduler.workers.get(worker)
+            if ws is not None:
+                self.names.add(str(ws.name))
+
+    return JoinedNames()
+
+
+def _worker_names(dask_scheduler) -> tuple[set[str], set[str]]:  # noqa: ANN001
+    """On the scheduler: the names of the workers connected now, and of all that joined
+    (connected ones included, whether or not the `JoinedNames` plugin is there)."""
+    now = {str(ws.name) for ws in dask_scheduler.workers.values()}
+    plugin = dask_scheduler.plugins.get(JOINED)
+    return now, now | (set(plugin.names) if plugin is not None else set())
+
+
 def _drop_jobs(cluster, names: list[str]) -> None:  # noqa: ANN001
     """On the cluster's event loop: forget lost jobs (their batch jobs are cancelled if
     still there), so adaptive scaling submits replacements."""
     import asyncio
 
     for name in names:
-        cluster.worker_spec.pop(name, None)
-        job = cluster.workers.pop(name, None)
+        key = next((k for k in list(cluster.worker_spec) if str(k) == name), name)
+        cluster.worker_spec.pop(key, None)
+        job = cluster.workers.pop(key, None)
         if job is not None:
             cluster._futures.add(asyncio.ensure_future(job.close()))
         # the replacement must get a new name: SpecCluster takes the first unused number,

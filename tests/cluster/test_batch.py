@@ -204,6 +204,42 @@ def test_example_sbatch_script_is_valid_bash() -> None:
     assert "--cluster slurm" in text and "--checkpoint" in text
 
 
+def test_job_whose_worker_came_and_went_between_looks_is_lost() -> None:
+    """A job's worker may join and leave between two looks of `JobWatch` (no progress
+    display asks in between): it must still be counted lost and dropped from the plan, not
+    taken for a job still queued.  Workers of an in-process LocalCluster stand for the jobs
+    (its plan keys are the worker names, as dask-jobqueue's are)."""
+    from distributed import Client, LocalCluster
+    from zeckenum.cluster.batch import JobWatch, joined_names_plugin
+
+    cluster = LocalCluster(n_workers=1, threads_per_worker=1, processes=False,
+                           dashboard_address=None)  # in-process: no port is opened
+    client = Client(cluster, set_as_default=False)
+    try:
+        client.register_plugin(joined_names_plugin())
+        watch = JobWatch(cluster, client)
+        cluster.scale(2)  # a second "job" starts, and its worker joins...
+        client.wait_for_workers(2, timeout=30)
+        gone = [a for a, w in client.scheduler_info(n_workers=-1)["workers"].items()
+                if str(w["name"]) == "1"]
+        client.retire_workers(gone, close_workers=True, remove=True)  # ...and leaves
+        deadline = time.monotonic() + 30
+        while len(client.scheduler_info(n_workers=-1)["workers"]) > 1:
+            assert time.monotonic() < deadline, "the worker did not leave"
+            time.sleep(0.1)
+        states = watch.look()  # the first look: job 1 has no worker now
+        assert watch.lost == states.lost == 1
+        assert (states.running, states.pending) == (1, 0)
+        deadline = time.monotonic() + 30
+        while 1 in cluster.worker_spec:  # dropped from the plan on the cluster's loop
+            assert time.monotonic() < deadline, "the lost job stayed in the plan"
+            time.sleep(0.1)
+        assert watch.look().lost == 1  # counted once
+    finally:
+        client.close()
+        cluster.close()
+
+
 # ------------------------------------------------------------------- a real SLURM
 
 
