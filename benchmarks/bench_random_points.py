@@ -97,7 +97,7 @@ def child_probe(n: int) -> dict:
     """First sweep of n, then a timed pair of shards of each route (see the docstring)."""
     from zeckenum.core.blocks import run_blocks
     from zeckenum.core.modular import mul_primes_exceeding
-    from zeckenum.core.ntt import ntt_primes, ntt_primes_for_bits, root_of_unity
+    from zeckenum.core.ntt import ntt_primes, ntt_primes_for_bits, root_of_order
     from zeckenum.randomplay.exact import (
         LAW_PRIMES_PER_BLOCK,
         law_words_per_prime,
@@ -150,7 +150,7 @@ def child_probe(n: int) -> dict:
     p_shard_bytes = 8 * law_points_words(skel, order)
 
     def one(q: int) -> int:
-        w = root_of_unity(q, order)
+        w = root_of_order(q, order)
         return random_law_points(skel, q, [pow(w, k, q) for k in range(order)], True)[1]
 
     t2 = time.perf_counter()

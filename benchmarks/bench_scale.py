@@ -86,7 +86,7 @@ def main() -> int:
     from distributed import Client, as_completed
     from zeckenum.cluster.backend import close_cluster, start_local_cluster
     from zeckenum.cluster.plan import points_plan, worker_bytes
-    from zeckenum.core.ntt import counts_from_values, root_of_unity
+    from zeckenum.core.ntt import counts_from_values, root_of_order
 
     cluster = start_local_cluster(args.workers)
     try:
@@ -126,7 +126,7 @@ def main() -> int:
     ring = worker_bytes(facts, plan) - facts.window_bytes - facts.shared_bytes
     # assembly: one inverse transform of N values per prime, on real sizes
     q = plan.all_primes[0]
-    w = root_of_unity(q, plan.order)
+    w = root_of_order(q, plan.order)
     t2 = time.perf_counter()
     counts_from_values(list(range(plan.order)), q, w)
     assembly = (time.perf_counter() - t2) * len(plan.all_primes)

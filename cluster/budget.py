@@ -47,7 +47,7 @@ from zeckenum.cluster.predict import (
 )
 from zeckenum.core.memory import human, resolve_limit
 from zeckenum.core.modular import primes_for_bits
-from zeckenum.core.ntt import ntt_primes_for_bits
+from zeckenum.core.ntt import ntt_primes_for_bits, transform_size
 from zeckenum.core.statespace import StateSpace, build_space, rank_table_bytes
 from zeckenum.core.sweep import incoming_bytes_estimate
 from zeckenum.core.text import plural
@@ -57,7 +57,7 @@ from zeckenum.counting.count import (
     listing_bytes,
     windows_pass_bytes,
 )
-from zeckenum.counting.points import points_peak_words, transform_order
+from zeckenum.counting.points import points_peak_words
 from zeckenum.counting.route import CountSizes, RoutePlan, choose_count_route, count_sizes
 from zeckenum.errors import InputError, MemoryRefused
 from zeckenum.rules.catalogue import get_rules
@@ -163,7 +163,7 @@ def modelled_sizes(space: StateSpace, fits: dict[str, Fit], limit: int, cores: i
     bits = max(1, math.ceil(fits["count_bits"](n)))
     shortest = max(0, round(fits["shortest"](n)))
     longest = max(shortest, round(fits["longest"](n)))
-    order = transform_order(longest - shortest)
+    order = transform_size(longest - shortest)
     sweep = windows_pass_bytes(space, cores)
     est = incoming_bytes_estimate(space)
     point_words = points_peak_words(space, 1)

@@ -33,11 +33,11 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from zeckenum.cluster.workercache import WorkerCache, worker_address
 from zeckenum.core.memory import available_bytes
-from zeckenum.core.ntt import root_of_unity
+from zeckenum.core.ntt import root_of_order, transform_size
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.sweep import Windows
 from zeckenum.counting.count import count_windows
-from zeckenum.counting.points import points_peak_words, spectrum_points, transform_order
+from zeckenum.counting.points import points_peak_words, spectrum_points
 from zeckenum.counting.route import sweep_updates
 from zeckenum.counting.spectrum import peak_words, spectrum_residues
 from zeckenum.rules.catalogue import get_rules
@@ -243,17 +243,17 @@ def spectrum_points_task(
 ) -> tuple[np.ndarray, int]:
     """(values, word updates) of one shard (prime, N, lo, hi) of the count by evaluation
     points: values[k - lo] = G(w**k) mod prime for k in [lo, hi), w of order N mod prime
-    (`points.root_of_unity`), G the game's length polynomial.
+    (`core.ntt.root_of_order`), G the game's length polynomial.
 
     The cluster twin of one shard of `points.count_points`: rebuilds (or reuses) the game's
     windows in this process and calls the same `points.spectrum_points`.  N must be the
-    game's own (`points.transform_order` of its length span), else ValueError.
+    game's own (`core.ntt.transform_size` of its length span), else ValueError.
     """
     space, windows, _ = prepared(rules, n)
     q, order, lo, hi = (int(x) for x in shard)
-    own = transform_order(windows.longest - windows.shortest)
+    own = transform_size(windows.longest - windows.shortest)
     if order != own or not 0 <= lo < hi <= order:
         raise ValueError(f"shard {tuple(shard)} does not fit the {own} points of n = {n}")
-    w = root_of_unity(q, order)
+    w = root_of_order(q, order)
     values, updates = spectrum_points(space, windows, q, [pow(w, k, q) for k in range(lo, hi)])
     return np.asarray(values, dtype=np.int64), int(updates)

@@ -15,7 +15,7 @@ count   facts `count_tasks.count_facts_task`, shards `count_tasks.spectrum_resid
 count by evaluation points (route "points", `points_kind`): facts
         `count_tasks.points_facts_task`, plan `plan.points_plan`, shards
         `count_tasks.spectrum_points_task` (prime, block of points), assembly
-        `points.residues_from_values` per prime, then `count.assemble_count`
+        `core.ntt.lengths_from_values` per prime, then `count.assemble_count`
 random  facts `random_tasks.random_facts_task`, shards
         `random_tasks.random_law_residues_task` (length law) or
         `random_tasks.random_win_residues_task` (winners only), assembly
@@ -54,9 +54,8 @@ from zeckenum.cluster.random_tasks import (
     random_win_residues_task,
 )
 from zeckenum.core.modular import check_mul_primes, mul_primes_exceeding
-from zeckenum.core.ntt import root_of_unity
+from zeckenum.core.ntt import lengths_from_values, root_of_order, transform_size
 from zeckenum.counting.count import assemble_count
-from zeckenum.counting.points import residues_from_values, transform_order
 from zeckenum.counting.result import CountResult
 from zeckenum.counting.route import best_points
 from zeckenum.randomplay.exact import (
@@ -168,7 +167,7 @@ def points_within(facts: PointsFacts, limit: int, in_flight: int) -> int:
     """The largest K (0 if none) whose `in_flight` shards of K points fit `limit` bytes
     beside the worker's first-sweep data (`plan.worker_bytes`' terms), evened out over the
     N points (`counting.route.best_points`)."""
-    order = transform_order(facts.longest - facts.shortest)
+    order = transform_size(facts.longest - facts.shortest)
     room = limit - facts.window_bytes - facts.shared_bytes
     return best_points(room, max(1, in_flight), 8 * facts.points_words_one, facts.fixed_bytes,
                        order)
@@ -179,7 +178,7 @@ def assemble_points_shards(
 ) -> CountResult:
     """The count from the values of all shards of a points plan, stacked in block order:
     per prime its N values (every index covered exactly once, else ValueError), the
-    inverse transform (`points.residues_from_values`, which checks that no term lies
+    inverse transform (`core.ntt.lengths_from_values`, which checks that no term lies
     outside the game's lengths), then `count.assemble_count` as in-process."""
     order = plan.order
     allp = plan.all_primes
@@ -194,8 +193,9 @@ def assemble_points_shards(
         raise ValueError("the shards of a points plan do not cover every point once")
     residues = np.zeros((len(allp), facts.longest + 1), dtype=np.int64)
     for row, q in enumerate(allp):
-        residues[row, :] = residues_from_values(table[q].tolist(), q, root_of_unity(q, order),
-                                                facts.shortest, facts.longest)
+        residues[row, :] = lengths_from_values(table[q].tolist(), q, root_of_order(q, order),
+                                               facts.shortest, facts.longest,
+                                               "the length polynomial")
     stats = {k: v for k, v in stats.items() if k != "prime_blocks"}
     stats.update(method="points", points=order, points_per_shard=plan.per_shard,
                  shards=len(plan.blocks))
@@ -229,7 +229,7 @@ def points_kind(ruleset: RuleSet, points_per_shard: int | None, limit: int | Non
         shard_task=spectrum_points_task, shard_args=(),
         parameters={"kind": "count", "route": "points"},
         plan=plan,
-        columns=lambda facts: transform_order(facts.longest - facts.shortest),
+        columns=lambda facts: transform_size(facts.longest - facts.shortest),
         assemble=assemble_points_shards,
         extra_stats=lambda facts: {"count_bits": facts.count_bits,
                                    "terminal_states": facts.terminals},

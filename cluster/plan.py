@@ -11,7 +11,7 @@ with the one planner's `core.blocks.block_count` and `split_evenly`.
 
 A count by evaluation points (`counting.points`) has another kind of plan, `PointsPlan`
 (`points_plan`): its primes are the NTT primes below 2**50 that are 1 mod N (N the number
-of points, `points.transform_order` of the length span) and a shard is (prime, [lo, hi) of
+of points, `core.ntt.transform_size` of the length span) and a shard is (prime, [lo, hi) of
 the N point indices), so its shards are as many and as small as asked (one point each at
 the least).  Both plans answer the same questions for the driver and the checkpoint
 (`route`, `all_primes`, `to_dict`, `shard_input`, `shard_shape`, `shard_moduli`); a prime
@@ -28,9 +28,8 @@ from zeckenum.cluster.count_tasks import Facts, PointsFacts
 from zeckenum.cluster.random_tasks import RandomFacts
 from zeckenum.core.blocks import block_count, split_evenly
 from zeckenum.core.modular import primes_for_bits
-from zeckenum.core.ntt import ntt_primes_for_bits, point_blocks
+from zeckenum.core.ntt import ntt_primes_for_bits, point_blocks, transform_size
 from zeckenum.counting.count import COUNT_PRIMES_PER_BLOCK
-from zeckenum.counting.points import transform_order
 from zeckenum.errors import InputError
 
 
@@ -127,7 +126,7 @@ def plan_from_primes(
 class PointsPlan:
     """The primes of one count by evaluation points and its shards: shard i computes the
     length polynomial's values mod blocks[i] = (prime, lo, hi) at the points w**k, k in
-    [lo, hi), w of order `order` = N mod that prime (`points.root_of_unity`).
+    [lo, hi), w of order `order` = N mod that prime (`core.ntt.root_of_order`).
 
     Invariants: every prime is 1 mod `order`; the blocks run prime by prime (in the order
     of `all_primes`, the check prime last), each prime's blocks cut [0, order) in
@@ -202,14 +201,14 @@ def points_plan(
 ) -> PointsPlan:
     """The shard plan of the count by evaluation points described by `facts`.
 
-    N = `transform_order(longest - shortest)`; the primes are the NTT primes 1 mod N
+    N = `transform_size(longest - shortest)`; the primes are the NTT primes 1 mod N
     below 2**50 whose product exceeds 2**count_bits (skipping `prime_offset`), plus the
     check prime, exactly as `points.count_points` takes them; each prime's N points are
     cut into blocks of `points_per_shard` (at most N).  Without `points_per_shard`: all N
     points per shard, halved until there are at least as many shards as `workers`.
     """
     check_points_per_shard(points_per_shard)
-    order = transform_order(facts.longest - facts.shortest)
+    order = transform_size(facts.longest - facts.shortest)
     primes, check = ntt_primes_for_bits(facts.count_bits, order, prime_offset)
     allp = (*primes, check)
     if points_per_shard is None:

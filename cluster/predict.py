@@ -49,12 +49,12 @@ from zeckenum.core.checks import (
 )
 from zeckenum.core.memory import human, resolve_limit
 from zeckenum.core.modular import mul_primes, primes_for_bits
-from zeckenum.core.ntt import ntt_primes, root_of_unity
+from zeckenum.core.ntt import ntt_primes, root_of_order, transform_size
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.sweep import moves_into
 from zeckenum.core.text import plural
 from zeckenum.counting.count import count, count_space, count_windows, refuse_count
-from zeckenum.counting.points import spectrum_points, transform_order
+from zeckenum.counting.points import spectrum_points
 from zeckenum.counting.route import (
     CountSizes,
     RoutePlan,
@@ -227,9 +227,9 @@ def probe_route_rate(route: RoutePlan, probe_n: int = PROBE_N,
     space = count_space(ruleset.instantiate(probe_n), resolve_limit(None))
     windows, _ = count_windows(space, probe_n, resolve_limit(None))
     if route.route == "points":
-        order = transform_order(windows.longest - windows.shortest)
+        order = transform_size(windows.longest - windows.shortest)
         q = ntt_primes(order, 1)[0]
-        w = root_of_unity(q, order)
+        w = root_of_order(q, order)
         pts = [pow(w, k, q) for k in range(min(route.points_per_shard, order))]
 
         def shard() -> int:

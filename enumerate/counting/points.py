@@ -8,14 +8,14 @@ So one sweep over the states, carrying per state one residue per evaluation poin
 of a window of lengths (`counting.spectrum`), evaluates G at those points modulo a prime.
 
 Choosing the points.  Every game has between `shortest` and `longest` moves, so
-G(x) = x**shortest * Q(x) with Q of degree span = longest - shortest.  With N = 2**m > span
-and a prime p = 1 (mod N) below 2**50 (`ntt_primes`), the N-th roots of unity w**k (w of
-order N, `root_of_unity`) are distinct nonzero points mod p; Q(w**k) = G(w**k) *
-w**(-k shortest), and q_j mod p = N**-1 * sum_k Q(w**k) w**(-k j) (the inverse number-
-theoretic transform, `counts_from_values`), count_L = q_(L - shortest)
-(`residues_from_values`).  The coefficients of degree above `span` must come out 0: a
-built-in check of every prime's values.  Taking N above the span rather than above
-`longest` halves the points at n = 300 (span 435, longest 730: 512 points, not 1024).
+G(x) = x**shortest * Q(x) with Q of degree span = longest - shortest.  With N = span + 2
+(`core.ntt.transform_size`) and a prime p = 1 (mod N) below 2**50 (`ntt_primes`), the
+N-th roots of unity w**k (w of order N, `root_of_order`) are distinct nonzero points mod
+p; Q(w**k) = G(w**k) * w**(-k shortest), and q_j mod p = N**-1 * sum_k Q(w**k) w**(-k j)
+(the inverse transform), count_L = q_(L - shortest) (`core.ntt.lengths_from_values`).
+The coefficient of degree span + 1 must come out 0: a built-in check of every prime's
+values.  N is the fewest points that determine Q plus that one: at n = 300, 437 points
+(a power of two above the span would be 512; above `longest`, 1024).
 Counts of any size follow by the CRT over primes whose product exceeds the first sweep's
 size bound 2**count_bits, and one more prime checks them (`core.modular.reconstruct`,
 `CheckPrimeMismatch`).
@@ -41,26 +41,19 @@ from zeckenum.core.modular import (
     mulmod,
 )
 from zeckenum.core.ntt import (
-    counts_from_values,
+    lengths_from_values,
     ntt_primes_for_bits,
     point_blocks,
-    root_of_unity,
+    root_of_order,
 )
 from zeckenum.core.statespace import StateSpace
 from zeckenum.core.sweep import Windows, drop_stale, moves_into
 from zeckenum.counting.count import count
 from zeckenum.counting.result import CountResult
-from zeckenum.errors import CheckPrimeMismatch
 from zeckenum.rules.model import RuleSet
 
 MAX_POINTS_PER_SHARD = 1 << 20
 """Points per shard that means "all N" (N stays far below it: spans below 2**20)."""
-
-
-def transform_order(span: int) -> int:
-    """N = the least power of two above `span` = longest - shortest (the number of
-    evaluation points)."""
-    return 1 << max(0, int(span)).bit_length()
 
 
 @kernel
@@ -155,30 +148,6 @@ def spectrum_points(
     return out, updates
 
 
-def residues_from_values(
-    values: Sequence[int], p: int, w: int, shortest: int, longest: int,
-) -> list[int]:
-    """count_L mod p for L = 0 .. longest from values[k] = G(w**k) mod p, k < N = len(values)
-    (w of order N > longest - shortest): Q(w**k) = G(w**k) w**(-k shortest), inverse
-    transform, shift by `shortest`.  Raises CheckPrimeMismatch when Q has a term above the
-    span (the evaluations are then not those of a game's length polynomial)."""
-    n = len(values)
-    span = longest - shortest
-    if not 0 <= shortest <= longest or n <= span:
-        raise ValueError(f"{n} points cannot interpolate lengths {shortest}..{longest}")
-    unshift = pow(pow(w, shortest, p), p - 2, p)
-    q_values, f = [], 1
-    for v in values:
-        q_values.append(int(v) * f % p)
-        f = f * unshift % p
-    coeffs = counts_from_values(q_values, p, w)
-    if any(coeffs[span + 1 :]):
-        raise CheckPrimeMismatch(
-            f"the length polynomial mod {p} has a term outside the game lengths "
-            f"{shortest}..{longest}: the evaluations are not trusted")
-    return [0] * shortest + coeffs[: span + 1]
-
-
 def points_residues(
     space: StateSpace, windows: Windows, order: int, per_shard: int, threads: int,
     prime_offset: int = 0,
@@ -186,12 +155,12 @@ def points_residues(
     """(primes, check prime, residues [prime][length], word updates) of the count by
     evaluation points after its first sweep: every (prime = 1 mod `order`, block of at most
     `per_shard` of the `order` points) is one shard, `threads` at a time; each prime's values
-    are interpolated (`residues_from_values`).  The rows are in the order primes + [check],
+    are interpolated (`core.ntt.lengths_from_values`).  The rows are in the order primes + [check],
     as `count.assemble_count` reads them."""
     primes, check_prime = ntt_primes_for_bits(windows.count_bits, order, prime_offset)
     all_primes = [*primes, check_prime]
     shards = [(q, lo, hi) for q in all_primes for lo, hi in point_blocks(order, per_shard)]
-    roots = {q: root_of_unity(q, order) for q in all_primes}
+    roots = {q: root_of_order(q, order) for q in all_primes}
 
     def run(shard: tuple[int, int, int]) -> tuple[np.ndarray, int]:
         q, lo, hi = shard
@@ -205,8 +174,8 @@ def points_residues(
         values[q][lo : lo + vals.size] = [int(v) for v in vals]
     residues = np.zeros((len(all_primes), windows.longest + 1), dtype=np.int64)
     for row, q in enumerate(all_primes):
-        residues[row, :] = residues_from_values(values[q], q, roots[q], windows.shortest,
-                                                windows.longest)
+        residues[row, :] = lengths_from_values(values[q], q, roots[q], windows.shortest,
+                                               windows.longest, "the length polynomial")
     return primes, check_prime, residues, int(sum(u for _v, u in parts))
 
 

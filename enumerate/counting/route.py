@@ -10,7 +10,7 @@ points   (`counting.points.spectrum_points`) a shard is (prime below 2**50, bloc
          evaluation points); it holds K words per state of the layers in flight
          (`points.points_peak_words`); word updates per prime and point: one per kept move
          plus one per state of the swept layers but the start (`point_updates`); N =
-         `points.transform_order(longest - shortest)` points per prime.
+         `core.ntt.transform_size(longest - shortest)` points per prime.
 
 Both read the moves into each layer from the first sweep's kept `Incoming` ("keep") or list
 them again per shard ("recompute": no shared move lists, one listing of the largest layer
@@ -56,7 +56,7 @@ import numpy as np
 from zeckenum.core.blocks import block_plan
 from zeckenum.core.memory import human
 from zeckenum.core.modular import primes_for_bits
-from zeckenum.core.ntt import ntt_primes_for_bits
+from zeckenum.core.ntt import ntt_primes_for_bits, transform_size
 from zeckenum.core.statespace import StateSpace, build_space, rank_table_bytes, states_upper_bound
 from zeckenum.core.sweep import Windows, incoming_bytes_estimate, moves_into
 from zeckenum.counting.count import (
@@ -66,7 +66,7 @@ from zeckenum.counting.count import (
     windows_bytes,
     windows_pass_bytes,
 )
-from zeckenum.counting.points import points_peak_words, transform_order
+from zeckenum.counting.points import points_peak_words
 from zeckenum.counting.spectrum import peak_words
 from zeckenum.errors import MemoryRefused
 from zeckenum.rules.model import GameSpec
@@ -202,7 +202,7 @@ def count_sizes(space: StateSpace, windows: Windows, threads: int = 1,
     levels = sorted(windows.win, reverse=True)
     win_updates, point_moves = sweep_updates(space, windows) if updates else (0, 0)
     layer_sizes = tuple(int(windows.win[lv].size) for lv in levels)
-    order = transform_order(windows.longest - windows.shortest)
+    order = transform_size(windows.longest - windows.shortest)
     wprimes, _ = primes_for_bits(windows.count_bits, prime_offset)
     pprimes, _ = ntt_primes_for_bits(windows.count_bits, order, prime_offset)
     kept = windows.incoming is not None

@@ -15,18 +15,17 @@ per-state factor x_t * D(s)**-1 is applied once per (state, point) from a small 
 pure vectorised add) or the row times its weight (model "pairs").
 
 Points and the transform.  G(x) = x**shortest * Q(x) with Q of degree longest - shortest
-(every game has between `shortest` and `longest` moves).  With N = the least number
-2**k or 3 * 2**k above longest - shortest (`law_order`; a power of two alone would waste
-up to half of the points, this at most a third) and q = 1 (mod N), the points are the
-N-th roots of unity w**k; Q(w**k) = G(w**k) * w**(-k shortest), and the inverse transform
-(`core.ntt.coefficients_from_values`: radix 2, with one radix-3 step when 3 divides N)
-gives the coefficients P_(shortest+j) mod q for j < N.
-The coefficients above longest - shortest must be 0: a built-in check of every prime's
-values (CheckPrimeMismatch).  The primes are NTT-friendly (1 mod N) and lie in the proved
-ranges of the mul arithmetic (`core.modular.check_mul_primes`); their product exceeds the
-denominator M, one more prime checks the CRT (`randomplay.exact.assemble_random`, shared
-with the windowed route, so both give equal results).  Winners-only mode sums the law's
-residues by length mod P before the same assembly.
+(every game has between `shortest` and `longest` moves).  With N = longest - shortest + 2
+(`law_order`, the rule of both point routes, `core.ntt.transform_size`) and q = 1
+(mod N), the points are the N-th roots of unity w**k; Q(w**k) = G(w**k) * w**(-k
+shortest), and the inverse transform (`core.ntt.lengths_from_values`) gives the
+coefficients P_(shortest+j) mod q for j < N.  The coefficient above longest - shortest
+must be 0: a built-in check of every prime's values (CheckPrimeMismatch).  The primes
+are NTT-friendly (1 mod N) and lie in the proved ranges of the mul arithmetic
+(`core.modular.check_mul_primes`); their product exceeds the denominator M, one more
+prime checks the CRT (`randomplay.exact.assemble_random`, shared with the windowed route,
+so both give equal results).  Winners-only mode sums the law's residues by length mod P
+before the same assembly.
 
 Arithmetic.  Residues are below q < 2**50; a row accumulates at most max_indegree
 residues before one reduction (`core.modular.reduce62`), products by `core.modular.mulmod`.
@@ -55,14 +54,14 @@ from zeckenum.core.jit import kernel
 from zeckenum.core.memory import refuse_if_over, resolve_limit
 from zeckenum.core.modular import check_mul_primes, inverse_table, mulmod, reduce62
 from zeckenum.core.ntt import (
-    coefficients_from_values,
+    lengths_from_values,
     ntt_primes_for_bits,
     point_blocks,
     root_of_order,
     transform_size,
 )
 from zeckenum.core.sweep import drop_stale, gather_passes
-from zeckenum.errors import CheckPrimeMismatch, InputError
+from zeckenum.errors import InputError
 from zeckenum.randomplay.exact import RandomResult, assemble_random, checked_first_sweep
 from zeckenum.randomplay.skeleton import (
     Skeleton,
@@ -77,8 +76,7 @@ MAX_POINTS_PER_SHARD = 1 << 20
 
 
 def law_order(shortest: int, longest: int) -> int:
-    """N = the least 2**k or 3 * 2**k above longest - shortest (the number of points,
-    `core.ntt.transform_size`)."""
+    """N = longest - shortest + 2, the number of points (`core.ntt.transform_size`)."""
     return transform_size(max(0, int(longest) - int(shortest)))
 
 
@@ -222,27 +220,6 @@ def random_law_points(
     return out, updates
 
 
-def law_from_values(
-    values: Sequence[int], q: int, w: int, shortest: int, longest: int,
-) -> list[int]:
-    """P_L mod q for L = 0 .. longest from values[k] = G(w**k) mod q (w of order
-    N = len(values) > longest - shortest): shift by x**-shortest, invert the transform,
-    and check that the coefficients above longest - shortest vanish (CheckPrimeMismatch)."""
-    order = len(values)
-    step = pow(pow(w, shortest, q), q - 2, q)  # w**(-shortest)
-    shifted, f = [], 1
-    for v in values:
-        shifted.append(int(v) * f % q)
-        f = f * step % q
-    coeffs = coefficients_from_values(shifted, q, w)
-    top = longest - shortest
-    if any(coeffs[top + 1 : order]):
-        raise CheckPrimeMismatch(
-            f"the length law mod {q} has a term outside the lengths {shortest}..{longest}: "
-            "the evaluations are not trusted")
-    return [0] * shortest + coeffs[: top + 1]
-
-
 def random_play_points(
     n: int, rules: str | RuleSet = "standard", players: int = 2, model: str = "moves", *,
     winners_only: bool = False, points_per_shard: int | None = None, prime_offset: int = 0,
@@ -290,7 +267,8 @@ def random_play_points(
     values: dict[int, list[int]] = {q: [0] * order for q in allp}
     for (q, lo, _hi), (vals, _u) in zip(shards, parts, strict=True):
         values[q][lo : lo + vals.size] = [int(v) for v in vals]
-    rows = [law_from_values(values[q], q, roots[q], skel.shortest, skel.longest)
+    rows = [lengths_from_values(values[q], q, roots[q], skel.shortest, skel.longest,
+                                "the length law")
             for q in allp]
     if winners_only:
         rows = [[sum(row[r::players]) % q for r in range(players)]

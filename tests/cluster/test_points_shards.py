@@ -59,9 +59,9 @@ def test_points_plan_covers_every_point_of_every_prime_once() -> None:
     for per in (1, 3, 7, None, ALL):
         plan = points_plan(facts, 0, per, workers=2)
         order = plan.order
-        # common practice: N is a power of two above the span (the inverse transform
-        # needs N distinct points for the span + 1 unknown coefficients)
-        assert order & (order - 1) == 0 and span < order <= 2 * span + 1
+        # common practice: the inverse transform needs span + 1 distinct points for the
+        # span + 1 unknown coefficients; one more gives a coefficient that must vanish
+        assert order == span + 2
         product = 1
         for q in plan.primes:
             product *= q

@@ -24,18 +24,25 @@ import rules_bruteforce as rbf
 import sympy as sp
 import zeckenum
 from bruteforce import census, move_graph, start_state
-from zeckenum.core.ntt import counts_from_values, ntt_primes, ntt_primes_for_bits, root_of_unity
-from zeckenum.counting.points import count_points, residues_from_values, transform_order
+from zeckenum.core.ntt import (
+    counts_from_values,
+    lengths_from_values,
+    ntt_primes,
+    ntt_primes_for_bits,
+    root_of_order,
+    transform_size,
+)
+from zeckenum.counting.points import count_points
 from zeckenum.errors import CheckPrimeMismatch
 
 
-@pytest.mark.parametrize("order", [1, 2, 8, 64, 1024])
+@pytest.mark.parametrize("order", [1, 2, 3, 8, 64, 437, 653, 1024])
 def test_ntt_primes_are_primes_one_mod_the_order_below_2_50(order: int) -> None:
     ps = ntt_primes(order, 4)
     assert ps == sorted(ps, reverse=True) and len(set(ps)) == 4
     for p in ps:
         assert sp.isprime(p) and (p - 1) % order == 0 and 2**13 < p < 2**50
-        w = root_of_unity(p, order)
+        w = root_of_order(p, order)
         assert pow(w, order, p) == 1
         assert sp.n_order(w, p) == order  # exact order, by sympy
 
@@ -53,36 +60,37 @@ def test_ntt_primes_for_bits_cover_the_bound() -> None:
 def test_inverse_transform_recovers_a_random_polynomial(order: int) -> None:
     rng = random.Random(order)
     p = ntt_primes(order, 1)[0]
-    w = root_of_unity(p, order)
+    w = root_of_order(p, order)
     coeffs = [rng.randrange(p) for _ in range(order)]
     values = [sum(c * pow(w, k * j, p) for j, c in enumerate(coeffs)) % p
               for k in range(order)]
     assert counts_from_values(values, p, w) == coeffs
 
 
-def test_transform_order_is_the_least_power_of_two_above_the_span() -> None:
+def test_transform_size_is_the_fewest_points_plus_one_check() -> None:
+    # common practice (Lagrange): a polynomial of degree <= span is fixed by span + 1
+    # values; one more gives a coefficient that must vanish
     for span in range(0, 70):
-        order = transform_order(span)
-        assert order > span and order & (order - 1) == 0
-        assert order == 1 or order // 2 <= span
+        assert transform_size(span) == span + 2
 
 
-@pytest.mark.parametrize(("shortest", "longest"), [(0, 0), (0, 7), (5, 5), (9, 20), (40, 71)])
-def test_residues_from_values_rebuild_a_shifted_polynomial(shortest: int, longest: int) -> None:
+@pytest.mark.parametrize(("shortest", "longest"),
+                         [(0, 0), (0, 7), (5, 5), (9, 20), (40, 71), (3, 95), (300, 735)])
+def test_lengths_from_values_rebuild_a_shifted_polynomial(shortest: int, longest: int) -> None:
     # common practice: evaluate sum c_L x^L (support shortest..longest) at the N-th roots
     # of unity by the definition, then interpolate
     rng = random.Random(shortest * 100 + longest)
-    order = transform_order(longest - shortest)
+    order = transform_size(longest - shortest)
     p = ntt_primes(order, 1)[0]
-    w = root_of_unity(p, order)
+    w = root_of_order(p, order)
     coeffs = [0] * shortest + [rng.randrange(p) for _ in range(longest - shortest + 1)]
     values = [sum(c * pow(w, k * j, p) for j, c in enumerate(coeffs)) % p
               for k in range(order)]
-    assert residues_from_values(values, p, w, shortest, longest) == coeffs
-    if order > longest - shortest + 1:  # room for a term outside the lengths: caught
-        bad = [(v + pow(w, k * (longest + 1), p)) % p for k, v in enumerate(values)]
-        with pytest.raises(CheckPrimeMismatch, match="outside the game lengths"):
-            residues_from_values(bad, p, w, shortest, longest)
+    assert lengths_from_values(values, p, w, shortest, longest, "G") == coeffs
+    # a term outside the lengths (degree longest + 1) is caught
+    bad = [(v + pow(w, k * (longest + 1), p)) % p for k, v in enumerate(values)]
+    with pytest.raises(CheckPrimeMismatch, match="G mod .* outside the lengths"):
+        lengths_from_values(bad, p, w, shortest, longest, "G")
 
 
 @pytest.mark.parametrize("n", [1, 2, 3, 6, 11, 17])

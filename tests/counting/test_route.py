@@ -4,7 +4,7 @@
   both equal a count made here from the brute-force move graph (tests/support/bruteforce,
   networkx): one update per (move, length of its source's window) and prime on the
   windowed route; one per move and per state but the start, per (prime, point), on the
-  points route, N = the least power of two above longest - shortest (common practice:
+  points route, N = longest - shortest + 2 (span + 1 unknowns and one check; common practice:
   what an evaluation of G at N points costs by the recurrence V(s) = x * sum V(pred));
 * memory: the ring buffers a shard allocates (measured with tracemalloc, which sees numpy's
   allocations) are at least the forecast ring words and at most the forecast shard bytes
@@ -86,7 +86,7 @@ def test_word_updates_forecast_equals_the_run_and_the_move_graph(n: int) -> None
     assert res.stats["word_updates"] == plan.word_updates == per_prime * (len(res.primes) + 1)
     pts = count(n, threads=1, points_per_shard=3)
     forced = choose_count_route(sizes, BIG, 1, points_per_shard=3)
-    order = 1 << (census(n)["longest"] - census(n)["shortest"]).bit_length()
+    order = census(n)["longest"] - census(n)["shortest"] + 2  # span + 1 points and a check
     assert pts.stats["points"] == order
     assert pts.stats["word_updates"] == forced.word_updates == (
         per_point * order * (len(pts.primes) + 1))

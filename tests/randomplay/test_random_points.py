@@ -143,9 +143,10 @@ def test_primes_are_ntt_friendly_and_cover_the_denominator() -> None:
     assert (again, check) == (list(res.primes), res.check_prime)
 
 
-# Source: a naive sum of the powers (every size), and sympy's number-theoretic transform
+# Source: a naive sum of the powers (every size: the fast transforms for 2**k and 3 * 2**k,
+# the kernel of the definition for the others), and sympy's number-theoretic transform
 # (sympy.discrete.transforms.ntt, powers of two only) on random coefficients.
-@pytest.mark.parametrize("order", [1, 2, 3, 4, 6, 8, 12, 48, 64, 384])
+@pytest.mark.parametrize("order", [1, 2, 3, 4, 5, 6, 7, 8, 12, 30, 48, 64, 384, 437])
 def test_inverse_transform_recovers_random_polynomials(order: int) -> None:
     import random
 
