@@ -259,6 +259,27 @@ def mulmod(a: int, b: int, p: int, pinv: float) -> int:
 
 
 @kernel(inline=True)
+def mulmod_by(a: int, b: int, bq: float, p: int) -> int:
+    """a * b mod p for 0 <= a, b < p < 2**50, with bq = fl(fl(b) * fl(1 / p)) computed once
+    for a multiplier b used many times (one int-to-float conversion and one product less
+    than `mulmod`).
+
+    Proof.  bq = (b / p)(1 + e1)(1 + e2) and y = fl(fl(a) * bq) = (a b / p)(1 + e1)(1 + e2)
+    (1 + e3), |ei| <= u = 2**-53, the same three rounding errors as in `mulmod`, so its
+    argument holds word for word: q = trunc(y) = floor(a b / p) + {-1, 0, 1}, r = a b - q p
+    in [-p, 2p) exact in wrapping uint64 arithmetic, then one conditional add and one
+    conditional subtract.
+    """
+    q = np.int64(float(a) * bq)
+    r = np.int64(np.uint64(a) * np.uint64(b) - np.uint64(q) * np.uint64(p))
+    if r < 0:
+        r += p
+    if r >= p:
+        r -= p
+    return r
+
+
+@kernel(inline=True)
 def reduce62(x: int, p: int, pinv: float) -> int:
     """x mod p for 0 <= x < 2**62 and 2**13 < p < 2**50, with pinv = fl(1 / p).
 

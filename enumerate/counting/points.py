@@ -21,7 +21,7 @@ size bound 2**count_bits, and one more prime checks them (`core.modular.reconstr
 `CheckPrimeMismatch`).
 
 Cost.  Per state and point: one add per incoming move (mod p) and one product by x
-(`core.modular.mulmod`).  A window of lengths costs per state its window width (an
+(`core.modular.mulmod_by`).  A window of lengths costs per state its window width (an
 average of a few tens to a few hundred at n = 100..300) instead of the N points, so this
 path does more word updates than the windowed one; what it buys is shards of any size:
 every (prime, point block) pair is independent, the memory of a shard is its block of
@@ -37,9 +37,7 @@ from collections.abc import Sequence
 import numpy as np
 from zeckenum.core.blocks import run_blocks
 from zeckenum.core.jit import kernel
-from zeckenum.core.modular import (
-    mulmod,
-)
+from zeckenum.core.modular import mulmod_by
 from zeckenum.core.ntt import (
     lengths_from_values,
     ntt_primes_for_bits,
@@ -59,13 +57,13 @@ MAX_POINTS_PER_SHARD = 1 << 20
 @kernel
 def pull_points(
     dst: np.ndarray, ptr: np.ndarray, drop: np.ndarray, src_rank: np.ndarray,
-    which_drop: int, src: np.ndarray, npts: int, p: int, xs: np.ndarray, pinv: float,
+    which_drop: int, src: np.ndarray, npts: int, p: int, xs: np.ndarray, xq: np.ndarray,
     finish: bool, skip: int,
 ) -> int:
     """Add into every state's row (npts residues mod p) the rows of its predecessors
     `which_drop` levels up; with `finish`, then multiply each state's row by the points
     `xs` (its value is complete: x times the sum over its predecessors), except the state
-    of rank `skip` (the start, whose value is 1).
+    of rank `skip` (the start, whose value is 1); `xq` = fl(xs / p), `mulmod_by`'s factors.
 
     The pass with `finish` is the drop-0 pass, in ascending rank: a predecessor inside the
     layer has a lower rank, so it is finished before it is read.  Returns word updates.
@@ -85,7 +83,7 @@ def pull_points(
             updates += npts
         if finish and j != skip:
             for t in range(npts):
-                dv[t] = mulmod(dv[t], xs[t], p, pinv)
+                dv[t] = mulmod_by(dv[t], xs[t], xq[t], p)
             updates += npts
     return updates
 
@@ -119,7 +117,7 @@ def spectrum_points(
     p = int(prime)
     xs = np.asarray(points, dtype=np.int64)
     npts = xs.size
-    pinv = 1.0 / p
+    xq = xs.astype(np.float64) * (1.0 / p)  # mulmod_by's per-point factors
     out = np.zeros(npts, dtype=np.int64)
     start_level, start_rank = space.rank(space.spec.start)
     levels = [lv for lv in space.levels if lv <= start_level]
@@ -141,8 +139,8 @@ def spectrum_points(
         for d in range(1, space.max_drop + 1):
             if level + d in live:
                 updates += pull_points(vals, ptr, drop, src, d, live[level + d], npts, p, xs,
-                                       pinv, False, skip)
-        updates += pull_points(vals, ptr, drop, src, 0, vals, npts, p, xs, pinv, True, skip)
+                                       xq, False, skip)
+        updates += pull_points(vals, ptr, drop, src, 0, vals, npts, p, xs, xq, True, skip)
         collect_points(vals, windows.terminal_ranks[level], npts, p, out)
         drop_stale(live, level, space.max_drop)
     return out, updates

@@ -198,9 +198,10 @@ def test_bad_model_is_input_error() -> None:
 
 
 # Source: Python's exact integer arithmetic (a * b % p), on random and edge-case inputs, for
-# the float-assisted products of the exact sweep (proof in zeckenum.core.modular.mulmod).
+# the float-assisted products of the exact sweep (proofs in zeckenum.core.modular.mulmod,
+# mulmod_by with its multiplier's quotient factor float(b) * fl(1 / p) made once).
 def test_mulmod_and_reduce_match_python_integers() -> None:
-    from zeckenum.core.modular import MUL_PRIME_CEILING, mul_primes, mulmod, reduce62
+    from zeckenum.core.modular import MUL_PRIME_CEILING, mul_primes, mulmod, mulmod_by, reduce62
 
     rng = np.random.default_rng(20240611)
     primes = mul_primes(3) + mul_primes(2, offset=200) + [2**49 + 9, 1_000_003, 8209, 3]
@@ -213,8 +214,10 @@ def test_mulmod_and_reduce_match_python_integers() -> None:
         for a in vals[:60]:
             for b in vals[:60]:
                 assert mulmod(a, b, p, pinv) == a * b % p, (a, b, p)
+                assert mulmod_by(a, b, float(b) * pinv, p) == a * b % p, (a, b, p)
         for a, b in zip(rand, rand[::-1], strict=True):
             assert mulmod(a, b, p, pinv) == a * b % p, (a, b, p)
+            assert mulmod_by(a, b, float(b) * pinv, p) == a * b % p, (a, b, p)
         if p > 2**13:
             xs = [0, 1, p - 1, p, p + 1, 2 * p - 1, 2**62 - 1, 2**62 - p, (2**62 // p) * p,
                   (2**62 // p) * p - 1] + [int(x) for x in rng.integers(0, 2**62, size=400)]
