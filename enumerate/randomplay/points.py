@@ -28,7 +28,8 @@ so both give equal results).  Winners-only mode sums the law's residues by lengt
 before the same assembly.
 
 Arithmetic.  Residues are below q < 2**50; a row accumulates at most max_indegree
-residues before one reduction (`core.modular.reduce62`), products by `core.modular.mulmod`.
+residues before one reduction (`core.modular.reduce62`), products by `core.modular.mulmod_by`
+(each multiplier's quotient factor made once).
 
 Cost.  Per state and point: one add (or mulmod) per incoming move and one reduce + mulmod
 to finish; N is at least the width of every state's length window, so this route does
@@ -52,7 +53,7 @@ from zeckenum.core.checks import (
 )
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import refuse_if_over, resolve_limit
-from zeckenum.core.modular import check_mul_primes, inverse_table, mulmod, reduce62
+from zeckenum.core.modular import check_mul_primes, inverse_table, mulmod, mulmod_by, reduce62
 from zeckenum.core.ntt import (
     lengths_from_values,
     ntt_primes_for_bits,
@@ -107,7 +108,7 @@ def fill_factors(fac: np.ndarray, inv: np.ndarray, xs: np.ndarray, p: int) -> No
 def pull_law_points(
     vals: np.ndarray, up_vals: np.ndarray, npts: int, win: np.ndarray, dsum: np.ndarray,
     ptr: np.ndarray, drop: np.ndarray, src: np.ndarray, w: np.ndarray, unit: bool,
-    which: int, p: int, fac: np.ndarray, out: np.ndarray, skip: int,
+    which: int, p: int, fac: np.ndarray, facq: np.ndarray, out: np.ndarray, skip: int,
 ) -> int:
     """One layer of the evaluation-point sweep of random play, for one prime p and a block
     of npts points.  Returns the word updates.
@@ -116,7 +117,9 @@ def pull_law_points(
     its predecessors (times the move's weight unless `unit`; drop 0 from `vals`, else from
     `up_vals`); `which` selects the moves and whether states are finished, as in
     `core.sweep.gather_passes`.  Finishing reduces the row and multiplies it by
-    fac[D(j)] = x * D(j)**-1; a terminal row (D = 0) times x is added into out.  The state
+    fac[D(j)] = x * D(j)**-1 (`core.modular.mulmod_by`, with facq = fl(fac / p), and
+    each weight's factor made once per move); a terminal row (D = 0) times x is added into
+    out.  The state
     of rank `skip` (the start) is preset by the caller and only, when terminal, added.
     Invariant on entry: every row holds residues < p; between the passes a row holds a sum
     of at most max_indegree residues (< 2**62, `core.modular.check_mul_primes`).
@@ -141,8 +144,9 @@ def pull_law_points(
                     dv[t] += sv[t]
             else:
                 we = w[e]
+                weq = float(we) * pinv
                 for t in range(npts):
-                    dv[t] += mulmod(sv[t], we, p, pinv)
+                    dv[t] += mulmod_by(sv[t], we, weq, p)
             updates += npts
         if which > 0:
             continue
@@ -156,22 +160,23 @@ def pull_law_points(
         f0 = d * npts
         if d == 0:
             for t in range(npts):
-                x = out[t] + mulmod(reduce62(dv[t], p, pinv), fac[t], p, pinv)
+                x = out[t] + mulmod_by(reduce62(dv[t], p, pinv), fac[t], facq[t], p)
                 out[t] = x - p if x >= p else x
         else:
             for t in range(npts):
-                dv[t] = mulmod(reduce62(dv[t], p, pinv), fac[f0 + t], p, pinv)
+                dv[t] = mulmod_by(reduce62(dv[t], p, pinv), fac[f0 + t], facq[f0 + t], p)
         updates += npts
     return updates
 
 
 def law_points_words(skel: Skeleton, npts: int) -> int:
     """int64 words of one shard of `npts` points at its peak: the ring of max_drop + 1
-    layers of npts words per state, the factor table, the inverse column, points and out."""
+    layers of npts words per state, the factor table and its quotient factors, the inverse
+    column, points and out."""
     span = max(1, min(skel.max_drop + 1, len(skel.levels)))
     largest = max(skel.win[lv].size for lv in skel.levels)
     dmax = max(skel.max_weight, 1)
-    return span * largest * npts + (dmax + 1) * (npts + 1) + 2 * npts
+    return span * largest * npts + (dmax + 1) * (2 * npts + 1) + 2 * npts
 
 
 def random_law_points(
@@ -193,6 +198,7 @@ def random_law_points(
     inv = np.ascontiguousarray(inverse_table([p], dmax)[:, 0])
     fac = np.empty((dmax + 1) * npts, dtype=np.int64)
     fill_factors(fac, inv, xs, p)
+    facq = fac.astype(np.float64) * (1.0 / p)  # mulmod_by's quotient factors
     out = np.zeros(npts, dtype=np.int64)
     span = max(1, min(skel.max_drop + 1, len(skel.levels)))
     cap = max(skel.win[lv].size for lv in skel.levels) * npts
@@ -214,7 +220,7 @@ def random_law_points(
         for which, src_level in gather_passes(inc.drop, skel.max_drop, level, live):
             updates += pull_law_points(vals, live.get(src_level, empty), npts, skel.win[level],
                                        skel.dsum[level], inc.ptr, inc.drop, inc.src, inc.w,
-                                       unit, which, p, fac, out, skip)
+                                       unit, which, p, fac, facq, out, skip)
         live[level] = vals
         drop_stale(live, level, skel.max_drop)
     return out, updates
