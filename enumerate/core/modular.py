@@ -236,6 +236,19 @@ def _fill_inverses(row: np.ndarray, p: int, dmax: int) -> None:
 
 
 @kernel(inline=True)
+def _remainder(a: int, b: int, q: int, p: int) -> int:
+    """a * b mod p from q = floor(a b / p) + {-1, 0, 1} (0 <= a, b < p < 2**50): the
+    remainder a b - q p in [-p, 2p) in wrapping uint64 arithmetic, read as int64, then one
+    conditional add and one conditional subtract (the last steps of `mulmod`'s proof)."""
+    r = np.int64(np.uint64(a) * np.uint64(b) - np.uint64(q) * np.uint64(p))
+    if r < 0:
+        r += p
+    if r >= p:
+        r -= p
+    return r
+
+
+@kernel(inline=True)
 def mulmod(a: int, b: int, p: int, pinv: float) -> int:
     """a * b mod p for 0 <= a, b < p < 2**50, with pinv = fl(1 / p).
 
@@ -250,12 +263,7 @@ def mulmod(a: int, b: int, p: int, pinv: float) -> int:
     which makes an overflow undefined.)
     """
     q = np.int64(float(a) * float(b) * pinv)
-    r = np.int64(np.uint64(a) * np.uint64(b) - np.uint64(q) * np.uint64(p))
-    if r < 0:
-        r += p
-    if r >= p:
-        r -= p
-    return r
+    return _remainder(a, b, q, p)
 
 
 @kernel(inline=True)
@@ -271,12 +279,7 @@ def mulmod_by(a: int, b: int, bq: float, p: int) -> int:
     conditional subtract.
     """
     q = np.int64(float(a) * bq)
-    r = np.int64(np.uint64(a) * np.uint64(b) - np.uint64(q) * np.uint64(p))
-    if r < 0:
-        r += p
-    if r >= p:
-        r -= p
-    return r
+    return _remainder(a, b, q, p)
 
 
 @kernel(inline=True)
