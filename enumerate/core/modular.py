@@ -282,6 +282,12 @@ def mulmod_by(a: int, b: int, bq: float, p: int) -> int:
     return _remainder(a, b, q, p)
 
 
+def quotient_factors(b: np.ndarray, p: int) -> np.ndarray:
+    """bq = fl(fl(b) * fl(1 / p)) for every multiplier b (int64, below p < 2**50): the
+    factors `mulmod_by` assumes, made once per array of multipliers."""
+    return np.asarray(b, dtype=np.int64).astype(np.float64) * (1.0 / p)
+
+
 @kernel(inline=True)
 def reduce62(x: int, p: int, pinv: float) -> int:
     """x mod p for 0 <= x < 2**62 and 2**13 < p < 2**50, with pinv = fl(1 / p).

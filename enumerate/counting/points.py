@@ -37,7 +37,7 @@ from collections.abc import Sequence
 import numpy as np
 from zeckenum.core.blocks import run_blocks
 from zeckenum.core.jit import kernel
-from zeckenum.core.modular import mulmod_by
+from zeckenum.core.modular import mulmod_by, quotient_factors
 from zeckenum.core.ntt import (
     lengths_from_values,
     ntt_primes_for_bits,
@@ -117,7 +117,7 @@ def spectrum_points(
     p = int(prime)
     xs = np.asarray(points, dtype=np.int64)
     npts = xs.size
-    xq = xs.astype(np.float64) * (1.0 / p)  # mulmod_by's per-point factors
+    xq = quotient_factors(xs, p)
     out = np.zeros(npts, dtype=np.int64)
     start_level, start_rank = space.rank(space.spec.start)
     levels = [lv for lv in space.levels if lv <= start_level]

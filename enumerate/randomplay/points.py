@@ -53,7 +53,14 @@ from zeckenum.core.checks import (
 )
 from zeckenum.core.jit import kernel
 from zeckenum.core.memory import refuse_if_over, resolve_limit
-from zeckenum.core.modular import check_mul_primes, inverse_table, mulmod, mulmod_by, reduce62
+from zeckenum.core.modular import (
+    check_mul_primes,
+    inverse_table,
+    mulmod,
+    mulmod_by,
+    quotient_factors,
+    reduce62,
+)
 from zeckenum.core.ntt import (
     lengths_from_values,
     ntt_primes_for_bits,
@@ -119,8 +126,8 @@ def pull_law_points(
     `core.sweep.gather_passes`.  Finishing reduces the row and multiplies it by
     fac[D(j)] = x * D(j)**-1 (`core.modular.mulmod_by`, with facq = fl(fac / p), and
     each weight's factor made once per move); a terminal row (D = 0) times x is added into
-    out.  The state
-    of rank `skip` (the start) is preset by the caller and only, when terminal, added.
+    out.  The state of rank `skip` (the start) is preset by the caller and only, when
+    terminal, added.
     Invariant on entry: every row holds residues < p; between the passes a row holds a sum
     of at most max_indegree residues (< 2**62, `core.modular.check_mul_primes`).
     """
@@ -198,7 +205,7 @@ def random_law_points(
     inv = np.ascontiguousarray(inverse_table([p], dmax)[:, 0])
     fac = np.empty((dmax + 1) * npts, dtype=np.int64)
     fill_factors(fac, inv, xs, p)
-    facq = fac.astype(np.float64) * (1.0 / p)  # mulmod_by's quotient factors
+    facq = quotient_factors(fac, p)
     out = np.zeros(npts, dtype=np.int64)
     span = max(1, min(skel.max_drop + 1, len(skel.levels)))
     cap = max(skel.win[lv].size for lv in skel.levels) * npts
