@@ -15,6 +15,7 @@ from __future__ import annotations
 import json
 import os
 import shutil
+import site
 import subprocess
 import sys
 import zipfile
@@ -134,12 +135,20 @@ def test_wheel_installs_and_runs_outside_the_checkout(tmp_path: Path) -> None:
     assert not any(n.startswith(("enumerate/", "cluster/", "tests/")) for n in names)
     assert "zeckenum = zeckenum.cli:main" in entry_points
 
-    # A fresh environment that sees the dependencies (numba, numpy, click, ...) of this
-    # interpreter's base installation and holds zeckenum from the wheel only.
+    # A fresh environment that sees the dependencies (numba, numpy, click, ...) of the
+    # environment running this test and holds zeckenum from the wheel only.  When that
+    # environment is itself a venv, --system-site-packages would only reach the base
+    # interpreter (which may lack them), so its site folders are listed in a .pth file: they
+    # come after the new venv's own site-packages, so the wheel's zeckenum is found first
+    # (checked below).
     venv = tmp_path / "venv"
     _run([sys.executable, "-m", "venv", "--system-site-packages", "--without-pip", str(venv)],
          tmp_path, env, timeout=300)
     python = venv / ("Scripts/python.exe" if os.name == "nt" else "bin/python")
+    purelib = _run([str(python), "-c", "import sysconfig; print(sysconfig.get_path('purelib'))"],
+                   tmp_path, env, timeout=300).strip()
+    ours = [p for p in site.getsitepackages() if Path(p).is_dir()]
+    (Path(purelib) / "zeckenum-test-deps.pth").write_text("".join(f"{p}\n" for p in ours))
     _run([str(python), "-m", "pip", "install", "--no-deps", "--no-index", "--ignore-installed",
           str(wheels[0])], tmp_path, env, timeout=300)
 
