@@ -2,9 +2,13 @@
 
 This is the one place where moves are listed and their other end is ranked.  Counting and
 random play list the moves *into* each layer (`moves_in`, through the prefetcher
-`prefetch_listings` of the first sweep); the small-game tools (move statistics, strategies)
-list the moves *out of* it (`moves_out`).  Both wrappers run the kernel `list_moves` and
-return a `LayerMoves`.
+`prefetch_listings` of the first sweep, and again per shard when the moves are not kept);
+the small-game tools (move statistics, strategies) list the moves *out of* it
+(`moves_out`).  Both return a `LayerMoves`.  `moves_out` lists the layer's states
+(`StateSpace.states`) and runs the kernel `list_moves` on them; `moves_in`, the hot one,
+runs `list_moves_in`, which walks the layer instead (`core.walk`) and gives the same rows
+as `list_moves` with sign -1 (`benchmarks/bench_listing.py`: 1.66 times faster over every
+layer of n = 300, 37.6 against 62.4 ns per move on one core).
 
 Ranking the other end incrementally.  With the co-lexicographic rank of
 `statespace.rank_of`, the rank of a count vector c is the sum over bins k of
@@ -19,11 +23,14 @@ sums of its terms (`rank_prefix`) and, once per drop met, the suffix sums at tha
 (`shifted_suffix`) are computed, then each move costs O(hi[m] - lo[m] + 1) table reads
 (`neighbour_rank`).  These three inline kernels are the core ranking primitive; any kernel
 that walks states and needs the ranks of their neighbours can use them the same way (see
-`list_moves`).
+`list_moves`).  Walking the layer (`list_moves_in`), the prefix sums come from the walk's
+own suffix rows (pre[k] = rank - suf[0, k]) and the shifted rows change only below the
+highest bin a step changed (`_suffix_in`).
 
 Topological order.  Inside a layer, ascending rank must be a topological order (see
-`statespace`): every move inside a layer must lead to a higher rank.  `list_moves` reports
-the first state breaking it, and `refuse_order` is the one error every sweep raises for it.
+`statespace`): every move inside a layer must lead to a higher rank.  `list_moves` and
+`list_moves_in` report the first state breaking it, and `refuse_order` is the one error every
+sweep raises for it.
 """
 
 from __future__ import annotations
@@ -37,6 +44,7 @@ from typing import NoReturn
 import numpy as np
 from zeckenum.core.jit import kernel
 from zeckenum.core.statespace import StateSpace, move_applies
+from zeckenum.core.walk import _fill, _step_down, is_unit_game
 from zeckenum.errors import InputError
 from zeckenum.rules.model import GameSpec
 
@@ -170,16 +178,16 @@ def neighbour_rank(
 
 @kernel(inline=True)
 def move_weight(
-    states: np.ndarray, i: int, m: int, back: bool, mv_bins: np.ndarray, mv_delta: np.ndarray,
+    c: np.ndarray, m: int, back: bool, mv_bins: np.ndarray, mv_delta: np.ndarray,
 ) -> int:
-    """Weight (random model "pairs") of move m out of state i, or, with `back`, of move m out
-    of the source of the move m into state i: the product over the bins it takes from of
-    binomial(count, tokens taken)."""
+    """Weight (random model "pairs") of move m out of the state of counts c, or, with
+    `back`, of move m out of the source of the move m into c: the product over the bins it
+    takes from of binomial(count, tokens taken)."""
     x = 1
     for j in range(mv_bins.shape[1]):
         dl = mv_delta[m, j]
         if dl < 0:
-            a = states[i, mv_bins[m, j]]
+            a = c[mv_bins[m, j]]
             if back:
                 a -= dl
             b = 1
@@ -233,7 +241,7 @@ def list_moves(
                 deg += 1
             if out:
                 if pairs:
-                    tot += move_weight(states, i, m, False, mv_bins, mv_delta)
+                    tot += move_weight(states[i], m, False, mv_bins, mv_delta)
                 else:
                     tot += 1
         ptr[i + 1] = ptr[i] + deg
@@ -271,20 +279,137 @@ def list_moves(
             other[e] = r
             move[e] = m
             if pairs:
-                w[e] = move_weight(states, i, m, sign < 0, mv_bins, mv_delta)
+                w[e] = move_weight(states[i], m, sign < 0, mv_bins, mv_delta)
             e += 1
     return ptr, drop, other, move, w, dsum, bad
 
 
+@kernel(inline=True)
+def _suffix_in(j_top: int, lowv: np.ndarray, lowt: np.ndarray, tab: np.ndarray,
+               suf: np.ndarray) -> None:
+    """suf[d, k] for k <= j_top as `shifted_suffix(+d)` makes it (the suffix rows of the
+    moves in of drop d), after a step of the walk changed the bins up to j_top; the rows
+    above j_top are unchanged.  The walk's own `walk._terms` shifts the other way (moves
+    out)."""
+    for d in range(suf.shape[0]):
+        for k in range(j_top, -1, -1):
+            suf[d, k] = (suf[d, k + 1] + _tab(tab, k + 1, lowv[k + 1], lowt[k + 1] + d)
+                         - _tab(tab, k + 1, lowv[k], lowt[k] + d))
+
+
+ERR_LISTED = 1
+"""Error flag of `list_moves_in`: the walk lost step with the ranks, or the moves listed
+differ from the count the rank table gives (an internal error, never a result)."""
+
+
+@kernel
+def list_moves_in(
+    n: int, level: int, size: int, total: int, tab: np.ndarray, values: np.ndarray,
+    weights: np.ndarray, mv_bins: np.ndarray, mv_delta: np.ndarray, mv_drop: np.ndarray,
+    lo: np.ndarray, hi: np.ndarray, dd: np.ndarray, pairs: bool,
+):
+    """`list_moves` with sign -1 (every legal move into every state of one layer), without
+    the layer's states: the layer is walked in descending rank (`walk._walk_start`,
+    `walk._step_down`) and each state's suffix rows follow the walk (`_suffix_in`: only the
+    bins a step changed), so no state is listed and no rank prefix is recomputed.
+
+    `total` is the number of moves listed into the layer (`listed_moves`, from the rank
+    table); row i is written just below row i + 1, so the rows end exactly at 0 when the
+    count is right.  Returns (ptr, drop, other, move, w, dsum, bad, error), the first seven
+    exactly as `list_moves` returns them; error is ERR_LISTED when a state's rank from its
+    suffix rows is not its place in the walk, or the rows do not fill [0, total) exactly.
+    """
+    nb_ = values.size
+    nmoves = mv_bins.shape[0]
+    max_level = tab.shape[2] - 1
+    maxd = 0
+    for m in range(nmoves):
+        if mv_drop[m] > maxd:
+            maxd = mv_drop[m]
+    ptr = np.zeros(size + 1, dtype=np.int64)
+    dsum = np.zeros(size, dtype=np.int64)
+    drop = np.empty(total, dtype=np.int8)
+    other = np.empty(total, dtype=np.int64)
+    move = np.empty(total, dtype=np.int32)
+    w = np.empty(total if pairs else 0, dtype=np.int64)
+    if size == 0:
+        return ptr, drop, other, move, w, dsum, -1, ERR_LISTED if total else 0
+    c = np.zeros(nb_, dtype=np.int64)
+    lowv = np.zeros(nb_ + 1, dtype=np.int64)
+    lowt = np.zeros(nb_ + 1, dtype=np.int64)
+    suf = np.zeros((maxd + 1, nb_ + 1), dtype=np.int64)
+    cand = np.zeros(nmoves, dtype=np.int64)
+    # the level tests of `move_applies`, the same for every state of the layer
+    in_level = np.zeros(nmoves, dtype=np.bool_)
+    out_level = np.zeros(nmoves, dtype=np.bool_)
+    for m in range(nmoves):
+        in_level[m] = level + mv_drop[m] <= max_level
+        out_level[m] = level - mv_drop[m] >= 0
+    unit = is_unit_game(values, weights)
+    lowv[nb_] = n
+    lowt[nb_] = level
+    _fill(nb_ - 1, c, lowv, lowt, tab, values, weights, unit)
+    _suffix_in(nb_ - 1, lowv, lowt, tab, suf)
+    end = total
+    bad = -1
+    for i in range(size - 1, -1, -1):
+        if i < size - 1:
+            j = _step_down(c, lowv, lowt, tab, values, weights, unit)
+            if j < 0:
+                return ptr, drop, other, move, w, dsum, bad, ERR_LISTED
+            _suffix_in(j, lowv, lowt, tab, suf)
+        if suf[0, 0] != i:
+            return ptr, drop, other, move, w, dsum, bad, ERR_LISTED
+        deg = 0
+        tot = 0
+        for m in range(nmoves):
+            into = in_level[m]
+            out = out_level[m]
+            for s in range(mv_bins.shape[1]):
+                x = c[mv_bins[m, s]]
+                dl = mv_delta[m, s]
+                if x + dl < 0:
+                    out = False
+                if x - dl < 0:
+                    into = False
+            if out:
+                tot += move_weight(c, m, False, mv_bins, mv_delta) if pairs else 1
+            if into:
+                cand[deg] = m
+                deg += 1
+        dsum[i] = tot
+        first = end - deg
+        if first < 0:
+            return ptr, drop, other, move, w, dsum, bad, ERR_LISTED
+        ptr[i + 1] = end
+        for z in range(deg):
+            m = cand[z]
+            d = mv_drop[m]
+            r = neighbour_rank(c, m, -1, lo, hi, dd, tab, values, weights, lowv, lowt,
+                               i - suf[0, lo[m]], suf[d, hi[m] + 1])
+            if d == 0 and r >= i:
+                bad = i  # the walk descends: the last one found is the least
+            e = first + z
+            drop[e] = d
+            other[e] = r
+            move[e] = m
+            if pairs:
+                w[e] = move_weight(c, m, True, mv_bins, mv_delta)
+        end = first
+    return ptr, drop, other, move, w, dsum, bad, ERR_LISTED if end != 0 else 0
+
+
 @dataclass(frozen=True, eq=False)
 class LayerMoves:
-    """The states of one layer and all their moves in (sign -1) or out (sign +1).
+    """The moves in (sign -1) or out (sign +1) of every state of one layer.
 
     Compressed rows (see `list_moves`): the moves of state i are ptr[i]..ptr[i+1]-1; move
     e is move[e] of the rule set and links state i with the state of rank other[e] in layer
     level - sign * drop[e] (its source for moves in, its destination for moves out).  dsum
     is D per state (total weight of its moves out; 0 exactly for an end position), w the
-    weight of each move ("pairs"; empty when every weight is 1).
+    weight of each move ("pairs"; empty when every weight is 1).  `states` holds the
+    layer's count vectors for moves out; moves in (`moves_in`) walk the layer without
+    listing them and leave it with no rows.
     """
 
     level: int
@@ -299,7 +424,7 @@ class LayerMoves:
 
     @property
     def size(self) -> int:
-        return int(self.states.shape[0])
+        return int(self.ptr.size) - 1
 
     def terminals(self) -> np.ndarray:
         """Ranks of the states without any legal move (int64, ascending)."""
@@ -335,10 +460,25 @@ def layer_moves(
     return LayerMoves(level, sign, states, ptr, drop, other, move, w, dsum)
 
 
-def moves_in(space: StateSpace, level: int, states: np.ndarray | None = None,
-             pairs: bool = False) -> LayerMoves:
-    """Moves into every state of one layer; `other` holds each move's source rank."""
-    return layer_moves(space, level, -1, states, pairs)
+def moves_in(space: StateSpace, level: int, pairs: bool = False) -> LayerMoves:
+    """Moves into every state of one layer; `other` holds each move's source rank.
+
+    The layer is walked, not listed (`list_moves_in`: the same rows as `list_moves` with
+    sign -1, about 1.7 times faster at n = 300 and without the states' int64 rows);
+    refuses a rule set breaking the topological order (`refuse_order`)."""
+    s = space.spec
+    lo, hi = move_spans(s.mv_bins, s.mv_delta)
+    dd = move_dense(s.mv_bins, s.mv_delta, lo, hi)
+    ptr, drop, other, move, w, dsum, bad, err = list_moves_in(
+        s.n, level, space.layer_size(level), space.moves_at(level, -1), space.tab, s.values,
+        s.weights, s.mv_bins, s.mv_delta, s.mv_drop, lo, hi, dd, pairs,
+    )
+    if err:
+        raise RuntimeError(f"the move listing of level {level} lost step with the ranks")
+    if bad >= 0:
+        refuse_order(s, level, int(bad))
+    return LayerMoves(level, -1, np.zeros((0, s.nbins), dtype=np.int64), ptr, drop, other,
+                      move, w, dsum)
 
 
 def moves_out(space: StateSpace, level: int, states: np.ndarray | None = None,
@@ -360,11 +500,11 @@ def prefetch_listings(
         pending: deque[Future] = deque()
         queue = iter(levels)
         for level in queue:
-            pending.append(pool.submit(moves_in, space, level, None, pairs))
+            pending.append(pool.submit(moves_in, space, level, pairs))
             if len(pending) > threads:
                 break
         while pending:
             yield pending.popleft().result()
             nxt = next(queue, None)
             if nxt is not None:
-                pending.append(pool.submit(moves_in, space, nxt, None, pairs))
+                pending.append(pool.submit(moves_in, space, nxt, pairs))

@@ -251,19 +251,35 @@ class StateSpace:
         top = self.top
         out = np.zeros(top + 1, dtype=np.float64)
         row = self.tab[s.nbins].astype(np.float64)
+        for gv, gw, d in self._held_tokens(sign):
+            src = row[s.n - gv]
+            for t in range(gw, top + 1):
+                target = t - sign * d
+                if 0 <= target <= top:
+                    out[t] += src[t - gw]
+        return out
+
+    def moves_at(self, level: int, sign: int = -1) -> int:
+        """`moves_by_level(sign)[level]` as an exact integer, for one level only."""
+        s = self.spec
+        total = 0
+        for gv, gw, d in self._held_tokens(sign):
+            if level >= gw and 0 <= level - sign * d <= self.top:
+                total += int(self.tab[s.nbins, s.n - gv, level - gw])
+        return total
+
+    def _held_tokens(self, sign: int) -> list[tuple[int, int, int]]:
+        """Per move whose tokens held fit n: (their value, their level, the move's drop),
+        the tokens a state must hold for the move (sign +1) or its reverse (sign -1)."""
+        s = self.spec
+        out = []
         for m in range(s.mv_bins.shape[0]):
             delta = s.mv_delta[m] * (-sign)
             held = np.where(delta > 0, delta, 0)
             gv = int((held * s.values[s.mv_bins[m]]).sum())
             gw = int((held * s.weights[s.mv_bins[m]]).sum())
-            if gv > s.n:
-                continue
-            src = row[s.n - gv]
-            d = int(s.mv_drop[m])
-            for t in range(gw, top + 1):
-                target = t - sign * d
-                if 0 <= target <= top:
-                    out[t] += src[t - gw]
+            if gv <= s.n:
+                out.append((gv, gw, int(s.mv_drop[m])))
         return out
 
     def states(self, level: int) -> np.ndarray:

@@ -55,7 +55,7 @@ from zeckenum.core.listing import (
     shifted_suffix,
 )
 from zeckenum.core.statespace import StateSpace
-from zeckenum.optimal.walk import (
+from zeckenum.core.walk import (
     _legal_moves,
     _step_down,
     _terms,

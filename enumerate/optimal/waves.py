@@ -76,7 +76,7 @@ import numpy as np
 from zeckenum.core.jit import kernel
 from zeckenum.core.listing import move_dense, move_spans, neighbour_rank
 from zeckenum.core.statespace import StateSpace
-from zeckenum.optimal.walk import (
+from zeckenum.core.walk import (
     _largest_count,
     _legal_moves,
     _n_ge,

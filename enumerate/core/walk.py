@@ -1,20 +1,24 @@
-"""The layer walk: successor ranks of one layer's states without listing states or moves.
+"""The layer walk: one layer's states in descending rank without listing them.
 
 States of a layer (value n, one level) are ranked co-lexicographically (`core.statespace`).
-The classification kernels (`classify`) walk each layer in descending rank like an odometer
-(`_walk_start`, `_step_down`: the lowest bin whose count can drop drops, the bins below refill
-with their largest feasible counts, feasibility read off the rank table), and compute the
-successors' ranks on the fly with the core's one ranking step (`core.listing.neighbour_rank`)
-from suffix sums of the co-lexicographic ranking: a move changes only the rank terms of the
-bins between its lowest and highest touched bin (`core.listing.move_spans`, `move_dense`),
-and a step of the walk only those of the bins it changed (`_terms`, which keeps the suffix
-rows of every drop up to date as the walk moves).  Each state's recomputed rank is checked
-against the walk's position by the kernels that use the walk.
+The walk visits them in descending rank like an odometer (`_walk_start`, `_step_down`: the
+lowest bin whose count can drop drops, the bins below refill with their largest feasible
+counts, feasibility read off the rank table), and its users compute the neighbours' ranks
+on the fly with the one ranking step (`core.listing.neighbour_rank`) from suffix sums of
+the co-lexicographic ranking: a move changes only the rank terms of the bins between its
+lowest and highest touched bin (`core.listing.move_spans`, `move_dense`), and a step of the
+walk only those of the bins it changed (`_terms` keeps the suffix rows of the moves out of
+every drop up to date as the walk moves; `core.listing._suffix_in` those of the moves in).
+Two users: optimal play's classification kernels (`optimal.classify`, `optimal.waves`:
+successors) and the listing of the moves into a layer (`core.listing.list_moves_in`:
+sources).  Each state's recomputed rank is checked against the walk's position by every
+kernel that uses the walk.
 
 For a state taken from a listed layer (the reachability kernel `classify.reach_layer` walks
 `StateSpace.states`) the same sums come from `core.listing.rank_prefix` /
-`shifted_suffix`, exactly as in the move listing.  Every function here is a numba kernel or
-an inlined kernel helper; `walk_layer` exists for checks and tests.
+`shifted_suffix`, exactly as in the states-based listing `core.listing.list_moves`.  Every
+function here is a numba kernel or an inlined kernel helper; `walk_layer` exists for checks
+and tests.
 
 Relation to the state space's own primitives.  The ranks are those of
 `statespace.rank_of` (the walk checks every state's rank against its position), and
