@@ -86,7 +86,7 @@ def main() -> int:
     from distributed import Client, as_completed
     from zeckenum.cluster.backend import close_cluster, start_local_cluster
     from zeckenum.cluster.plan import points_plan, worker_bytes
-    from zeckenum.core.ntt import counts_from_values, root_of_order
+    from zeckenum.core.ntt import coefficients_from_values, root_of_order
 
     cluster = start_local_cluster(args.workers)
     try:
@@ -128,7 +128,7 @@ def main() -> int:
     q = plan.all_primes[0]
     w = root_of_order(q, plan.order)
     t2 = time.perf_counter()
-    counts_from_values(list(range(plan.order)), q, w)
+    coefficients_from_values(list(range(plan.order)), q, w)
     assembly = (time.perf_counter() - t2) * len(plan.all_primes)
 
     shared = facts.window_bytes + facts.shared_bytes
