@@ -39,10 +39,10 @@ from zeckenum.rules.model import RuleSet
 
 def listing_bytes(space: StateSpace) -> int:
     """Bytes of the largest layer's move listing (`core.listing.moves_in`), an upper bound:
-    its states (int64 per bin), ptr and D (int64 per state), and per move into the layer
-    (exactly counted, `StateSpace.moves_by_level`) drop (int8, counted as 8), source
-    (int64), move (int32) and the first sweep's keep flag."""
-    return space.listing_peak(8 * space.spec.nbins + 16, 8 + 8 + 4 + 1)
+    ptr and D (int64 per state; the listing walks the layer, so no states' rows), and per
+    move into the layer (exactly counted, `StateSpace.moves_by_level`) drop (int8, counted
+    as 8), source (int64), move (int32) and the first sweep's keep flag."""
+    return space.listing_peak(16, 8 + 8 + 4 + 1)
 
 
 def windows_pass_bytes(space: StateSpace, threads: int = 1) -> int:

@@ -241,7 +241,8 @@ def float_sweep_bytes(space: StateSpace, model: str, threads: int) -> tuple[int,
     spec = space.spec
     per_move = 5 + (8 if model == "pairs" else 0)
     largest = space.largest_layer()
-    listing = space.listing_peak(8 * spec.nbins + 16 + 1, 8 + 8 + 4 + 8 + 1 + 8 + 8)
+    # the listing walks its layer: no int64 rows of states
+    listing = space.listing_peak(16 + 1, 8 + 8 + 4 + 8 + 1 + 8 + 8)
     first = (space.max_drop + 1) * largest * 8 + (threads + 2) * listing
     layers = (space.max_drop + 4) * space.listing_peak(SKELETON_PER_STATE + 8, per_move)
     window = window_bound(spec) or 1

@@ -163,7 +163,8 @@ def skeleton_bytes_bound(space: StateSpace, model: str, exponents: bool = True,
     moves_in = float(space.moves_by_level(-1).sum())
     kept = space.total_states() * SKELETON_PER_STATE + math.ceil(moves_in * per_move)
     live = (space.max_drop + 1) * largest * (8 + 4 * nbp)
-    listing = space.listing_peak(8 * spec.nbins + 16 + 1, 8 + 8 + 4 + 8 + 1 + 8 + 8)
+    # the listing walks its layer: no int64 rows of states
+    listing = space.listing_peak(16 + 1, 8 + 8 + 4 + 8 + 1 + 8 + 8)
     return int(space.tab.nbytes) + kept + live + (thread_count(threads) + 2) * listing + 16 * (
         dbound + 1)
 
