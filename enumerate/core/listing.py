@@ -200,6 +200,16 @@ def move_weight(
 # ----------------------------------------------------------------------------- listing
 
 
+@kernel(inline=True)
+def _largest_drop(mv_drop: np.ndarray) -> int:
+    """The largest drop of any move (0 with no moves): one suffix row per drop 0..it."""
+    maxd = 0
+    for m in range(mv_drop.size):
+        if mv_drop[m] > maxd:
+            maxd = mv_drop[m]
+    return maxd
+
+
 @kernel
 def list_moves(
     states: np.ndarray, level: int, tab: np.ndarray, values: np.ndarray, weights: np.ndarray,
@@ -222,10 +232,7 @@ def list_moves(
     nb_ = values.size
     nmoves = mv_bins.shape[0]
     max_level = tab.shape[2] - 1
-    maxd = 0
-    for m in range(nmoves):
-        if mv_drop[m] > maxd:
-            maxd = mv_drop[m]
+    maxd = _largest_drop(mv_drop)
     ptr = np.zeros(size + 1, dtype=np.int64)
     dsum = np.zeros(size, dtype=np.int64)
     for i in range(size):
@@ -313,8 +320,8 @@ def list_moves_in(
     `walk._step_down`) and each state's suffix rows follow the walk (`_suffix_in`: only the
     bins a step changed), so no state is listed and no rank prefix is recomputed.
 
-    `total` is the number of moves listed into the layer (`listed_moves`, from the rank
-    table); row i is written just below row i + 1, so the rows end exactly at 0 when the
+    `total` is the number of moves listed into the layer (`StateSpace.moves_at`, from the
+    rank table); row i is written just below row i + 1, so the rows end exactly at 0 when the
     count is right.  Returns (ptr, drop, other, move, w, dsum, bad, error), the first seven
     exactly as `list_moves` returns them; error is ERR_LISTED when a state's rank from its
     suffix rows is not its place in the walk, or the rows do not fill [0, total) exactly.
@@ -322,10 +329,7 @@ def list_moves_in(
     nb_ = values.size
     nmoves = mv_bins.shape[0]
     max_level = tab.shape[2] - 1
-    maxd = 0
-    for m in range(nmoves):
-        if mv_drop[m] > maxd:
-            maxd = mv_drop[m]
+    maxd = _largest_drop(mv_drop)
     ptr = np.zeros(size + 1, dtype=np.int64)
     dsum = np.zeros(size, dtype=np.int64)
     drop = np.empty(total, dtype=np.int8)
