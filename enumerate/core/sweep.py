@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterator, Mapping
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -285,7 +286,6 @@ def swept_layers(
     `factor_primes`: lcm over games of the product of D(s), else 1).
     """
     spec = space.spec
-    max_drop = space.max_drop
     if factor_primes is None:
         factor_primes = spf = pidx = np.zeros(0, dtype=np.int64)
     else:
@@ -295,11 +295,81 @@ def swept_layers(
     levels = [lv for lv in space.levels if lv <= start_level]
     end_ex = np.zeros(nbp, dtype=np.int32)
     stats = np.array([0, 0, 0, UNREACHED, -1, 0], dtype=np.int64)
+    pool = ThreadPoolExecutor(max_workers=threads) if threads >= PULL_SPLIT_MIN_THREADS else None
+    try:
+        yield from _sweep_layers(
+            space, levels, start_level, start_rank, pairs, paths, keep_moves, factor_primes,
+            spf, pidx, weight_bound, threads, pool, end_ex, stats, totals)
+    finally:
+        if pool is not None:
+            pool.shutdown()
+
+
+PULL_SPLIT_MIN_MOVES = 1 << 18
+"""Moves of one pass below which `_pull` does not split it over threads."""
+
+PULL_SPLIT_MIN_THREADS = 4
+"""Threads from which the sweep splits its passes (`_pull`).  With fewer, the listing
+threads and the gathering thread already keep the cores busy: on 2 cores, n = 250, the
+split made the 2-thread sweep slower (7.29 s against 6.55 s,
+`benchmarks/bench_first_sweep.py`)."""
+
+
+def _pull(pool: ThreadPoolExecutor | None, threads: int, which: int, up: tuple,
+          lmin: np.ndarray, lmax: np.ndarray, lp: np.ndarray, ex: np.ndarray,
+          lm: LayerMoves, keep: np.ndarray, spf: np.ndarray, pidx: np.ndarray,
+          end_ex: np.ndarray, stats: np.ndarray) -> None:
+    """One `pull_windows` pass over a layer, split over `threads` when it gathers from a
+    layer above only (which >= 1).
+
+    Such a pass reads finished layers only and writes, for each state j of the layer, its
+    own lmin/lmax/lp/ex[j] and the keep flags of its own rows (and the move count): ranges
+    of states with about equal numbers of moves run at once, each with its own stats,
+    summed after (a pass which >= 1 changes only stats[1]).  Each state still gathers its
+    moves in row order, so every result, the float path estimate included, is the same bit
+    for bit as one call's.  A pass with drop-0 moves (which <= 0) reads states of the
+    layer itself and runs as one call.
+    """
+    moves = int(lm.ptr[-1])
+    if pool is None or which <= 0 or moves < PULL_SPLIT_MIN_MOVES:
+        pull_windows(lmin, lmax, lp, ex, *up, lm.ptr, lm.drop, lm.other, keep, lm.dsum,
+                     spf, pidx, end_ex, stats, which)
+        return
+    cuts = np.searchsorted(lm.ptr, np.linspace(0, moves, threads + 1)[1:-1])
+    bounds = [0, *sorted({int(c) for c in cuts if 0 < c < lm.size}), lm.size]
+    parts = [np.zeros_like(stats) for _ in bounds[1:]]
+
+    def run(k: int) -> None:
+        a, b = bounds[k], bounds[k + 1]
+        part = parts[k]
+        part[3] = UNREACHED
+        part[4] = -1
+        pull_windows(lmin[a:b], lmax[a:b], lp[a:b] if lp.size else lp, ex[a:b], *up,
+                     lm.ptr[a : b + 1], lm.drop, lm.other, keep, lm.dsum[a:b], spf, pidx,
+                     end_ex, part, which)
+
+    for f in [pool.submit(run, k) for k in range(len(bounds) - 1)]:
+        f.result()
+    stats[1] += sum(int(p[1]) for p in parts)
+
+
+def _sweep_layers(
+    space: StateSpace, levels: list[int], start_level: int, start_rank: int, pairs: bool,
+    paths: bool, keep_moves: bool, factor_primes: np.ndarray, spf: np.ndarray,
+    pidx: np.ndarray, weight_bound: int, threads: int, pool: ThreadPoolExecutor | None,
+    end_ex: np.ndarray, stats: np.ndarray, totals: dict | None,
+) -> Iterator[SweptLayer]:
+    """The body of `swept_layers` (its pull passes split over `pool`, see `_pull`)."""
+    max_drop = space.max_drop
+    nbp = factor_primes.size
     z32 = np.zeros(0, dtype=np.int32)
     empty = (z32, z32, np.zeros(0), np.zeros((0, nbp), dtype=np.int32))
     live: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = {}
     max_in = max_window = 0
     term_lp = -np.inf
+    # the path estimate is a float sum: always gathered drop by drop, drop 0 last; the
+    # integer results do not depend on the plan, so threads split the drops too (`_pull`)
+    merge = not paths and pool is None
     for level, lm in zip(levels, prefetch_listings(space, levels, threads, pairs), strict=True):
         size = lm.size
         lmin = np.full(size, UNREACHED, dtype=np.int32)
@@ -313,10 +383,9 @@ def swept_layers(
         if nbp and lm.dsum.size and int(lm.dsum.max()) > weight_bound:
             raise RuntimeError(f"a total move weight exceeds the a-priori bound {weight_bound}")
         keep = np.zeros(lm.other.size, dtype=np.bool_)
-        # the path estimate is a float sum: always gathered drop by drop, drop 0 last
-        for which, src_level in gather_passes(lm.drop, max_drop, level, live, not paths):
-            pull_windows(lmin, lmax, lp, ex, *live.get(src_level, empty), lm.ptr, lm.drop,
-                         lm.other, keep, lm.dsum, spf, pidx, end_ex, stats, which)
+        for which, src_level in gather_passes(lm.drop, max_drop, level, live, merge):
+            _pull(pool, threads, which, live.get(src_level, empty), lmin, lmax, lp, ex, lm,
+                  keep, spf, pidx, end_ex, stats)
         reached = lmin != UNREACHED
         ends = np.flatnonzero(reached & (lm.dsum == 0))
         if paths and ends.size:

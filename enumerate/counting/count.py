@@ -111,6 +111,23 @@ def count_windows(
     return windows, first + (incoming_bytes_estimate(space) if keep else 0)
 
 
+def sweep_threads(space: StateSpace, limit: int, cores: int, cap: int | None = None) -> int:
+    """Most threads, at most `cores`, for the first sweep of a count under `limit`
+    (`count_windows`) that keep the moves exactly when one thread would, and whose forecast
+    peak (`windows_pass_bytes`, plus the kept moves) fits `cap` (default `limit`): the
+    listing threads are what grows with them.  At least 1."""
+    cap = limit if cap is None else cap
+    kept = incoming_bytes_estimate(space)
+    keep = windows_pass_bytes(space, 1) + kept <= limit // 4
+    best = 1
+    for threads in range(2, max(1, cores) + 1):
+        first = windows_pass_bytes(space, threads)
+        if (first + kept <= limit // 4) != keep or first + (kept if keep else 0) > cap:
+            break
+        best = threads
+    return best
+
+
 def count(
     n: int,
     rules: str | RuleSet = "standard",
