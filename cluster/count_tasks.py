@@ -36,7 +36,7 @@ from zeckenum.core.memory import available_bytes
 from zeckenum.core.ntt import root_of_order, transform_size
 from zeckenum.core.statespace import StateSpace, build_space
 from zeckenum.core.sweep import Windows
-from zeckenum.counting.count import count_windows
+from zeckenum.counting.count import count_windows, sweep_threads
 from zeckenum.counting.points import points_peak_words, spectrum_points
 from zeckenum.counting.route import sweep_updates
 from zeckenum.counting.spectrum import peak_words, spectrum_residues
@@ -162,7 +162,16 @@ def host_windows_with_facts(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windo
         _, win, facts = windows_with_facts(ruleset, n)
         return win, facts.to_dict()
 
-    win, recorded, _ = shared_windows(ruleset.content_hash(), n, compute, space)
+    def compute_shared() -> tuple[Windows, dict]:
+        # the host's other worker processes wait on the cache's lock meanwhile: the sweep
+        # lists layers on the host's cores, as many as this worker's memory allows
+        limit = available_bytes()
+        threads = sweep_threads(space, limit, host_cores(), worker_memory_cap(limit))
+        _, win, facts = windows_with_facts(ruleset, n, limit, threads)
+        return win, facts.to_dict()
+
+    win, recorded, _ = shared_windows(ruleset.content_hash(), n, compute, space,
+                                      compute_shared)
     key = (ruleset.content_hash(), n, win.incoming is not None)
     with _facts_lock:
         facts = _facts_memo.get(key)
@@ -175,6 +184,33 @@ def host_windows_with_facts(ruleset: RuleSet, n: int) -> tuple[StateSpace, Windo
         with _facts_lock:
             _facts_memo[key] = facts
     return space, win, facts
+
+
+def host_cores() -> int:
+    """Cores this process may run on (its CPU affinity)."""
+    import os
+
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # no affinity on this platform
+        return max(1, os.cpu_count() or 1)
+
+
+WORKER_MEMORY_SHARE = 0.8
+"""Share of a Dask worker's memory limit a shared first sweep may forecast for itself (the
+nanny restarts a worker near 95% of its limit)."""
+
+
+def worker_memory_cap(default: int) -> int:
+    """WORKER_MEMORY_SHARE of this Dask worker's memory limit, `default` when it has none
+    (or outside a worker)."""
+    try:
+        from distributed import get_worker
+
+        limit = get_worker().memory_manager.memory_limit
+    except (ImportError, ValueError, AttributeError):
+        return default
+    return int(WORKER_MEMORY_SHARE * limit) if limit else default
 
 
 def release_task(rules: str | RuleSet, n: int) -> bool:

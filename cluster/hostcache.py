@@ -3,9 +3,12 @@
 Every worker process of a cluster needs the first sweep of the n it counts (`tasks`), and
 the largest part of it, the kept incoming-move lists, is the same for all of them.  Worker
 processes on one host therefore share it: the first process that needs (rules, n) takes a
-file lock, runs the sweep and writes its arrays into a folder of the host cache (one .npy
-file per array, every layer's rows concatenated, plus a small JSON of offsets and
-numbers); the others wait on the lock and map the same files.  The pages are then held
+file lock, runs the sweep (on the host's cores: the others wait) and writes its arrays
+into a folder of the host cache (one .npy file per array, every layer's rows concatenated,
+plus a small JSON of offsets and numbers); the others wait on the lock, mark the folder as
+in use, leave the lock and map and check the same files all at once (a check lists every
+move again when the moves are not kept, so checks one after the other would cost a host
+of 32 workers 31 such listings end to end).  The pages are then held
 once per host, in RAM and in the shared CPU caches, instead of once per worker, and the
 sweep runs once per host instead of once per worker.
 
@@ -18,7 +21,8 @@ temporary directory):
         lmin.npy win.npy term.npy [inc_ptr.npy inc_drop.npy inc_src.npy]
         meta.json                 levels, offsets, dtypes, sizes and SHA-256 of every array
         seal                      SHA-256 of meta.json, written last
-      sweep-...lock               exclusive flock: one process creates/checks/removes
+      sweep-...lock               exclusive flock: one process creates/removes (checks
+                                  run outside it, each process holding `.users`)
       sweep-...users              shared flock: held by every living process using it
 
 Nothing read back is trusted (the folder outlives the process that wrote it):
@@ -31,8 +35,10 @@ Nothing read back is trusted (the folder outlives the process that wrote it):
   array file's size and SHA-256), then `seal` (SHA-256 of meta.json), and renames the
   folder into place.  A reader checks the seal, then maps each array file and hashes the
   very mapping the kernels will read (copy-on-write: pages stay shared).  Any mismatch,
-  unparsable file or wrong dtype/shape: the folder is discarded with one warning and the
-  sweep recomputed (and shared again).  Only the writer, still holding the lock, maps the
+  unparsable file or wrong dtype/shape: the folder is discarded with one warning (under
+  the lock, and only if it is still the folder that was checked: same device, inode, mtime
+  and ctime) and the sweep recomputed (and shared again); a process that finds it damaged
+  `CHECK_ATTEMPTS` times keeps its own sweep.  Only the writer, still holding the lock, maps the
   folder it has just written without hashing or range checks (its counts are its own),
   and a process mapping again the very files it checked before (same seal, and same
   device, inode, size, mtime and ctime: the kernel moves ctime on any change) reuses
@@ -87,6 +93,7 @@ from pathlib import Path
 
 import numpy as np
 from zeckenum.core.listing import moves_in
+from zeckenum.core.memory import available_bytes
 from zeckenum.core.statespace import StateSpace
 from zeckenum.core.sweep import Incoming, Windows
 from zeckenum.errors import InputError
@@ -609,10 +616,13 @@ def _unhold(folder: Path) -> None:
 
 
 def shared_windows(
-    rules_hash: str, n: int, compute: Callable[[], tuple[Windows, dict]], space: StateSpace
+    rules_hash: str, n: int, compute: Callable[[], tuple[Windows, dict]], space: StateSpace,
+    compute_shared: Callable[[], tuple[Windows, dict]] | None = None,
 ) -> tuple[Windows, dict, bool]:
     """(windows, facts, shared) of (rules, n): mapped from this host's cache, computed here
     first (by `compute() -> (Windows, facts dict)`) if no living process of the host has.
+    `compute_shared` (default `compute`) is what runs under the lock to fill the cache,
+    while the host's other processes wait: it may use every core of the host.
 
     `space` is the game's state space: the mapped arrays are checked against it.  `shared`
     is False when the host cache is refused or cannot be written, and `compute`'s own
@@ -632,45 +642,137 @@ def shared_windows(
         win, facts = compute()
         return win, facts, False
     folder = root / sweep_folder(rules_hash, n).name
-    with contextlib.ExitStack() as stack:
-        try:
-            stack.enter_context(_locked(folder.with_name(folder.name + ".lock")))
-        except OSError as exc:
-            log.warning("first sweep of n=%s not shared on this host: %s", n, exc)
-            win, facts = compute()
-            return win, facts, False
-        if os.path.lexists(folder):
-            why = None
+    lock = folder.with_name(folder.name + ".lock")
+    for _ in range(CHECK_ATTEMPTS):
+        with contextlib.ExitStack() as stack:
             try:
-                check_private(folder, "sweep folder")
-                if _abandoned(folder):
-                    why = "left by a dead run"
-            except Unsafe as exc:
-                why = f"refused: {exc}"
-            if why is None:
-                try:
-                    win, facts = load_windows(folder, space)
-                except _UNREADABLE as exc:
-                    why = f"damaged ({exc})"
-                else:
-                    _hold(folder)
-                    return win, facts, True
-            log.warning("shared first sweep %s %s; recomputing it", folder, why)
-            _unhold(folder)
-            _discard(folder)
-        win, facts = compute()
+                stack.enter_context(_locked(lock))
+            except OSError as exc:
+                log.warning("first sweep of n=%s not shared on this host: %s", n, exc)
+                win, facts = compute()
+                return win, facts, False
+            ident = _reusable(folder)
+            if ident is None:
+                return _compute_and_share(folder, compute_shared or compute, space, n)
+            _hold(folder)  # from here on no process takes it for a dead run's
+        # checked outside the lock: the other processes of the host check it at once, as
+        # many as the memory holds
         try:
-            save_windows(folder, win, facts)
-        except OSError as exc:
-            log.warning("first sweep of n=%s not shared on this host: %s", n, exc)
-            return win, facts, False
-        try:
-            mapped, facts = load_windows(folder, space, written=win)
+            with _check_slot(folder, check_slots(space, folder)):
+                win, facts = load_windows(folder, space)
         except _UNREADABLE as exc:
-            log.warning("shared first sweep %s unreadable after writing (%s)", folder, exc)
-            _discard(folder)
-            return win, facts, False
-        _hold(folder)
+            _unhold(folder)
+            log.warning("shared first sweep %s damaged (%s); recomputing it", folder, exc)
+            with _locked(lock):
+                if _identity(folder) == ident:  # not replaced meanwhile by another
+                    _discard(folder)
+            continue
+        return win, facts, True
+    log.warning("first sweep of n=%s not shared on this host: its folder was damaged %d "
+                "times", n, CHECK_ATTEMPTS)
+    win, facts = compute()
+    return win, facts, False
+
+
+def check_bytes(space: StateSpace, kept: bool) -> int:
+    """Bytes `check_windows` holds at its peak, an upper bound: per move of the largest
+    layer (`StateSpace.listing_peak`) its int64 temporaries (destination, source, the two
+    implied bounds: 32 bytes, plus boolean masks), and without kept moves the listing
+    itself; per state a few int64 arrays."""
+    per_move = 40 if kept else 40 + 21
+    return space.listing_peak(64, per_move)
+
+
+def check_slots(space: StateSpace, folder: Path) -> int:
+    """How many processes of this host may check the folder at once: what the memory
+    available now holds (at least 1)."""
+    kept = (folder / "inc_src.npy").exists()
+    return max(1, available_bytes() // max(1, check_bytes(space, kept)))
+
+
+@contextlib.contextmanager
+def _check_slot(folder: Path, slots: int) -> Iterator[None]:
+    """Hold one of `slots` exclusive check locks beside the folder (a semaphore between the
+    processes of the host): a free one if any, else wait for one.  The empty lock files
+    stay, like `.lock`."""
+    import fcntl
+
+    def slot(k: int) -> int:
+        return os.open(folder.with_name(f"{folder.name}.check{k}"),
+                       os.O_CREAT | os.O_RDWR | os.O_NOFOLLOW, 0o600)
+
+    for k in range(slots):
+        fd = slot(k)
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            os.close(fd)
+            continue
+        try:
+            yield
+        finally:
+            os.close(fd)
+        return
+    fd = slot(os.getpid() % slots)
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX)
+        yield
+    finally:
+        os.close(fd)
+
+
+CHECK_ATTEMPTS = 3
+"""Times a process maps a shared first sweep and finds it damaged before it keeps its own."""
+
+
+def _identity(folder: Path) -> tuple[int, ...] | None:
+    """(device, inode, mtime, ctime) of a folder, None when absent: a folder written again
+    under the same name has another."""
+    try:
+        st = os.stat(folder, follow_symlinks=False)
+    except FileNotFoundError:
+        return None
+    return (st.st_dev, st.st_ino, st.st_mtime_ns, st.st_ctime_ns)
+
+
+def _reusable(folder: Path) -> tuple[int, ...] | None:
+    """Under the folder's lock: its identity when it may be mapped (it exists, is private
+    and some living process holds it), else None after removing whatever is there (one
+    warning when something was)."""
+    if not os.path.lexists(folder):
+        return None
+    why = None
+    try:
+        check_private(folder, "sweep folder")
+        if _abandoned(folder):
+            why = "left by a dead run"
+    except Unsafe as exc:
+        why = f"refused: {exc}"
+    if why is None:
+        return _identity(folder)
+    log.warning("shared first sweep %s %s; recomputing it", folder, why)
+    _unhold(folder)
+    _discard(folder)
+    return None
+
+
+def _compute_and_share(folder: Path, compute: Callable[[], tuple[Windows, dict]],
+                       space: StateSpace, n: int) -> tuple[Windows, dict, bool]:
+    """Under the folder's lock: run the sweep, write it into `folder` and map it back (the
+    other processes wait on the lock meanwhile, so the sweep may use the host's cores)."""
+    win, facts = compute()
+    try:
+        save_windows(folder, win, facts)
+    except OSError as exc:
+        log.warning("first sweep of n=%s not shared on this host: %s", n, exc)
+        return win, facts, False
+    try:
+        mapped, facts = load_windows(folder, space, written=win)
+    except _UNREADABLE as exc:
+        log.warning("shared first sweep %s unreadable after writing (%s)", folder, exc)
+        _discard(folder)
+        return win, facts, False
+    _hold(folder)
     return mapped, facts, True
 
 

@@ -525,3 +525,110 @@ def test_a_file_changed_after_a_check_is_checked_again(cache_root: Path) -> None
     got, _, _ = _share(rs, 30, compute)
     assert calls == [1, 1]  # refused and recomputed
     _same_windows(win, got)
+
+
+def _lock_is_free(folder: Path) -> bool:
+    """Whether no open file description holds the folder's exclusive `.lock` (flock locks
+    belong to open file descriptions, so this probe conflicts with this process's too)."""
+    import fcntl
+    import os
+
+    fd = os.open(folder.with_name(folder.name + ".lock"), os.O_RDWR)
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except BlockingIOError:
+        return False
+    finally:
+        os.close(fd)
+    return True
+
+
+def test_a_mapped_folder_is_checked_outside_the_lock(cache_root: Path,
+                                                     monkeypatch: pytest.MonkeyPatch) -> None:
+    # the check lists every move again when the moves are not kept: under the lock, the
+    # worker processes of one host would check one after the other (common practice: hold
+    # a lock only to decide, not to verify)
+    rs = get_rules("standard")
+    _, win, facts = windows_with_facts(rs, 30)
+    _share(rs, 30, lambda: (win, facts.to_dict()))
+    folder = hostcache.sweep_folder(rs.content_hash(), 30)
+    seen = []
+    original = hostcache.check_windows
+
+    def probing(*args, **kwargs):  # noqa: ANN002, ANN003, ANN202
+        seen.append(_lock_is_free(folder))
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(hostcache, "check_windows", probing)
+    hostcache._verified.clear()  # as in another process: nothing checked yet
+    got, _, shared = _share(rs, 30, lambda: pytest.fail("recomputed a good folder"))
+    assert shared and seen == [True]
+    _same_windows(win, got)
+
+
+def test_the_filling_sweep_is_the_shared_one(cache_root: Path) -> None:
+    # `compute_shared` fills the cache under the lock; `compute` only runs when the cache
+    # cannot be used
+    from zeckenum.core.statespace import build_space
+
+    rs = get_rules("standard")
+    _, win, facts = windows_with_facts(rs, 25)
+    calls = []
+    space = build_space(rs.instantiate(25))
+
+    def via(tag: str):  # noqa: ANN202
+        def compute():  # noqa: ANN202
+            calls.append(tag)
+            return win, facts.to_dict()
+        return compute
+
+    got, _, shared = hostcache.shared_windows(rs.content_hash(), 25, via("own"), space,
+                                              via("shared"))
+    assert shared and calls == ["shared"]
+    _same_windows(win, got)
+
+
+def test_checks_wait_for_a_free_check_slot(cache_root: Path,
+                                           monkeypatch: pytest.MonkeyPatch) -> None:
+    # checks outside the lock are bounded by memory: with one slot taken, the next check
+    # waits for it (common practice: a counting semaphore of file locks)
+    import fcntl
+    import os
+    import threading
+
+    rs = get_rules("standard")
+    _, win, facts = windows_with_facts(rs, 30)
+    _share(rs, 30, lambda: (win, facts.to_dict()))
+    folder = hostcache.sweep_folder(rs.content_hash(), 30)
+    monkeypatch.setattr(hostcache, "check_slots", lambda space, folder: 1)
+    hostcache._verified.clear()
+    fd = os.open(folder.with_name(folder.name + ".check0"), os.O_CREAT | os.O_RDWR, 0o600)
+    fcntl.flock(fd, fcntl.LOCK_EX)
+    done = []
+    t = threading.Thread(target=lambda: done.append(_share(rs, 30, lambda: pytest.fail(
+        "recomputed a good folder"))))
+    try:
+        t.start()
+        t.join(1.0)
+        assert not done  # waiting for the slot
+    finally:
+        os.close(fd)
+    t.join(60)
+    assert done and done[0][2]
+    _same_windows(win, done[0][0])
+
+
+def test_check_slots_follow_the_memory(cache_root: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    from zeckenum.core.statespace import build_space
+
+    rs = get_rules("standard")
+    _, win, facts = windows_with_facts(rs, 30)
+    _share(rs, 30, lambda: (win, facts.to_dict()))
+    folder = hostcache.sweep_folder(rs.content_hash(), 30)
+    space = build_space(rs.instantiate(30))
+    one = hostcache.check_bytes(space, kept=True)
+    assert hostcache.check_bytes(space, kept=False) > one
+    monkeypatch.setattr(hostcache, "available_bytes", lambda: 5 * one + 1)
+    assert hostcache.check_slots(space, folder) == 5
+    monkeypatch.setattr(hostcache, "available_bytes", lambda: one - 1)
+    assert hostcache.check_slots(space, folder) == 1
