@@ -95,7 +95,15 @@ import numpy as np
 from zeckenum.core.listing import moves_in
 from zeckenum.core.memory import available_bytes
 from zeckenum.core.statespace import StateSpace
-from zeckenum.core.sweep import Incoming, Windows
+from zeckenum.core.sweep import (
+    FOLD_LATER,
+    FOLD_OUTSIDE,
+    FOLD_UNREACHED,
+    Incoming,
+    Windows,
+    drops_present,
+    fold_windows,
+)
 from zeckenum.errors import InputError
 from zeckenum.safeio import member, read_regular
 
@@ -429,6 +437,13 @@ def _row_reduce(ufunc: np.ufunc, values: np.ndarray, ptr: np.ndarray, size: int,
     return out
 
 
+FOLD_ERRORS = {
+    FOLD_OUTSIDE: "a move from outside its source layer",
+    FOLD_LATER: "a move inside the layer from a later rank",
+    FOLD_UNREACHED: "a kept move from an unreachable state",
+}
+
+
 def check_windows(
     space: StateSpace,
     lmin: dict[int, np.ndarray],
@@ -466,54 +481,29 @@ def check_windows(
                     or drop.size != src.size or np.any(np.diff(ptr) < 0):
                 raise Damaged(f"layer {level}: move rows do not run from 0 to "
                               f"{src.size} monotonically")
-            kept = None
+            kept = True
         else:
             moves = moves_in(space, level)
             ptr, drop, src = moves.ptr, moves.drop, moves.other
-            kept = np.ones(src.size, dtype=bool)
-        src64 = src.astype(np.int64)
+            kept = False
         if drop.size and (int(drop.min()) < 0 or int(drop.max()) > max_drop):
             raise Damaged(f"layer {level}: a move drops outside [0, {max_drop}]")
-        dst = np.repeat(np.arange(size, dtype=np.int64), np.diff(ptr))
-        a = np.empty(src.size, dtype=np.int64)  # 1 + source lmin, 1 + source lmax
-        b = np.empty(src.size, dtype=np.int64)
-        for d in np.unique(drop):
+        # the windows the moves imply, per state (kernel: no temporaries per move)
+        want_lo = np.full(size, np.iinfo(np.int64).max, dtype=np.int64)
+        want_hi = np.full(size, -1, dtype=np.int64)
+        used = np.zeros(size, dtype=np.int64)
+        for d in np.flatnonzero(drops_present(drop, max_drop)):
             d = int(d)
-            sel = drop == d
             if level + d not in lmin:
-                if kept is None:
+                if kept:
                     raise Damaged(f"layer {level}: moves from layer {level + d}, not swept")
-                kept[sel] = False  # derived moves from above the start: the sweeps skip them
-                a[sel], b[sel] = 0, 0
-                continue
-            s = src64[sel]
-            src_size = int(space.layer_size(level + d))
-            if s.size and (s.min() < 0 or s.max() >= src_size):
-                raise Damaged(f"layer {level}: a move from outside layer {level + d}")
-            if d == 0 and np.any(s >= dst[sel]):
-                raise Damaged(f"layer {level}: a move inside the layer from a later rank")
-            s_w = win[level + d].astype(np.int64)[s]
-            s_l = lmin[level + d].astype(np.int64)[s]
-            ok = s_w > 0
-            if kept is None:
-                if not np.all(ok):
-                    raise Damaged(f"layer {level}: a kept move from an unreachable state")
-            else:
-                kept[sel] = ok
-            a[sel] = s_l + 1
-            b[sel] = s_l + s_w
-        if kept is not None:  # derived moves: only those from reachable states count
-            a = np.where(kept, a, np.iinfo(np.int64).max)
-            b = np.where(kept, b, -1)
-            nkept = np.zeros(size + 1, dtype=np.int64)
-            np.cumsum(np.bincount(dst[kept], minlength=size), out=nkept[1:])
-            transitions += int(nkept[-1])
-            has = nkept[1:] > nkept[:-1]
-        else:
-            transitions += int(src.size)
-            has = ptr[1:] > ptr[:-1]
-        want_lo = _row_reduce(np.minimum, a, ptr, size, np.iinfo(np.int64).max)
-        want_hi = _row_reduce(np.maximum, b, ptr, size, -1)
+                continue  # derived moves from above the start: the sweeps skip them
+            err = fold_windows(want_lo, want_hi, used, ptr, drop, src, d, lmin[level + d],
+                               win[level + d], kept)
+            if err:
+                raise Damaged(f"layer {level}: {FOLD_ERRORS[err]}")
+        transitions += int(used.sum())
+        has = used > 0
         if level == start_level:
             has = has.copy()
             has[start_rank] = True
@@ -675,12 +665,11 @@ def shared_windows(
 
 
 def check_bytes(space: StateSpace, kept: bool) -> int:
-    """Bytes `check_windows` holds at its peak, an upper bound: per move of the largest
-    layer (`StateSpace.listing_peak`) its int64 temporaries (destination, source, the two
-    implied bounds: 32 bytes, plus boolean masks), and without kept moves the listing
-    itself; per state a few int64 arrays."""
-    per_move = 40 if kept else 40 + 21
-    return space.listing_peak(64, per_move)
+    """Bytes `check_windows` holds at its peak, an upper bound: a few int64 arrays per state
+    of the largest layer (the windows the moves imply are folded per state by the kernel
+    `fold_windows`, nothing per move), and without kept moves the layer's listing
+    (`StateSpace.listing_peak`, as `count.listing_bytes`)."""
+    return space.listing_peak(64 + 16, 0 if kept else 8 + 8 + 4 + 1)
 
 
 def check_slots(space: StateSpace, folder: Path) -> int:

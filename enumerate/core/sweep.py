@@ -194,6 +194,47 @@ def compress_incoming(moves: LayerMoves, keep: np.ndarray) -> Incoming:
     return Incoming(*compact_rows(moves.ptr, moves.drop, moves.other, moves.w, keep))
 
 
+FOLD_OUTSIDE, FOLD_LATER, FOLD_UNREACHED = 1, 2, 3
+"""Errors of `fold_windows`: a source outside its layer, a drop-0 source of a later rank,
+a kept move from an unreachable state."""
+
+
+@kernel
+def fold_windows(lo: np.ndarray, hi: np.ndarray, used: np.ndarray, ptr: np.ndarray,
+                 drop: np.ndarray, src: np.ndarray, d: int, src_lmin: np.ndarray,
+                 src_win: np.ndarray, kept: bool) -> int:
+    """Fold into lo/hi[j] the window the moves of drop d into state j imply (1 + the
+    source's lmin .. lmin + win), counting in used[j] the moves from reachable sources: the
+    check of an untrusted first sweep, in the memory of its per-state arrays.
+
+    Sources are ranks into src_lmin/src_win (win 0: unreachable).  Returns 0, or
+    FOLD_OUTSIDE (a source outside that layer), FOLD_LATER (a drop-0 source not of a lower
+    rank), FOLD_UNREACHED (`kept`: the moves are a first sweep's kept ones, whose sources
+    must all be reachable).
+    """
+    for j in range(ptr.size - 1):
+        for e in range(ptr[j], ptr[j + 1]):
+            if drop[e] != d:
+                continue
+            s = np.int64(src[e])
+            if s < 0 or s >= src_win.size:
+                return FOLD_OUTSIDE
+            if d == 0 and s >= j:
+                return FOLD_LATER
+            w = np.int64(src_win[s])
+            if w <= 0:
+                if kept:
+                    return FOLD_UNREACHED
+                continue
+            a = np.int64(src_lmin[s]) + 1
+            if a < lo[j]:
+                lo[j] = a
+            if a + w - 1 > hi[j]:
+                hi[j] = a + w - 1
+            used[j] += 1
+    return 0
+
+
 @kernel
 def drops_present(drop: np.ndarray, max_drop: int) -> np.ndarray:
     """seen[d] for d in 0..max_drop: whether some move drops the level by d (no temporary

@@ -632,3 +632,37 @@ def test_check_slots_follow_the_memory(cache_root: Path, monkeypatch: pytest.Mon
     assert hostcache.check_slots(space, folder) == 5
     monkeypatch.setattr(hostcache, "available_bytes", lambda: one - 1)
     assert hostcache.check_slots(space, folder) == 1
+
+
+@pytest.mark.parametrize("damage", ["later_rank", "window_off"])
+def test_check_refuses_moves_that_break_the_windows(damage: str) -> None:
+    # the windows a first sweep records must be those its moves imply (module docstring);
+    # the check folds them per state: each kind of break is refused, not used
+    from zeckenum.core.statespace import build_space
+    from zeckenum.core.sweep import Incoming
+
+    rs = get_rules("standard")
+    space = build_space(rs.instantiate(30))
+    _, win, _ = windows_with_facts(rs, 30)
+    hostcache.check_windows(space, win.lmin, win.win, win.terminal_ranks, win.incoming)
+    inc = {lv: Incoming(i.ptr, i.drop.copy(), i.src.copy()) for lv, i in win.incoming.items()}
+    lmin = {lv: a.copy() for lv, a in win.lmin.items()}
+    done = False
+    for lv in sorted(inc, reverse=True):
+        i = inc[lv]
+        rows = np.repeat(np.arange(i.ptr.size - 1), np.diff(i.ptr))
+        if damage == "later_rank":
+            e = np.flatnonzero(i.drop == 0)
+            if e.size:
+                i.src[e[0]] = rows[e[0]]
+                done = True
+        else:
+            reached = np.flatnonzero(win.win[lv] > 0)
+            if lv != max(inc) and reached.size:
+                lmin[lv][reached[0]] += 1
+                done = True
+        if done:
+            break
+    assert done
+    with pytest.raises(hostcache.Damaged):
+        hostcache.check_windows(space, lmin, win.win, win.terminal_ranks, inc)
