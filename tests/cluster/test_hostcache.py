@@ -549,9 +549,8 @@ def test_a_mapped_folder_is_checked_outside_the_lock(cache_root: Path,
     # worker processes of one host would check one after the other (common practice: hold
     # a lock only to decide, not to verify)
     rs = get_rules("standard")
-    _, win, facts = windows_with_facts(rs, 30)
-    _share(rs, 30, lambda: (win, facts.to_dict()))
-    folder = hostcache.sweep_folder(rs.content_hash(), 30)
+    folder = _shared_folder(30)
+    win = windows_with_facts(rs, 30)[1]
     seen = []
     original = hostcache.check_windows
 
@@ -597,9 +596,8 @@ def test_checks_wait_for_a_free_check_slot(cache_root: Path,
     import threading
 
     rs = get_rules("standard")
-    _, win, facts = windows_with_facts(rs, 30)
-    _share(rs, 30, lambda: (win, facts.to_dict()))
-    folder = hostcache.sweep_folder(rs.content_hash(), 30)
+    folder = _shared_folder(30)
+    win = windows_with_facts(rs, 30)[1]
     monkeypatch.setattr(hostcache, "check_slots", lambda space, folder: 1)
     hostcache._verified.clear()
     fd = os.open(folder.with_name(folder.name + ".check0"), os.O_CREAT | os.O_RDWR, 0o600)
@@ -622,9 +620,7 @@ def test_check_slots_follow_the_memory(cache_root: Path, monkeypatch: pytest.Mon
     from zeckenum.core.statespace import build_space
 
     rs = get_rules("standard")
-    _, win, facts = windows_with_facts(rs, 30)
-    _share(rs, 30, lambda: (win, facts.to_dict()))
-    folder = hostcache.sweep_folder(rs.content_hash(), 30)
+    folder = _shared_folder(30)
     space = build_space(rs.instantiate(30))
     one = hostcache.check_bytes(space, kept=True)
     assert hostcache.check_bytes(space, kept=False) > one
