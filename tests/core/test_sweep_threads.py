@@ -14,13 +14,12 @@ from collections.abc import Iterator
 import networkx as nx
 import numpy as np
 import pytest
+from bruteforce import move_graph, padded, start_state
 from zeckenum.core import sweep
 from zeckenum.core.statespace import build_space
 from zeckenum.core.sweep import sweep_windows
 from zeckenum.randomplay.skeleton import random_skeleton
 from zeckenum.rules.catalogue import get_rules
-
-from tests.support.bruteforce import move_graph, padded, start_state
 
 
 @pytest.fixture
