@@ -111,8 +111,5 @@ def main() -> int:
     return 0
 
 
-    return 0
-
-
 if __name__ == "__main__":
     raise SystemExit(main())

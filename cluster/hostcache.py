@@ -427,16 +427,6 @@ def load_windows(
     return out, dict(facts) if isinstance(facts, dict) else {}
 
 
-def _row_reduce(ufunc: np.ufunc, values: np.ndarray, ptr: np.ndarray, size: int,
-                empty: int) -> np.ndarray:
-    """ufunc-reduction of values[ptr[j]:ptr[j+1]] for every row j (`empty` for none)."""
-    out = np.full(size, empty, dtype=np.int64)
-    nonempty = np.flatnonzero(ptr[1:] > ptr[:-1])
-    if nonempty.size:
-        out[nonempty] = ufunc.reduceat(values, ptr[nonempty])
-    return out
-
-
 FOLD_ERRORS = {
     FOLD_OUTSIDE: "a move from outside its source layer",
     FOLD_LATER: "a move inside the layer from a later rank",
